@@ -1,0 +1,99 @@
+// porebench: trials of CT pore-segmentation methods against paired references.
+// Exit codes: 0 success, 1 acceptance criteria not met, 2 bad usage or input, 3 internal error.
+#include <algorithm>
+#include <cstdio>
+#include <iostream>
+
+#include "apps/cli.hpp"
+#include "build_info.hpp"
+#include "core/error.hpp"
+#include "core/parallel.hpp"
+
+namespace pb::cli {
+
+namespace {
+Globals g_globals;
+}
+const Globals& globals() { return g_globals; }
+
+std::vector<CommandDef>& commands() {
+  static std::vector<CommandDef> c;
+  return c;
+}
+bool add_command(CommandDef c) {
+  commands().push_back(std::move(c));
+  return true;
+}
+
+void log(const std::string& msg) {
+  if (!g_globals.quiet) std::cerr << msg << '\n';
+}
+
+void ReadArgs::add_to(CLI::App* cmd) {
+  cmd->add_option("--raw-dims", raw_dims, "raw input: voxels along x,y,z")->delimiter(',')->expected(3);
+  cmd->add_option("--raw-type", raw_type, "raw input: uint8, uint16, int16 or float32");
+  cmd->add_option("--raw-endian", raw_endian, "raw input: little or big")->check(CLI::IsMember({"little", "big"}));
+  cmd->add_option("--raw-header", raw_header, "raw input: bytes to skip before the voxels");
+  cmd->add_option("--spacing", spacing, "voxel size x,y,z in mm (required for raw; overrides the file)")
+      ->delimiter(',')
+      ->expected(3);
+}
+
+ReadOptions ReadArgs::options(const std::string& input) const {
+  ReadOptions o;
+  const bool raw = !raw_dims.empty() || !raw_type.empty();
+  if (!spacing.empty()) o.spacing_mm = std::array<double, 3>{spacing[0], spacing[1], spacing[2]};
+  if (raw) {
+    if (raw_dims.size() != 3) throw InputError("raw input " + input + ": --raw-dims X,Y,Z is required");
+    if (raw_type.empty()) throw InputError("raw input " + input + ": --raw-type is required");
+    if (spacing.empty()) throw InputError("raw input " + input + ": --spacing X,Y,Z (mm) is required");
+    RawSpec r;
+    r.dims = {raw_dims[0], raw_dims[1], raw_dims[2]};
+    r.type = parse_voxel_type(raw_type);
+    r.big_endian = raw_endian == "big";
+    r.header_bytes = raw_header;
+    r.spacing_mm = *o.spacing_mm;
+    o.raw = r;
+  }
+  return o;
+}
+
+}  // namespace pb::cli
+
+int main(int argc, char** argv) {
+  using namespace pb;
+  CLI::App app{"porebench: put CT pore-segmentation methods on trial against paired references"};
+  app.set_version_flag("--version", std::string(build::version) + " (" + build::git_hash + ")");
+  app.add_option("--threads", cli::g_globals.threads, "worker threads (default: all cores)")->check(CLI::NonNegativeNumber);
+  app.add_flag("--quiet", cli::g_globals.quiet, "print only results and errors");
+  app.require_subcommand(1);
+  app.fallthrough();
+  auto& defs = cli::commands();
+  std::sort(defs.begin(), defs.end(), [](auto& a, auto& b) { return a.order < b.order; });
+  std::vector<std::pair<CLI::App*, cli::Action>> actions;
+  for (auto& d : defs) {
+    CLI::App* sub = app.add_subcommand(d.name);
+    actions.emplace_back(sub, d.setup(*sub));
+  }
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    const int rc = app.exit(e);
+    return rc == 0 ? 0 : kExitBadInput;
+  }
+  try {
+    set_threads(cli::g_globals.threads);
+    for (auto& [sub, action] : actions)
+      if (sub->parsed()) return action();
+  } catch (const InputError& e) {
+    std::cerr << "porebench: error: " << e.what() << '\n';
+    return kExitBadInput;
+  } catch (const CriteriaFailed& e) {
+    std::cerr << "porebench: " << e.what() << '\n';
+    return kExitCriteria;
+  } catch (const std::exception& e) {
+    std::cerr << "porebench: internal error: " << e.what() << '\n';
+    return kExitInternal;
+  }
+  return kExitInternal;
+}

@@ -1,0 +1,40 @@
+#pragma once
+// Grey-value histograms and simple statistics over a float volume, optionally inside a mask.
+// Bin i covers [lo + i*w, lo + (i+1)*w) with w = (hi - lo) / bins; the last bin includes hi.
+// NaN voxels are never counted. Parallel with per-thread histograms merged in thread order.
+#include <cstdint>
+#include <vector>
+
+#include "core/volume.hpp"
+
+namespace pb {
+
+struct Histogram {
+  double lo = 0, hi = 1;
+  std::vector<uint64_t> counts;
+
+  int bins() const { return int(counts.size()); }
+  double width() const { return (hi - lo) / double(counts.size()); }
+  double edge(int i) const { return lo + width() * i; }          // lower edge of bin i
+  double centre(int i) const { return lo + width() * (i + 0.5); }
+  uint64_t total() const;
+  int bin_of(double v) const;  // clamped to [0, bins-1]
+};
+
+struct Stats {
+  double min = 0, max = 0, mean = 0;
+  int64_t count = 0;      // finite voxels counted
+  int64_t nan_count = 0;
+};
+
+Stats compute_stats(const float* data, int64_t n, const uint8_t* mask = nullptr);
+Histogram compute_histogram(const float* data, int64_t n, double lo, double hi, int bins,
+                            const uint8_t* mask = nullptr);
+// Value below which `fraction` of the counted voxels lie, interpolated within a bin.
+double histogram_quantile(const Histogram& h, double fraction);
+
+inline Stats compute_stats(const VolumeF& v, const Mask* m = nullptr) {
+  return compute_stats(v.data(), v.size(), m ? m->data() : nullptr);
+}
+
+}  // namespace pb

@@ -1,0 +1,18 @@
+#pragma once
+// Shared pore extraction. Pores are dark: a voxel is air when its grey value is below the
+// threshold. Air 6-connected to the volume border, or to air outside the part mask (ROI), is
+// background; the rest of the air inside the ROI is pores.
+#include "core/volume.hpp"
+
+namespace pb {
+
+// 1 where v < threshold (and inside roi, when given); NaN voxels are never air.
+Mask air_below(const VolumeF& v, double threshold, const Mask* roi);
+
+// Turns an air mask into a pore mask in place (see above). Returns the number of part voxels:
+// voxels inside the ROI that are not outside air (material plus pores), the porosity denominator.
+int64_t air_to_pores(Mask& air, const Mask* roi);
+
+int64_t count_nonzero(const Mask& m);
+
+}  // namespace pb

@@ -1,0 +1,197 @@
+#include "methods/registry.hpp"
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <sstream>
+
+#include "core/error.hpp"
+
+namespace pb {
+
+const char* param_type_name(ParamType t) {
+  switch (t) {
+    case ParamType::Int: return "int";
+    case ParamType::Float: return "float";
+    case ParamType::Enum: return "enum";
+    case ParamType::Bool: return "bool";
+  }
+  return "?";
+}
+
+namespace {
+
+std::string fmt_num(double v) {
+  if (std::isinf(v)) return v > 0 ? "inf" : "-inf";
+  std::ostringstream s;
+  s.precision(10);
+  s << v;
+  return s.str();
+}
+
+std::string range_text(const ParamSpec& s) {
+  switch (s.type) {
+    case ParamType::Int:
+    case ParamType::Float: return "[" + fmt_num(s.min) + ", " + fmt_num(s.max) + "]";
+    case ParamType::Bool: return "true or false";
+    case ParamType::Enum: {
+      std::string out;
+      for (const auto& c : s.choices) out += (out.empty() ? "" : ", ") + c;
+      return "one of " + out;
+    }
+  }
+  return "";
+}
+
+}  // namespace
+
+void ParamValues::set(const ParamSpec& s, const std::string& value) {
+  auto bad = [&](const std::string& why) {
+    return InputError("parameter '" + s.name + "': " + why + " '" + value + "' (" + param_type_name(s.type) +
+                      ", allowed " + range_text(s) + (s.unit.empty() ? "" : ", unit " + s.unit) + ")");
+  };
+  switch (s.type) {
+    case ParamType::Int:
+    case ParamType::Float: {
+      char* end = nullptr;
+      const double v = std::strtod(value.c_str(), &end);
+      if (value.empty() || end != value.c_str() + value.size() || !std::isfinite(v)) throw bad("not a number:");
+      if (s.type == ParamType::Int && v != std::floor(v)) throw bad("not a whole number:");
+      if (v < s.min || v > s.max) throw bad("value out of range:");
+      num_[s.name] = v;
+      text_[s.name] = s.type == ParamType::Int ? std::to_string(int64_t(v)) : fmt_num(v);
+      break;
+    }
+    case ParamType::Bool: {
+      if (value == "true" || value == "1" || value == "yes") text_[s.name] = "true";
+      else if (value == "false" || value == "0" || value == "no") text_[s.name] = "false";
+      else throw bad("not a boolean:");
+      num_[s.name] = text_[s.name] == "true";
+      break;
+    }
+    case ParamType::Enum: {
+      if (std::find(s.choices.begin(), s.choices.end(), value) == s.choices.end()) throw bad("unknown choice");
+      text_[s.name] = value;
+      break;
+    }
+  }
+}
+
+double ParamValues::num(const std::string& n) const {
+  auto it = num_.find(n);
+  if (it == num_.end()) throw std::logic_error("parameter not in schema: " + n);
+  return it->second;
+}
+int64_t ParamValues::integer(const std::string& n) const { return int64_t(num(n)); }
+bool ParamValues::flag(const std::string& n) const { return num(n) != 0; }
+const std::string& ParamValues::choice(const std::string& n) const {
+  auto it = text_.find(n);
+  if (it == text_.end()) throw std::logic_error("parameter not in schema: " + n);
+  return it->second;
+}
+
+Registry& Registry::instance() {
+  static Registry r;
+  return r;
+}
+
+bool Registry::add(MethodInfo m) {
+  if (methods_.count(m.name)) {
+    std::fprintf(stderr, "porebench: method '%s' registered twice\n", m.name.c_str());
+    std::abort();
+  }
+  methods_.emplace(m.name, std::move(m));
+  return true;
+}
+
+const MethodInfo* Registry::find(const std::string& name) const {
+  auto it = methods_.find(name);
+  return it == methods_.end() ? nullptr : &it->second;
+}
+
+const MethodInfo& Registry::get(const std::string& name) const {
+  if (const auto* m = find(name)) return *m;
+  std::vector<std::string> names;
+  for (const auto& [n, _] : methods_) names.push_back(n);
+  const std::string near = closest_name(name, names);
+  std::string list;
+  for (const auto& n : names) list += (list.empty() ? "" : ", ") + n;
+  throw InputError("unknown method '" + name + "'" + (near.empty() ? "" : " (did you mean '" + near + "'?)") +
+                   "; known methods: " + list);
+}
+
+std::vector<const MethodInfo*> Registry::all() const {
+  std::vector<const MethodInfo*> out;
+  for (const auto& [_, m] : methods_) out.push_back(&m);
+  std::stable_sort(out.begin(), out.end(), [](auto* a, auto* b) { return a->family < b->family; });
+  return out;
+}
+
+std::string closest_name(const std::string& w, const std::vector<std::string>& cands) {
+  std::string best;
+  size_t best_d = std::max<size_t>(2, w.size() / 3) + 1;
+  for (const auto& c : cands) {
+    std::vector<size_t> prev(c.size() + 1), cur(c.size() + 1);
+    for (size_t j = 0; j <= c.size(); ++j) prev[j] = j;
+    for (size_t i = 1; i <= w.size(); ++i) {
+      cur[0] = i;
+      for (size_t j = 1; j <= c.size(); ++j)
+        cur[j] = std::min({prev[j] + 1, cur[j - 1] + 1, prev[j - 1] + (w[i - 1] == c[j - 1] ? 0 : 1)});
+      std::swap(prev, cur);
+    }
+    if (prev[c.size()] < best_d) {
+      best_d = prev[c.size()];
+      best = c;
+    }
+  }
+  return best;
+}
+
+ParamValues parse_params(const MethodInfo& m, const std::vector<std::string>& kvs) {
+  std::map<std::string, std::string> given;
+  std::vector<std::string> names;
+  for (const auto& s : m.params) names.push_back(s.name);
+  for (const auto& kv : kvs) {
+    const auto eq = kv.find('=');
+    if (eq == std::string::npos || eq == 0)
+      throw InputError("parameter setting '" + kv + "' for method " + m.name + " is not of the form key=value");
+    const std::string key = kv.substr(0, eq);
+    if (std::find(names.begin(), names.end(), key) == names.end()) {
+      const std::string near = closest_name(key, names);
+      std::string list;
+      for (const auto& n : names) list += (list.empty() ? "" : ", ") + n;
+      throw InputError("unknown parameter '" + key + "' for method " + m.name +
+                       (near.empty() ? "" : " (did you mean '" + near + "'?)") +
+                       "; parameters: " + (list.empty() ? "none" : list));
+    }
+    if (given.count(key)) throw InputError("parameter '" + key + "' for method " + m.name + " is given twice");
+    given[key] = kv.substr(eq + 1);
+  }
+  ParamValues p;
+  for (const auto& s : m.params) {
+    auto it = given.find(s.name);
+    if (it == given.end() && s.default_value.empty())
+      throw InputError("method " + m.name + ": parameter '" + s.name + "' is required (" + s.doc + ")");
+    try {
+      p.set(s, it == given.end() ? s.default_value : it->second);
+    } catch (const InputError& e) {
+      throw InputError("method " + m.name + ": " + e.what());
+    }
+  }
+  return p;
+}
+
+MethodOutput run_method(const MethodInfo& m, const ParamValues& p, const MethodInput& in) {
+  if (in.volume.empty()) throw InputError("method " + m.name + ": the input volume is empty");
+  if (in.roi && !in.roi->geometry().same_dims(in.volume.geometry()))
+    throw InputError("method " + m.name + ": ROI mask dims (" + describe(in.roi->geometry()) +
+                     ") differ from the volume (" + describe(in.volume.geometry()) + ")");
+  const auto t0 = std::chrono::steady_clock::now();
+  MethodOutput out = m.run(in, p);
+  out.runtime_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  return out;
+}
+
+}  // namespace pb

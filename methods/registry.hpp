@@ -1,0 +1,93 @@
+#pragma once
+// The method registry. Every segmentation method describes itself (name, family, one-line doc,
+// citation, typed parameter schema) and registers itself from its own file with
+// PB_REGISTER_METHOD; nothing central lists methods. Parameters arrive as "key=value" strings and
+// are validated against the schema before any work; errors name the parameter, the value and the
+// allowed range. Convention for every method: pores are dark (air is below the threshold).
+#include <functional>
+#include <limits>
+#include <map>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "core/volume.hpp"
+
+namespace pb {
+
+enum class ParamType { Int, Float, Enum, Bool };
+const char* param_type_name(ParamType t);
+
+struct ParamSpec {
+  std::string name;
+  ParamType type = ParamType::Float;
+  std::string default_value;  // empty = required
+  double min = -std::numeric_limits<double>::infinity();
+  double max = std::numeric_limits<double>::infinity();
+  std::vector<std::string> choices;  // for Enum
+  std::string unit;                  // "grey", "voxels", "mm", "%", "" ...
+  std::string doc;
+};
+
+// Validated parameter values of one method run: every schema parameter has a value.
+class ParamValues {
+ public:
+  double num(const std::string& name) const;       // Int or Float
+  int64_t integer(const std::string& name) const;  // Int
+  bool flag(const std::string& name) const;         // Bool
+  const std::string& choice(const std::string& name) const;  // Enum
+  const std::map<std::string, std::string>& text() const { return text_; }  // canonical strings
+  void set(const ParamSpec& spec, const std::string& value);  // validates; throws InputError
+
+ private:
+  std::map<std::string, std::string> text_;
+  std::map<std::string, double> num_;
+};
+
+struct MethodInput {
+  const VolumeF& volume;
+  const Mask* roi = nullptr;  // part mask: only voxels inside are classified; outside is background
+};
+
+struct MethodOutput {
+  Mask pores;                                         // 1 = pore
+  int64_t part_voxels = 0;                            // material + pores inside the ROI (porosity denominator)
+  std::vector<std::pair<std::string, double>> chosen;  // what the method decided, e.g. threshold (grey)
+  std::vector<std::string> warnings;                  // degenerate input and the like
+  double runtime_s = 0;                               // wall time of the run, set by run_method
+};
+
+struct MethodInfo {
+  std::string name, family, doc, citation;
+  std::vector<ParamSpec> params;
+  std::function<MethodOutput(const MethodInput&, const ParamValues&)> run;
+};
+
+class Registry {
+ public:
+  static Registry& instance();
+  bool add(MethodInfo m);  // returns true; aborts on a duplicate name (a programming error)
+  const MethodInfo* find(const std::string& name) const;
+  const MethodInfo& get(const std::string& name) const;  // throws InputError listing the known names
+  std::vector<const MethodInfo*> all() const;            // sorted by family, then name
+
+ private:
+  std::map<std::string, MethodInfo> methods_;
+};
+
+// Parses "key=value" strings against the schema; unset parameters take their defaults.
+ParamValues parse_params(const MethodInfo& m, const std::vector<std::string>& key_values);
+
+// Runs and times a method; checks the input first (non-empty volume, ROI geometry).
+MethodOutput run_method(const MethodInfo& m, const ParamValues& p, const MethodInput& in);
+
+// The closest of `candidates` to `word` by edit distance, or "" when none is close.
+std::string closest_name(const std::string& word, const std::vector<std::string>& candidates);
+
+#define PB_CONCAT_INNER(a, b) a##b
+#define PB_CONCAT(a, b) PB_CONCAT_INNER(a, b)
+// Registers a MethodInfo at static-initialisation time: PB_REGISTER_METHOD(make_info());
+#define PB_REGISTER_METHOD(...) \
+  static const bool PB_CONCAT(pb_registered_, __LINE__) = ::pb::Registry::instance().add(__VA_ARGS__)
+
+}  // namespace pb

@@ -1,0 +1,42 @@
+#pragma once
+// Shared machinery of threshold methods: the histogram a method sees (bins and range are
+// parameters, with optional robust clipping), and the shared apply step (air = grey < threshold,
+// then pore extraction). A global method is a calculator: histogram -> threshold in grey units.
+#include <functional>
+#include <string>
+#include <vector>
+
+#include "core/histogram.hpp"
+#include "methods/registry.hpp"
+
+namespace pb {
+
+// Schema entries every histogram method takes: bins, clip_pct.
+std::vector<ParamSpec> histogram_params();
+
+// Histogram of the voxels inside the ROI over [min, max] or, with clip_pct > 0, over the
+// [clip_pct, 100 - clip_pct] percentile range (values outside go to the end bins).
+Histogram method_histogram(const MethodInput& in, const ParamValues& p);
+
+struct ThresholdChoice {
+  double threshold = 0;           // grey units: air is v < threshold
+  std::vector<std::string> warnings;
+};
+
+// Pore mask from a threshold, recording it as chosen["threshold"].
+MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c);
+
+// Registers a histogram method: `calc` sees the method's histogram and parameters.
+using ThresholdCalculator = std::function<ThresholdChoice(const Histogram&, const ParamValues&)>;
+MethodInfo histogram_method(std::string name, std::string doc, std::string citation, ThresholdCalculator calc,
+                            std::vector<ParamSpec> extra_params = {});
+
+// True when fewer than two bins are occupied (constant volume): no threshold can split it.
+bool single_occupied_bin(const Histogram& h);
+
+}  // namespace pb
+
+namespace pb {
+// Otsu's split on a histogram: the last bin index of the dark class (methods/global.cpp).
+int otsu_split(const Histogram& h);
+}  // namespace pb

@@ -1,0 +1,20 @@
+#!/usr/bin/env bash
+# Installs the Debian packages porebench needs, only those missing. Idempotent; fast when all present.
+# Usage: scripts/setup.sh [--tests]   (--tests adds the Python reference libraries used by tests/)
+set -euo pipefail
+build=(cmake g++ make pkg-config
+       libinsighttoolkit5-dev libopencv-dev libeigen3-dev libfftw3-dev
+       libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev)
+tests=(python3-skimage python3-scipy python3-sklearn python3-statsmodels python3-pandas python3-numpy)
+want=("${build[@]}")
+[ "${1:-}" = "--tests" ] && want+=("${tests[@]}")
+missing=()
+for p in "${want[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
+done
+if [ ${#missing[@]} -eq 0 ]; then exit 0; fi
+echo "setup: installing ${missing[*]}" >&2
+SUDO=""; [ "$(id -u)" -ne 0 ] && SUDO="sudo"
+export DEBIAN_FRONTEND=noninteractive
+$SUDO apt-get update -qq
+$SUDO apt-get install -y -qq --no-install-recommends "${missing[@]}" >/dev/null
