@@ -54,7 +54,7 @@ Action setup_segment(CLI::App& app) {
       check_same_geometry(raw.geometry(), a->input, r.geometry(), a->roi);
       roi = r.to_mask();
     }
-    MethodInput in{vol, a->roi.empty() ? nullptr : &roi};
+    MethodInput in{vol, a->roi.empty() ? nullptr : &roi, raw.type()};
     MethodOutput out = run_method(m, params, in);
     for (const auto& w : out.warnings) log("porebench: warning: " + w);
 

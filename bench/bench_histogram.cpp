@@ -42,5 +42,3 @@ void BM_Stats(benchmark::State& state) {
 BENCHMARK(BM_Stats)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 }  // namespace
-
-BENCHMARK_MAIN();

@@ -47,6 +47,7 @@ class ParamValues {
 struct MethodInput {
   const VolumeF& volume;
   const Mask* roi = nullptr;  // part mask: only voxels inside are classified; outside is background
+  VoxelType stored_type = VoxelType::f32;  // voxel type on disk (integer data: mind histogram resolution)
 };
 
 struct MethodOutput {
