@@ -1,0 +1,30 @@
+#pragma once
+// 3D connected-component labelling of a binary mask (non-zero = foreground) with 6-, 18- or
+// 26-connectivity. Run-based two-scan labelling with union-find: He, Chao & Suzuki (2008) "A
+// run-based two-scan labeling algorithm", IEEE Trans. Image Process. 17(5):749-756, extended to
+// 3D. Labels are 1..count in raster order (x fastest, then y, then z) of each component's first
+// voxel; 0 is background. The result does not depend on the thread count.
+#include <cstdint>
+#include <vector>
+
+#include "core/volume.hpp"
+
+namespace pb {
+
+struct Components {
+  Image<uint32_t> labels;      // same geometry as the mask
+  uint32_t count = 0;          // number of components
+  std::vector<int64_t> sizes;  // sizes[k] = voxels of label k (k = 1..count); sizes[0] = 0
+};
+
+// connectivity: 6 (faces), 18 (faces + edges) or 26 (faces + edges + corners); anything else
+// throws InputError naming the value.
+Components label_components(const Mask& m, int connectivity = 26);
+
+// Voxels per label, indexed by label (index 0 = 0). Same as Components::sizes.
+std::vector<int64_t> component_sizes(const Components& c);
+
+// Throws InputError unless connectivity is 6, 18 or 26; `field` names the option in the message.
+void check_connectivity(int connectivity, const char* field = "connectivity");
+
+}  // namespace pb

@@ -1,0 +1,147 @@
+// Connected-component labelling: hand-computed tiny volumes for 6/18/26-connectivity, comparison
+// with scipy.ndimage.label on random volumes (same count, same partition up to relabelling), and
+// independence from the thread count.
+#include <catch2/catch.hpp>
+#include <omp.h>
+
+#include <map>
+#include <nlohmann/json.hpp>
+
+#include "core/error.hpp"
+#include "metrics/ccl.hpp"
+#include "tests/helpers.hpp"
+
+using namespace pb;
+
+namespace {
+
+Mask random_mask(const Geometry& g, double p, unsigned seed) {
+  Mask m(g);
+  std::mt19937_64 rng(seed);
+  std::bernoulli_distribution b(p);
+  for (int64_t i = 0; i < m.size(); ++i) m[i] = b(rng) ? 1 : 0;
+  return m;
+}
+
+// True when a and b are the same partition of the foreground: label maps are bijective.
+bool same_partition(const uint32_t* a, const uint32_t* b, int64_t n) {
+  std::map<uint32_t, uint32_t> ab, ba;
+  for (int64_t i = 0; i < n; ++i) {
+    if ((a[i] == 0) != (b[i] == 0)) return false;
+    if (a[i] == 0) continue;
+    auto [it, fresh] = ab.emplace(a[i], b[i]);
+    if (!fresh && it->second != b[i]) return false;
+    auto [jt, fresh2] = ba.emplace(b[i], a[i]);
+    if (!fresh2 && jt->second != a[i]) return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+TEST_CASE("tiny volumes: face, edge and corner neighbours per connectivity", "[metrics][ccl]") {
+  Geometry g;
+  g.dims = {3, 3, 3};
+  // Edge neighbours (0,0,0) and (1,1,0): two components under 6, one under 18 and 26.
+  Mask edge(g);
+  edge(0, 0, 0) = edge(1, 1, 0) = 1;
+  CHECK(label_components(edge, 6).count == 2);
+  CHECK(label_components(edge, 18).count == 1);
+  CHECK(label_components(edge, 26).count == 1);
+  // Corner neighbours (0,0,0) and (1,1,1): two under 6 and 18, one under 26.
+  Mask corner(g);
+  corner(0, 0, 0) = corner(1, 1, 1) = 1;
+  CHECK(label_components(corner, 6).count == 2);
+  CHECK(label_components(corner, 18).count == 2);
+  CHECK(label_components(corner, 26).count == 1);
+  // Corner step backwards in y (x+1, y-1, z+1), the (+1,-1) row offset: (1,2,0) and (2,1,1).
+  Mask back(g);
+  back(1, 2, 0) = back(2, 1, 1) = 1;
+  CHECK(label_components(back, 18).count == 2);
+  CHECK(label_components(back, 26).count == 1);
+  // Edge step (y+1, z-1) seen from the later voxel: (1,2,0) and (1,1,1): one under 18.
+  Mask yz(g);
+  yz(1, 2, 0) = yz(1, 1, 1) = 1;
+  CHECK(label_components(yz, 6).count == 2);
+  CHECK(label_components(yz, 18).count == 1);
+}
+
+TEST_CASE("labels are numbered in raster order of first voxels, sizes per label", "[metrics][ccl]") {
+  // A U shape in one slice: row y=0 has voxels x=0 and x=2, row y=1 joins them (x=0..2). Under any
+  // connectivity it is one component of 5 voxels; a lone voxel at (0,0,2) is label 2 (size 1).
+  Geometry g;
+  g.dims = {3, 2, 3};
+  Mask m(g);
+  m(0, 0, 0) = m(2, 0, 0) = 1;
+  m(0, 1, 0) = m(1, 1, 0) = m(2, 1, 0) = 1;
+  m(0, 0, 2) = 1;
+  for (int conn : {6, 18, 26}) {
+    const Components c = label_components(m, conn);
+    REQUIRE(c.count == 2);
+    CHECK(c.labels(0, 0, 0) == 1);
+    CHECK(c.labels(2, 0, 0) == 1);
+    CHECK(c.labels(0, 0, 2) == 2);
+    CHECK(c.labels(1, 0, 0) == 0);
+    const auto s = component_sizes(c);
+    REQUIRE(s.size() == 3);
+    CHECK(s[1] == 5);
+    CHECK(s[2] == 1);
+  }
+}
+
+TEST_CASE("empty and full masks, bad connectivity", "[metrics][ccl]") {
+  Geometry g;
+  g.dims = {4, 3, 2};
+  const Mask empty(g);
+  CHECK(label_components(empty, 26).count == 0);
+  const Mask full(g, 1);
+  const Components c = label_components(full, 6);
+  CHECK(c.count == 1);
+  CHECK(c.sizes[1] == 24);
+  CHECK_THROWS_WITH(label_components(full, 8), Catch::Contains("connectivity") && Catch::Contains("8"));
+  const Mask none;  // zero voxels
+  CHECK(label_components(none, 26).count == 0);
+}
+
+TEST_CASE("same partition as scipy.ndimage.label on random volumes", "[metrics][ccl][ref]") {
+  // Reference: scipy.ndimage.label with generate_binary_structure(3, 1|2|3) (Debian python3-scipy).
+  const int conn = GENERATE(6, 18, 26);
+  const double p = GENERATE(0.2, 0.5);
+  Geometry g;
+  g.dims = {37, 29, 23};  // unequal dims catch axis mix-ups
+  const Mask m = random_mask(g, p, unsigned(conn * 100 + int(p * 10)));
+  pbtest::TempDir d;
+  write_raw(AnyVolume(m), d / "m.raw");
+  const auto r = pbtest::run_ref_script("metrics_ccl.py", d / "m.raw" + " 37 29 23 " + std::to_string(conn) + " " +
+                                                              d / "ref.raw");
+  INFO(r.err);
+  REQUIRE(r.exit_code == 0);
+  const auto j = nlohmann::json::parse(r.out);
+  std::vector<uint32_t> ref(size_t(m.size()));
+  {
+    std::ifstream f(d / "ref.raw", std::ios::binary);
+    f.read(reinterpret_cast<char*>(ref.data()), std::streamsize(ref.size() * 4));
+    REQUIRE(f.gcount() == std::streamsize(ref.size() * 4));
+  }
+  const Components c = label_components(m, conn);
+  INFO("connectivity " << conn << " p " << p);
+  CHECK(c.count == j["count"].get<uint32_t>());
+  CHECK(same_partition(c.labels.data(), ref.data(), m.size()));
+  int64_t total = 0;
+  for (auto s : c.sizes) total += s;
+  CHECK(total == int64_t(ref.size()) - int64_t(std::count(ref.begin(), ref.end(), 0u)));  // all foreground labelled
+}
+
+TEST_CASE("labels do not depend on the thread count", "[metrics][ccl]") {
+  Geometry g;
+  g.dims = {40, 30, 50};
+  const Mask m = random_mask(g, 0.45, 7);
+  const int before = omp_get_max_threads();
+  omp_set_num_threads(1);
+  const Components one = label_components(m, 26);
+  omp_set_num_threads(3);  // more slabs than cores: boundaries are merged in order
+  const Components three = label_components(m, 26);
+  omp_set_num_threads(before);
+  CHECK(one.count == three.count);
+  CHECK(one.labels.buffer() == three.labels.buffer());
+}
