@@ -111,15 +111,107 @@ const MethodInfo* Registry::find(const std::string& name) const {
   return it == methods_.end() ? nullptr : &it->second;
 }
 
+namespace {
+std::string join_names(const std::vector<std::string>& names) {
+  std::string list;
+  for (const auto& n : names) list += (list.empty() ? "" : ", ") + n;
+  return list;
+}
+}  // namespace
+
 const MethodInfo& Registry::get(const std::string& name) const {
   if (const auto* m = find(name)) return *m;
+  if (name.find('+') != std::string::npos) return compose(name);
   std::vector<std::string> names;
   for (const auto& [n, _] : methods_) names.push_back(n);
   const std::string near = closest_name(name, names);
-  std::string list;
-  for (const auto& n : names) list += (list.empty() ? "" : ", ") + n;
   throw InputError("unknown method '" + name + "'" + (near.empty() ? "" : " (did you mean '" + near + "'?)") +
-                   "; known methods: " + list);
+                   "; known methods: " + join_names(names));
+}
+
+bool Registry::add_filter(FilterInfo f) {
+  if (filters_.count(f.name) || methods_.count(f.name)) {
+    std::fprintf(stderr, "porebench: filter '%s' registered twice\n", f.name.c_str());
+    std::abort();
+  }
+  filters_.emplace(f.name, std::move(f));
+  return true;
+}
+
+const FilterInfo* Registry::find_filter(const std::string& name) const {
+  auto it = filters_.find(name);
+  return it == filters_.end() ? nullptr : &it->second;
+}
+
+std::vector<const FilterInfo*> Registry::filters() const {
+  std::vector<const FilterInfo*> out;
+  for (const auto& [_, f] : filters_) out.push_back(&f);
+  return out;
+}
+
+const MethodInfo& Registry::compose(const std::string& name) const {
+  std::lock_guard<std::mutex> lock(composed_mutex_);
+  if (auto it = composed_.find(name); it != composed_.end()) return *it->second;
+  std::vector<std::string> parts;
+  for (size_t b = 0;;) {
+    const size_t e = name.find('+', b);
+    parts.push_back(name.substr(b, e == std::string::npos ? e : e - b));
+    if (e == std::string::npos) break;
+    b = e + 1;
+  }
+  std::vector<std::string> filter_names, method_names;
+  for (const auto& [n, _] : filters_) filter_names.push_back(n);
+  for (const auto& [n, _] : methods_) method_names.push_back(n);
+  std::vector<const FilterInfo*> chain;
+  for (size_t i = 0; i + 1 < parts.size(); ++i) {
+    const FilterInfo* f = find_filter(parts[i]);
+    if (!f) {
+      const std::string near = closest_name(parts[i], filter_names);
+      throw InputError("unknown pre-filter '" + parts[i] + "' in composition '" + name + "'" +
+                       (near.empty() ? "" : " (did you mean '" + near + "'?)") + "; pre-filters: " +
+                       join_names(filter_names) + "; syntax: " + kCompositionDoc);
+    }
+    for (const auto* g : chain)
+      if (g == f) throw InputError("pre-filter '" + f->name + "' appears twice in composition '" + name + "'");
+    chain.push_back(f);
+  }
+  const MethodInfo* base = find(parts.back());
+  if (!base) {
+    const std::string near = closest_name(parts.back(), method_names);
+    throw InputError("unknown method '" + parts.back() + "' at the end of composition '" + name + "'" +
+                     (near.empty() ? "" : " (did you mean '" + near + "'?)") + "; syntax: " + kCompositionDoc);
+  }
+  auto m = std::make_unique<MethodInfo>();
+  m->name = name;
+  m->family = base->family;
+  m->doc = base->doc;
+  m->citation = base->citation;
+  for (const auto* f : chain) {
+    m->doc = f->name + " pre-filter, then: " + m->doc;
+    m->citation = f->citation + "; " + m->citation;
+    for (ParamSpec p : f->params) {
+      p.name = f->name + "." + p.name;
+      m->params.push_back(std::move(p));
+    }
+  }
+  m->params.insert(m->params.end(), base->params.begin(), base->params.end());
+  m->run = [chain, base](const MethodInput& in, const ParamValues& all) {
+    // Split the composed parameter values back into each stage's own.
+    auto stage_params = [&](const std::vector<ParamSpec>& specs, const std::string& prefix) {
+      ParamValues p;
+      for (const auto& s : specs) p.set(s, all.text().at(prefix + s.name));
+      return p;
+    };
+    VolumeF filtered;
+    const VolumeF* cur = &in.volume;
+    for (const auto* f : chain) {
+      filtered = f->apply(*cur, stage_params(f->params, f->name + "."));
+      cur = &filtered;
+    }
+    MethodInput next{*cur, in.roi, VoxelType::f32};
+    return base->run(next, stage_params(base->params, ""));
+  };
+  return *composed_.emplace(name, std::move(m)).first->second;
 }
 
 std::vector<const MethodInfo*> Registry::all() const {
@@ -146,6 +238,11 @@ std::string closest_name(const std::string& w, const std::vector<std::string>& c
       best = c;
     }
   }
+  if (best.empty())  // "radius" for "median.radius": a prefixed name whose suffix matches exactly
+    for (const auto& c : cands) {
+      const auto dot = c.rfind('.');
+      if (dot != std::string::npos && c.compare(dot + 1, std::string::npos, w) == 0) return c;
+    }
   return best;
 }
 

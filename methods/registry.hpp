@@ -7,6 +7,8 @@
 #include <functional>
 #include <limits>
 #include <map>
+#include <memory>
+#include <mutex>
 #include <string>
 #include <utility>
 #include <vector>
@@ -64,16 +66,39 @@ struct MethodInfo {
   std::function<MethodOutput(const MethodInput&, const ParamValues&)> run;
 };
 
+// A pre-filter (denoising before segmentation). Composes with any method by the syntax
+// "FILTER+METHOD" (chains allowed: "median+gaussian+otsu"); the composed method's parameters are
+// the filters' parameters prefixed with "FILTER." plus the method's own, e.g.
+//   porebench segment median+sauvola scan.mha --set median.radius=2 --set window=31
+struct FilterInfo {
+  std::string name, doc, citation;
+  std::vector<ParamSpec> params;
+  std::function<VolumeF(const VolumeF&, const ParamValues&)> apply;
+};
+
+inline constexpr const char* kCompositionDoc =
+    "FILTER+METHOD applies the pre-filter, then the method (chains allowed: f1+f2+method); "
+    "filter parameters are set as FILTER.name=value, method parameters as name=value";
+
 class Registry {
  public:
   static Registry& instance();
   bool add(MethodInfo m);  // returns true; aborts on a duplicate name (a programming error)
+  bool add_filter(FilterInfo f);
   const MethodInfo* find(const std::string& name) const;
-  const MethodInfo& get(const std::string& name) const;  // throws InputError listing the known names
-  std::vector<const MethodInfo*> all() const;            // sorted by family, then name
+  // A registered method or a composition "FILTER+...+METHOD"; throws InputError naming what is
+  // unknown and listing the known names.
+  const MethodInfo& get(const std::string& name) const;
+  std::vector<const MethodInfo*> all() const;  // registered methods, sorted by family, then name
+  const FilterInfo* find_filter(const std::string& name) const;
+  std::vector<const FilterInfo*> filters() const;
 
  private:
+  const MethodInfo& compose(const std::string& name) const;
   std::map<std::string, MethodInfo> methods_;
+  std::map<std::string, FilterInfo> filters_;
+  mutable std::map<std::string, std::unique_ptr<MethodInfo>> composed_;
+  mutable std::mutex composed_mutex_;
 };
 
 // Parses "key=value" strings against the schema; unset parameters take their defaults.
@@ -90,5 +115,7 @@ std::string closest_name(const std::string& word, const std::vector<std::string>
 // Registers a MethodInfo at static-initialisation time: PB_REGISTER_METHOD(make_info());
 #define PB_REGISTER_METHOD(...) \
   static const bool PB_CONCAT(pb_registered_, __LINE__) = ::pb::Registry::instance().add(__VA_ARGS__)
+#define PB_REGISTER_FILTER(...) \
+  static const bool PB_CONCAT(pb_registered_filter_, __LINE__) = ::pb::Registry::instance().add_filter(__VA_ARGS__)
 
 }  // namespace pb

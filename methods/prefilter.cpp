@@ -1,0 +1,238 @@
+// Pre-filters that compose with any method ("FILTER+METHOD", see methods/registry.hpp).
+//   median:   3D median over a (2r+1)^3 cube (Tukey 1977, Exploratory Data Analysis), computed
+//             with a pruned Batcher odd-even merge sorting network (Batcher 1968, AFIPS SJCC)
+//             over 8 voxels at a time; borders reflect (scipy.ndimage mode 'reflect').
+//   gaussian: separable 3D Gaussian, sigma in mm or voxels, kernel truncated at 4 sigma, borders
+//             reflect (as scipy.ndimage.gaussian_filter).
+//   nlm:      non-local means (Buades, Coll & Morel 2005, CVPR), slice by slice (axial) with
+//             OpenCV's fastNlMeansDenoising on 16-bit-quantised slices.
+#include <omp.h>
+
+#include <algorithm>
+#include <array>
+#include <cmath>
+#include <limits>
+#include <opencv2/photo.hpp>
+#include <utility>
+#include <vector>
+
+#include "core/error.hpp"
+#include "core/histogram.hpp"
+#include "methods/prefilter.hpp"
+#include "methods/registry.hpp"
+
+namespace pb {
+
+namespace {
+
+// Batcher's odd-even merge sort network for n = 2^k wires, as (low, high) comparator pairs.
+void batcher(int lo, int n, int r, std::vector<std::pair<int, int>>& out) {
+  const int step = r * 2;
+  if (step < n) {
+    batcher(lo, n, step, out);
+    batcher(lo + r, n, step, out);
+    for (int i = lo + r; i + r < lo + n; i += step) out.emplace_back(i, i + r);
+  } else {
+    out.emplace_back(lo, lo + r);
+  }
+}
+void batcher_sort(int lo, int n, std::vector<std::pair<int, int>>& out) {
+  if (n > 1) {
+    const int m = n / 2;
+    batcher_sort(lo, m, out);
+    batcher_sort(lo + m, m, out);
+    batcher(lo, n, 1, out);
+  }
+}
+
+struct MedianNetwork {
+  int wires = 0;      // power of two >= window size
+  int low_pad = 0;    // wires filled with -inf before the data
+  int out_wire = 0;   // wire holding the median after the network
+  std::vector<std::pair<int, int>> comparators;  // pruned to those that reach out_wire
+};
+
+MedianNetwork make_median_network(int count) {
+  MedianNetwork net;
+  net.wires = 1;
+  while (net.wires < count) net.wires *= 2;
+  const int pad = net.wires - count;
+  net.low_pad = pad / 2;  // -inf below, +inf above: the median of the data stays in the middle
+  net.out_wire = net.low_pad + count / 2;
+  std::vector<std::pair<int, int>> all;
+  batcher_sort(0, net.wires, all);
+  // Keep only comparators on which the output wire depends (walk the network backwards).
+  std::vector<char> needed(size_t(net.wires), 0);
+  needed[size_t(net.out_wire)] = 1;
+  for (auto it = all.rbegin(); it != all.rend(); ++it)
+    if (needed[size_t(it->first)] || needed[size_t(it->second)]) {
+      needed[size_t(it->first)] = needed[size_t(it->second)] = 1;
+      net.comparators.push_back(*it);
+    }
+  std::reverse(net.comparators.begin(), net.comparators.end());
+  return net;
+}
+
+inline int64_t reflect(int64_t i, int64_t n) {  // scipy 'reflect': d c b a | a b c d | d c b a
+  while (i < 0 || i >= n) i = i < 0 ? -i - 1 : 2 * n - i - 1;
+  return i;
+}
+
+}  // namespace
+
+VolumeF median_filter(const VolumeF& in, int radius) {
+  const int64_t nx = in.nx(), ny = in.ny(), nz = in.nz();
+  const int w = 2 * radius + 1, count = w * w * w;
+  const MedianNetwork net = make_median_network(count);
+  constexpr int L = 8;  // lanes: voxels along x processed together
+  VolumeF out(in.geometry());
+  const int64_t padded = nx + 2 * radius + L;
+#pragma omp parallel
+  {
+    std::vector<float> rows(size_t(w * w * padded));
+    std::vector<float> v(size_t(net.wires * L));
+#pragma omp for schedule(static) collapse(2)
+    for (int64_t z = 0; z < nz; ++z)
+      for (int64_t y = 0; y < ny; ++y) {
+        // The w*w input rows around (y, z), padded by reflection along x.
+        for (int dz = 0; dz < w; ++dz)
+          for (int dy = 0; dy < w; ++dy) {
+            const float* src = in.slice(reflect(z + dz - radius, nz)) + reflect(y + dy - radius, ny) * nx;
+            float* dst = rows.data() + size_t(dz * w + dy) * size_t(padded);
+            for (int64_t x = 0; x < padded; ++x) dst[x] = src[reflect(std::min(x - radius, nx - 1 + radius), nx)];
+          }
+        float* o = out.slice(z) + y * nx;
+        for (int64_t x0 = 0; x0 < nx; x0 += L) {
+          for (int i = 0; i < net.low_pad; ++i)
+            for (int k = 0; k < L; ++k) v[size_t(i * L + k)] = -std::numeric_limits<float>::infinity();
+          for (int i = net.low_pad + count; i < net.wires; ++i)
+            for (int k = 0; k < L; ++k) v[size_t(i * L + k)] = std::numeric_limits<float>::infinity();
+          int wire = net.low_pad;
+          for (int r = 0; r < w * w; ++r) {
+            const float* row = rows.data() + size_t(r) * size_t(padded) + x0;
+            for (int dx = 0; dx < w; ++dx, ++wire)
+              for (int k = 0; k < L; ++k) v[size_t(wire * L + k)] = row[dx + k];
+          }
+          for (const auto& [a, b] : net.comparators) {
+            float* pa = v.data() + a * L;
+            float* pb = v.data() + b * L;
+            for (int k = 0; k < L; ++k) {
+              const float lo = std::min(pa[k], pb[k]), hi = std::max(pa[k], pb[k]);
+              pa[k] = lo;
+              pb[k] = hi;
+            }
+          }
+          const int64_t lanes = std::min<int64_t>(L, nx - x0);
+          for (int64_t k = 0; k < lanes; ++k) o[x0 + k] = v[size_t(net.out_wire * L + k)];
+        }
+      }
+  }
+  return out;
+}
+
+std::vector<float> gaussian_kernel(double sigma_vox) {
+  // scipy.ndimage.gaussian_filter: radius = int(truncate * sigma + 0.5), truncate = 4.
+  const int r = int(4.0 * sigma_vox + 0.5);
+  std::vector<double> k(size_t(2 * r + 1));
+  double sum = 0;
+  for (int i = -r; i <= r; ++i) sum += k[size_t(i + r)] = std::exp(-0.5 * i * i / (sigma_vox * sigma_vox));
+  std::vector<float> out(k.size());
+  for (size_t i = 0; i < k.size(); ++i) out[i] = float(k[i] / sum);
+  return out;
+}
+
+VolumeF gaussian_filter(const VolumeF& in, const std::array<double, 3>& sigma_vox) {
+  VolumeF cur = in, next(in.geometry());
+  const std::array<int64_t, 3> n = in.geometry().dims;
+  const std::array<int64_t, 3> stride = {1, n[0], n[0] * n[1]};
+  for (int axis = 0; axis < 3; ++axis) {
+    if (!(sigma_vox[size_t(axis)] > 0)) continue;
+    const std::vector<float> k = gaussian_kernel(sigma_vox[size_t(axis)]);
+    const int r = int(k.size() / 2);
+    const int64_t len = n[size_t(axis)], st = stride[size_t(axis)];
+    const int a1 = (axis + 1) % 3, a2 = (axis + 2) % 3;
+    const int64_t lines = n[size_t(a1)] * n[size_t(a2)];
+#pragma omp parallel
+    {
+      std::vector<float> line(size_t(len + 2 * r));
+#pragma omp for schedule(static)
+      for (int64_t l = 0; l < lines; ++l) {
+        const int64_t i1 = l % n[size_t(a1)], i2 = l / n[size_t(a1)];
+        const int64_t base = i1 * stride[size_t(a1)] + i2 * stride[size_t(a2)];
+        for (int64_t i = -r; i < len + r; ++i) line[size_t(i + r)] = cur[base + reflect(i, len) * st];
+        for (int64_t i = 0; i < len; ++i) {
+          float acc = 0;
+          const float* p = line.data() + i;
+          for (size_t j = 0; j < k.size(); ++j) acc += k[j] * p[j];
+          next[base + i * st] = acc;
+        }
+      }
+    }
+    std::swap(cur, next);
+  }
+  return cur;
+}
+
+VolumeF nlm_filter(const VolumeF& in, double h_rel, int patch, int search) {
+  const Stats s = compute_stats(in);
+  const double lo = s.min, span = s.max > s.min ? s.max - s.min : 1.0;
+  const float h = float(h_rel * 65535.0);
+  VolumeF out(in.geometry());
+  const int rows = int(in.ny()), cols = int(in.nx());
+#pragma omp parallel for schedule(static)
+  for (int64_t z = 0; z < in.nz(); ++z) {
+    cv::Mat src(rows, cols, CV_32F, const_cast<float*>(in.slice(z)));
+    cv::Mat q, d;
+    src.convertTo(q, CV_16U, 65535.0 / span, -lo * 65535.0 / span);
+    cv::fastNlMeansDenoising(q, d, std::vector<float>{h}, patch, search, cv::NORM_L1);
+    cv::Mat dst(rows, cols, CV_32F, out.slice(z));
+    d.convertTo(dst, CV_32F, span / 65535.0, lo);
+  }
+  return out;
+}
+
+namespace {
+
+FilterInfo median_info() {
+  return {"median",
+          "3D median over a (2r+1)^3 cube",
+          "Tukey J.W. (1977) Exploratory Data Analysis. Addison-Wesley",
+          {{"radius", ParamType::Int, "1", 1, 3, {}, "voxels", "half-width r of the cubic window (1 = 3x3x3)"}},
+          [](const VolumeF& v, const ParamValues& p) { return median_filter(v, int(p.integer("radius"))); }};
+}
+
+FilterInfo gaussian_info() {
+  return {"gaussian",
+          "separable 3D Gaussian smoothing, truncated at 4 sigma",
+          "Gaussian smoothing; e.g. Gonzalez R.C. & Woods R.E. (2008) Digital Image Processing, 3rd ed., ch. 3",
+          {{"sigma", ParamType::Float, "1", 0.001, 1e6, {}, "voxels or mm", "standard deviation of the kernel"},
+           {"unit", ParamType::Enum, "voxels", -1e300, 1e300, {"voxels", "mm"}, "", "unit of sigma"}},
+          [](const VolumeF& v, const ParamValues& p) {
+            std::array<double, 3> s{};
+            for (int i = 0; i < 3; ++i)
+              s[size_t(i)] = p.choice("unit") == "mm" ? p.num("sigma") / v.geometry().spacing_mm[size_t(i)] : p.num("sigma");
+            return gaussian_filter(v, s);
+          }};
+}
+
+FilterInfo nlm_info() {
+  return {"nlm",
+          "non-local means, slice by slice (axial), on 16-bit-quantised grey values",
+          "Buades A., Coll B., Morel J.-M. (2005) A non-local algorithm for image denoising. CVPR 2:60-65",
+          {{"h", ParamType::Float, "0.05", 1e-4, 1, {}, "fraction of grey range", "filter strength relative to the grey-value range"},
+           {"patch", ParamType::Int, "5", 3, 11, {}, "pixels", "patch edge (odd)"},
+           {"search", ParamType::Int, "11", 5, 35, {}, "pixels", "search window edge (odd)"}},
+          [](const VolumeF& v, const ParamValues& p) {
+            if (p.integer("patch") % 2 == 0) throw InputError("nlm: parameter 'patch' must be odd, got " + p.text().at("patch"));
+            if (p.integer("search") % 2 == 0) throw InputError("nlm: parameter 'search' must be odd, got " + p.text().at("search"));
+            return nlm_filter(v, p.num("h"), int(p.integer("patch")), int(p.integer("search")));
+          }};
+}
+
+}  // namespace
+
+PB_REGISTER_FILTER(median_info());
+PB_REGISTER_FILTER(gaussian_info());
+PB_REGISTER_FILTER(nlm_info());
+
+}  // namespace pb

@@ -1,0 +1,18 @@
+#pragma once
+// Pre-filter kernels (methods/prefilter.cpp, methods/prefilter_itk.cpp); they are registered as
+// composable filters and are callable directly for tests and benchmarks.
+#include <array>
+#include <vector>
+
+#include "core/volume.hpp"
+
+namespace pb {
+
+VolumeF median_filter(const VolumeF& in, int radius);
+VolumeF gaussian_filter(const VolumeF& in, const std::array<double, 3>& sigma_vox);
+std::vector<float> gaussian_kernel(double sigma_vox);
+VolumeF nlm_filter(const VolumeF& in, double h_rel, int patch, int search);
+VolumeF bilateral_filter(const VolumeF& in, double domain_sigma_mm, double range_sigma);
+VolumeF anisotropic_diffusion(const VolumeF& in, int iterations, double time_step, double conductance);
+
+}  // namespace pb
