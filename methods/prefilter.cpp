@@ -7,6 +7,9 @@
 //   nlm:      non-local means (Buades, Coll & Morel 2005, CVPR), slice by slice (axial) with
 //             OpenCV's fastNlMeansDenoising on 16-bit-quantised slices.
 #include <omp.h>
+#if defined(__SSE2__)
+#include <immintrin.h>
+#endif
 
 #include <algorithm>
 #include <array>
@@ -58,13 +61,33 @@ MedianNetwork make_median_network(int count) {
   while (net.wires < count) net.wires *= 2;
   const int pad = net.wires - count;
   net.low_pad = pad / 2;  // -inf below, +inf above: the median of the data stays in the middle
-  net.out_wire = net.low_pad + count / 2;
   std::vector<std::pair<int, int>> all;
   batcher_sort(0, net.wires, all);
-  // Keep only comparators on which the output wire depends (walk the network backwards).
+  // Constant propagation: a comparator whose inputs are already ordered (-inf low or +inf high)
+  // is dropped; one whose inputs are surely reversed becomes a relabelling of wires.
+  enum Kind : char { kLow, kData, kHigh };
+  std::vector<char> kind(size_t(net.wires), kData);
+  std::vector<int> slot(size_t(net.wires));  // logical wire -> physical slot
+  for (int i = 0; i < net.wires; ++i) {
+    slot[size_t(i)] = i;
+    kind[size_t(i)] = i < net.low_pad ? kLow : i >= net.low_pad + count ? kHigh : kData;
+  }
+  std::vector<std::pair<int, int>> kept;
+  for (const auto& [a, b] : all) {
+    const char ka = kind[size_t(a)], kb = kind[size_t(b)];
+    if (ka == kLow || kb == kHigh) continue;
+    if (ka == kHigh || kb == kLow) {
+      std::swap(kind[size_t(a)], kind[size_t(b)]);
+      std::swap(slot[size_t(a)], slot[size_t(b)]);
+      continue;
+    }
+    kept.emplace_back(slot[size_t(a)], slot[size_t(b)]);
+  }
+  net.out_wire = slot[size_t(net.low_pad + count / 2)];
+  // Keep only comparators on which the output depends (walk the network backwards).
   std::vector<char> needed(size_t(net.wires), 0);
   needed[size_t(net.out_wire)] = 1;
-  for (auto it = all.rbegin(); it != all.rend(); ++it)
+  for (auto it = kept.rbegin(); it != kept.rend(); ++it)
     if (needed[size_t(it->first)] || needed[size_t(it->second)]) {
       needed[size_t(it->first)] = needed[size_t(it->second)] = 1;
       net.comparators.push_back(*it);
@@ -73,9 +96,33 @@ MedianNetwork make_median_network(int count) {
   return net;
 }
 
+constexpr int kLanes = 8;  // voxels along x processed together
+
 inline int64_t reflect(int64_t i, int64_t n) {  // scipy 'reflect': d c b a | a b c d | d c b a
   while (i < 0 || i >= n) i = i < 0 ? -i - 1 : 2 * n - i - 1;
   return i;
+}
+
+// One compare-exchange over 8 lanes: SSE min/max on x86-64 (always available there), plain
+// loops elsewhere.
+void apply_network(const MedianNetwork& net, float* v) {
+  for (const auto& [a, b] : net.comparators) {
+    float* pa = v + a * kLanes;
+    float* pb = v + b * kLanes;
+#if defined(__SSE2__)
+    const __m128 a0 = _mm_load_ps(pa), a1 = _mm_load_ps(pa + 4), b0 = _mm_load_ps(pb), b1 = _mm_load_ps(pb + 4);
+    _mm_store_ps(pa, _mm_min_ps(a0, b0));
+    _mm_store_ps(pa + 4, _mm_min_ps(a1, b1));
+    _mm_store_ps(pb, _mm_max_ps(a0, b0));
+    _mm_store_ps(pb + 4, _mm_max_ps(a1, b1));
+#else
+    for (int k = 0; k < kLanes; ++k) {
+      const float lo = std::min(pa[k], pb[k]), hi = std::max(pa[k], pb[k]);
+      pa[k] = lo;
+      pb[k] = hi;
+    }
+#endif
+  }
 }
 
 }  // namespace
@@ -84,13 +131,15 @@ VolumeF median_filter(const VolumeF& in, int radius) {
   const int64_t nx = in.nx(), ny = in.ny(), nz = in.nz();
   const int w = 2 * radius + 1, count = w * w * w;
   const MedianNetwork net = make_median_network(count);
-  constexpr int L = 8;  // lanes: voxels along x processed together
+  constexpr int L = kLanes;
   VolumeF out(in.geometry());
   const int64_t padded = nx + 2 * radius + L;
 #pragma omp parallel
   {
     std::vector<float> rows(size_t(w * w * padded));
-    std::vector<float> v(size_t(net.wires * L));
+    struct alignas(16) Block { float f[kLanes]; };
+    std::vector<Block> lanes_buf(size_t(net.wires));
+    float* v = lanes_buf.data()->f;
 #pragma omp for schedule(static) collapse(2)
     for (int64_t z = 0; z < nz; ++z)
       for (int64_t y = 0; y < ny; ++y) {
@@ -99,7 +148,9 @@ VolumeF median_filter(const VolumeF& in, int radius) {
           for (int dy = 0; dy < w; ++dy) {
             const float* src = in.slice(reflect(z + dz - radius, nz)) + reflect(y + dy - radius, ny) * nx;
             float* dst = rows.data() + size_t(dz * w + dy) * size_t(padded);
-            for (int64_t x = 0; x < padded; ++x) dst[x] = src[reflect(std::min(x - radius, nx - 1 + radius), nx)];
+            std::copy(src, src + nx, dst + radius);
+            for (int64_t x = 0; x < radius; ++x) dst[x] = src[reflect(x - radius, nx)];
+            for (int64_t x = nx + radius; x < padded; ++x) dst[x] = src[reflect(std::min(x - radius, nx - 1 + radius), nx)];
           }
         float* o = out.slice(z) + y * nx;
         for (int64_t x0 = 0; x0 < nx; x0 += L) {
@@ -113,15 +164,7 @@ VolumeF median_filter(const VolumeF& in, int radius) {
             for (int dx = 0; dx < w; ++dx, ++wire)
               for (int k = 0; k < L; ++k) v[size_t(wire * L + k)] = row[dx + k];
           }
-          for (const auto& [a, b] : net.comparators) {
-            float* pa = v.data() + a * L;
-            float* pb = v.data() + b * L;
-            for (int k = 0; k < L; ++k) {
-              const float lo = std::min(pa[k], pb[k]), hi = std::max(pa[k], pb[k]);
-              pa[k] = lo;
-              pb[k] = hi;
-            }
-          }
+          apply_network(net, v);
           const int64_t lanes = std::min<int64_t>(L, nx - x0);
           for (int64_t k = 0; k < lanes; ++k) o[x0 + k] = v[size_t(net.out_wire * L + k)];
         }
