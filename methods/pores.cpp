@@ -2,6 +2,8 @@
 
 #include <vector>
 
+#include "metrics/ccl.hpp"
+
 namespace pb {
 
 Mask air_below(const VolumeF& v, double threshold, const Mask* roi) {
@@ -77,6 +79,26 @@ int64_t count_nonzero(const Mask& m) {
 #pragma omp parallel for reduction(+ : c) schedule(static)
   for (int64_t i = 0; i < n; ++i) c += a[i] != 0;
   return c;
+}
+
+}  // namespace pb
+
+namespace pb {
+
+int64_t remove_small_pores(Mask& pores, int64_t min_voxels) {
+  const Components c = label_components(pores, 26);
+  std::vector<uint8_t> keep(size_t(c.count) + 1, 0);
+  int64_t removed = 0;
+  for (uint32_t k = 1; k <= c.count; ++k) {
+    keep[k] = c.sizes[k] >= min_voxels;
+    removed += !keep[k];
+  }
+  const uint32_t* l = c.labels.data();
+  uint8_t* a = pores.data();
+  const int64_t n = pores.size();
+#pragma omp parallel for schedule(static)
+  for (int64_t i = 0; i < n; ++i) a[i] = keep[l[i]];
+  return removed;
 }
 
 }  // namespace pb

@@ -15,4 +15,8 @@ int64_t air_to_pores(Mask& air, const Mask* roi);
 
 int64_t count_nonzero(const Mask& m);
 
+// Clears pores (26-connected components) of fewer than min_voxels voxels; returns how many
+// components were removed.
+int64_t remove_small_pores(Mask& pores, int64_t min_voxels);
+
 }  // namespace pb

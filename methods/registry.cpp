@@ -8,6 +8,7 @@
 #include <sstream>
 
 #include "core/error.hpp"
+#include "methods/pores.hpp"
 
 namespace pb {
 
@@ -98,6 +99,9 @@ Registry& Registry::instance() {
 }
 
 bool Registry::add(MethodInfo m) {
+  // Shared pore-extraction parameters, applied by run_method after the method itself.
+  m.params.push_back({"min_pore_voxels", ParamType::Int, "1", 1, 1e9, {}, "voxels",
+                      "pores (26-connected) smaller than this are dropped as noise specks"});
   if (methods_.count(m.name)) {
     std::fprintf(stderr, "porebench: method '%s' registered twice\n", m.name.c_str());
     std::abort();
@@ -287,6 +291,8 @@ MethodOutput run_method(const MethodInfo& m, const ParamValues& p, const MethodI
                      ") differ from the volume (" + describe(in.volume.geometry()) + ")");
   const auto t0 = std::chrono::steady_clock::now();
   MethodOutput out = m.run(in, p);
+  if (const int64_t min_voxels = p.integer("min_pore_voxels"); min_voxels > 1)
+    out.chosen.emplace_back("small_pores_removed", double(remove_small_pores(out.pores, min_voxels)));
   out.runtime_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return out;
 }

@@ -3,6 +3,7 @@
 #include <catch2/catch.hpp>
 
 #include "methods/pores.hpp"
+#include "methods/registry.hpp"
 #include "tests/helpers.hpp"
 
 using namespace pb;
@@ -66,4 +67,21 @@ TEST_CASE("with a part mask, air reaching the outside of the mask is background"
 TEST_CASE("NaN is never air", "[pores]") {
   VolumeF v(pbtest::cube(3), std::numeric_limits<float>::quiet_NaN());
   CHECK(count_nonzero(air_below(v, 1e30, nullptr)) == 0);
+}
+
+TEST_CASE("min_pore_voxels drops noise specks, reported as chosen", "[pores]") {
+  // Two enclosed cavities in a 12^3 block: 1 voxel at (3,3,3) and 2x2x2 = 8 voxels at (7..8)^3.
+  VolumeF v(pbtest::cube(12), 100.f);
+  v(3, 3, 3) = 0;
+  for (int z = 7; z < 9; ++z)
+    for (int y = 7; y < 9; ++y)
+      for (int x = 7; x < 9; ++x) v(x, y, z) = 0;
+  const MethodInfo& m = Registry::instance().get("manual");
+  const MethodOutput all = run_method(m, parse_params(m, {"threshold=50"}), MethodInput{v});
+  CHECK(count_nonzero(all.pores) == 9);
+  const MethodOutput big = run_method(m, parse_params(m, {"threshold=50", "min_pore_voxels=2"}), MethodInput{v});
+  CHECK(count_nonzero(big.pores) == 8);
+  CHECK(big.chosen.back() == std::make_pair(std::string("small_pores_removed"), 1.0));
+  // A cut-off above both sizes leaves none.
+  CHECK(count_nonzero(run_method(m, parse_params(m, {"threshold=50", "min_pore_voxels=9"}), MethodInput{v}).pores) == 0);
 }
