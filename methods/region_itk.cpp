@@ -1,0 +1,145 @@
+// Region-growing methods run by ITK. Pores are dark; seeds come from the Otsu split (region.hpp).
+//   confidence-connected: grows from seeds while voxels lie within mean +- multiplier*sigma of the
+//       current region, re-estimated each iteration. Ibanez L., Schroeder W., Ng L., Cates J.
+//       (2005) The ITK Software Guide, 2nd ed., sec. 9.1.3 (from memory).
+//   watershed: marker-based watershed on the gradient magnitude (Gaussian derivative, sigma in
+//       mm): air markers below the seed threshold, material markers above a material threshold.
+//       Beucher S., Meyer F. (1993) The morphological approach to segmentation: the watershed
+//       transformation. In: Mathematical Morphology in Image Processing, Dekker, 433-481.
+#include <itkConfidenceConnectedImageFilter.h>
+#include <itkGradientMagnitudeRecursiveGaussianImageFilter.h>
+#include <itkMorphologicalWatershedFromMarkersImageFilter.h>
+
+#include "core/itk_bridge.hpp"
+#include "core/parallel.hpp"
+#include "methods/pores.hpp"
+#include "methods/region.hpp"
+#include "methods/threshold.hpp"
+
+namespace pb {
+
+using ItkF = itk::Image<float, 3>;
+using ItkL = itk::Image<uint8_t, 3>;
+
+VolumeF gradient_magnitude(const VolumeF& v, double sigma_mm) {
+  auto g = itk::GradientMagnitudeRecursiveGaussianImageFilter<ItkF, ItkF>::New();
+  g->SetInput(itk_view(v));
+  g->SetSigma(sigma_mm);
+  g->SetNumberOfWorkUnits(unsigned(thread_count()));
+  g->Update();
+  return from_itk<float>(g->GetOutput(), v.geometry());
+}
+
+// Marker-based watershed: markers 1 (air) and 2 (material), 0 unknown; returns the label volume.
+Mask watershed_from_markers(const VolumeF& relief, const Mask& markers) {
+  auto w = itk::MorphologicalWatershedFromMarkersImageFilter<ItkF, ItkL>::New();
+  w->SetInput(itk_view(relief));
+  w->SetMarkerImage(itk_view(markers));
+  w->SetMarkWatershedLine(false);
+  w->SetFullyConnected(false);
+  w->SetNumberOfWorkUnits(unsigned(thread_count()));
+  w->Update();
+  return from_itk<uint8_t>(w->GetOutput(), relief.geometry());
+}
+
+namespace {
+
+MethodOutput no_pores(const MethodInput& in) {
+  MethodOutput out;
+  out.pores = Mask(in.volume.geometry());
+  out.part_voxels = air_to_pores(out.pores, in.roi);
+  out.warnings.push_back("the grey-value histogram has a single occupied bin (constant volume): no pores");
+  return out;
+}
+
+MethodInfo confidence_info() {
+  MethodInfo m;
+  m.name = "confidence-connected";
+  m.family = "region";
+  m.doc = "confidence-connected region growing from confident air (ITK): mean +- multiplier*sigma of the region";
+  m.citation = "Ibanez L., Schroeder W., Ng L., Cates J. (2005) The ITK Software Guide, 2nd ed., Kitware, sec. 9.1.3";
+  m.params = histogram_params();
+  m.params.push_back(seed_params().front());
+  m.params.push_back({"multiplier", ParamType::Float, "2.5", 0.1, 10, {}, "sigma", "width of the accepted interval"});
+  m.params.push_back({"iterations", ParamType::Int, "3", 0, 20, {}, "", "re-estimations of mean and sigma"});
+  m.params.push_back({"max_seeds", ParamType::Int, "20000", 1, 1e7, {}, "voxels", "seeds are subsampled evenly to at most this many"});
+  m.run = [](const MethodInput& in, const ParamValues& p) {
+    const Histogram h = method_histogram(in, p);
+    if (single_occupied_bin(h)) return no_pores(in);
+    const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), 0);
+    auto f = itk::ConfidenceConnectedImageFilter<ItkF, ItkL>::New();
+    f->SetInput(itk_view(in.volume));
+    f->SetMultiplier(p.num("multiplier"));
+    f->SetNumberOfIterations(unsigned(p.integer("iterations")));
+    f->SetInitialNeighborhoodRadius(0);  // statistics of the seeds themselves: neighbourhoods of
+                                         // seeds near pore walls would pull in material
+    f->SetReplaceValue(1);
+    std::vector<int64_t> seeds;
+    const float s = float(a.seed);
+    for (int64_t i = 0; i < in.volume.size(); ++i)
+      if (in.volume[i] < s && (!in.roi || (*in.roi)[i])) seeds.push_back(i);
+    const size_t step = std::max<size_t>(1, seeds.size() / size_t(p.integer("max_seeds")) + 1);
+    const int64_t nx = in.volume.nx(), ny = in.volume.ny();
+    for (size_t j = 0; j < seeds.size(); j += step) {
+      ItkF::IndexType idx;
+      idx[0] = seeds[j] % nx;
+      idx[1] = (seeds[j] / nx) % ny;
+      idx[2] = seeds[j] / (nx * ny);
+      f->AddSeed(idx);
+    }
+    MethodOutput out;
+    if (seeds.empty()) {
+      out = no_pores(in);
+      out.warnings = {"no voxel lies below the seed threshold: no seeds, no pores"};
+    } else {
+      f->Update();
+      out.pores = from_itk<uint8_t>(f->GetOutput(), in.volume.geometry());
+      if (in.roi)
+        for (int64_t i = 0; i < out.pores.size(); ++i) out.pores[i] &= (*in.roi)[i] != 0;
+      out.part_voxels = air_to_pores(out.pores, in.roi);
+    }
+    out.chosen = {{"seed_threshold", a.seed}, {"otsu", a.otsu}, {"seeds", double((seeds.size() + step - 1) / step)}};
+    return out;
+  };
+  return m;
+}
+
+MethodInfo watershed_info() {
+  MethodInfo m;
+  m.name = "watershed";
+  m.family = "region";
+  m.doc = "marker-based watershed on the gradient magnitude: air and material markers from the Otsu split";
+  m.citation = "Beucher S., Meyer F. (1993) The morphological approach to segmentation: the watershed transformation. "
+               "In: Mathematical Morphology in Image Processing, Dekker, 433-481";
+  m.params = histogram_params();
+  for (auto& s : seed_params()) m.params.push_back(s);
+  m.params.back().doc = "material markers are above otsu + grow_margin*(material mean - otsu)";
+  m.params.push_back({"sigma_vox", ParamType::Float, "1", 0.1, 10, {}, "voxels", "Gaussian scale of the gradient"});
+  m.run = [](const MethodInput& in, const ParamValues& p) {
+    const Histogram h = method_histogram(in, p);
+    if (single_occupied_bin(h)) return no_pores(in);
+    const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
+    const VolumeF grad = gradient_magnitude(in.volume, p.num("sigma_vox") * in.volume.geometry().spacing_mm[0]);
+    Mask markers(in.volume.geometry());
+    const float s = float(a.seed), mat = float(a.limit);
+    for (int64_t i = 0; i < markers.size(); ++i) {
+      const float v = in.volume[i];
+      markers[i] = (in.roi && !(*in.roi)[i]) ? 2 : v < s ? 1 : v > mat ? 2 : 0;
+    }
+    Mask labels = watershed_from_markers(grad, markers);
+    MethodOutput out;
+    out.pores = Mask(in.volume.geometry());
+    for (int64_t i = 0; i < labels.size(); ++i) out.pores[i] = labels[i] == 1 && (!in.roi || (*in.roi)[i]);
+    out.part_voxels = air_to_pores(out.pores, in.roi);
+    out.chosen = {{"air_marker_below", a.seed}, {"material_marker_above", a.limit}, {"otsu", a.otsu}};
+    return out;
+  };
+  return m;
+}
+
+}  // namespace
+
+PB_REGISTER_METHOD(confidence_info());
+PB_REGISTER_METHOD(watershed_info());
+
+}  // namespace pb
