@@ -1,16 +1,26 @@
 #!/usr/bin/python3
-"""Reference thresholds from scikit-image 0.19 (Debian python3-skimage).
+"""Reference thresholds from scikit-image 0.19 (Debian python3-skimage) and numpy.
 
 Usage: skimage_thresholds.py RAW_FLOAT32 NX NY NZ NBINS METHOD [METHOD ...]
 Reads a little-endian float32 raw volume (x fastest) and prints one JSON object
-{method: threshold} computed by skimage.filters.threshold_<method> on all voxels.
-Methods: otsu, li, yen, triangle, isodata, mean, minimum.
+{method: value} computed on all voxels:
+  otsu, li, yen, triangle, isodata, mean, minimum
+      skimage.filters.threshold_<method> (nbins=NBINS where it takes nbins). scikit-image
+      returns the centre of the last bin of the dark class (foreground is > threshold);
+      li and mean return a grey value.
+  percentile:P
+      numpy.percentile(volume, P) (linear interpolation).
+  li_criterion:T1,T2,...
+      a list: Li's cross-entropy criterion at each threshold T (split: bin centre > T is
+      foreground), from skimage.filters.thresholding._cross_entropy on the volume shifted to a
+      zero minimum (as threshold_li does), with NBINS bins over that range.
 """
 import json
 import sys
 
 import numpy as np
 from skimage import filters
+from skimage.filters import thresholding
 
 
 def main():
@@ -32,6 +42,14 @@ def main():
             t = filters.threshold_mean(vol)
         elif m == "minimum":
             t = filters.threshold_minimum(vol, nbins=nbins)
+        elif m.startswith("percentile:"):
+            t = np.percentile(vol, float(m.split(":", 1)[1]))
+        elif m.startswith("li_criterion:"):
+            lo = float(vol.min())
+            shifted = vol.astype(np.float64) - lo
+            ts = [float(x) - lo for x in m.split(":", 1)[1].split(",")]
+            out["li_criterion"] = [float(thresholding._cross_entropy(shifted, t, bins=nbins)) for t in ts]
+            continue
         else:
             raise SystemExit(f"unknown method {m}")
         out[m] = float(t)
