@@ -1,0 +1,110 @@
+// otsu (histogram + apply, as `porebench segment otsu` runs it) against ITK's
+// OtsuThresholdImageFilter on the same 256^3 float volume, both timed in wall time per run with
+// the same thread count (issue 4: ours >= 10x faster; bench/peers/otsu_vs_itk.sh prints the
+// ratio). The apply step is also timed in its parts (air_below, air_to_pores) to show where the
+// time goes. Volume: an invented gear-blank-like cylinder of material (grey 1) in air (grey 0)
+// with a lattice of spherical pores, Gaussian noise sigma 0.08.
+#include <benchmark/benchmark.h>
+
+#include <itkMultiThreaderBase.h>
+#include <itkOtsuThresholdImageFilter.h>
+
+#include <random>
+
+#include "core/itk_bridge.hpp"
+#include "core/parallel.hpp"
+#include "methods/pores.hpp"
+#include "methods/threshold.hpp"
+
+namespace {
+
+const pb::VolumeF& part256() {
+  static const pb::VolumeF v = [] {
+    pb::Geometry g;
+    g.dims = {256, 256, 256};
+    pb::VolumeF out(g);
+    std::mt19937 rng(4);
+    std::normal_distribution<float> noise(0.f, 0.08f);
+    const double c = 127.5, radius = 110, lattice = 20, pore_r = 4;
+    for (int64_t z = 0; z < 256; ++z)
+      for (int64_t y = 0; y < 256; ++y)
+        for (int64_t x = 0; x < 256; ++x) {
+          const bool inside = std::hypot(x - c, y - c) <= radius && z >= 8 && z < 248;
+          auto d = [&](double p) { return p - lattice * std::round(p / lattice); };  // offset to the lattice node
+          const bool pore = d(double(x)) * d(double(x)) + d(double(y)) * d(double(y)) + d(z + 10.0) * d(z + 10.0) <=
+                            pore_r * pore_r;
+          out(x, y, z) = (inside && !pore ? 1.f : 0.f) + noise(rng);
+        }
+    return out;
+  }();
+  return v;
+}
+
+void same_threads() {
+  pb::set_threads(0);
+  itk::MultiThreaderBase::SetGlobalDefaultNumberOfThreads(unsigned(pb::thread_count()));
+}
+
+void BM_OtsuPorebench(benchmark::State& state) {
+  const auto& v = part256();
+  same_threads();
+  const pb::MethodInfo& m = pb::Registry::instance().get("otsu");
+  const pb::ParamValues p = pb::parse_params(m, {});
+  for (auto _ : state) {
+    pb::MethodOutput out = m.run(pb::MethodInput{v}, p);
+    benchmark::DoNotOptimize(out.pores.data());
+  }
+  state.counters["voxels_per_s"] = benchmark::Counter(double(v.size()), benchmark::Counter::kIsIterationInvariantRate);
+}
+BENCHMARK(BM_OtsuPorebench)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+void BM_OtsuItk(benchmark::State& state) {
+  const auto& v = part256();
+  same_threads();
+  using Filter = itk::OtsuThresholdImageFilter<itk::Image<float, 3>, itk::Image<uint8_t, 3>>;
+  const auto in = pb::itk_view(v);
+  for (auto _ : state) {
+    auto f = Filter::New();  // a fresh filter per run: nothing cached between runs
+    f->SetInput(in);
+    f->SetNumberOfHistogramBins(256);  // as ours
+    f->Update();
+    benchmark::DoNotOptimize(f->GetOutput()->GetBufferPointer());
+  }
+  state.counters["voxels_per_s"] = benchmark::Counter(double(v.size()), benchmark::Counter::kIsIterationInvariantRate);
+}
+BENCHMARK(BM_OtsuItk)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+// The parts of BM_OtsuPorebench.
+void BM_OtsuPart_Histogram(benchmark::State& state) {  // stats + histogram + Otsu's split
+  const auto& v = part256();
+  same_threads();
+  const pb::MethodInfo& m = pb::Registry::instance().get("otsu");
+  const pb::ParamValues p = pb::parse_params(m, {});
+  for (auto _ : state) benchmark::DoNotOptimize(pb::otsu_split(pb::method_histogram(pb::MethodInput{v}, p)));
+}
+BENCHMARK(BM_OtsuPart_Histogram)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+void BM_OtsuPart_AirBelow(benchmark::State& state) {
+  const auto& v = part256();
+  same_threads();
+  for (auto _ : state) {
+    pb::Mask air = pb::air_below(v, 0.5, nullptr);
+    benchmark::DoNotOptimize(air.data());
+  }
+}
+BENCHMARK(BM_OtsuPart_AirBelow)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+void BM_OtsuPart_AirToPores(benchmark::State& state) {  // the single-threaded flood fill
+  const auto& v = part256();
+  same_threads();
+  const pb::Mask air = pb::air_below(v, 0.5, nullptr);
+  for (auto _ : state) {
+    state.PauseTiming();
+    pb::Mask m = air;
+    state.ResumeTiming();
+    benchmark::DoNotOptimize(pb::air_to_pores(m, nullptr));
+  }
+}
+BENCHMARK(BM_OtsuPart_AirToPores)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+}  // namespace
