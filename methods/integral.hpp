@@ -1,0 +1,55 @@
+#pragma once
+// Window statistics for local thresholds, in 3D, at a cost per voxel that does not depend on the
+// window: box mean and standard deviation by summed tables (Crow 1984; Viola & Jones 2001; in 3D
+// as in Shafait et al. 2008), taken separably as running sums in double over mean-centred data;
+// box min/max by the running min/max of van Herk (1992) and Gil & Werman (1993); a Gaussian
+// weighted mean by a separable FIR. Borders: mirrored without repeating the edge voxel
+// (numpy.pad mode 'reflect', as scikit-image's threshold_sauvola: index -1 reads voxel 1).
+#include <cstdint>
+#include <vector>
+
+#include "core/volume.hpp"
+#include "methods/registry.hpp"
+
+namespace pb {
+
+// Local mean and standard deviation of a cubic window of `window` voxels (odd, <= every dim),
+// produced a few z slices at a time in order 0..nz-1. Working memory is about 6 * kBatch slices
+// of doubles, whatever the volume or window size. Values are centred on `centre` (e.g. the global
+// mean) before squaring, so the variance does not cancel on CT data with a large grey offset;
+// non-finite voxels are read as `centre`. std = sqrt(max(0, E[(v-c)^2] - E[v-c]^2)) (population
+// form, as scikit-image). The z recurrence runs in one fixed order: results do not depend on the
+// thread count.
+class SliceMoments {
+ public:
+  static constexpr int64_t kBatch = 8;
+  SliceMoments(const VolumeF& v, int64_t window, double centre);
+  int64_t next_z() const { return z_; }
+  // Fills mean and std of slices next_z() .. next_z()+n-1 (kBatch * nx * ny values each, slice
+  // after slice), advances, and returns n (0 at the end).
+  int64_t next(double* mean, double* std);
+
+ private:
+  const VolumeF& v_;
+  int64_t h_, z_ = 0;
+  double c_;
+  std::vector<double> z1_, z2_, e_, l_;
+};
+
+// Box min and max over a cubic window (odd, <= every dim) into two float volumes shaped as v.
+void box_min_max(const VolumeF& v, int64_t window, VolumeF& vmin, VolumeF& vmax);
+
+// Gaussian-weighted local mean: separable kernel exp(-d^2 / (2 sigma^2)) over |d| <= window/2
+// on each axis, normalised to sum 1.
+VolumeF gaussian_mean(const VolumeF& v, int64_t window, double sigma_vox);
+
+// The air mask of a local method of methods/local.cpp (voxel below its local threshold, inside the
+// ROI) before pore extraction, with what it chose: for tests and for composing with pre-filters.
+struct LocalAir {
+  Mask air;
+  std::vector<std::pair<std::string, double>> chosen;
+  std::vector<std::string> warnings;
+};
+LocalAir local_air(const std::string& method, const MethodInput& in, const std::vector<std::string>& key_values);
+
+}  // namespace pb

@@ -1,0 +1,395 @@
+// Local adaptive thresholds in 3D: each voxel gets its own threshold from a cubic window around it
+// (niblack, sauvola, phansalkar, wolf from the window mean and standard deviation; bernsen from
+// the window min and max; local-mean and local-gaussian from a weighted mean). Sources are in
+// each method's citation. Pores are dark: a voxel is air when below its local threshold; then the
+// shared pore extraction. Windows are cubes of odd size in voxels; borders are mirrored without
+// repeating the edge voxel (numpy 'reflect', as scikit-image's threshold_sauvola). Windows see all
+// voxels; the ROI only limits which voxels may be air. Cost per voxel does not depend on the
+// window (methods/integral.hpp) except for local-gaussian (a separable FIR of the window length).
+#include <cmath>
+#include <functional>
+#include <map>
+#include <sstream>
+
+#include "core/error.hpp"
+#include "core/histogram.hpp"
+#include "methods/integral.hpp"
+#include "methods/pores.hpp"
+
+namespace pb {
+namespace {
+
+std::string fmt(double v) {
+  std::ostringstream s;
+  s.precision(8);
+  s << v;
+  return s.str();
+}
+
+// Window: odd and no larger than the volume along any axis (the mirror needs window/2 < dim).
+int64_t checked_window(const std::string& method, const VolumeF& v, const ParamValues& p) {
+  const int64_t w = p.integer("window");
+  if (w % 2 == 0)
+    throw InputError("method " + method + ": parameter 'window': even value " + std::to_string(w) +
+                     " (voxels); the window must be odd (3, 5, 7, ...) so that it is centred on the voxel");
+  const char* axis = "xyz";
+  for (int a = 0; a < 3; ++a)
+    if (w > v.geometry().dims[size_t(a)])
+      throw InputError("method " + method + ": parameter 'window': value " + std::to_string(w) +
+                       " is larger than the volume along " + axis[a] + " (" + describe(v.geometry()) + ")");
+  return w;
+}
+
+ParamSpec window_param() {
+  return {"window", ParamType::Int, "15", 3, 4095, {}, "voxels",
+          "edge of the cubic window (odd, at most the smallest volume dim)"};
+}
+ParamSpec clip_param() {
+  return {"clip_pct", ParamType::Float, "0", 0, 10, {}, "%",
+          "grey range used to derive R, min grey and normalisation: [clip_pct, 100-clip_pct] percentiles "
+          "of the ROI voxels (0 = min..max)"};
+}
+
+struct Context {
+  Stats all;             // every voxel (windows see all voxels)
+  double lo = 0, hi = 0;  // grey range of the ROI voxels (robust with clip_pct)
+  std::vector<std::string> warnings;
+};
+
+Context context(const MethodInput& in, double clip_pct, bool need_range) {
+  Context c;
+  c.all = compute_stats(in.volume);
+  if (c.all.count == 0) throw InputError("the volume has no finite voxels");
+  if (c.all.nan_count > 0)
+    c.warnings.push_back(std::to_string(c.all.nan_count) +
+                         " NaN voxels: read as the volume mean in window statistics, never air");
+  if (need_range) {
+    const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
+    const Stats s = roi ? compute_stats(in.volume.data(), in.volume.size(), roi) : c.all;
+    if (s.count == 0) throw InputError("no finite voxels inside the region of interest");
+    c.lo = s.min;
+    c.hi = s.max;
+    if (clip_pct > 0 && c.hi > c.lo) {
+      const Histogram fine = compute_histogram(in.volume.data(), in.volume.size(), s.min, s.max, 65536, roi);
+      c.lo = histogram_quantile(fine, clip_pct / 100.0);
+      c.hi = histogram_quantile(fine, 1.0 - clip_pct / 100.0);
+    }
+  }
+  return c;
+}
+
+LocalAir finish(Mask air, Context& c) {
+  LocalAir out;
+  out.air = std::move(air);
+  out.warnings = std::move(c.warnings);
+  return out;
+}
+
+// A constant volume has no local contrast: defined result, no pores, and a warning.
+bool constant_volume(const MethodInput& in, const Context& c, LocalAir& out) {
+  if (c.all.max > c.all.min) return false;
+  Context cc = c;
+  cc.warnings.push_back("constant volume (every voxel " + fmt(c.all.min) + "): no local contrast, no pores");
+  out = finish(Mask(in.volume.geometry()), cc);
+  return true;
+}
+
+// Air mask from the window mean and std: air where v < thr(mean, std) (and inside the ROI).
+template <class Thr>
+Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr thr) {
+  const VolumeF& v = in.volume;
+  Mask air(v.geometry());
+  const int64_t nxy = v.geometry().slice_voxels();
+  std::vector<double> mean(static_cast<size_t>(nxy * SliceMoments::kBatch)), sd(mean.size());
+  SliceMoments mom(v, window, centre);
+  const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
+  for (;;) {
+    const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data()) * nxy;
+    if (n == 0) break;
+    const float* s = v.slice(z0);
+    uint8_t* a = air.slice(z0);
+    const uint8_t* r = roi ? roi + z0 * nxy : nullptr;
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < n; ++i) a[i] = double(s[i]) < thr(mean[size_t(i)], sd[size_t(i)]) && (!r || r[i]);
+  }
+  return air;
+}
+
+// Largest window std over voxels inside the ROI (Wolf & Jolion's R).
+double max_local_std(const MethodInput& in, int64_t window, double centre) {
+  const VolumeF& v = in.volume;
+  const int64_t nxy = v.geometry().slice_voxels();
+  std::vector<double> mean(static_cast<size_t>(nxy * SliceMoments::kBatch)), sd(mean.size());
+  SliceMoments mom(v, window, centre);
+  const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
+  double best = 0;
+  for (;;) {
+    const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data()) * nxy;
+    if (n == 0) break;
+    const uint8_t* r = roi ? roi + z0 * nxy : nullptr;
+#pragma omp parallel for schedule(static) reduction(max : best)
+    for (int64_t i = 0; i < n; ++i)
+      if (!r || r[i]) best = std::max(best, sd[size_t(i)]);
+  }
+  return best;
+}
+
+using AirFn = std::function<LocalAir(const MethodInput&, const ParamValues&)>;
+std::map<std::string, AirFn>& air_functions() {
+  static std::map<std::string, AirFn> f;
+  return f;
+}
+
+MethodInfo local_info(std::string name, std::string doc, std::string citation, std::vector<ParamSpec> params,
+                      AirFn air) {
+  air_functions()[name] = air;
+  MethodInfo m;
+  m.name = std::move(name);
+  m.family = "local";
+  m.doc = std::move(doc);
+  m.citation = std::move(citation);
+  m.params.push_back(window_param());
+  m.params.insert(m.params.end(), params.begin(), params.end());
+  m.run = [air](const MethodInput& in, const ParamValues& p) {
+    LocalAir a = air(in, p);
+    MethodOutput out;
+    out.pores = std::move(a.air);
+    out.part_voxels = air_to_pores(out.pores, in.roi);
+    out.chosen = std::move(a.chosen);
+    out.warnings = std::move(a.warnings);
+    return out;
+  };
+  return m;
+}
+
+// ---- niblack ------------------------------------------------------------------------------------
+MethodInfo niblack_info() {
+  return local_info(
+      "niblack", "Niblack: T = m - k*s from the window mean m and standard deviation s (scikit-image's sign)",
+      "Niblack W. (1986) An Introduction to Digital Image Processing. Prentice-Hall, pp. 115-116",
+      {{"k", ParamType::Float, "0.2", -1, 1, {}, "",
+        "weight of the window std; Niblack's T = m + k's with k' = -0.2 is k = 0.2 here"}},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("niblack", in.volume, p);
+        const double k = p.num("k");
+        Context c = context(in, 0, false);
+        LocalAir out;
+        if (!constant_volume(in, c, out))
+          out = finish(air_from_moments(in, w, c.all.mean, [k](double m, double s) { return m - k * s; }), c);
+        out.chosen = {{"window", double(w)}, {"k", k}};
+        return out;
+      });
+}
+
+// ---- sauvola ------------------------------------------------------------------------------------
+MethodInfo sauvola_info() {
+  return local_info(
+      "sauvola",
+      "Sauvola: T = m * (1 + k * (s/R - 1)); R, the dynamic range of the std, in grey units or (r=0) half the "
+      "grey range of the ROI (robust with clip_pct). Grey values should be >= 0 with air darkest",
+      "Sauvola J., Pietikainen M. (2000) Adaptive document image binarization. Pattern Recognition 33(2):225-236",
+      {{"k", ParamType::Float, "0.2", 0, 1, {}, "", "weight of the std term (paper 0.5, scikit-image 0.2)"},
+       {"r", ParamType::Float, "0", 0, 3.4e38, {}, "grey",
+        "R in grey units; 0 = half the grey range (hi - lo)/2 of the ROI voxels. Note: scikit-image's default "
+        "for float images is 1 (half the float dtype range -1..1), not data-derived"},
+       clip_param()},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("sauvola", in.volume, p);
+        const double k = p.num("k");
+        Context c = context(in, p.num("clip_pct"), true);
+        double r = p.num("r");
+        LocalAir out;
+        if (!constant_volume(in, c, out)) {
+          if (r == 0) r = 0.5 * (c.hi - c.lo);
+          if (!(r > 0)) r = 0.5 * (c.all.max - c.all.min);  // ROI constant: fall back to the whole volume
+          if (c.lo < 0)
+            c.warnings.push_back("grey values below 0 (low " + fmt(c.lo) +
+                                 "): Sauvola's T = m(1 + k(s/R - 1)) assumes non-negative grey values");
+          out = finish(air_from_moments(in, w, c.all.mean,
+                                            [k, r](double m, double s) { return m * (1 + k * (s / r - 1)); }),
+                       c);
+        }
+        out.chosen = {{"window", double(w)}, {"k", k}, {"r", r}};
+        return out;
+      });
+}
+
+// ---- phansalkar ---------------------------------------------------------------------------------
+MethodInfo phansalkar_info() {
+  return local_info(
+      "phansalkar",
+      "Phansalkar: on grey values normalised to [0,1] by the ROI grey range, T = m(1 + p exp(-q m) + k(s/r - 1))",
+      "Phansalkar N., More S., Sabale A., Joshi M. (2011) Adaptive local thresholding for detection of nuclei in "
+      "diversity stained cytology images. Int. Conf. Communications and Signal Processing (ICCSP), 218-220",
+      {{"k", ParamType::Float, "0.25", 0, 1, {}, "", "weight of the std term (paper 0.25)"},
+       {"p", ParamType::Float, "2", 0, 10, {}, "", "weight of the exponential term (paper 2)"},
+       {"q", ParamType::Float, "10", 0, 100, {}, "", "decay of the exponential term (paper 10)"},
+       {"r", ParamType::Float, "0.5", 1e-6, 1, {}, "normalised grey", "R on the normalised scale (paper 0.5)"},
+       clip_param()},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("phansalkar", in.volume, p);
+        const double k = p.num("k"), pp = p.num("p"), q = p.num("q"), r = p.num("r");
+        Context c = context(in, p.num("clip_pct"), true);
+        LocalAir out;
+        if (!constant_volume(in, c, out)) {
+          if (!(c.hi > c.lo)) {
+            c.lo = c.all.min;
+            c.hi = c.all.max;
+          }
+          const double lo = c.lo, span = c.hi - c.lo;
+          out = finish(air_from_moments(in, w, c.all.mean, [=](double m, double s) {
+                         const double mn = (m - lo) / span, sn = s / span;
+                         return lo + span * mn * (1 + pp * std::exp(-q * mn) + k * (sn / r - 1));
+                       }), c);
+        }
+        out.chosen = {{"window", double(w)}, {"k", k}, {"p", pp}, {"q", q}, {"r", r},
+                      {"grey_lo", c.lo}, {"grey_hi", c.hi}};
+        return out;
+      });
+}
+
+// ---- wolf ---------------------------------------------------------------------------------------
+MethodInfo wolf_info() {
+  return local_info(
+      "wolf",
+      "Wolf & Jolion: T = m - k (1 - s/R)(m - M), R the largest window std in the ROI, M the lowest ROI grey "
+      "value (robust with clip_pct); two passes",
+      "Wolf C., Jolion J.-M. (2004) Extraction and recognition of artificial text in multimedia documents. "
+      "Pattern Analysis and Applications 6(4):309-326",
+      {{"k", ParamType::Float, "0.5", 0, 1, {}, "", "weight (paper 0.5)"}, clip_param()},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("wolf", in.volume, p);
+        const double k = p.num("k");
+        Context c = context(in, p.num("clip_pct"), true);
+        double r = 0;
+        const double mg = c.lo;
+        LocalAir out;
+        if (!constant_volume(in, c, out)) {
+          r = max_local_std(in, w, c.all.mean);
+          if (r > 0) {
+            out = finish(air_from_moments(in, w, c.all.mean, [=](double m, double s) {
+                           return m - k * (1 - s / r) * (m - mg);
+                         }), c);
+          } else {
+            c.warnings.push_back("no window inside the ROI has any contrast (largest std 0): no pores");
+            out = finish(Mask(in.volume.geometry()), c);
+          }
+        }
+        out.chosen = {{"window", double(w)}, {"k", k}, {"r", r}, {"min_grey", mg}};
+        return out;
+      });
+}
+
+// ---- bernsen ------------------------------------------------------------------------------------
+MethodInfo bernsen_info() {
+  return local_info(
+      "bernsen",
+      "Bernsen: T = (min + max)/2 of the window where max - min >= contrast; in low-contrast windows a voxel is "
+      "air when that mid-grey is below the middle of the ROI grey range",
+      "Bernsen J. (1986) Dynamic thresholding of grey-level images. Proc. 8th Int. Conf. Pattern Recognition, "
+      "Paris, 1251-1255",
+      {{"contrast", ParamType::Float, "0", 0, 3.4e38, {}, "grey",
+        "least local contrast max - min in grey units; 0 = 15/255 of the ROI grey range (the usual 15 grey "
+        "levels of 8-bit data)"},
+       clip_param()},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("bernsen", in.volume, p);
+        Context c = context(in, p.num("clip_pct"), true);
+        double contrast = p.num("contrast");
+        if (contrast == 0) contrast = (c.hi - c.lo) * 15.0 / 255.0;
+        const double split = 0.5 * (c.lo + c.hi);
+        LocalAir out;
+        if (!constant_volume(in, c, out)) {
+          VolumeF vmin, vmax;
+          box_min_max(in.volume, w, vmin, vmax);
+          Mask air(in.volume.geometry());
+          const float* v = in.volume.data();
+          const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
+          const int64_t n = in.volume.size();
+#pragma omp parallel for schedule(static)
+          for (int64_t i = 0; i < n; ++i) {
+            const double lo = vmin[i], hi = vmax[i], mid = 0.5 * (lo + hi);
+            const bool dark = hi - lo >= contrast ? double(v[i]) < mid : mid < split;
+            air[i] = dark && !std::isnan(v[i]) && (!roi || roi[i]);
+          }
+          out = finish(std::move(air), c);
+        }
+        out.chosen = {{"window", double(w)}, {"contrast", contrast}, {"low_contrast_split", split}};
+        return out;
+      });
+}
+
+// ---- local mean / local gaussian ----------------------------------------------------------------
+const char* kLocalMeanCitation =
+    "common practice (variable thresholding by the local mean, e.g. Gonzalez R.C., Woods R.E. Digital Image "
+    "Processing, 3rd ed. 2008, ch. 10; scikit-image threshold_local)";
+
+MethodInfo local_mean_info() {
+  return local_info(
+      "local-mean", "Local mean: T = m - offset, m the mean of the cubic window", kLocalMeanCitation,
+      {{"offset", ParamType::Float, "0", -3.4e38, 3.4e38, {}, "grey",
+        "a voxel is air when darker than its window mean by more than offset"}},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("local-mean", in.volume, p);
+        const double off = p.num("offset");
+        Context c = context(in, 0, false);
+        LocalAir out;
+        if (!constant_volume(in, c, out))
+          out = finish(air_from_moments(in, w, c.all.mean, [off](double m, double) { return m - off; }), c);
+        out.chosen = {{"window", double(w)}, {"offset", off}};
+        return out;
+      });
+}
+
+MethodInfo local_gaussian_info() {
+  return local_info(
+      "local-gaussian",
+      "Local Gaussian mean: T = g - offset, g the Gaussian-weighted mean over the window (separable, cut at "
+      "window/2; cost grows with the window)",
+      kLocalMeanCitation,
+      {{"offset", ParamType::Float, "0", -3.4e38, 3.4e38, {}, "grey",
+        "a voxel is air when darker than its weighted mean by more than offset"},
+       {"sigma", ParamType::Float, "0", 0, 1e4, {}, "voxels", "Gaussian sigma; 0 = (window - 1)/6 as scikit-image"}},
+      [](const MethodInput& in, const ParamValues& p) {
+        const int64_t w = checked_window("local-gaussian", in.volume, p);
+        const double off = p.num("offset");
+        double sigma = p.num("sigma");
+        if (sigma == 0) sigma = double(w - 1) / 6.0;
+        Context c = context(in, 0, false);
+        LocalAir out;
+        if (!constant_volume(in, c, out)) {
+          if (c.all.nan_count > 0)
+            throw InputError("method local-gaussian: the volume has " + std::to_string(c.all.nan_count) +
+                             " NaN voxels, which a Gaussian mean cannot skip; use local-mean or fill them");
+          const VolumeF g = gaussian_mean(in.volume, w, sigma);
+          Mask air(in.volume.geometry());
+          const float* v = in.volume.data();
+          const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
+          const int64_t n = in.volume.size();
+#pragma omp parallel for schedule(static)
+          for (int64_t i = 0; i < n; ++i) air[i] = double(v[i]) < double(g[i]) - off && (!roi || roi[i]);
+          out = finish(std::move(air), c);
+        }
+        out.chosen = {{"window", double(w)}, {"sigma_vox", sigma}, {"offset", off}};
+        return out;
+      });
+}
+
+}  // namespace
+
+LocalAir local_air(const std::string& method, const MethodInput& in, const std::vector<std::string>& key_values) {
+  const MethodInfo& m = Registry::instance().get(method);
+  auto it = air_functions().find(method);
+  if (it == air_functions().end()) throw InputError("method " + method + " is not a local method");
+  return it->second(in, parse_params(m, key_values));
+}
+
+PB_REGISTER_METHOD(niblack_info());
+PB_REGISTER_METHOD(sauvola_info());
+PB_REGISTER_METHOD(phansalkar_info());
+PB_REGISTER_METHOD(wolf_info());
+PB_REGISTER_METHOD(bernsen_info());
+PB_REGISTER_METHOD(local_mean_info());
+PB_REGISTER_METHOD(local_gaussian_info());
+
+}  // namespace pb
