@@ -12,13 +12,16 @@ std::vector<ParamSpec> histogram_params() {
       {"bins", ParamType::Int, "256", 2, 65536, {}, "bins", "number of histogram bins over the grey-value range"},
       {"clip_pct", ParamType::Float, "0", 0, 10, {}, "%",
        "robust range: ignore this percentage at each end of the grey-value distribution (0 = full min..max)"},
+      {"histogram", ParamType::Enum, "volume", -1e300, 1e300, {"volume", "roi"}, "",
+       "voxels that form the histogram: the whole volume, so that the air and material peaks are both present "
+       "(common practice in CT), or only the part mask (ROI); pores are classified inside the ROI either way"},
   };
 }
 
 Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
-  const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
+  const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
   const Stats s = compute_stats(in.volume.data(), in.volume.size(), roi);
-  if (s.count == 0) throw InputError("no finite voxels inside the region of interest");
+  if (s.count == 0) throw InputError(roi ? "no finite voxels inside the region of interest" : "no finite voxels in the volume");
   double lo = s.min, hi = s.max;
   const double clip = p.num("clip_pct");
   if (clip > 0 && hi > lo) {
