@@ -322,7 +322,8 @@ Choice kittler_illingworth(const Histogram& h, const ParamValues&) {
 // Huang L.K., Wang M.J.J. (1995) Image thresholding by minimizing the measures of fuzziness.
 // Pattern Recognit. 28(1):41-51. Membership u(x) = 1/(1 + |x - m|/C) to the mean m of its class,
 // C = occupied range; minimises sum h(x) S(u(x)) with Shannon's S. Class means are rounded to the
-// nearest bin (as in ImageJ's port), so S is a table over integer distances. O(bins^2).
+// nearest bin (as in ImageJ's port), so S is a table over integer distances. O(bins^2): about
+// 10 s at bins=65536 on two loaded cores, milliseconds at the default 256.
 Choice huang(const Histogram& h, const ParamValues&) {
   const int n = h.bins();
   int first = 0, last = n - 1;
@@ -415,7 +416,7 @@ TwoModes smooth_to_two_modes(const Histogram& h, const char* method) {  // metho
   }
   if (maxima.size() != 2)
     throw NoSplit(std::string(method) + ": smoothing did not leave exactly two modes (" + std::to_string(maxima.size()) +
-                  " after up to 10000 passes)");
+                  " after up to 10000 passes; fewer bins help)");
   return {maxima[0], maxima[1], std::move(s)};
 }
 
@@ -433,7 +434,7 @@ Choice intermodes(const Histogram& h, const ParamValues&) {
   };
   std::vector<int> m = strict_maxima();
   for (int it = 0; m.size() != 2; ++it) {
-    if (it == 10000) throw NoSplit("intermodes: smoothing did not leave exactly two modes in 10000 passes");
+    if (it == 10000) throw NoSplit("intermodes: smoothing did not leave exactly two modes in 10000 passes (fewer bins help)");
     for (int i = 0; i < n; ++i)
       t[size_t(i)] = ((i > 0 ? s[size_t(i - 1)] : 0.0) + s[size_t(i)] + (i + 1 < n ? s[size_t(i + 1)] : 0.0)) / 3.0;
     s.swap(t);

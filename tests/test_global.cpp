@@ -10,6 +10,7 @@
 #include <nlohmann/json.hpp>
 
 #include "core/histogram.hpp"
+#include "core/parallel.hpp"
 #include "methods/pores.hpp"
 #include "methods/threshold.hpp"
 #include "tests/global_helpers.hpp"
@@ -255,4 +256,24 @@ TEST_CASE("clip_pct keeps the threshold in grey units and ignores outliers", "[g
   CHECK(chosen(clipped, "bin_width") < chosen(wide, "bin_width") / 50);
   CHECK(chosen(clipped, "threshold") > 0.2);
   CHECK(chosen(clipped, "threshold") < 0.7);
+}
+
+TEST_CASE("global thresholds do not depend on the thread count, nor crash on few bins", "[global]") {
+  const VolumeF v = global_test_volumes()[2].volume;  // three-phase
+  std::vector<std::string> all = kAutomatic;
+  all.push_back("percentile");
+  for (const auto& m : all) {
+    INFO(m);
+    set_threads(1);
+    const double one = chosen(run_named(m, v), "threshold");
+    set_threads(2);
+    const double two = chosen(run_named(m, v), "threshold");
+    set_threads(0);
+    CHECK(one == two);
+    for (const char* bins : {"bins=2", "bins=3", "bins=5"}) {
+      INFO(bins);
+      const MethodOutput o = run_named(m, v, {bins});
+      CHECK(std::isfinite(chosen(o, "threshold")));
+    }
+  }
 }
