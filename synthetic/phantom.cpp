@@ -1,0 +1,396 @@
+// Porous phantoms: part primitives as signed distance functions (box, cylinder, cylinder minus a
+// coaxial bore; union = min, difference = max(a, -b), e.g. Hart (1996) Sphere tracing, The Visual
+// Computer 12:527), pores placed by rejection sampling from log-normal sizes, and the voxel truth by
+// supersampling with a majority rule. Conventions: pores are air (dark in a scan); z is the part
+// axis and the build direction; lack-of-fusion voids lie flat in build layers.
+#include "synthetic/phantom.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <iomanip>
+#include <sstream>
+
+#include "core/error.hpp"
+
+namespace pb::synth {
+
+double Rng::normal() {
+  // Box-Muller (Box & Muller 1958, Ann. Math. Statist. 29:610); one value per call.
+  const double u1 = 1.0 - uniform(), u2 = uniform();
+  return std::sqrt(-2.0 * std::log(u1)) * std::cos(2 * M_PI * u2);
+}
+
+int64_t Rng::poisson(double lam) {
+  if (lam <= 0) return 0;
+  if (lam < 10) {
+    const double limit = std::exp(-lam);
+    double prod = uniform();
+    int64_t k = 0;
+    while (prod > limit) {
+      prod *= uniform();
+      ++k;
+    }
+    return k;
+  }
+  const double slam = std::sqrt(lam), loglam = std::log(lam);
+  const double b = 0.931 + 2.53 * slam, a = -0.059 + 0.02483 * b;
+  const double invalpha = 1.1239 + 1.1328 / (b - 3.4), vr = 0.9277 - 3.6224 / (b - 2);
+  for (;;) {
+    const double U = uniform() - 0.5, V = uniform(), us = 0.5 - std::abs(U);
+    const double k = std::floor((2 * a / us + b) * U + lam + 0.43);
+    if (us >= 0.07 && V <= vr) return int64_t(k);
+    if (k < 0 || (us < 0.013 && V > us)) continue;
+    if (std::log(V) + std::log(invalpha) - std::log(a / (us * us) + b) <= -lam + k * loglam - std::lgamma(k + 1))
+      return int64_t(k);
+  }
+}
+
+uint64_t mix_seed(uint64_t seed, uint64_t stream) {
+  uint64_t z = seed + 0x9e3779b97f4a7c15ULL * (stream + 1);  // SplitMix64 (Steele et al. 2014)
+  z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+  z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+  return z ^ (z >> 31);
+}
+
+double Pore::volume_mm3() const { return 4.0 / 3.0 * M_PI * semi_axes_mm[0] * semi_axes_mm[1] * semi_axes_mm[2]; }
+double Pore::esd_um() const { return 1000.0 * std::cbrt(6.0 * volume_mm3() / M_PI); }
+double Pore::bounding_radius_mm() const { return *std::max_element(semi_axes_mm.begin(), semi_axes_mm.end()); }
+
+bool Pore::contains(const Vec3& p) const {
+  const double dx = p[0] - centre_mm[0], dy = p[1] - centre_mm[1], dz = p[2] - centre_mm[2];
+  const double c = std::cos(yaw_rad), s = std::sin(yaw_rad);
+  const double u = (dx * c + dy * s) / semi_axes_mm[0], v = (-dx * s + dy * c) / semi_axes_mm[1],
+               w = dz / semi_axes_mm[2];
+  return u * u + v * v + w * w <= 1.0;
+}
+
+Vec3 Pore::half_extent_mm() const {
+  const double c = std::cos(yaw_rad), s = std::sin(yaw_rad), a = semi_axes_mm[0], b = semi_axes_mm[1];
+  return {std::sqrt(a * a * c * c + b * b * s * s), std::sqrt(a * a * s * s + b * b * c * c), semi_axes_mm[2]};
+}
+
+namespace {
+
+double shape_sdf(const Shape& s, const Vec3& p) {
+  const double x = p[0] - s.centre_mm[0], y = p[1] - s.centre_mm[1], z = p[2] - s.centre_mm[2];
+  if (s.kind == "box") {
+    const double a = s.angle_deg * M_PI / 180, c = std::cos(a), sn = std::sin(a);
+    const double q[3] = {std::abs(x * c + y * sn) - s.size_mm[0] / 2, std::abs(-x * sn + y * c) - s.size_mm[1] / 2,
+                         std::abs(z) - s.size_mm[2] / 2};
+    const double ox = std::max(q[0], 0.0), oy = std::max(q[1], 0.0), oz = std::max(q[2], 0.0);
+    return std::sqrt(ox * ox + oy * oy + oz * oz) + std::min(std::max({q[0], q[1], q[2]}), 0.0);
+  }
+  const double r = std::hypot(x, y);
+  const double d2 = r - s.radius_mm, dz = std::abs(z) - s.height_mm / 2;
+  double d = std::min(std::max(d2, dz), 0.0) + std::hypot(std::max(d2, 0.0), std::max(dz, 0.0));
+  if (s.kind == "gear-blank") d = std::max(d, s.bore_radius_mm - r);
+  return d;
+}
+
+// Axis-aligned bounding box of a shape: {min, max} in mm.
+std::array<Vec3, 2> shape_box(const Shape& s) {
+  Vec3 h;
+  if (s.kind == "box") {
+    const double a = s.angle_deg * M_PI / 180, c = std::abs(std::cos(a)), sn = std::abs(std::sin(a));
+    h = {(s.size_mm[0] * c + s.size_mm[1] * sn) / 2, (s.size_mm[0] * sn + s.size_mm[1] * c) / 2, s.size_mm[2] / 2};
+  } else {
+    h = {s.radius_mm, s.radius_mm, s.height_mm / 2};
+  }
+  return {Vec3{s.centre_mm[0] - h[0], s.centre_mm[1] - h[1], s.centre_mm[2] - h[2]},
+          Vec3{s.centre_mm[0] + h[0], s.centre_mm[1] + h[1], s.centre_mm[2] + h[2]}};
+}
+
+double shape_volume(const Shape& s) {
+  if (s.kind == "box") return s.size_mm[0] * s.size_mm[1] * s.size_mm[2];
+  double v = M_PI * s.radius_mm * s.radius_mm * s.height_mm;
+  if (s.kind == "gear-blank") v -= M_PI * s.bore_radius_mm * s.bore_radius_mm * s.height_mm;
+  return v;
+}
+
+std::string mm(double v) {
+  std::ostringstream os;
+  os << std::setprecision(4) << v << " mm";
+  return os.str();
+}
+
+struct Placer {
+  const Phantom& ph;
+  const Recipe& r;
+  std::array<Vec3, 2> box;  // part bounding box
+  double voxel;
+
+  bool fits_volume(const Vec3& c, double rad) const {
+    for (int i = 0; i < 3; ++i) {
+      const double half = (ph.grid.dims[i] - 1) / 2.0 * voxel;
+      if (c[i] - rad < -half + voxel || c[i] + rad > half - voxel) return false;
+    }
+    return true;
+  }
+  bool clear_of_others(const Pore& p) const {
+    const double gap = voxel;  // common practice, no source: keep pores a voxel apart so they stay separate
+    for (const Pore& q : ph.pores) {
+      const double d = std::hypot(p.centre_mm[0] - q.centre_mm[0], p.centre_mm[1] - q.centre_mm[1],
+                                  p.centre_mm[2] - q.centre_mm[2]);
+      if (d < p.bounding_radius_mm() + q.bounding_radius_mm() + gap) return false;
+    }
+    for (const Marker& m : ph.markers) {
+      const double d = std::hypot(p.centre_mm[0] - m.centre_mm[0], p.centre_mm[1] - m.centre_mm[1],
+                                  p.centre_mm[2] - m.centre_mm[2]);
+      if (d < p.bounding_radius_mm() + m.radius_mm + gap) return false;
+    }
+    return true;
+  }
+  Vec3 random_point(Rng& g) const {
+    Vec3 c;
+    for (int i = 0; i < 3; ++i) c[i] = box[0][i] + (box[1][i] - box[0][i]) * g.uniform();
+    return c;
+  }
+};
+
+}  // namespace
+
+double Phantom::part_sdf(const Vec3& p) const {
+  double d = std::numeric_limits<double>::infinity();
+  for (const Shape& s : shapes) d = std::min(d, shape_sdf(s, p));
+  return d;
+}
+
+bool Phantom::in_part(const Vec3& p) const {
+  if (part_sdf(p) >= 0) return false;
+  for (const Pore& q : pores)
+    if (q.open && q.contains(p)) return false;
+  return true;
+}
+
+double Phantom::closed_pore_volume_mm3() const {
+  double v = 0;
+  for (const Pore& p : pores)
+    if (!p.open) v += p.volume_mm3();
+  return v;
+}
+
+Phantom build_phantom(const Recipe& r) {
+  validate(r);
+  Phantom ph;
+  const double s = r.voxel_mm();
+  ph.grid.dims = r.dims;
+  ph.grid.spacing_mm = {s, s, s};
+  for (int i = 0; i < 3; ++i) ph.grid.origin_mm[i] = -(r.dims[i] - 1) / 2.0 * s;
+  ph.mu_material = r.material_mu();
+  ph.shapes = r.shapes;
+  ph.markers = r.markers;
+
+  // The part must fit the volume with a voxel to spare, or the scan would cut it.
+  std::array<Vec3, 2> box{Vec3{1e30, 1e30, 1e30}, Vec3{-1e30, -1e30, -1e30}};
+  const char* axis = "xyz";
+  for (size_t k = 0; k < r.shapes.size(); ++k) {
+    const auto b = shape_box(r.shapes[k]);
+    for (int i = 0; i < 3; ++i) {
+      const double half = (r.dims[i] - 1) / 2.0 * s - s;
+      if (b[0][i] < -half || b[1][i] > half)
+        throw InputError("recipe: phantom.shape." + std::to_string(k) + " spans " + mm(b[0][i]) + " to " + mm(b[1][i]) +
+                         " along " + axis[i] + ", outside the volume (+-" + mm(half) +
+                         "); enlarge phantom.dims or shrink the shape");
+      box[0][i] = std::min(box[0][i], b[0][i]);
+      box[1][i] = std::max(box[1][i], b[1][i]);
+    }
+  }
+  // Part volume: analytic for one shape; for a union, counted on a grid of 4 samples per voxel edge.
+  if (r.shapes.size() == 1) {
+    ph.part_volume_mm3 = shape_volume(r.shapes[0]);
+  } else {
+    const int m = 4;
+    const double h = s / m;
+    int64_t count = 0;
+    const int64_t nz = int64_t(std::ceil((box[1][2] - box[0][2]) / h));
+#pragma omp parallel for schedule(static) reduction(+ : count)
+    for (int64_t k = 0; k < nz; ++k)
+      for (double y = box[0][1] + h / 2; y < box[1][1]; y += h)
+        for (double x = box[0][0] + h / 2; x < box[1][0]; x += h)
+          count += ph.part_sdf({x, y, box[0][2] + (k + 0.5) * h}) < 0;
+    ph.part_volume_mm3 = double(count) * h * h * h;
+  }
+
+  Placer pl{ph, r, box, s};
+  for (size_t pi = 0; pi < r.pores.size(); ++pi) {
+    const PorePopulation& q = r.pores[pi];
+    Rng g(mix_seed(r.seed, pi));
+    const double target = q.porosity_pct / 100.0 * ph.part_volume_mm3, tol = 0.02 * target;
+    const double med = q.median_diameter_um * 1e-3;
+    auto draw_diameter = [&] {
+      double d;
+      do {
+        d = med * std::exp(q.spread * std::max(-3.0, std::min(3.0, g.normal())));
+      } while (d < q.min_diameter_um * 1e-3);
+      return d;
+    };
+    auto make = [&](const Vec3& c) {
+      Pore p;
+      p.population = int(pi);
+      p.type = q.type;
+      p.centre_mm = c;
+      const double d = draw_diameter();
+      if (q.type == "lack-of-fusion") {
+        p.semi_axes_mm = {d / 2, q.aspect * d / 2, q.thickness_um * 1e-3 / 2};
+        p.yaw_rad = M_PI * g.uniform();
+        // Centred on a layer boundary, counted from the bottom of the part.
+        const double layer = q.layer_um * 1e-3;
+        p.centre_mm[2] = box[0][2] + std::round((c[2] - box[0][2]) / layer) * layer;
+      } else {
+        p.semi_axes_mm = {d / 2, d / 2, d / 2};
+      }
+      return p;
+    };
+    double placed = 0;
+    int64_t attempts = 0;
+    int n_placed = 0;
+    Vec3 cluster_centre{0, 0, 0};
+    int left_in_cluster = 0;
+    const double sigma_cluster = q.cluster_radius_um * 1e-3 / 2;
+    while (placed < target - tol) {
+      if (++attempts > r.placement_budget) {
+        std::ostringstream os;
+        os << "recipe: pores." << pi << " (" << q.type << "): target porosity " << q.porosity_pct
+           << " % cannot be placed: reached " << std::setprecision(3) << 100.0 * placed / ph.part_volume_mm3
+           << " % with " << n_placed << " pores after " << r.placement_budget
+           << " attempts; lower porosity_pct or the pore size, or raise phantom.placement_budget";
+        throw InputError(os.str());
+      }
+      Vec3 c;
+      if (q.type == "cluster") {
+        if (left_in_cluster <= 0) {
+          cluster_centre = pl.random_point(g);
+          if (ph.part_sdf(cluster_centre) > -sigma_cluster) continue;
+          left_in_cluster = q.pores_per_cluster;
+        }
+        for (int i = 0; i < 3; ++i) c[i] = cluster_centre[i] + sigma_cluster * g.normal();
+      } else {
+        c = pl.random_point(g);
+      }
+      Pore p = make(c);
+      const double v = p.volume_mm3();
+      if (placed + v > target + tol) continue;
+      const double rad = p.bounding_radius_mm();
+      if (ph.part_sdf(p.centre_mm) > -(rad + s) || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p)) {
+        if (q.type == "cluster" && attempts % 50 == 0) left_in_cluster = 0;  // crowded cluster: start another
+        continue;
+      }
+      p.id = int(ph.pores.size()) + 1;
+      ph.pores.push_back(p);
+      placed += v;
+      ++n_placed;
+      --left_in_cluster;
+    }
+    // Open pores: cut by the part surface (centre within half a radius of it).
+    for (int k = 0; k < q.open_count;) {
+      if (++attempts > 2 * r.placement_budget)
+        throw InputError("recipe: pores." + std::to_string(pi) + ".open_count = " + std::to_string(q.open_count) +
+                         ": only " + std::to_string(k) + " open pores could be placed");
+      Pore p = make(pl.random_point(g));
+      const double rad = p.bounding_radius_mm();
+      if (std::abs(ph.part_sdf(p.centre_mm)) > 0.5 * rad || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p))
+        continue;
+      p.open = true;
+      p.id = int(ph.pores.size()) + 1;
+      ph.pores.push_back(p);
+      ++k;
+    }
+  }
+  return ph;
+}
+
+Truth rasterize_truth(const Phantom& ph, int ss) {
+  if (ss < 1) throw InputError("supersampling must be >= 1");
+  const Geometry& g = ph.grid;
+  const double s = g.spacing_mm[0];
+  Truth t{Image<uint8_t>(g), Mask(g)};
+  const int n_sub = ss * ss * ss;
+  std::vector<double> off(static_cast<size_t>(ss));
+  for (int j = 0; j < ss; ++j) off[size_t(j)] = ((j + 0.5) / ss - 0.5) * s;
+  const double boundary = 0.5 * std::sqrt(3.0) * s;  // half the voxel diagonal
+  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
+
+#pragma omp parallel for schedule(static)
+  for (int64_t z = 0; z < nz; ++z) {
+    const double zc = g.origin_mm[2] + z * s;
+    std::vector<uint16_t> part(size_t(nx * ny)), pore(size_t(nx * ny), 0);
+    for (int64_t y = 0; y < ny; ++y)
+      for (int64_t x = 0; x < nx; ++x) {
+        const Vec3 c{g.origin_mm[0] + x * s, g.origin_mm[1] + y * s, zc};
+        const double d = ph.part_sdf(c);
+        int cnt = 0;
+        if (d <= -boundary) cnt = n_sub;
+        else if (d < boundary)
+          for (int k = 0; k < ss; ++k)
+            for (int j = 0; j < ss; ++j)
+              for (int i = 0; i < ss; ++i)
+                cnt += ph.part_sdf({c[0] + off[size_t(i)], c[1] + off[size_t(j)], c[2] + off[size_t(k)]}) < 0;
+        part[size_t(y * nx + x)] = uint16_t(cnt);
+      }
+    // Pores stamped over their bounding boxes; they never overlap, so counts simply add.
+    std::vector<const Pore*> here;
+    for (const Pore& p : ph.pores) {
+      const Vec3 h = p.half_extent_mm();
+      if (p.centre_mm[2] + h[2] < zc - s / 2 || p.centre_mm[2] - h[2] > zc + s / 2) continue;
+      here.push_back(&p);
+    }
+    for (const Pore* pp : here) {
+      const Pore& p = *pp;
+      const Vec3 h = p.half_extent_mm();
+      const int64_t x0 = std::max<int64_t>(0, int64_t(std::floor((p.centre_mm[0] - h[0] - g.origin_mm[0]) / s))),
+                    x1 = std::min<int64_t>(nx - 1, int64_t(std::ceil((p.centre_mm[0] + h[0] - g.origin_mm[0]) / s))),
+                    y0 = std::max<int64_t>(0, int64_t(std::floor((p.centre_mm[1] - h[1] - g.origin_mm[1]) / s))),
+                    y1 = std::min<int64_t>(ny - 1, int64_t(std::ceil((p.centre_mm[1] + h[1] - g.origin_mm[1]) / s)));
+      for (int64_t y = y0; y <= y1; ++y)
+        for (int64_t x = x0; x <= x1; ++x) {
+          const Vec3 c{g.origin_mm[0] + x * s, g.origin_mm[1] + y * s, zc};
+          int in = 0, carved = 0;
+          for (int k = 0; k < ss; ++k)
+            for (int j = 0; j < ss; ++j)
+              for (int i = 0; i < ss; ++i) {
+                const Vec3 q{c[0] + off[size_t(i)], c[1] + off[size_t(j)], c[2] + off[size_t(k)]};
+                if (!p.contains(q)) continue;
+                if (!p.open) ++in;
+                else if (ph.part_sdf(q) < 0) ++carved;  // open pore: air that was part
+              }
+          pore[size_t(y * nx + x)] = uint16_t(pore[size_t(y * nx + x)] + in);
+          part[size_t(y * nx + x)] = uint16_t(part[size_t(y * nx + x)] - carved);
+        }
+    }
+    uint8_t* lab = t.labels.slice(z);
+    uint8_t* msk = t.part.slice(z);
+    for (int64_t i = 0; i < nx * ny; ++i) {
+      const int n[3] = {n_sub - part[size_t(i)], part[size_t(i)] - pore[size_t(i)], pore[size_t(i)]};
+      const int best = std::max({n[0], n[1], n[2]});
+      uint8_t l = n[2] == best ? 2 : n[1] == best ? 1 : 0;
+      if ((n[0] == best) + (n[1] == best) + (n[2] == best) > 1) {
+        // A tie (common when the surface runs along sample rows) goes to the class at the voxel
+        // centre when it is one of the tied classes, so that ties do not bias volumes.
+        const Vec3 c{g.origin_mm[0] + double(i % nx) * s, g.origin_mm[1] + double(i / nx) * s, zc};
+        uint8_t cc = ph.in_part(c) ? 1 : 0;
+        if (cc == 1)
+          for (const Pore* p : here)
+            if (!p->open && p->contains(c)) cc = 2;
+        if (n[cc] == best) l = cc;
+      }
+      lab[i] = l;
+      msk[i] = l != 0;
+    }
+  }
+  return t;
+}
+
+std::string pores_csv(const Phantom& ph) {
+  std::ostringstream os;
+  os << "id,type,population,x_mm,y_mm,z_mm,semi_axis_a_mm,semi_axis_b_mm,semi_axis_c_mm,yaw_deg,volume_mm3,esd_um,"
+        "inside_part\n";
+  os << std::setprecision(9);
+  for (const Pore& p : ph.pores)
+    os << p.id << ',' << p.type << ',' << p.population << ',' << p.centre_mm[0] << ',' << p.centre_mm[1] << ','
+       << p.centre_mm[2] << ',' << p.semi_axes_mm[0] << ',' << p.semi_axes_mm[1] << ',' << p.semi_axes_mm[2] << ','
+       << p.yaw_rad * 180 / M_PI << ',' << p.volume_mm3() << ',' << p.esd_um() << ',' << (p.open ? "false" : "true")
+       << '\n';
+  return os.str();
+}
+
+}  // namespace pb::synth

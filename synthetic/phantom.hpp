@@ -1,0 +1,84 @@
+#pragma once
+// A porous phantom: the analytic description (part primitives, marker spheres, pore list) kept
+// apart from its rasterisation on the voxel grid and from any simulated acquisition.
+// Pores are ellipsoids with a rotation about z only (yaw); gas pores are spheres. Phantom frame:
+// mm, origin at the volume centre, z = part axis = rotation axis = build direction.
+// Truth labels: 0 background (air, open pores, markers), 1 material, 2 closed pore.
+#include <array>
+#include <random>
+#include <string>
+#include <vector>
+
+#include "core/volume.hpp"
+#include "synthetic/recipe.hpp"
+
+namespace pb::synth {
+
+using Vec3 = std::array<double, 3>;
+
+struct Pore {
+  int id = 0;                    // 1-based, in placement order
+  int population = 0;            // index into Recipe::pores
+  std::string type;              // gas, lack-of-fusion, cluster
+  Vec3 centre_mm{0, 0, 0};
+  Vec3 semi_axes_mm{0, 0, 0};    // along the pore's own x, y (after yaw) and z
+  double yaw_rad = 0;            // rotation about z
+  bool open = false;             // cut by the part surface (air connected to the outside)
+  double volume_mm3() const;     // of the whole ellipsoid
+  double esd_um() const;         // diameter of the sphere of the same volume
+  double bounding_radius_mm() const;
+  bool contains(const Vec3& p) const;
+  Vec3 half_extent_mm() const;   // axis-aligned bounding box half sizes
+};
+
+struct Phantom {
+  Geometry grid;                 // voxel centres in the phantom frame (origin = -(n-1)/2 voxel)
+  double mu_material = 0;        // 1/mm
+  std::vector<Shape> shapes;
+  std::vector<Marker> markers;
+  std::vector<Pore> pores;
+  double part_volume_mm3 = 0;    // the part envelope (material + closed pores)
+
+  // Signed distance to the part surface (< 0 inside); exact outside, a lower bound on the depth
+  // inside a union.
+  double part_sdf(const Vec3& p) const;
+  // Inside the part material or a closed pore (open pores are carved out).
+  bool in_part(const Vec3& p) const;
+  double closed_pore_volume_mm3() const;
+  double porosity_pct() const { return 100.0 * closed_pore_volume_mm3() / part_volume_mm3; }
+};
+
+// Places the pores of every population (deterministic from the recipe seed; rejection sampling
+// with placement_budget). Throws InputError saying what was reached when a target porosity cannot
+// be placed, or when the part does not fit the volume.
+Phantom build_phantom(const Recipe& r);
+
+struct Truth {
+  Image<uint8_t> labels;  // 0 background, 1 material, 2 closed pore
+  Mask part;              // labels != 0
+};
+
+// Truth on the voxel grid: supersampling^3 samples per voxel, the class with most samples wins
+// (ties go to the higher label). Parallel over slices; identical for any thread count.
+Truth rasterize_truth(const Phantom& ph, int supersampling);
+
+// One row per pore: id, type, population, centre in mm, semi-axes in mm, volume_mm3, esd_um,
+// inside_part (false for open pores).
+std::string pores_csv(const Phantom& ph);
+
+// Uniform [0,1) and normal draws from mt19937_64 by explicit formulas (53-bit mantissa,
+// Box-Muller), so that phantoms do not depend on the standard library's distribution code.
+struct Rng {
+  explicit Rng(uint64_t seed) : g(seed) {}
+  double uniform() { return double(g() >> 11) * 0x1.0p-53; }
+  double normal();
+  // Poisson count: product of uniforms below mean 10 (Knuth, TAOCP vol. 2, 3.4.1), transformed
+  // rejection PTRS above (Hoermann 1993, Insurance: Math. Econ. 12:39; as in numpy).
+  int64_t poisson(double mean);
+  std::mt19937_64 g;
+};
+
+// A seed for stream `stream` of a run seeded with `seed` (SplitMix64 mixing).
+uint64_t mix_seed(uint64_t seed, uint64_t stream);
+
+}  // namespace pb::synth

@@ -1,0 +1,47 @@
+#pragma once
+// Simulated parallel-beam CT of a phantom, slice by slice (each axial slice is an independent 2D
+// acquisition; cone-beam geometry is out of scope). Exact line integrals of the part, pore and
+// marker cross-sections; area integration over detector bin and voxel height, optional angular
+// blur, Gaussian detector PSF on intensity, Poisson photon counts with optional electronic noise,
+// a noise-free flat field, -log, then FBP. Units: mu in 1/mm, lengths in mm, so mu x path is the
+// dimensionless line integral.
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "synthetic/ct.hpp"
+#include "synthetic/phantom.hpp"
+
+namespace pb::synth {
+
+struct ScanSpec {
+  int projections = 0;
+  double i0 = 0;           // photons per bin and projection
+  bool reference = false;  // the high-quality scan
+  // reference-scan.mha, scan-400p.mha, or scan-400p-i0-20000.mha in a dose series.
+  std::string file_name(bool dose_series) const;
+};
+
+// The reference scan first, then every projection count at every i0.
+std::vector<ScanSpec> scan_list(const Recipe& r);
+
+// The geometry of a scan of the recipe's slices with `projections` angles.
+ParallelGeometry scan_geometry(const Recipe& r, int projections);
+
+// Exact line integrals (mu x mm) of the phantom's cross-section at plane z_mm, at angle theta,
+// for rays t = t0 + k dt, k = 0..n-1.
+void phantom_line_integrals(const Phantom& ph, double z_mm, double theta, double t0, double dt, int n, double* out);
+
+// The sinogram of line integrals at bin centres of plane z_mm (no detector integration).
+Sinogram phantom_sinogram(const Phantom& ph, double z_mm, const ParallelGeometry& g);
+
+// Expected transmission I/I0 of slice z (integrated over bin width, voxel height and the
+// angular blur, then blurred by the detector PSF).
+Sinogram slice_transmission(const Phantom& ph, const Recipe& r, const ParallelGeometry& g, int64_t z);
+
+// Scans of one projection count at each dose in i0s, reconstructed (mu in 1/mm). Parallel over
+// slices, each slice with its own noise stream: identical for any thread count, and a scan does
+// not depend on which other scans are asked for.
+std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, int projections, const std::vector<double>& i0s);
+
+}  // namespace pb::synth

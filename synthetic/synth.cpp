@@ -1,0 +1,146 @@
+// The synthetic-scan pipeline: recipe -> phantom -> truth -> scans, and the output folder with its
+// manifest. No new physics here (see phantom.cpp, scan.cpp, ct.cpp); conventions: truth labels 0
+// background, 1 material, 2 closed pore; scans in mu (1/mm) unless uint16 is asked for.
+#include "synthetic/synth.hpp"
+
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <map>
+#include <sstream>
+
+#include "core/context.hpp"
+#include "core/error.hpp"
+#include "core/io.hpp"
+#include "core/sha256.hpp"
+
+namespace pb::synth {
+
+namespace {
+void say(const std::function<void(const std::string&)>& f, const std::string& m) {
+  if (f) f(m);
+}
+double seconds_since(std::chrono::steady_clock::time_point t0) {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+}
+}  // namespace
+
+SynthResult synthesize(const Recipe& r, const std::function<void(const std::string&)>& progress) {
+  validate(r);
+  SynthResult out{r, build_phantom(r), {}, {}};
+  say(progress, "phantom: " + std::to_string(out.phantom.pores.size()) + " pores");
+  out.truth = rasterize_truth(out.phantom, r.supersampling);
+  const auto specs = scan_list(r);
+  // Group by projection count so that the transmission of a slice is computed once per count.
+  std::map<int, std::vector<size_t>> by_count;
+  for (size_t i = 0; i < specs.size(); ++i) by_count[specs[i].projections].push_back(i);
+  out.scans.resize(specs.size());
+  for (auto& [n, idx] : by_count) {
+    std::vector<double> doses;
+    for (size_t i : idx) doses.push_back(specs[i].i0);
+    say(progress, "scan: " + std::to_string(n) + " projections");
+    auto vols = simulate_scans(out.phantom, r, n, doses);
+    for (size_t j = 0; j < idx.size(); ++j) out.scans[idx[j]] = {specs[idx[j]], std::move(vols[j])};
+  }
+  return out;
+}
+
+double uint16_full_scale(const Recipe& r) {
+  return r.uint16_full_scale_mu > 0 ? r.uint16_full_scale_mu : 2.0 * r.material_mu();
+}
+
+AnyVolume stored_scan(const VolumeF& mu, const Recipe& r) {
+  if (r.output_type == "float32") return AnyVolume(mu);
+  const double fs = uint16_full_scale(r);
+  Image<uint16_t> u(mu.geometry());
+  for (int64_t i = 0; i < mu.size(); ++i) u[i] = uint16_t(std::lround(std::clamp(double(mu[i]) / fs, 0.0, 1.0) * 65535.0));
+  return AnyVolume(std::move(u));
+}
+
+nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, const WriteSynthOptions& opt) {
+  validate(r);
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  fs::create_directories(dir, ec);
+  if (ec) throw InputError("output folder " + dir + " cannot be created: " + ec.message());
+  const auto path = [&](const std::string& name) { return (fs::path(dir) / name).string(); };
+  check_writable(path("manifest.json"));
+  const auto t_start = std::chrono::steady_clock::now();
+  WriteOptions wo;
+  wo.compress = opt.compress;
+
+  nlohmann::ordered_json files = nlohmann::ordered_json::array();
+  auto record = [&](const std::string& name, const std::string& kind, nlohmann::ordered_json extra) {
+    nlohmann::ordered_json f{{"file", name}, {"kind", kind}, {"sha256", sha256_file(path(name))}};
+    for (auto& [k, v] : extra.items()) f[k] = v;
+    files.push_back(f);
+  };
+
+  const Phantom ph = build_phantom(r);
+  say(opt.progress, "phantom: " + std::to_string(ph.pores.size()) + " pores, porosity " +
+                        std::to_string(ph.porosity_pct()) + " % (analytic)");
+  auto t0 = std::chrono::steady_clock::now();
+  {
+    const Truth truth = rasterize_truth(ph, r.supersampling);
+    int64_t n_mat = 0, n_pore = 0;
+    for (int64_t i = 0; i < truth.labels.size(); ++i) {
+      n_mat += truth.labels[i] == 1;
+      n_pore += truth.labels[i] == 2;
+    }
+    write_volume(truth.labels, path("truth-labels.mha"), wo);
+    write_volume(truth.part, path("part-mask.mha"), wo);
+    say(opt.progress, "truth: " + std::to_string(n_pore) + " pore voxels, " + std::to_string(seconds_since(t0)) + " s");
+    record("truth-labels.mha", "truth-labels",
+           {{"labels", {{"0", "background"}, {"1", "material"}, {"2", "pore"}}},
+            {"material_voxels", n_mat},
+            {"pore_voxels", n_pore},
+            {"voxel_porosity_pct", 100.0 * double(n_pore) / double(std::max<int64_t>(1, n_mat + n_pore))}});
+    record("part-mask.mha", "part-mask", {{"part_voxels", n_mat + n_pore}});
+  }
+  write_text_atomic(path("pores.csv"), pores_csv(ph));
+  record("pores.csv", "pores", {{"pores", ph.pores.size()}});
+  write_text_atomic(path("recipe.toml"), to_toml(r));
+  record("recipe.toml", "recipe", nlohmann::ordered_json::object());
+
+  const auto specs = scan_list(r);
+  const bool dose_series = r.i0.size() > 1;
+  std::map<int, std::vector<size_t>> by_count;
+  for (size_t i = 0; i < specs.size(); ++i) by_count[specs[i].projections].push_back(i);
+  // Largest count first: the reference scan is usually the slowest and the most wanted.
+  for (auto it = by_count.rbegin(); it != by_count.rend(); ++it) {
+    const int n = it->first;
+    std::vector<double> doses;
+    for (size_t i : it->second) doses.push_back(specs[i].i0);
+    t0 = std::chrono::steady_clock::now();
+    auto vols = simulate_scans(ph, r, n, doses);
+    for (size_t j = 0; j < it->second.size(); ++j) {
+      const ScanSpec& sp = specs[it->second[j]];
+      const std::string name = sp.file_name(dose_series);
+      write_volume(stored_scan(vols[j], r), path(name), wo);
+      nlohmann::ordered_json extra{{"projections", sp.projections}, {"i0", sp.i0}, {"arc_deg", r.arc_deg},
+                                   {"voxel_type", r.output_type}};
+      if (r.output_type == "uint16") extra["uint16_full_scale_mu_per_mm"] = uint16_full_scale(r);
+      record(name, sp.reference ? "reference-scan" : "scan", extra);
+    }
+    say(opt.progress, "scan: " + std::to_string(n) + " projections x " + std::to_string(doses.size()) + " dose(s), " +
+                          std::to_string(seconds_since(t0)) + " s");
+  }
+
+  nlohmann::ordered_json m;
+  m["context"] = run_context();
+  m["recipe"] = r.name;
+  m["seed"] = r.seed;
+  m["geometry"] = {{"dims", r.dims},
+                   {"voxel_size_um", r.voxel_size_um},
+                   {"beam", "parallel, slice by slice (cone-beam not simulated)"},
+                   {"detector_bins", scan_geometry(r, 1).bins}};
+  m["material"] = {{"name", r.material}, {"mu_per_mm", r.material_mu()}};
+  m["part_volume_mm3"] = ph.part_volume_mm3;
+  m["analytic_porosity_pct"] = ph.porosity_pct();
+  m["files"] = files;
+  m["runtime_s"] = seconds_since(t_start);
+  write_text_atomic(path("manifest.json"), m.dump(2) + "\n");
+  return m;
+}
+
+}  // namespace pb::synth
