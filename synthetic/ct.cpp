@@ -13,6 +13,13 @@
 
 #include "core/error.hpp"
 
+// Hot loops get an AVX2 clone picked at run time (the binary stays portable x86-64).
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#define PB_SIMD_CLONES __attribute__((target_clones("avx2", "default")))
+#else
+#define PB_SIMD_CLONES
+#endif
+
 namespace pb::synth {
 
 namespace {
@@ -100,38 +107,61 @@ std::vector<float> rasterize_ellipses(const std::vector<Ellipse2D>& el, int nx, 
   return img;
 }
 
+namespace {
+
+// One line of Joseph's projector: row[k] += w * L(f0 + k df) for k in [k0, k1], L a line of the
+// image padded with one zero each side (index = f + 1), linear interpolation.
+PB_SIMD_CLONES
+void joseph_line(const float* __restrict line, float f0, float df, int k0, int k1, float w, float* __restrict row) {
+  for (int k = k0; k <= k1; ++k) {
+    const float f = f0 + float(k) * df + 1.0f;
+    const int ip = int(f);
+    const float fr = f - float(ip);
+    row[k] += w * (line[ip] + fr * (line[ip + 1] - line[ip]));
+  }
+}
+
+}  // namespace
+
 Sinogram project_image(const float* img, int nx, int ny, double s, const ParallelGeometry& g, bool parallel) {
   Sinogram out(g);
   const double tau = g.bin_mm;
+  // Zero-padded copies of the rows and of the columns, so that every line is contiguous.
+  const int px = nx + 2, py = ny + 2;
+  std::vector<float> rows(size_t(px) * size_t(ny), 0.f), cols(size_t(py) * size_t(nx), 0.f);
+  for (int j = 0; j < ny; ++j)
+    for (int i = 0; i < nx; ++i) {
+      const float v = img[size_t(j) * size_t(nx) + size_t(i)];
+      rows[size_t(j) * size_t(px) + size_t(i + 1)] = v;
+      cols[size_t(i) * size_t(py) + size_t(j + 1)] = v;
+    }
 #pragma omp parallel for schedule(static) if (parallel)
   for (int i = 0; i < g.angles; ++i) {
     const double th = g.angle_rad(i), ct = std::cos(th), st = std::sin(th);
     float* row = out.row(i);
     const bool along_y = std::abs(ct) >= std::abs(st);  // rays closer to the y axis: step over rows
-    // Ray k meets line j (a row, or a column) at pixel coordinate f = f0 + k * df - j * dj.
+    // Ray k meets line j (a row, or a column) at pixel coordinate f = f0 - shift_j + k df.
     const double c = along_y ? ct : st, o = along_y ? st : ct;
     const int n_lines = along_y ? ny : nx, n_along = along_y ? nx : ny;
+    const float* lines = along_y ? rows.data() : cols.data();
+    const size_t pitch = size_t(n_along + 2);
     const double centre_lines = (n_lines - 1) / 2.0, centre_along = (n_along - 1) / 2.0;
     const float w = float(s / std::abs(c));
     const double df = tau / (c * s), f0 = g.bin_t_mm(0) / (c * s) + centre_along;
     for (int j = 0; j < n_lines; ++j) {
-      const double shift = (j - centre_lines) * o / c;  // y_j sin / (cos s), in pixels
-      const float* line_ptr = img;
-      const ptrdiff_t stride = along_y ? 1 : nx;
-      line_ptr += along_y ? ptrdiff_t(j) * nx : j;
-      // Valid k: 0 <= f < n_along - 1, f = f0 - shift + k df.
-      const double a = f0 - shift;
-      double k_lo = (0 - a) / df, k_hi = (n_along - 1 - a) / df;
+      const double a = f0 - (j - centre_lines) * o / c;
+      // Valid k: -1 < f < n_along, i.e. the padded index stays inside the line.
+      double k_lo = (-1 - a) / df, k_hi = (n_along - a) / df;
       if (k_lo > k_hi) std::swap(k_lo, k_hi);
-      const int k0 = std::max(0, int(std::ceil(k_lo - 1))), k1 = std::min(g.bins - 1, int(std::floor(k_hi + 1)));
-      for (int k = k0; k <= k1; ++k) {
-        const double f = a + k * df;
-        const int ip = int(std::floor(f));
-        const float fr = float(f - ip);
-        const float v0 = (ip >= 0 && ip < n_along) ? line_ptr[ip * stride] : 0.f;
-        const float v1 = (ip + 1 >= 0 && ip + 1 < n_along) ? line_ptr[(ip + 1) * stride] : 0.f;
-        row[k] += w * (v0 + fr * (v1 - v0));
-      }
+      int k0 = std::max(0, int(std::floor(k_lo)) + 1), k1 = std::min(g.bins - 1, int(std::ceil(k_hi)) - 1);
+      // Guard the ends against rounding: the float position must stay in (-1, n_along).
+      auto inside = [&](int k) {
+        const float f = float(a) + float(k) * float(df);
+        return f > -1.0f && f < float(n_along) - 1e-3f;
+      };
+      while (k0 <= k1 && !inside(k0)) ++k0;
+      while (k1 >= k0 && !inside(k1)) --k1;
+      if (k0 <= k1) joseph_line(lines + size_t(j) * pitch, float(a), float(df), k0, k1, w, row);
     }
   }
   return out;
@@ -208,13 +238,34 @@ namespace {
 
 // One row of back-projection for one angle: out[i] += q(u0 + i du), linear interpolation. The
 // detector covers the slice diagonal, so 0 <= u < bins - 1 for every pixel.
-inline void bp_row(const float* __restrict q, const float* __restrict dq, float u0, float du, int nx,
-                   float* __restrict out) {
+PB_SIMD_CLONES
+void bp_row(const float* __restrict q, const float* __restrict dq, float u0, float du, int nx,
+            float* __restrict out) {
   for (int i = 0; i < nx; ++i) {
     const float u = u0 + float(i) * du;
     const int k = int(u);
     const float w = u - float(k);
     out[i] += q[k] + w * dq[k];
+  }
+}
+
+// Four angles at once (fewer passes over the accumulators); same per-pixel order of summation as
+// four calls of bp_row: ((((acc + a0) + a1) + a2) + a3).
+PB_SIMD_CLONES
+void bp_row4(const float* const* __restrict q, const float* const* __restrict dq, const float* u0, const float* du,
+             int nx, float* __restrict out) {
+  const float *q0 = q[0], *q1 = q[1], *q2 = q[2], *q3 = q[3];
+  const float *d0 = dq[0], *d1 = dq[1], *d2 = dq[2], *d3 = dq[3];
+  for (int i = 0; i < nx; ++i) {
+    const float fi = float(i);
+    const float ua = u0[0] + fi * du[0], ub = u0[1] + fi * du[1], uc = u0[2] + fi * du[2], ud = u0[3] + fi * du[3];
+    const int ka = int(ua), kb = int(ub), kc = int(uc), kd = int(ud);
+    float acc = out[i];
+    acc += q0[ka] + (ua - float(ka)) * d0[ka];
+    acc += q1[kb] + (ub - float(kb)) * d1[kb];
+    acc += q2[kc] + (uc - float(kc)) * d2[kc];
+    acc += q3[kd] + (ud - float(kd)) * d3[kd];
+    out[i] = acc;
   }
 }
 
@@ -242,15 +293,42 @@ void Fbp::backproject(const Sinogram& f, int nx, int ny, double s, float* out, b
   }
   const double cx = (nx - 1) / 2.0, cy = (ny - 1) / 2.0, cb = (nb - 1) / 2.0;
   const float scale = float(M_PI / na);  // Kak & Slaney eq. 3.60: f = pi/N sum_i Q_i (180 and 360 arcs)
+  // Blocks of rows, angles outside, rows inside: a block's accumulators stay in L1/L2 while each
+  // filtered projection is read once per block. Every pixel sums its angles in order, whatever
+  // the thread count.
+  constexpr int kBlock = 16;
+  const int n_blocks = (ny + kBlock - 1) / kBlock;
 #pragma omp parallel for schedule(static) if (parallel)
-  for (int j = 0; j < ny; ++j) {
-    std::vector<float> acc(size_t(nx), 0.f);
-    for (int i = 0; i < na; ++i) {
-      const float u0 = float(-cx * cu[size_t(i)] + (j - cy) * su[size_t(i)] + cb);
-      bp_row(f.row(i), dq.data() + size_t(i) * size_t(nb), u0, cu[size_t(i)], nx, acc.data());
+  for (int b = 0; b < n_blocks; ++b) {
+    const int j0 = b * kBlock, j1 = std::min(ny, j0 + kBlock);
+    std::vector<float> acc(size_t(kBlock) * size_t(nx), 0.f);
+    int i = 0;
+    for (; i + 4 <= na; i += 4) {
+      const float* qs[4] = {f.row(i), f.row(i + 1), f.row(i + 2), f.row(i + 3)};
+      const float* ds[4];
+      float dus[4], u0s[4];
+      for (int a = 0; a < 4; ++a) {
+        ds[a] = dq.data() + size_t(i + a) * size_t(nb);
+        dus[a] = cu[size_t(i + a)];
+      }
+      for (int j = j0; j < j1; ++j) {
+        for (int a = 0; a < 4; ++a) u0s[a] = float(-cx * cu[size_t(i + a)] + (j - cy) * su[size_t(i + a)] + cb);
+        bp_row4(qs, ds, u0s, dus, nx, acc.data() + size_t(j - j0) * size_t(nx));
+      }
     }
-    float* o = out + size_t(j) * size_t(nx);
-    for (int x = 0; x < nx; ++x) o[x] += scale * acc[size_t(x)];
+    for (; i < na; ++i) {
+      const float* q = f.row(i);
+      const float* d = dq.data() + size_t(i) * size_t(nb);
+      for (int j = j0; j < j1; ++j) {
+        const float u0 = float(-cx * cu[size_t(i)] + (j - cy) * su[size_t(i)] + cb);
+        bp_row(q, d, u0, cu[size_t(i)], nx, acc.data() + size_t(j - j0) * size_t(nx));
+      }
+    }
+    for (int j = j0; j < j1; ++j) {
+      float* o = out + size_t(j) * size_t(nx);
+      const float* a = acc.data() + size_t(j - j0) * size_t(nx);
+      for (int x = 0; x < nx; ++x) o[x] += scale * a[x];
+    }
   }
 }
 
