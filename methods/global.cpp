@@ -106,12 +106,18 @@ struct Prefix {
 // 4 Poisson standard deviations of the difference, 4*sqrt(peak + saddle); the highest peak always
 // counts. Persistence of peaks: Edelsbrunner H., Harer J. (2010) Computational Topology (from memory); the
 // 4-sigma noise rule is our choice.
-int significant_modes(const Histogram& h) {
+// With clipping, the end bins also hold the clipped tails: they take their neighbours' counts here
+// so that the clipped tails do not pose as modes.
+int significant_modes(const Histogram& h, bool clipped) {
   const int f = (h.bins() + 255) / 256;
-  Counts c;
+  Counts raw = counts_of(h), c;
+  if (clipped) {
+    raw.front() = raw[1];
+    raw.back() = raw[raw.size() - 2];
+  }
   for (int i = 0; i < h.bins(); i += f) {
     double s = 0;
-    for (int j = i; j < std::min(h.bins(), i + f); ++j) s += double(h.counts[size_t(j)]);
+    for (int j = i; j < std::min(h.bins(), i + f); ++j) s += raw[size_t(j)];
     c.push_back(s);
   }
   const int n = int(c.size());
@@ -548,7 +554,7 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
     };
     if (single_occupied_bin(h)) {
       no_air(name + ": the grey-value histogram has a single occupied bin (constant volume)");
-    } else if (needs_two_modes && h.bins() >= 3 && significant_modes(h) < 2) {
+    } else if (needs_two_modes && h.bins() >= 3 && significant_modes(h, p.num("clip_pct") > 0) < 2) {
       no_air(name + ": the grey-value histogram has a single significant mode (dense material only, or all air)");
     } else {
       try {

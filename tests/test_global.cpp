@@ -199,6 +199,10 @@ TEST_CASE("degenerate input gives a defined result and a warning", "[global][deg
       CHECK(count_nonzero(o.pores) == 0);
       CHECK(chosen(o, "threshold") == Approx(lowest));
       CHECK(o.part_voxels == v.size());
+      // With clipping the clipped tails collect in the end bins; they are not taken for modes.
+      const MethodOutput c = run_named(m, v, {"clip_pct=0.5"});
+      CHECK(has_warning(c, "single significant mode"));
+      CHECK(count_nonzero(c.pores) == 0);
     }
     // percentile is the user's split and is not guarded: 2 % of the voxels are air.
     const MethodOutput p = run_named("percentile", v, {"air_pct=2"});
