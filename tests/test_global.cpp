@@ -9,6 +9,7 @@
 #include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
 
+#include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "core/parallel.hpp"
 #include "methods/pores.hpp"
@@ -280,4 +281,12 @@ TEST_CASE("global thresholds do not depend on the thread count, nor crash on few
       CHECK(std::isfinite(chosen(o, "threshold")));
     }
   }
+}
+
+TEST_CASE("out-of-range global parameters are rejected before any work, naming the parameter", "[global]") {
+  const MethodInfo& p = Registry::instance().get("percentile");
+  CHECK_THROWS_WITH(parse_params(p, {"air_pct=150"}), Catch::Contains("air_pct") && Catch::Contains("150"));
+  const MethodInfo& k = Registry::instance().get("kapur");
+  CHECK_THROWS_WITH(parse_params(k, {"bins=1"}), Catch::Contains("bins") && Catch::Contains("[2, 65536]"));
+  CHECK_THROWS_WITH(parse_params(k, {"clip_pct=20"}), Catch::Contains("clip_pct"));
 }
