@@ -1,7 +1,7 @@
 // Local adaptive thresholds on a 256^3 float volume (issue 4: sauvola time at window 63 <= 1.2x
 // the time at window 15). Each benchmark computes the air mask (window statistics, thresholds,
 // compare), not the shared pore extraction. Run:
-//   porebench_bench --benchmark_filter=Local
+//   porebench_bench --benchmark_filter=Local   (argument: threads)
 // Window ratio and the scikit-image comparison: bench/peers/sauvola_vs_skimage.py.
 #include <benchmark/benchmark.h>
 
@@ -32,8 +32,9 @@ const pb::VolumeF& volume256() {
   return v;
 }
 
+// Argument: worker threads (1 gives CPU-bound timings that a loaded machine disturbs least).
 void run_local(benchmark::State& state, const char* method, int64_t window) {
-  pb::set_threads(0);
+  pb::set_threads(int(state.range(0)));
   const auto& v = volume256();
   const pb::MethodInput in{v};
   const std::vector<std::string> kv = {"window=" + std::to_string(window)};
@@ -49,13 +50,13 @@ void BM_LocalWolfW15(benchmark::State& s) { run_local(s, "wolf", 15); }
 void BM_LocalBernsenW15(benchmark::State& s) { run_local(s, "bernsen", 15); }
 void BM_LocalBernsenW63(benchmark::State& s) { run_local(s, "bernsen", 63); }
 void BM_LocalGaussianW15(benchmark::State& s) { run_local(s, "local-gaussian", 15); }
-BENCHMARK(BM_LocalSauvolaW15)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2);
-BENCHMARK(BM_LocalSauvolaW31)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2);
-BENCHMARK(BM_LocalSauvolaW63)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2);
-BENCHMARK(BM_LocalNiblackW15)->Unit(benchmark::kMillisecond)->UseRealTime();
-BENCHMARK(BM_LocalWolfW15)->Unit(benchmark::kMillisecond)->UseRealTime();
-BENCHMARK(BM_LocalBernsenW15)->Unit(benchmark::kMillisecond)->UseRealTime();
-BENCHMARK(BM_LocalBernsenW63)->Unit(benchmark::kMillisecond)->UseRealTime();
-BENCHMARK(BM_LocalGaussianW15)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_LocalSauvolaW15)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2);
+BENCHMARK(BM_LocalSauvolaW31)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2);
+BENCHMARK(BM_LocalSauvolaW63)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime()->MinTime(2);
+BENCHMARK(BM_LocalNiblackW15)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_LocalWolfW15)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_LocalBernsenW15)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_LocalBernsenW63)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_LocalGaussianW15)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 }  // namespace

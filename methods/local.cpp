@@ -42,7 +42,8 @@ int64_t checked_window(const std::string& method, const VolumeF& v, const ParamV
 
 ParamSpec window_param() {
   return {"window", ParamType::Int, "15", 3, 4095, {}, "voxels",
-          "edge of the cubic window (odd, at most the smallest volume dim)"};
+          "edge of the cubic window (odd, at most the smallest volume dim); at the borders the volume is mirrored "
+          "without repeating the edge voxel (numpy 'reflect', as scikit-image threshold_sauvola)"};
 }
 ParamSpec clip_param() {
   return {"clip_pct", ParamType::Float, "0", 0, 10, {}, "%",

@@ -185,16 +185,20 @@ TEST_CASE("niblack and sauvola agree with scikit-image 0.19 in 3D (same window, 
     int64_t window;
     double k, r;
   };
-  for (const Case& c : {Case{"niblack", 7, 0.2, 0}, Case{"niblack", 15, -0.3, 0}, Case{"sauvola", 7, 0.2, 0.4},
-                        Case{"sauvola", 15, 0.5, 0.25}, Case{"sauvola", 21, 0.34, 0.5}}) {
+  const std::vector<Case> cases = {Case{"niblack", 7, 0.2, 0}, Case{"niblack", 15, -0.3, 0},
+                                   Case{"sauvola", 7, 0.2, 0.4}, Case{"sauvola", 15, 0.5, 0.25},
+                                   Case{"sauvola", 21, 0.34, 0.5}};
+  std::string specs;
+  for (const Case& c : cases)
+    specs += " " + c.method + ":" + std::to_string(c.window) + ":" + std::to_string(c.k) +
+             (c.method == "sauvola" ? ":" + std::to_string(c.r) : "");
+  const auto r = pbtest::run_ref_script("skimage_local.py", d / "v.raw" + " 48 41 37 " + (d / "ref") + specs);
+  INFO(r.err);
+  REQUIRE(r.exit_code == 0);
+  for (size_t i = 0; i < cases.size(); ++i) {
+    const Case& c = cases[i];
     INFO(c.method << " window " << c.window << " k " << c.k << " r " << c.r);
-    const std::string out = d / "ref.raw";
-    const auto r = pbtest::run_ref_script("skimage_local.py", d / "v.raw" + " 48 41 37 " + out + " " + c.method + " " +
-                                                                  std::to_string(c.window) + " " + std::to_string(c.k) +
-                                                                  " " + std::to_string(c.r));
-    INFO(r.err);
-    REQUIRE(r.exit_code == 0);
-    const Mask ref = read_raw_u8(g, out);
+    const Mask ref = read_raw_u8(g, d / ("ref" + std::to_string(i) + ".raw"));
     std::vector<std::string> kv = {"window=" + std::to_string(c.window), "k=" + std::to_string(c.k)};
     if (c.method == "sauvola") kv.push_back("r=" + std::to_string(c.r));
     const LocalAir a = local_air(c.method, MethodInput{v}, kv);
@@ -215,11 +219,10 @@ TEST_CASE("local-mean agrees with scikit-image threshold_local (mean) away from 
   const Geometry g = dims(40, 36, 33);
   const VolumeF v = porous_drift(g, 11);
   write_raw_f32(v, d / "v.raw");
-  const auto r = pbtest::run_ref_script("skimage_local.py", d / "v.raw" + " 40 36 33 " + (d / "ref.raw") +
-                                                                " local-mean 9 0.05");
+  const auto r = pbtest::run_ref_script("skimage_local.py", d / "v.raw" + " 40 36 33 " + (d / "ref") + " local-mean:9:0.05");
   INFO(r.err);
   REQUIRE(r.exit_code == 0);
-  const Mask ref = read_raw_u8(g, d / "ref.raw");
+  const Mask ref = read_raw_u8(g, d / "ref0.raw");
   const LocalAir a = local_air("local-mean", MethodInput{v}, {"window=9", "offset=0.05"});
   CHECK(count_nonzero(a.air) > v.size() / 100);
   CHECK(agreement_inside(a.air, ref, 4) >= 0.999);
@@ -401,4 +404,59 @@ TEST_CASE("a local method through the registry extracts pores inside the part on
   CHECK(inside == count_nonzero(out.pores));
   CHECK(inside > 200);  // a sphere of radius 4 holds about 4/3 pi 4^3 = 268 voxels
   CHECK(out.part_voxels == v.size());
+}
+
+TEST_CASE("voxels outside the ROI are never air; windows still see them", "[local]") {
+  // Convention (methods/local.cpp): the ROI limits which voxels may be air, not what a window sees,
+  // so inside the ROI the mask equals the mask without ROI.
+  const VolumeF v = porous_drift(dims(30, 26, 22), 13);
+  Mask roi(v.geometry());
+  for (int64_t z = 0; z < v.nz(); ++z)
+    for (int64_t y = 0; y < v.ny(); ++y)
+      for (int64_t x = 0; x < v.nx(); ++x) roi(x, y, z) = x >= 8 && y < 20;
+  for (std::string m : {"niblack", "sauvola", "wolf", "bernsen", "local-gaussian"}) {
+    INFO(m);
+    const LocalAir all = local_air(m, MethodInput{v}, {"window=7"});
+    const LocalAir part = local_air(m, MethodInput{v, &roi}, {"window=7"});
+    int64_t outside = 0, differ = 0, inside_air = 0;
+    for (int64_t i = 0; i < v.size(); ++i) {
+      if (!roi[i]) outside += part.air[i] != 0;
+      else {
+        differ += (part.air[i] != 0) != (all.air[i] != 0);
+        inside_air += part.air[i] != 0;
+      }
+    }
+    CHECK(outside == 0);
+    CHECK(inside_air > 0);
+    // Methods that derive a value from the ROI grey range (sauvola R, wolf R and M, bernsen split)
+    // may differ inside; niblack and local-gaussian do not use the ROI range.
+    if (m == "niblack" || m == "local-gaussian") CHECK(differ == 0);
+  }
+}
+
+TEST_CASE("a NaN voxel is never air and changes nothing beyond its window", "[local]") {
+  // NaN is read as the volume mean in window statistics (sauvola) or skipped (bernsen): only
+  // voxels whose window holds the NaN voxel may change, and a warning says so.
+  VolumeF v = porous_drift(dims(28, 24, 20), 17);
+  const LocalAir before_s = local_air("sauvola", MethodInput{v}, {"window=5", "r=0.35"});
+  const LocalAir before_b = local_air("bernsen", MethodInput{v}, {"window=5", "contrast=0.3"});
+  const int64_t cx = 12, cy = 10, cz = 9;
+  v(cx, cy, cz) = NAN;
+  const LocalAir after_s = local_air("sauvola", MethodInput{v}, {"window=5", "r=0.35"});
+  const LocalAir after_b = local_air("bernsen", MethodInput{v}, {"window=5", "contrast=0.3"});
+  REQUIRE_FALSE(after_s.warnings.empty());
+  CHECK_THAT(after_s.warnings[0], Catch::Contains("NaN"));
+  CHECK(after_s.air(cx, cy, cz) == 0);
+  CHECK(after_b.air(cx, cy, cz) == 0);
+  int64_t far_changed = 0;
+  for (int64_t z = 0; z < v.nz(); ++z)
+    for (int64_t y = 0; y < v.ny(); ++y)
+      for (int64_t x = 0; x < v.nx(); ++x) {
+        const bool near = std::abs(x - cx) <= 2 && std::abs(y - cy) <= 2 && std::abs(z - cz) <= 2;
+        if (near) continue;
+        far_changed += after_s.air(x, y, z) != before_s.air(x, y, z);
+        far_changed += after_b.air(x, y, z) != before_b.air(x, y, z);
+      }
+  CHECK(far_changed == 0);
+  CHECK_THROWS_WITH(local_air("local-gaussian", MethodInput{v}, {"window=5"}), Catch::Contains("NaN"));
 }

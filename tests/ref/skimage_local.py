@@ -1,13 +1,13 @@
 #!/usr/bin/python3
 """Reference local thresholds from scikit-image 0.19 (Debian python3-skimage), in 3D.
 
-Usage: skimage_local.py RAW_FLOAT32 NX NY NZ OUT_RAW_U8 METHOD WINDOW K_OR_OFFSET [R]
-Reads a little-endian float32 raw volume (x fastest), computes the local threshold T with
-  niblack:    skimage.filters.threshold_niblack(vol, window_size=WINDOW, k=K)
-  sauvola:    skimage.filters.threshold_sauvola(vol, window_size=WINDOW, k=K, r=R)
-  local-mean: skimage.filters.threshold_local(vol, block_size=WINDOW, method='mean', offset=OFFSET)
-writes the air mask (vol < T, pores are dark) as uint8 raw (x fastest) to OUT_RAW_U8 and prints
-JSON {"air_voxels": n, "t_min": .., "t_max": ..}.
+Usage: skimage_local.py RAW_FLOAT32 NX NY NZ OUT_PREFIX SPEC [SPEC ...]
+Reads a little-endian float32 raw volume (x fastest). For the i-th SPEC (0-based), one of
+  niblack:WINDOW:K       skimage.filters.threshold_niblack(vol, window_size=WINDOW, k=K)
+  sauvola:WINDOW:K:R     skimage.filters.threshold_sauvola(vol, window_size=WINDOW, k=K, r=R)
+  local-mean:WINDOW:OFF  skimage.filters.threshold_local(vol, block_size=WINDOW, method='mean', offset=OFF)
+computes the local threshold T, writes the air mask (vol < T, pores are dark) as uint8 raw
+(x fastest) to OUT_PREFIX<i>.raw, and prints one JSON list of {"air_voxels": n} per SPEC.
 """
 import json
 import sys
@@ -16,21 +16,28 @@ import numpy as np
 from skimage import filters
 
 
+def threshold(vol, spec):
+    parts = spec.split(":")
+    method, window, k = parts[0], int(parts[1]), float(parts[2])
+    if method == "niblack":
+        return filters.threshold_niblack(vol, window_size=window, k=k)
+    if method == "sauvola":
+        return filters.threshold_sauvola(vol, window_size=window, k=k, r=float(parts[3]))
+    if method == "local-mean":
+        return filters.threshold_local(vol, block_size=window, method="mean", offset=k)
+    raise SystemExit(f"unknown method {method}")
+
+
 def main():
     path, nx, ny, nz = sys.argv[1], *map(int, sys.argv[2:5])
-    out_path, method, window, k = sys.argv[5], sys.argv[6], int(sys.argv[7]), float(sys.argv[8])
+    prefix = sys.argv[5]
     vol = np.fromfile(path, dtype="<f4").reshape(nz, ny, nx)
-    if method == "niblack":
-        t = filters.threshold_niblack(vol, window_size=window, k=k)
-    elif method == "sauvola":
-        t = filters.threshold_sauvola(vol, window_size=window, k=k, r=float(sys.argv[9]))
-    elif method == "local-mean":
-        t = filters.threshold_local(vol, block_size=window, method="mean", offset=k)
-    else:
-        raise SystemExit(f"unknown method {method}")
-    air = (vol < t).astype(np.uint8)
-    air.tofile(out_path)
-    print(json.dumps({"air_voxels": int(air.sum()), "t_min": float(t.min()), "t_max": float(t.max())}))
+    out = []
+    for i, spec in enumerate(sys.argv[6:]):
+        air = (vol < threshold(vol, spec)).astype(np.uint8)
+        air.tofile(f"{prefix}{i}.raw")
+        out.append({"air_voxels": int(air.sum())})
+    print(json.dumps(out))
 
 
 if __name__ == "__main__":
