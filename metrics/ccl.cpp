@@ -64,6 +64,23 @@ inline int64_t count_runs(const uint8_t* a, int64_t nx) {
   return c;
 }
 
+inline int64_t count_runs_roi(const uint8_t* a, const uint8_t* r, int64_t nx) {
+  int64_t c = (a[0] != 0) & (r[0] != 0);
+  for (int64_t x = 1; x < nx; ++x) c += ((a[x] != 0) & (r[x] != 0)) & ((a[x - 1] == 0) | (r[x - 1] == 0));
+  return c;
+}
+
+inline void fill_runs_roi(const uint8_t* a, const uint8_t* r, int32_t nx, Run* out) {
+  int32_t x = 0;
+  while (x < nx) {
+    while (x < nx && !(a[x] && r[x])) ++x;
+    if (x >= nx) break;
+    const int32_t s = x;
+    while (x < nx && a[x] && r[x]) ++x;
+    *out++ = Run{s, x};
+  }
+}
+
 inline void fill_runs(const uint8_t* a, int32_t nx, Run* out) {
   int32_t x = 0;
   while (x < nx) {
@@ -89,9 +106,15 @@ void check_connectivity(int connectivity, const char* field) {
     throw InputError(std::string(field) + " must be 6, 18 or 26, got " + std::to_string(connectivity));
 }
 
-Components label_components(const Mask& m, int connectivity) {
+Components label_components(const Mask& m, int connectivity) { return label_components(m, nullptr, connectivity); }
+
+Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   check_connectivity(connectivity);
   const Geometry& g = m.geometry();
+  if (roi && !roi->geometry().same_dims(g))
+    throw InputError("label_components: ROI dims differ from the mask dims (" + describe(roi->geometry()) + " vs " +
+                     describe(g) + ")");
+  const uint8_t* rmask = roi ? roi->data() : nullptr;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   if (nx > INT32_MAX - 2) throw InputError("label_components: dims along x " + std::to_string(nx) + " too large");
   Components c;
@@ -104,7 +127,8 @@ Components label_components(const Mask& m, int connectivity) {
   // Scan 1a: runs per row, then their offsets.
   std::vector<int64_t> row_begin(size_t(nrows) + 1, 0);
 #pragma omp parallel for schedule(static)
-  for (int64_t r = 0; r < nrows; ++r) row_begin[size_t(r) + 1] = count_runs(mask + r * nx, nx);
+  for (int64_t r = 0; r < nrows; ++r)
+    row_begin[size_t(r) + 1] = rmask ? count_runs_roi(mask + r * nx, rmask + r * nx, nx) : count_runs(mask + r * nx, nx);
   for (int64_t r = 0; r < nrows; ++r) row_begin[size_t(r) + 1] += row_begin[size_t(r)];
   const int64_t nruns = row_begin[size_t(nrows)];
   if (nruns >= int64_t(UINT32_MAX))
@@ -113,7 +137,10 @@ Components label_components(const Mask& m, int connectivity) {
   std::vector<uint32_t> parent(static_cast<size_t>(nruns));
 #pragma omp parallel for schedule(static)
   for (int64_t r = 0; r < nrows; ++r) {
-    fill_runs(mask + r * nx, int32_t(nx), runs.data() + row_begin[size_t(r)]);
+    if (rmask)
+      fill_runs_roi(mask + r * nx, rmask + r * nx, int32_t(nx), runs.data() + row_begin[size_t(r)]);
+    else
+      fill_runs(mask + r * nx, int32_t(nx), runs.data() + row_begin[size_t(r)]);
     for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i) parent[size_t(i)] = uint32_t(i);
   }
 

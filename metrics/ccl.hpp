@@ -20,6 +20,8 @@ struct Components {
 // connectivity: 6 (faces), 18 (faces + edges) or 26 (faces + edges + corners); anything else
 // throws InputError naming the value.
 Components label_components(const Mask& m, int connectivity = 26);
+// Labels the voxels that are non-zero in both m and roi (roi may be nullptr: whole volume).
+Components label_components(const Mask& m, const Mask* roi, int connectivity);
 
 // Voxels per label, indexed by label (index 0 = 0). Same as Components::sizes.
 std::vector<int64_t> component_sizes(const Components& c);

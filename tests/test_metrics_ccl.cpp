@@ -10,18 +10,13 @@
 #include "core/error.hpp"
 #include "metrics/ccl.hpp"
 #include "tests/helpers.hpp"
+#include "tests/metrics_helpers.hpp"
 
 using namespace pb;
+using pbtest::ball;
+using pbtest::random_mask;
 
 namespace {
-
-Mask random_mask(const Geometry& g, double p, unsigned seed) {
-  Mask m(g);
-  std::mt19937_64 rng(seed);
-  std::bernoulli_distribution b(p);
-  for (int64_t i = 0; i < m.size(); ++i) m[i] = b(rng) ? 1 : 0;
-  return m;
-}
 
 // True when a and b are the same partition of the foreground: label maps are bijective.
 bool same_partition(const uint32_t* a, const uint32_t* b, int64_t n) {

@@ -1,0 +1,255 @@
+// Hit/miss probability of detection (MIL-HDBK-1823A 2009, ch. 4; ASTM E2862-18): maximum
+// likelihood fit of POD(a) = F(b0 + b1 ln a) by Newton's method with step halving (for the logit
+// link Newton is IRLS), covariance = inverse observed information, a90/95 from the profile
+// likelihood of ln a90 (Venzon & Moolgavkar 1988, Appl. Stat. 37:87, solved here by bracketing and
+// bisection), Wald bound by the delta method, Clopper & Pearson (1934) binned intervals.
+#include "metrics/pod.hpp"
+
+#include <Eigen/Dense>
+#include <algorithm>
+#include <boost/math/distributions/chi_squared.hpp>
+#include <boost/math/distributions/normal.hpp>
+#include <boost/math/special_functions/beta.hpp>
+#include <cmath>
+
+#include "core/error.hpp"
+
+namespace pb {
+
+const char* pod_link_name(PodLink l) { return l == PodLink::logit ? "logit" : "probit"; }
+
+PodLink parse_pod_link(const std::string& s) {
+  if (s == "logit") return PodLink::logit;
+  if (s == "probit") return PodLink::probit;
+  throw InputError("pod link: '" + s + "' is not supported; use logit or probit");
+}
+
+namespace {
+
+// Per observation: log-likelihood, first and second derivative with respect to eta.
+struct Terms {
+  double ll, d1, d2;
+};
+
+inline Terms obs_terms(PodLink link, int y, double eta) {
+  if (link == PodLink::logit) {
+    // ll = y eta - log(1 + e^eta), computed stably.
+    const double log1pexp = eta > 0 ? eta + std::log1p(std::exp(-eta)) : std::log1p(std::exp(eta));
+    const double p = 1 / (1 + std::exp(-eta));
+    return {y * eta - log1pexp, y - p, -p * (1 - p)};
+  }
+  // probit: ll = log Phi(q eta), q = 2y - 1; lambda = q phi(q eta) / Phi(q eta).
+  const double q = y ? 1.0 : -1.0, u = q * eta;
+  double logPhi, g;  // g = phi(u) / Phi(u)
+  if (u > -30) {
+    const double Phi = 0.5 * std::erfc(-u / std::sqrt(2.0));
+    logPhi = std::log(Phi);
+    g = std::exp(-0.5 * u * u) / std::sqrt(2 * M_PI) / Phi;
+  } else {  // Mills-ratio asymptotics (Abramowitz & Stegun 26.2.12)
+    logPhi = -0.5 * u * u - std::log(-u) - 0.5 * std::log(2 * M_PI);
+    g = -u - 1 / u;
+  }
+  const double lambda = q * g;
+  return {logPhi, lambda, -lambda * (lambda + eta)};
+}
+
+struct Eval {
+  double ll = 0;
+  Eigen::Vector2d grad = Eigen::Vector2d::Zero();
+  Eigen::Matrix2d hess = Eigen::Matrix2d::Zero();
+};
+
+Eval evaluate(PodLink link, const std::vector<double>& x, const std::vector<int>& y, double b0, double b1) {
+  Eval e;
+  for (size_t i = 0; i < x.size(); ++i) {
+    const Terms t = obs_terms(link, y[i], b0 + b1 * x[i]);
+    e.ll += t.ll;
+    e.grad += t.d1 * Eigen::Vector2d(1, x[i]);
+    e.hess(0, 0) += t.d2;
+    e.hess(0, 1) += t.d2 * x[i];
+    e.hess(1, 1) += t.d2 * x[i] * x[i];
+  }
+  e.hess(1, 0) = e.hess(0, 1);
+  return e;
+}
+
+// Profile: for fixed theta = ln a90, eta = g90 + b1 (x - theta); maximise over b1 by 1D Newton.
+double profile_ll(PodLink link, const std::vector<double>& x, const std::vector<int>& y, double g90, double theta,
+                  double& b1) {
+  auto ll_at = [&](double b, double* d1, double* d2) {
+    double ll = 0, a = 0, c = 0;
+    for (size_t i = 0; i < x.size(); ++i) {
+      const double z = x[i] - theta;
+      const Terms t = obs_terms(link, y[i], g90 + b * z);
+      ll += t.ll, a += t.d1 * z, c += t.d2 * z * z;
+    }
+    if (d1) *d1 = a;
+    if (d2) *d2 = c;
+    return ll;
+  };
+  double d1, d2, ll = ll_at(b1, &d1, &d2);
+  for (int it = 0; it < 100; ++it) {
+    if (!(d2 < 0)) break;
+    double step = -d1 / d2;
+    double nb = b1 + step, nll = ll_at(nb, nullptr, nullptr);
+    for (int h = 0; h < 40 && !(nll >= ll - 1e-12); ++h) step *= 0.5, nb = b1 + step, nll = ll_at(nb, nullptr, nullptr);
+    const bool done = std::fabs(step) < 1e-10 * (1 + std::fabs(b1));
+    b1 = nb;
+    ll = ll_at(b1, &d1, &d2);
+    if (done) break;
+  }
+  return ll;
+}
+
+double link_quantile(PodLink link, double p) {
+  if (link == PodLink::logit) return std::log(p / (1 - p));
+  return boost::math::quantile(boost::math::normal(), p);
+}
+
+}  // namespace
+
+double pod_size_at(const PodFit& f, double p) {
+  if (!f.estimable || !(f.b1 > 0)) return kMetricNaN;
+  return std::exp((link_quantile(f.link, p) - f.b0) / f.b1);
+}
+
+PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit, PodLink link) {
+  if (sizes_um.size() != hit.size())
+    throw InputError("pod: " + std::to_string(sizes_um.size()) + " sizes but " + std::to_string(hit.size()) +
+                     " hit/miss values");
+  PodFit f;
+  f.link = link;
+  f.n_targets = int64_t(sizes_um.size());
+  std::vector<double> x;
+  std::vector<int> y;
+  for (size_t i = 0; i < sizes_um.size(); ++i) {
+    if (!(sizes_um[i] > 0) || !std::isfinite(sizes_um[i]))
+      throw InputError("pod: target " + std::to_string(i) + " has size " + std::to_string(sizes_um[i]) +
+                       " um; sizes must be positive");
+    x.push_back(std::log(sizes_um[i]));
+    y.push_back(hit[i] ? 1 : 0);
+    f.n_hits += y.back();
+  }
+  if (f.n_targets < 60)
+    f.warnings.push_back(std::to_string(f.n_targets) +
+                         " targets: MIL-HDBK-1823A recommends at least 60 for a hit/miss POD");
+  if (f.n_targets == 0) return f.reason = "no targets", f;
+  if (f.n_hits == 0) return f.reason = "all targets missed", f;
+  if (f.n_hits == f.n_targets) return f.reason = "all targets hit", f;
+  double min_hit = INFINITY, max_hit = -INFINITY, min_miss = INFINITY, max_miss = -INFINITY;
+  for (size_t i = 0; i < x.size(); ++i) {
+    if (y[i])
+      min_hit = std::min(min_hit, x[i]), max_hit = std::max(max_hit, x[i]);
+    else
+      min_miss = std::min(min_miss, x[i]), max_miss = std::max(max_miss, x[i]);
+  }
+  if (std::min(min_hit, min_miss) == std::max(max_hit, max_miss))
+    return f.reason = "all targets have the same size: no size dependence can be fitted", f;
+  if (max_miss <= min_hit || max_hit <= min_miss)
+    return f.reason = "hits and misses are separated by size (complete or quasi-complete separation): "
+                      "no maximum-likelihood estimate exists",
+           f;
+
+  // Newton with step halving from b = (logit of the hit rate, 0).
+  const double rate = double(f.n_hits) / double(f.n_targets);
+  Eigen::Vector2d b(link_quantile(link, rate), 0);
+  Eval e = evaluate(link, x, y, b[0], b[1]);
+  for (f.iterations = 1; f.iterations <= 100; ++f.iterations) {
+    const Eigen::Matrix2d negH = -e.hess;
+    Eigen::Vector2d step = negH.ldlt().solve(e.grad);
+    if (!step.allFinite()) break;
+    Eigen::Vector2d nb = b + step;
+    Eval ne = evaluate(link, x, y, nb[0], nb[1]);
+    for (int h = 0; h < 40 && !(ne.ll >= e.ll - 1e-12); ++h) step *= 0.5, nb = b + step, ne = evaluate(link, x, y, nb[0], nb[1]);
+    b = nb;
+    e = ne;
+    if (step.cwiseAbs().maxCoeff() < 1e-10 * (1 + b.cwiseAbs().maxCoeff())) {
+      f.converged = true;
+      break;
+    }
+  }
+  if (!f.converged) return f.reason = "Newton iterations did not converge in 100 steps", f;
+  const Eigen::Matrix2d cov = (-e.hess).inverse();
+  if (!cov.allFinite() || cov(0, 0) <= 0 || cov(1, 1) <= 0)
+    return f.converged = false, f.reason = "information matrix is singular", f;
+  f.estimable = true;
+  f.b0 = b[0], f.b1 = b[1];
+  f.cov00 = cov(0, 0), f.cov01 = cov(0, 1), f.cov11 = cov(1, 1);
+  f.deviance = -2 * e.ll;
+  if (!(f.b1 > 0)) {
+    f.a90_95_reason = "POD does not increase with size (b1 <= 0): a50, a90 and a90/95 are undefined";
+    f.warnings.push_back(f.a90_95_reason);
+    return f;
+  }
+  const double g90 = link_quantile(link, 0.9);
+  f.a50_um = pod_size_at(f, 0.5);
+  f.a90_um = pod_size_at(f, 0.9);
+  const double theta = (g90 - f.b0) / f.b1;
+  // Wald: delta method on theta = ln a90, one-sided 95 %.
+  const Eigen::Vector2d grad(-1 / f.b1, -theta / f.b1);
+  const double var = grad.dot(cov * grad);
+  f.a90_95_wald_um = std::exp(theta + boost::math::quantile(boost::math::normal(), 0.95) * std::sqrt(var));
+  // Profile likelihood: largest theta > theta_hat with deviance rise = chi2_1(0.90).
+  const double crit = boost::math::quantile(boost::math::chi_squared(1.0), 0.90);  // 2.7055
+  const double llmax = e.ll;
+  double b1 = f.b1;
+  auto rise = [&](double t) { return 2 * (llmax - profile_ll(link, x, y, g90, t, b1)); };
+  const double xmax = *std::max_element(x.begin(), x.end()), xmin = *std::min_element(x.begin(), x.end());
+  const double span = std::max(xmax - xmin, 1e-3);
+  double lo = theta, hi = theta, step = 0.02 * span;
+  const double limit = theta + 20 * span;  // beyond this the bound is reported as unbounded
+  bool bracketed = false;
+  while (hi < limit) {
+    lo = hi;
+    hi = std::min(hi + step, limit);
+    if (rise(hi) > crit) {
+      bracketed = true;
+      break;
+    }
+    step *= 1.5;
+  }
+  if (!bracketed) {
+    f.a90_95_reason = "the profile likelihood does not reach the chi-square bound: a90/95 is unbounded";
+    f.warnings.push_back(f.a90_95_reason);
+    return f;
+  }
+  b1 = f.b1;
+  for (int it = 0; it < 60 && hi - lo > 1e-10 * (1 + std::fabs(hi)); ++it) {
+    const double mid = 0.5 * (lo + hi);
+    (rise(mid) > crit ? hi : lo) = mid;
+  }
+  f.a90_95_um = std::exp(0.5 * (lo + hi));
+  return f;
+}
+
+std::pair<double, double> clopper_pearson(int64_t k, int64_t n, double conf) {
+  if (n <= 0) return {kMetricNaN, kMetricNaN};
+  const double a = 1 - conf;
+  const double lo = k == 0 ? 0.0 : boost::math::ibeta_inv(double(k), double(n - k + 1), a / 2);
+  const double hi = k == n ? 1.0 : boost::math::ibeta_inv(double(k + 1), double(n - k), 1 - a / 2);
+  return {lo, hi};
+}
+
+std::vector<PodBin> binned_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
+                               const std::vector<double>& edges_um, double conf) {
+  std::vector<PodBin> bins;
+  for (size_t k = 0; k + 1 < edges_um.size(); ++k) {
+    PodBin b;
+    b.lo_um = edges_um[k], b.hi_um = edges_um[k + 1];
+    const bool last = k + 2 == edges_um.size();
+    for (size_t i = 0; i < sizes_um.size(); ++i) {
+      const double s = sizes_um[i];
+      if (s >= b.lo_um && (s < b.hi_um || (last && s <= b.hi_um * (1 + 1e-12)))) ++b.n, b.hits += hit[i] != 0;
+    }
+    if (b.n > 0) {
+      b.pod = double(b.hits) / double(b.n);
+      std::tie(b.ci_lo, b.ci_hi) = clopper_pearson(b.hits, b.n, conf);
+    } else {
+      b.pod = b.ci_lo = b.ci_hi = kMetricNaN;
+    }
+    bins.push_back(b);
+  }
+  return bins;
+}
+
+}  // namespace pb

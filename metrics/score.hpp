@@ -1,0 +1,108 @@
+#pragma once
+// Scoring a predicted pore mask against a reference inside a region of interest: voxel overlap
+// (Jaccard 1901, Dice 1945, volume similarity after Taha & Hanbury 2015, BMC Med. Imaging 15:29),
+// porosity bias, 3D pores (connected components, default 26-connectivity) with size, centroid,
+// surface and sphericity (Wadell 1935), pore matching, probability of detection (metrics/pod.hpp),
+// ESD distributions (metrics/distribution.hpp) and surface distances (metrics/surface.hpp).
+// One pass builds the matching; every figure derives from it. Definitions and the empty cases
+// (empty ref / empty pred / both) are written down in metrics/README.md.
+#include <array>
+#include <cstdint>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "core/volume.hpp"
+#include "metrics/distribution.hpp"
+#include "metrics/pod.hpp"
+#include "metrics/surface.hpp"
+
+namespace pb {
+
+struct MatchRule {
+  enum Kind { coverage, any, iou } kind = coverage;
+  double threshold = 0.5;  // coverage fraction or IoU; unused for `any`
+  std::string text() const;  // "coverage:0.5", "any", "iou:0.5"
+};
+MatchRule parse_match_rule(const std::string& s);  // InputError naming the value and the forms
+
+struct ScoreOptions {
+  int connectivity = 26;
+  MatchRule match;
+  int64_t z_begin = 0, z_end = -1;  // score slices [z_begin, z_end) only; -1 = to the last slice
+  int bootstrap_samples = 2000;     // per-slice Jaccard CI
+  uint64_t seed = 20261201;         // bootstrap seed
+  PodLink pod_link = PodLink::logit;
+  int bins_per_decade = 10;         // ESD histograms and binned POD (log-spaced, in um)
+  bool surface_distances = true;
+  void validate() const;            // InputError naming the field and value
+};
+
+struct Overlap {
+  int64_t tp = 0, fp = 0, fn = 0, tn = 0;
+  double jaccard = kMetricNaN, dice = kMetricNaN, precision = kMetricNaN, recall = kMetricNaN,
+         volume_similarity = kMetricNaN;
+};
+Overlap overlap_from_counts(int64_t tp, int64_t fp, int64_t fn, int64_t tn);
+
+struct Pore {
+  uint32_t label = 0;
+  int64_t voxels = 0;
+  double volume_mm3 = 0, esd_um = 0;
+  std::array<double, 3> centroid_mm{0, 0, 0};
+  std::array<int64_t, 6> bbox{0, 0, 0, 0, 0, 0};  // x0 y0 z0 x1 y1 z1, inclusive, voxel indices of the input
+  double surface_mm2 = 0, sphericity = 0;
+  bool touches_border = false;  // a voxel 6-adjacent to the outside of the ROI, z-range or volume
+  // Matching against the other side.
+  int64_t overlap_voxels = 0;  // own voxels covered by pores of the other side
+  int partners = 0;            // pores of the other side that overlap this one
+  uint32_t best_partner = 0;   // label of the partner with the largest IoU (0 = none)
+  double best_iou = 0;
+  bool matched = false;        // ref: hit under the rule; pred: matched (iou) or overlaps a ref pore
+};
+
+struct PairOverlap {
+  uint32_t ref, pred;
+  int64_t voxels;
+};
+
+struct ScoreResult {
+  ScoreOptions options;
+  Geometry geometry;     // of the scored sub-volume (z-range applied)
+  int64_t roi_voxels = 0;
+  double roi_volume_mm3 = 0;
+  Overlap overlap;
+  // Per slice z (input index z_begin + k): tp, fp, fn and Jaccard (NaN where tp + fp + fn = 0).
+  std::vector<int64_t> slice_tp, slice_fp, slice_fn;
+  std::vector<double> slice_jaccard;
+  double slice_jaccard_mean = kMetricNaN, slice_jaccard_ci_lo = kMetricNaN, slice_jaccard_ci_hi = kMetricNaN;
+  int64_t slices_defined = 0;
+  double porosity_ref_pct = kMetricNaN, porosity_pred_pct = kMetricNaN, porosity_bias_pp = kMetricNaN,
+         porosity_rel_bias = kMetricNaN;
+  std::vector<Pore> pores_ref, pores_pred;  // index k = label k + 1
+  std::vector<PairOverlap> pairs;           // sorted by (ref, pred)
+  int64_t hits = 0, misses = 0, false_calls = 0, split = 0, merged = 0;
+  double false_calls_per_cm3 = kMetricNaN;
+  PodFit pod;
+  std::vector<PodBin> pod_bins;
+  SizeComparison sizes;
+  SurfaceDistances surface;
+  std::vector<std::string> warnings;
+};
+
+// Masks: non-zero = pore. roi: non-zero = inside (nullptr = whole volume). Geometries must match
+// (InputError otherwise).
+ScoreResult score(const Mask& pred, const Mask& ref, const Mask* roi, const ScoreOptions& opt = {});
+
+// Mean of the defined values and its percentile bootstrap 95 % CI (Efron & Tibshirani 1993, ch. 13).
+// NaN entries are skipped; all NaN when fewer than 2 values are defined.
+std::array<double, 3> bootstrap_mean_ci(const std::vector<double>& v, int samples, uint64_t seed);
+
+// Result record (without the context block) and one tidy CSV row per pore (both sides).
+nlohmann::ordered_json to_json(const ScoreResult& r);
+std::string pores_csv(const ScoreResult& r);
+
+// JSON number, or null for NaN/Inf.
+nlohmann::ordered_json json_number(double v);
+
+}  // namespace pb

@@ -1,0 +1,106 @@
+// Size distributions and surface distances: KS and Wasserstein-1 against scipy.stats, hd95/assd
+// against scipy.ndimage distance transforms, hand-computed cases, and the shared log bins.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
+
+#include "metrics/ccl.hpp"
+#include "metrics/distribution.hpp"
+#include "metrics/surface.hpp"
+#include "tests/helpers.hpp"
+
+using namespace pb;
+
+TEST_CASE("KS and Wasserstein-1 by hand", "[metrics][sizes]") {
+  // a = {1, 2, 3}, b = {2, 4}: F_a - F_b on [1,2): 1/3, [2,3): 2/3 - 1/2 = 1/6, [3,4): 1 - 1/2 = 1/2.
+  // KS = 1/2; W1 = 1/3 * 1 + 1/6 * 1 + 1/2 * 1 = 1.
+  CHECK(ks_distance({1, 2, 3}, {2, 4}) == Approx(0.5));
+  CHECK(wasserstein1({1, 2, 3}, {2, 4}) == Approx(1.0));
+  CHECK(std::isnan(ks_distance({}, {1})));
+  CHECK(std::isnan(wasserstein1({1}, {})));
+  // Shared log bins, 10 per decade: 20..300 um -> edges 10^(13/10) = 19.95 .. 10^(25/10) = 316.2.
+  const auto e = log_bin_edges({20, 300}, {55}, 10);
+  REQUIRE(e.size() == 13);
+  CHECK(e.front() == Approx(std::pow(10.0, 1.3)));
+  CHECK(e.back() == Approx(std::pow(10.0, 2.5)));
+  const auto s = compare_sizes({20, 300, 25}, {55}, 10);
+  int64_t n_ref = 0, n_pred = 0;
+  for (size_t k = 0; k < s.count_ref.size(); ++k) n_ref += s.count_ref[k], n_pred += s.count_pred[k];
+  CHECK(n_ref == 3);
+  CHECK(n_pred == 1);
+}
+
+TEST_CASE("KS and Wasserstein-1 agree with scipy.stats on random samples", "[metrics][sizes][ref]") {
+  // Reference: scipy.stats.ks_2samp(a, b).statistic and scipy.stats.wasserstein_distance (python3-scipy).
+  std::mt19937_64 rng(9);
+  std::lognormal_distribution<double> ra(4.0, 0.5), rb(4.2, 0.6);
+  std::vector<double> a(137), b(90);
+  for (auto& v : a) v = ra(rng);
+  for (auto& v : b) v = rb(rng);
+  b[3] = a[5];  // a tie across samples
+  pbtest::TempDir d;
+  for (auto [name, v] : {std::pair{"a.csv", &a}, std::pair{"b.csv", &b}}) {
+    std::ofstream f(d / name);
+    f << std::setprecision(17);
+    for (double x : *v) f << x << '\n';
+  }
+  const auto out = pbtest::run_ref_script("metrics_sizes.py", d / "a.csv" + " " + d / "b.csv");
+  INFO(out.err);
+  REQUIRE(out.exit_code == 0);
+  const auto j = nlohmann::json::parse(out.out);
+  CHECK(ks_distance(a, b) == Approx(j["ks"].get<double>()).epsilon(1e-12));
+  CHECK(wasserstein1(a, b) == Approx(j["w1"].get<double>()).epsilon(1e-10));
+}
+
+TEST_CASE("surface distances by hand: two slabs one voxel apart", "[metrics][surface]") {
+  // ref: plane x = 2; pred: plane x = 3, in a 6 x 4 x 4 volume, spacing 0.5 mm along x. Every
+  // voxel of a one-voxel plane is a surface voxel; each has the other plane 0.5 mm away.
+  Geometry g;
+  g.dims = {6, 4, 4};
+  g.spacing_mm = {0.5, 0.2, 0.2};
+  Image<uint32_t> a(g), b(g);
+  for (int z = 0; z < 4; ++z)
+    for (int y = 0; y < 4; ++y) a(3, y, z) = 1, b(2, y, z) = 1;
+  const SurfaceDistances s = surface_distances(a, b);
+  CHECK(s.hd95_mm == Approx(0.5));
+  CHECK(s.assd_mm == Approx(0.5));
+  CHECK(s.surface_voxels_ref == 16);
+  const Image<uint32_t> none(g);
+  CHECK(std::isnan(surface_distances(a, none).hd95_mm));
+  CHECK(percentile_linear({1, 2, 3, 4}, 95) == Approx(3.85));  // numpy.percentile([1,2,3,4], 95) = 3.85 by hand
+}
+
+TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metrics][surface][ref]") {
+  // Reference: scipy.ndimage.binary_erosion surfaces and distance_transform_edt with sampling
+  // (python3-scipy). Random blobs: thresholded noise so that surfaces are irregular and far apart.
+  Geometry g;
+  g.dims = {40, 33, 27};
+  g.spacing_mm = {0.02, 0.025, 0.03};
+  std::mt19937_64 rng(17);
+  std::uniform_real_distribution<double> u(0, 1);
+  Mask p(g), r(g);
+  // Balls of random radius at random centres, independently for the two sides.
+  for (Mask* m : {&p, &r})
+    for (int k = 0; k < 12; ++k) {
+      const double cx = u(rng) * 40, cy = u(rng) * 33, cz = u(rng) * 27, rad = 1 + 4 * u(rng);
+      for (int z = 0; z < 27; ++z)
+        for (int y = 0; y < 33; ++y)
+          for (int x = 0; x < 40; ++x)
+            if ((x - cx) * (x - cx) + (y - cy) * (y - cy) + (z - cz) * (z - cz) <= rad * rad) (*m)(x, y, z) = 1;
+    }
+  pbtest::TempDir d;
+  write_raw(AnyVolume(p), d / "p.raw");
+  write_raw(AnyVolume(r), d / "r.raw");
+  const auto out = pbtest::run_ref_script("metrics_surface.py", d / "p.raw" + " " + d / "r.raw" +
+                                                                    " 40 33 27 0.02 0.025 0.03");
+  INFO(out.err);
+  REQUIRE(out.exit_code == 0);
+  const auto j = nlohmann::json::parse(out.out);
+  const SurfaceDistances s = surface_distances(label_components(p, 26).labels, label_components(r, 26).labels);
+  CHECK(s.surface_voxels_pred == j["n_pred"].get<int64_t>());
+  CHECK(s.surface_voxels_ref == j["n_ref"].get<int64_t>());
+  CHECK(s.hd95_mm == Approx(j["hd95"].get<double>()).epsilon(1e-9));
+  CHECK(s.assd_mm == Approx(j["assd"].get<double>()).epsilon(1e-9));
+}
