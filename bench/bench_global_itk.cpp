@@ -94,7 +94,7 @@ void BM_OtsuPart_AirBelow(benchmark::State& state) {
 }
 BENCHMARK(BM_OtsuPart_AirBelow)->Unit(benchmark::kMillisecond)->UseRealTime();
 
-void BM_OtsuPart_AirToPores(benchmark::State& state) {  // the single-threaded flood fill
+void BM_OtsuPart_AirToPores(benchmark::State& state) {  // pore extraction (CCL of air + outside)
   const auto& v = part256();
   same_threads();
   const pb::Mask air = pb::air_below(v, 0.5, nullptr);
@@ -106,5 +106,20 @@ void BM_OtsuPart_AirToPores(benchmark::State& state) {  // the single-threaded f
   }
 }
 BENCHMARK(BM_OtsuPart_AirToPores)->Unit(benchmark::kMillisecond)->UseRealTime();
+
+// Like for like with ITK's filter, which thresholds and binarises but extracts no pores:
+// histogram, Otsu's split and the binary air mask.
+void BM_OtsuBinarise(benchmark::State& state) {
+  const auto& v = part256();
+  same_threads();
+  const pb::MethodInfo& m = pb::Registry::instance().get("otsu");
+  const pb::ParamValues p = pb::parse_params(m, {});
+  for (auto _ : state) {
+    const pb::Histogram h = pb::method_histogram(pb::MethodInput{v}, p);
+    pb::Mask air = pb::air_below(v, h.edge(pb::otsu_split(h) + 1), nullptr);
+    benchmark::DoNotOptimize(air.data());
+  }
+}
+BENCHMARK(BM_OtsuBinarise)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 }  // namespace

@@ -20,54 +20,40 @@ Mask air_below(const VolumeF& v, double threshold, const Mask* roi) {
 }
 
 int64_t air_to_pores(Mask& m, const Mask* roi) {
-  // States in m: 0 solid, 1 air not (yet) reached from outside, 2 air reached from outside.
-  const int64_t nx = m.nx(), ny = m.ny(), nz = m.nz(), sxy = nx * ny;
+  // Label air and the outside of the ROI together (6-connected, with our run-based CCL); a
+  // component that reaches the volume border or holds an outside voxel is background. The same
+  // as a flood fill from the outside through air, but parallel and cache-friendly.
+  const int64_t nx = m.nx(), ny = m.ny(), nz = m.nz(), n = m.size();
   uint8_t* a = m.data();
   const uint8_t* r = roi ? roi->data() : nullptr;
-  std::vector<int64_t> stack;
-  auto seed = [&](int64_t i) {
-    if (a[i] == 1) {
-      a[i] = 2;
-      stack.push_back(i);
-    }
-  };
-  if (r) {
-    // Outside the ROI every voxel counts as open air through which the outside reaches in.
-    for (int64_t i = 0; i < m.size(); ++i)
-      if (!r[i]) a[i] = 3;
-  }
+  Mask open(m.geometry());
+  uint8_t* o = open.data();
+#pragma omp parallel for schedule(static)
+  for (int64_t i = 0; i < n; ++i) o[i] = a[i] || (r && !r[i]);
+  const Components c = label_components(open, 6);
+  std::vector<uint8_t> outside(size_t(c.count) + 1, 0);
+  const uint32_t* l = c.labels.data();
+  auto mark = [&](int64_t i) { outside[l[i]] = 1; };
   for (int64_t z = 0; z < nz; ++z)
-    for (int64_t y = 0; y < ny; ++y)
-      for (int64_t x = 0; x < nx; ++x) {
-        const bool border = x == 0 || y == 0 || z == 0 || x == nx - 1 || y == ny - 1 || z == nz - 1;
-        const int64_t i = (z * ny + y) * nx + x;
-        if (border) seed(i);
-        if (a[i] == 3) {  // an outside voxel: its air neighbours are reached
-          if (x > 0) seed(i - 1);
-          if (x < nx - 1) seed(i + 1);
-          if (y > 0) seed(i - nx);
-          if (y < ny - 1) seed(i + nx);
-          if (z > 0) seed(i - sxy);
-          if (z < nz - 1) seed(i + sxy);
-        }
+    for (int64_t y = 0; y < ny; ++y) {
+      const int64_t row = (z * ny + y) * nx;
+      if (z == 0 || z == nz - 1 || y == 0 || y == ny - 1) {
+        for (int64_t x = 0; x < nx; ++x) mark(row + x);
+      } else {
+        mark(row);
+        mark(row + nx - 1);
       }
-  while (!stack.empty()) {
-    const int64_t i = stack.back();
-    stack.pop_back();
-    const int64_t x = i % nx, y = (i / nx) % ny, z = i / sxy;
-    if (x > 0) seed(i - 1);
-    if (x < nx - 1) seed(i + 1);
-    if (y > 0) seed(i - nx);
-    if (y < ny - 1) seed(i + nx);
-    if (z > 0) seed(i - sxy);
-    if (z < nz - 1) seed(i + sxy);
-  }
-  const int64_t n = m.size();
+    }
+  if (r)
+    for (int64_t i = 0; i < n; ++i)
+      if (!r[i]) mark(i);
+  outside[0] = 0;  // label 0 is solid
   int64_t part = 0;
 #pragma omp parallel for schedule(static) reduction(+ : part)
   for (int64_t i = 0; i < n; ++i) {
-    part += a[i] < 2;
-    a[i] = a[i] == 1;
+    const bool bg = outside[l[i]] != 0;
+    part += !bg && (!r || r[i]);
+    a[i] = a[i] && !bg;
   }
   return part;
 }

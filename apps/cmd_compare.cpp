@@ -1,0 +1,63 @@
+// porebench compare BASE_DIR CAND_DIR: the regression gate for model and method updates.
+#include <fstream>
+#include <iostream>
+#include <memory>
+
+#include "apps/cli.hpp"
+#include "core/error.hpp"
+#include "report/compare.hpp"
+#include "suites/suite.hpp"
+
+namespace pb::cli {
+namespace {
+
+nlohmann::ordered_json load_results(const std::string& dir) {
+  const std::string path = dir + "/results.json";
+  std::ifstream f(path);
+  if (!f) throw InputError("no results.json in " + dir + " (run the suite there first)");
+  try {
+    return nlohmann::ordered_json::parse(f);
+  } catch (const std::exception& e) {
+    throw InputError("cannot parse " + path + ": " + e.what());
+  }
+}
+
+Action setup_compare(CLI::App& app) {
+  app.description("compare two runs of a suite: deltas with paired bootstrap CIs, exit 1 on a regression");
+  struct Args {
+    std::string base, cand, out;
+    std::vector<std::string> metrics, tolerances;
+  };
+  auto a = std::make_shared<Args>();
+  app.add_option("BASE_DIR", a->base, "run folder of the base (e.g. the released model)")->required();
+  app.add_option("CAND_DIR", a->cand, "run folder of the candidate")->required();
+  app.add_option("--metric", a->metrics, "metric to track (repeatable; default jaccard, slice_jaccard_mean, porosity_bias_pp, a90_95_um)");
+  app.add_option("--tolerance", a->tolerances, "METRIC=VALUE: how much worse is still no regression (repeatable)");
+  app.add_option("-o,--output", a->out, "also write the Markdown to this file");
+  return [a] {
+    report::CompareOptions o;
+    if (!a->metrics.empty()) o.metrics = a->metrics;
+    for (const auto& t : a->tolerances) {
+      const auto eq = t.find('=');
+      char* end = nullptr;
+      const double v = eq == std::string::npos ? 0 : std::strtod(t.c_str() + eq + 1, &end);
+      if (eq == std::string::npos || end == t.c_str() + eq + 1 || *end || !(v >= 0))
+        throw InputError("--tolerance must be METRIC=VALUE with VALUE >= 0, got '" + t + "'");
+      const std::string m = t.substr(0, eq);
+      if (!suite::criterion_metrics().count(m)) throw InputError("--tolerance: unknown metric '" + m + "'");
+      o.tolerance[m] = v;
+    }
+    if (!a->out.empty()) check_writable(a->out);
+    const auto r = report::compare_runs(load_results(a->base), load_results(a->cand), o);
+    const std::string md = report::compare_markdown(r, a->base, a->cand, o);
+    std::cout << md;
+    if (!a->out.empty()) write_text_atomic(a->out, md);
+    return r.any_regression ? int(kExitCriteria) : 0;
+  };
+}
+
+}  // namespace
+
+PB_REGISTER_COMMAND("compare", 7, setup_compare);
+
+}  // namespace pb::cli

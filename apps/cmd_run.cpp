@@ -1,0 +1,84 @@
+// porebench run SUITE -o DIR: a declared trial of methods on datasets; porebench report DIR:
+// re-render the results and documents from the cells in DIR.
+#include <unistd.h>
+
+#include <fstream>
+#include <iostream>
+#include <memory>
+
+#include "apps/cli.hpp"
+#include "core/error.hpp"
+#include "suites/results.hpp"
+#include "suites/runner.hpp"
+
+namespace pb::cli {
+namespace {
+
+Action setup_run(CLI::App& app) {
+  app.description("run a suite: every method on every dataset, scored, with reports and a validation record");
+  struct Args {
+    std::string suite, out;
+    bool resume = false;
+    std::string shard;
+  };
+  auto a = std::make_shared<Args>();
+  app.add_option("SUITE", a->suite, "suite file (TOML), e.g. suites/quick.toml")->required();
+  app.add_option("-o,--output", a->out, "output folder, e.g. results/quick")->required();
+  app.add_flag("--resume", a->resume, "skip cells already finished in the output folder");
+  app.add_option("--shard", a->shard, "run only shard K of N (K/N, 1-based), e.g. one per cluster job");
+  return [a] {
+    suite::RunOptions o;
+    o.out_dir = a->out;
+    o.resume = a->resume;
+    o.quiet = globals().quiet;
+    o.progress_bar = ::isatty(2);
+    if (!a->shard.empty()) {
+      int k = 0, n = 0;
+      char extra = 0;
+      if (std::sscanf(a->shard.c_str(), "%d/%d%c", &k, &n, &extra) != 2 || n < 1 || k < 1 || k > n)
+        throw InputError("--shard must be K/N with 1 <= K <= N, got '" + a->shard + "'");
+      o.shard_index = k - 1;
+      o.shard_count = n;
+    }
+    const suite::Suite s = suite::load_suite(a->suite);
+    const suite::RunSummary r = suite::run_suite(s, o);
+    std::cout << "porebench run: " << r.cells_run << " cells run, " << r.cells_skipped << " already done, " << r.cells_failed
+              << " failed, of " << r.cells_total << '\n';
+    if (!r.complete) {
+      std::cout << "not all cells are present yet: after every shard, run again with --resume to write the reports\n";
+      return 0;
+    }
+    std::cout << "wrote " << a->out << "/results.json, results.csv, summary.md, report.html, validation-record.md\n"
+              << (r.criteria_met ? "every acceptance criterion is met\n" : "at least one acceptance criterion is NOT met\n");
+    return r.criteria_met ? 0 : 1;
+  };
+}
+
+Action setup_report(CLI::App& app) {
+  app.description("re-render results and documents of a finished run folder");
+  struct Args {
+    std::string dir, record;
+  };
+  auto a = std::make_shared<Args>();
+  app.add_option("DIR", a->dir, "run folder")->required();
+  app.add_option("--reference-record", a->record,
+                 "also write the machine-independent record of the run (the committed regression reference)");
+  return [a] {
+    if (!a->record.empty()) check_writable(a->record);
+    const bool ok = suite::write_results(a->dir);
+    std::cout << "wrote " << a->dir << "/results.json, results.csv, summary.md, report.html, validation-record.md\n";
+    if (!a->record.empty()) {
+      std::ifstream f(a->dir + "/results.json");
+      write_text_atomic(a->record, suite::regression_record(nlohmann::ordered_json::parse(f)).dump(1) + "\n");
+      std::cout << "wrote " << a->record << '\n';
+    }
+    return ok ? 0 : 1;
+  };
+}
+
+}  // namespace
+
+PB_REGISTER_COMMAND("run", 5, setup_run);
+PB_REGISTER_COMMAND("report", 6, setup_report);
+
+}  // namespace pb::cli

@@ -1,0 +1,217 @@
+// Tables of a suite run: the tidy CSV, the Markdown summary and the scan-recipe advice.
+#include <cmath>
+#include <map>
+#include <set>
+#include <sstream>
+
+#include "report/report.hpp"
+#include "suites/results.hpp"
+#include "suites/suite.hpp"
+
+namespace pb::report {
+
+const char* const kCaution =
+    "porebench supports, and does not replace, qualification of the inspection to the applicable standards "
+    "and local codes, and the judgement of qualified personnel. Porosity results can decide whether a "
+    "safety-relevant part ships.";
+
+const char* const kCsvColumns = "dataset,scan,projections,i0,method,method_name,family,grid_index,params,selected,part,metric,value";
+
+std::string fmt(const Json& v, int digits) {
+  if (!v.is_number()) return "n/a";
+  std::ostringstream s;
+  s.precision(digits);
+  s << v.get<double>();
+  return s.str();
+}
+
+namespace {
+
+std::string csv_field(const std::string& s) {
+  if (s.find_first_of(",\"\n") == std::string::npos) return s;
+  std::string out = "\"";
+  for (char c : s) out += c == '"' ? std::string("\"\"") : std::string(1, c);
+  return out + "\"";
+}
+
+std::string params_text(const Json& p) {
+  std::string out;
+  for (auto it = p.begin(); it != p.end(); ++it) out += (out.empty() ? "" : ";") + it.key() + "=" + it.value().get<std::string>();
+  return out;
+}
+
+std::string num_text(double v) {
+  if (!std::isfinite(v)) return "";
+  std::ostringstream s;
+  s.precision(10);
+  s << v;
+  return s.str();
+}
+
+std::set<std::string> selected_ids(const Json& results) {
+  std::set<std::string> ids;
+  for (const auto& s : results["selections"]) ids.insert(s["chosen_cell"].get<std::string>());
+  return ids;
+}
+
+}  // namespace
+
+std::string results_csv(const Json& results) {
+  std::ostringstream out;
+  out << kCsvColumns << '\n';
+  const auto chosen = selected_ids(results);
+  for (const auto& c : results["cells"]) {
+    const std::string head = csv_field(c["dataset"]) + "," + csv_field(c["scan"]) + "," +
+                             std::to_string(c["projections"].get<int>()) + "," + num_text(c["i0"].get<double>()) + "," +
+                             csv_field(c["method"]) + "," + csv_field(c["method_name"]) + "," + csv_field(c["family"]) +
+                             "," + std::to_string(c["grid_index"].get<int>()) + "," + csv_field(params_text(c["params"])) +
+                             "," + (chosen.count(c["id"]) ? "true" : "false");
+    out << head << ",run,runtime_s," << num_text(suite::metric_value(c, "test", "runtime_s")) << '\n';
+    out << head << ",run,peak_rss_mib," << (c.contains("peak_rss_mib") ? num_text(c["peak_rss_mib"].get<double>()) : "") << '\n';
+    for (const char* part : {"calibration", "test"})
+      for (const auto& [metric, _] : suite::criterion_metrics()) {
+        if (metric == "runtime_s") continue;
+        out << head << "," << part << "," << metric << "," << num_text(suite::metric_value(c, part, metric)) << '\n';
+      }
+  }
+  return out.str();
+}
+
+Json scan_recipe_advice(const Json& results, const std::vector<Json>& cells) {
+  (void)cells;
+  // Group the selections by dataset and method; a series is the non-reference scans.
+  std::map<std::pair<std::string, std::string>, std::vector<const Json*>> groups;
+  for (const auto& s : results["selections"]) groups[{s["dataset"], s["method"]}].push_back(&s);
+  std::map<std::string, const Json*> dataset_records;
+  for (const auto& d : results["datasets"]) dataset_records[d["name"]] = &d;
+  Json out = Json::array();
+  for (auto& [key, sels] : groups) {
+    const Json* d = dataset_records[key.first];
+    if (!d || (*d)["kind"] != "synthetic") continue;
+    // Which axis varies: projections, or dose at fixed projections.
+    std::set<int> projections;
+    std::set<double> doses;
+    int ref_proj = 0;
+    double ref_i0 = 0;
+    std::vector<const Json*> series;
+    for (const auto& v : (*d)["variants"]) {
+      ref_proj = v["reference_projections"];
+      ref_i0 = v["reference_i0"];
+    }
+    for (const Json* s : sels) {
+      bool reference = false;
+      for (const auto& v : (*d)["variants"])
+        if (v["scan"] == (*s)["scan"]) reference = v["reference"];
+      if (reference) continue;
+      series.push_back(s);
+      projections.insert((*s)["projections"].get<int>());
+      doses.insert((*s)["i0"].get<double>());
+    }
+    if (series.size() < 2) continue;
+    const bool by_dose = projections.size() == 1 && doses.size() > 1;
+    // Sort cheapest first; the advice is the cheapest recipe from which on all dearer ones pass.
+    std::sort(series.begin(), series.end(), [&](const Json* a, const Json* b) {
+      return by_dose ? (*a)["i0"].get<double>() < (*b)["i0"].get<double>()
+                     : (*a)["projections"].get<int>() < (*b)["projections"].get<int>();
+    });
+    const Json* best = nullptr;
+    for (auto it = series.rbegin(); it != series.rend(); ++it) {
+      if (!(**it)["passed"].get<bool>()) break;
+      best = *it;
+    }
+    Json a = {{"dataset", key.first}, {"method", key.second}, {"axis", by_dose ? "i0" : "projections"}};
+    if (best) {
+      a["scan"] = (*best)["scan"];
+      if (by_dose) {
+        a["i0"] = (*best)["i0"];
+        a["dose_saving_factor"] = ref_i0 / (*best)["i0"].get<double>();
+      } else {
+        a["projections"] = (*best)["projections"];
+        a["reference_projections"] = ref_proj;
+        // Scan time scales with the number of projections (common practice, no source).
+        a["time_saving_factor"] = double(ref_proj) / (*best)["projections"].get<double>();
+      }
+    } else {
+      a["scan"] = nullptr;
+      a["note"] = "no scan of the series meets every criterion";
+    }
+    out.push_back(a);
+  }
+  return out;
+}
+
+std::string summary_md(const Json& results) {
+  std::ostringstream md;
+  md << "# porebench summary: " << results["suite"]["name"].get<std::string>() << "\n\n";
+  if (!results["suite"]["description"].get<std::string>().empty())
+    md << results["suite"]["description"].get<std::string>() << "\n\n";
+  md << "> " << kCaution << "\n\n";
+  md << "Tool " << results["context"]["version"].get<std::string>() << " (" << results["context"]["git_hash"].get<std::string>()
+     << "), suite sha256 " << results["suite_sha256"].get<std::string>().substr(0, 16) << "…, "
+     << "tuning objective " << results["calibration"]["objective"].get<std::string>() << " on calibration slices; "
+     << "all figures below are on held-out test slices.\n\n";
+  std::map<std::string, const Json*> cell_by_id;
+  for (const auto& c : results["cells"]) cell_by_id[c["id"]] = &c;
+  std::vector<std::string> order;
+  std::map<std::string, std::vector<const Json*>> by_scan;
+  for (const auto& s : results["selections"]) {
+    const std::string k = s["dataset"].get<std::string>() + " / " + s["scan"].get<std::string>();
+    if (!by_scan.count(k)) order.push_back(k);
+    by_scan[k].push_back(&s);
+  }
+  for (const auto& k : order) {
+    auto& v = by_scan[k];
+    std::stable_sort(v.begin(), v.end(), [&](const Json* a, const Json* b) {
+      const double ja = suite::metric_value(*cell_by_id[(*a)["chosen_cell"]], "test", "jaccard");
+      const double jb = suite::metric_value(*cell_by_id[(*b)["chosen_cell"]], "test", "jaccard");
+      return (std::isfinite(ja) ? ja : -1) > (std::isfinite(jb) ? jb : -1);
+    });
+    md << "## " << k << "\n\n";
+    md << "| rank | method | parameters | Jaccard | slice Jaccard (95 % CI) | porosity bias (pp) | a90 (µm) | a90/95 (µm) | false calls/cm³ | runtime (s) | criteria |\n";
+    md << "|---:|---|---|---:|---|---:|---:|---:|---:|---:|---|\n";
+    int rank = 0;
+    for (const Json* s : v) {
+      const Json& c = *cell_by_id[(*s)["chosen_cell"]];
+      md << "| " << ++rank << " | " << (*s)["method"].get<std::string>() << " | ";
+      std::string p;
+      for (auto it = c["params"].begin(); it != c["params"].end(); ++it)
+        if (it.key() != "min_pore_voxels" || it.value() != "1") p += (p.empty() ? "" : ", ") + it.key() + "=" + it.value().get<std::string>();
+      md << (p.empty() ? "defaults" : p) << ((*s)["tuned"].get<bool>() ? " (tuned)" : "") << " | ";
+      if (c["status"] != "ok") {
+        md << "failed: " << c["error"].get<std::string>() << " | | | | | | | FAIL |\n";
+        continue;
+      }
+      const Json& t = c["test"];
+      md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(t["slices"]["jaccard_mean"]) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
+         << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ") | " << fmt(t["porosity"]["porosity_bias_pp"]) << " | "
+         << fmt(t["pod"]["a90_um"]) << " | " << fmt(t["pod"]["a90_95_um"]) << " | " << fmt(t["pores"]["false_calls_per_cm3"])
+         << " | " << fmt(c["runtime_s"]) << " | ";
+      if ((*s)["verdicts"].empty()) md << "none set";
+      else md << ((*s)["passed"].get<bool>() ? "pass" : "FAIL");
+      md << " |\n";
+    }
+    md << "\n";
+  }
+  if (!results["advice"].empty()) {
+    md << "## Scan-recipe advice\n\n| dataset | method | cheapest scan meeting the criteria | saving vs reference |\n|---|---|---|---:|\n";
+    for (const auto& a : results["advice"]) {
+      md << "| " << a["dataset"].get<std::string>() << " | " << a["method"].get<std::string>() << " | ";
+      if (a["scan"].is_null()) {
+        md << a["note"].get<std::string>() << " | |\n";
+        continue;
+      }
+      md << a["scan"].get<std::string>() << " | ";
+      if (a.contains("time_saving_factor")) md << fmt(a["time_saving_factor"]) << "x time";
+      else md << fmt(a["dose_saving_factor"]) << "x dose";
+      md << " |\n";
+    }
+    md << "\nScan time is taken to scale with the number of projections (common practice, no source).\n\n";
+  }
+  md << "Criteria: ";
+  if (results["criteria"].empty()) md << "none declared.\n";
+  for (const auto& c : results["criteria"]) md << c["text"].get<std::string>() << "; ";
+  md << "\n\nOverall: " << (results["criteria_met"].get<bool>() ? "every criterion met." : "at least one criterion NOT met.") << "\n";
+  return md.str();
+}
+
+}  // namespace pb::report

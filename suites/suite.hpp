@@ -1,0 +1,83 @@
+#pragma once
+// A suite: a declared trial of methods on datasets, in a TOML format of our own (annotated example:
+// suites/example.toml). Parsing validates everything before any work: unknown keys are rejected
+// with the closest valid key, errors name the file, line and column; method names and every
+// parameter set of every grid are checked against the registry.
+#include <array>
+#include <map>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "core/io.hpp"
+
+namespace pb::suite {
+
+// Parameters of one method entry; a key with a list of values is a grid axis (cartesian product).
+struct ParamGrid {
+  std::vector<std::pair<std::string, std::vector<std::string>>> axes;  // in key name order
+  size_t size() const;
+  std::vector<std::string> point(size_t i) const;  // "key=value" settings of grid point i (last key fastest)
+  bool tuned() const { return size() > 1; }        // calibrated on held-out slices
+};
+
+struct MethodSpec {
+  std::string label;  // unique in the suite; defaults to the method name
+  std::string name;   // registry name or composition, e.g. "median+otsu"
+  ParamGrid grid;
+};
+
+struct DatasetSpec {
+  std::string name;
+  enum Kind { synthetic, paired } kind = synthetic;
+  // synthetic: a preset or a recipe file, plus recipe overrides ("key=value")
+  std::string preset, recipe;
+  std::vector<std::string> overrides;
+  // paired: a scan and either a reference mask or a reference scan segmented by a method
+  std::string scan, reference_mask, reference_scan, reference_method, part_mask;
+  std::vector<std::string> reference_params;
+  int projections = 0, reference_projections = 0;  // optional, for scan-recipe advice
+  ReadOptions read;                                 // raw geometry / spacing for the paired files
+  int reference_label = -1;                         // label value of pores in the reference mask (-1: non-zero)
+};
+
+struct Calibration {
+  std::string objective = "jaccard";  // a maximised metric: jaccard, dice, recall, precision
+  double fraction = 0.4;              // share of the part's slices (from the bottom) used to tune
+  int gap_slices = 4;                 // slices left out between the calibration and test parts
+};
+
+struct Scoring {
+  std::string match = "coverage:0.5";
+  int connectivity = 26;
+  int bins_per_decade = 10;
+  int bootstrap_samples = 1000;
+};
+
+// One acceptance criterion: metric op value, op one of >= (min_), <= (max_), |x| <= (max_abs_).
+struct Criterion {
+  std::string key;     // as written, e.g. "max_abs_porosity_bias_pp"
+  std::string metric;  // e.g. "porosity_bias_pp"
+  enum Op { at_least, at_most, abs_at_most } op = at_least;
+  double value = 0;
+  bool passes(double x) const;  // NaN never passes
+  std::string text() const;     // "jaccard >= 0.7"
+};
+
+struct Suite {
+  std::string path, name, description;
+  std::string text_sha256;  // of the suite file as read
+  std::vector<DatasetSpec> datasets;
+  std::vector<MethodSpec> methods;
+  Calibration calibration;
+  Scoring scoring;
+  std::vector<Criterion> criteria;
+};
+
+// The metrics that criteria and `compare` may name, with their direction (true = higher is better).
+const std::map<std::string, bool>& criterion_metrics();
+
+Suite parse_suite(const std::string& toml_text, const std::string& path);
+Suite load_suite(const std::string& path);  // relative file paths resolve against the suite's folder
+
+}  // namespace pb::suite
