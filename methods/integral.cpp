@@ -102,26 +102,27 @@ void run_plane_jobs(const VolumeF& v, int64_t h, double c, const std::vector<Pla
 // Along z: Z(z) = Z(z-1) + P(z+h) - P(z-1-h) over the planes P of x,y window sums, from
 // Z(0) = P(0) + 2 (P(1) + ... + P(h)). Planes are computed in parallel a batch at a time; the
 // recurrence itself is serial and in fixed order.
-SliceMoments::SliceMoments(const VolumeF& v, int64_t window, double centre) : v_(v), h_(window / 2), c_(centre) {
+SliceMoments::SliceMoments(const VolumeF& v, int64_t window, double centre)
+    : v_(v), h_(window / 2), batch_(std::clamp<int64_t>(v.nz() / 16, 1, 8)), c_(centre) {
   const size_t nxy = size_t(v.geometry().slice_voxels());
   z1_.assign(nxy, 0.0);
   z2_.assign(nxy, 0.0);
-  e_.assign(nxy * 2 * size_t(kBatch), 0.0);
-  l_.assign(nxy * 2 * size_t(kBatch), 0.0);
+  e_.assign(nxy * 2 * size_t(batch_), 0.0);
+  l_.assign(nxy * 2 * size_t(batch_), 0.0);
 }
 
 int64_t SliceMoments::next(double* mean, double* stdev) {
   const int64_t nz = v_.nz(), h = h_, nxy = v_.geometry().slice_voxels();
-  const int64_t n = std::min(kBatch, nz - z_);
+  const int64_t n = std::min(batch_, nz - z_);
   if (n <= 0) return 0;
   double* z1 = z1_.data();
   double* z2 = z2_.data();
   auto e1 = [&](int64_t t) { return e_.data() + 2 * t * nxy; };
   auto l1 = [&](int64_t t) { return l_.data() + 2 * t * nxy; };
   if (z_ == 0) {  // Z(0) from planes 0..h, a batch at a time, summed in order j = 0, 1, ..., h
-    for (int64_t j0 = 0; j0 <= h; j0 += kBatch) {
+    for (int64_t j0 = 0; j0 <= h; j0 += batch_) {
       std::vector<PlaneJob> jobs;
-      for (int64_t j = j0; j <= std::min(h, j0 + kBatch - 1); ++j) jobs.push_back({j, e1(j - j0), e1(j - j0) + nxy});
+      for (int64_t j = j0; j <= std::min(h, j0 + batch_ - 1); ++j) jobs.push_back({j, e1(j - j0), e1(j - j0) + nxy});
       run_plane_jobs(v_, h, c_, jobs);
       const int64_t nj = int64_t(jobs.size());
 #pragma omp parallel for schedule(static)

@@ -14,24 +14,25 @@
 namespace pb {
 
 // Local mean and standard deviation of a cubic window of `window` voxels (odd, <= every dim),
-// produced a few z slices at a time in order 0..nz-1. Working memory is about 6 * kBatch slices
-// of doubles, whatever the volume or window size. Values are centred on `centre` (e.g. the global
+// produced a few z slices at a time in order 0..nz-1. Working memory is about 6 * batch() + 2 *
+// threads slices of doubles (batch() <= nz / 16, so at most about 0.75 float volume plus
+// per-thread scratch), whatever the window size. Values are centred on `centre` (e.g. the global
 // mean) before squaring, so the variance does not cancel on CT data with a large grey offset;
 // non-finite voxels are read as `centre`. std = sqrt(max(0, E[(v-c)^2] - E[v-c]^2)) (population
 // form, as scikit-image). The z recurrence runs in one fixed order: results do not depend on the
 // thread count.
 class SliceMoments {
  public:
-  static constexpr int64_t kBatch = 8;
   SliceMoments(const VolumeF& v, int64_t window, double centre);
   int64_t next_z() const { return z_; }
-  // Fills mean and std of slices next_z() .. next_z()+n-1 (kBatch * nx * ny values each, slice
+  int64_t batch() const { return batch_; }  // slices per call: 1..8, from nz only
+  // Fills mean and std of slices next_z() .. next_z()+n-1 (batch() * nx * ny values each, slice
   // after slice), advances, and returns n (0 at the end).
   int64_t next(double* mean, double* std);
 
  private:
   const VolumeF& v_;
-  int64_t h_, z_ = 0;
+  int64_t h_, batch_, z_ = 0;
   double c_;
   std::vector<double> z1_, z2_, e_, l_;
 };

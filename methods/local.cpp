@@ -101,8 +101,8 @@ Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr 
   const VolumeF& v = in.volume;
   Mask air(v.geometry());
   const int64_t nxy = v.geometry().slice_voxels();
-  std::vector<double> mean(static_cast<size_t>(nxy * SliceMoments::kBatch)), sd(mean.size());
   SliceMoments mom(v, window, centre);
+  std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(mean.size());
   const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
   for (;;) {
     const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data()) * nxy;
@@ -120,8 +120,8 @@ Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr 
 double max_local_std(const MethodInput& in, int64_t window, double centre) {
   const VolumeF& v = in.volume;
   const int64_t nxy = v.geometry().slice_voxels();
-  std::vector<double> mean(static_cast<size_t>(nxy * SliceMoments::kBatch)), sd(mean.size());
   SliceMoments mom(v, window, centre);
+  std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(mean.size());
   const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
   double best = 0;
   for (;;) {
@@ -303,16 +303,21 @@ MethodInfo bernsen_info() {
         if (!constant_volume(in, c, out)) {
           VolumeF vmin, vmax;
           box_min_max(in.volume, w, vmin, vmax);
-          Mask air(in.volume.geometry());
           const float* v = in.volume.data();
           const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
           const int64_t n = in.volume.size();
+          // The decision goes into vmin first and the mask is made after vmax is freed, so that
+          // the peak stays at the input plus two float volumes.
 #pragma omp parallel for schedule(static)
           for (int64_t i = 0; i < n; ++i) {
             const double lo = vmin[i], hi = vmax[i], mid = 0.5 * (lo + hi);
             const bool dark = hi - lo >= contrast ? double(v[i]) < mid : mid < split;
-            air[i] = dark && !std::isnan(v[i]) && (!roi || roi[i]);
+            vmin[i] = dark && !std::isnan(v[i]) && (!roi || roi[i]) ? 1.0f : 0.0f;
           }
+          vmax = VolumeF();
+          Mask air(in.volume.geometry());
+#pragma omp parallel for schedule(static)
+          for (int64_t i = 0; i < n; ++i) air[i] = vmin[i] != 0;
           out = finish(std::move(air), c);
         }
         out.chosen = {{"window", double(w)}, {"contrast", contrast}, {"low_contrast_split", split}};
@@ -329,7 +334,8 @@ MethodInfo local_mean_info() {
   return local_info(
       "local-mean", "Local mean: T = m - offset, m the mean of the cubic window", kLocalMeanCitation,
       {{"offset", ParamType::Float, "0", -3.4e38, 3.4e38, {}, "grey",
-        "a voxel is air when darker than its window mean by more than offset"}},
+        "a voxel is air when darker than its window mean by more than offset (at 0 about half of a noisy "
+        "uniform material is below its mean: take a few noise sigmas)"}},
       [](const MethodInput& in, const ParamValues& p) {
         const int64_t w = checked_window("local-mean", in.volume, p);
         const double off = p.num("offset");
@@ -349,7 +355,8 @@ MethodInfo local_gaussian_info() {
       "window/2; cost grows with the window)",
       kLocalMeanCitation,
       {{"offset", ParamType::Float, "0", -3.4e38, 3.4e38, {}, "grey",
-        "a voxel is air when darker than its weighted mean by more than offset"},
+        "a voxel is air when darker than its weighted mean by more than offset (at 0 about half of a "
+        "noisy uniform material is below its mean: take a few noise sigmas)"},
        {"sigma", ParamType::Float, "0", 0, 1e4, {}, "voxels", "Gaussian sigma; 0 = (window - 1)/6 as scikit-image"}},
       [](const MethodInput& in, const ParamValues& p) {
         const int64_t w = checked_window("local-gaussian", in.volume, p);

@@ -153,7 +153,7 @@ TEST_CASE("window mean and std on a 3D checkerboard are the hand-computed ones, 
   for (int64_t i = 0; i < v.size(); ++i) mean_total += v[i];
   SliceMoments mom(v, w, mean_total / double(v.size()));
   const int64_t nxy = v.geometry().slice_voxels();
-  std::vector<double> m(size_t(nxy * SliceMoments::kBatch)), s(m.size());
+  std::vector<double> m(size_t(nxy * mom.batch())), s(m.size());
   double worst_m = 0, worst_s = 0;
   int64_t slices = 0;
   for (int64_t z0 = 0, n; (n = mom.next(m.data(), s.data())) > 0; z0 += n)
