@@ -29,32 +29,41 @@ struct Run {
 };
 
 inline uint32_t find_root(uint32_t* p, uint32_t i) {
-  uint32_t r = i;
-  while (p[r] != r) r = p[r];
-  while (p[i] != r) {
-    const uint32_t n = p[i];
-    p[i] = r;
-    i = n;
+  while (p[i] != i) {  // path halving
+    p[i] = p[p[i]];
+    i = p[i];
   }
-  return r;
+  return i;
 }
 
-inline void unite(uint32_t* p, uint32_t a, uint32_t b) {
-  a = find_root(p, a);
-  b = find_root(p, b);
-  if (a < b)
-    p[b] = a;
-  else if (b < a)
-    p[a] = b;
-}
+// A neighbour row: runs [n0, n1), x-extension e, and a cursor that only moves forward.
+struct NbrRow {
+  int64_t j, n1;
+  int e;
+};
 
-// Unites runs [c0, c1) of the current row with the overlapping runs [n0, n1) of a neighbour row.
-inline void merge_rows(const Run* runs, uint32_t* p, int64_t c0, int64_t c1, int64_t n0, int64_t n1, int e) {
-  int64_t j = n0;
-  for (int64_t i = c0; i < c1 && j < n1; ++i) {
-    const int32_t a = runs[i].x0 - e, b = runs[i].x1 + e;
-    while (j < n1 && runs[j].x1 <= a) ++j;
-    for (int64_t k = j; k < n1 && runs[k].x0 < b; ++k) unite(p, uint32_t(i), uint32_t(k));
+// Unites runs [c0, c1) of the current row with the overlapping runs of up to four neighbour rows.
+// The current run's root is kept while it meets several runs (they are often already united).
+inline void merge_runs(const Run* runs, uint32_t* p, int64_t c0, int64_t c1, NbrRow* nb, int nnb) {
+  for (int64_t i = c0; i < c1; ++i) {
+    uint32_t ri = uint32_t(i);  // a run is its own root until first united
+    for (int r = 0; r < nnb; ++r) {
+      NbrRow& n = nb[r];
+      const int32_t a = runs[i].x0 - n.e, b = runs[i].x1 + n.e;
+      while (n.j < n.n1 && runs[n.j].x1 <= a) ++n.j;
+      for (int64_t k = n.j; k < n.n1 && runs[k].x0 < b; ++k) {
+        if (p[k] == ri) continue;  // quick path: already united with this root
+        const uint32_t rk = find_root(p, uint32_t(k));
+        if (rk == ri) continue;
+        ri = find_root(p, ri);  // ri may have been linked below by another neighbour row
+        if (rk < ri) {
+          p[ri] = rk;
+          ri = rk;
+        } else if (ri < rk) {
+          p[rk] = ri;
+        }
+      }
+    }
   }
 }
 
@@ -70,21 +79,10 @@ inline int64_t count_runs_roi(const uint8_t* a, const uint8_t* r, int64_t nx) {
   return c;
 }
 
-inline void fill_runs_roi(const uint8_t* a, const uint8_t* r, int32_t nx, Run* out) {
-  int32_t x = 0;
-  while (x < nx) {
-    while (x < nx && !(a[x] && r[x])) ++x;
-    if (x >= nx) break;
-    const int32_t s = x;
-    while (x < nx && a[x] && r[x]) ++x;
-    *out++ = Run{s, x};
-  }
-}
-
+// Runs of a sparse row, skipping background eight voxels at a time.
 inline void fill_runs(const uint8_t* a, int32_t nx, Run* out) {
   int32_t x = 0;
   while (x < nx) {
-    // Skip background eight voxels at a time.
     while (x + 8 <= nx) {
       uint64_t w;
       std::memcpy(&w, a + x, 8);
@@ -97,6 +95,25 @@ inline void fill_runs(const uint8_t* a, int32_t nx, Run* out) {
     while (x < nx && a[x] != 0) ++x;
     *out++ = Run{s, x};
   }
+}
+
+// Branch-free run extraction (random masks defeat branch prediction): every x writes a candidate
+// start and end, and the counters advance only at transitions. `tmp` holds nx + 1 runs.
+template <bool kRoi>
+inline int64_t fill_runs_impl(const uint8_t* a, const uint8_t* r, int32_t nx, Run* tmp, Run* out) {
+  int64_t ns = 0, ne = 0;
+  int prev = 0;
+  for (int32_t x = 0; x < nx; ++x) {
+    const int cur = kRoi ? ((a[x] != 0) & (r[x] != 0)) : (a[x] != 0);
+    tmp[ns].x0 = x;
+    ns += cur & (prev ^ 1);
+    tmp[ne].x1 = x;
+    ne += (cur ^ 1) & prev;
+    prev = cur;
+  }
+  if (prev) tmp[ne++].x1 = nx;
+  std::memcpy(out, tmp, size_t(ns) * sizeof(Run));
+  return ns;
 }
 
 }  // namespace
@@ -135,13 +152,22 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
     throw InputError("label_components: " + std::to_string(nruns) + " runs exceed the 32-bit label range");
   std::vector<Run> runs(static_cast<size_t>(nruns));
   std::vector<uint32_t> parent(static_cast<size_t>(nruns));
-#pragma omp parallel for schedule(static)
-  for (int64_t r = 0; r < nrows; ++r) {
-    if (rmask)
-      fill_runs_roi(mask + r * nx, rmask + r * nx, int32_t(nx), runs.data() + row_begin[size_t(r)]);
-    else
-      fill_runs(mask + r * nx, int32_t(nx), runs.data() + row_begin[size_t(r)]);
-    for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i) parent[size_t(i)] = uint32_t(i);
+#pragma omp parallel
+  {
+    std::vector<Run> tmp(static_cast<size_t>(nx) + 1);
+#pragma omp for schedule(static)
+    for (int64_t r = 0; r < nrows; ++r) {
+      const int64_t b = row_begin[size_t(r)], e = row_begin[size_t(r) + 1];
+      if (b == e) continue;
+      Run* out = runs.data() + b;
+      if (rmask)
+        fill_runs_impl<true>(mask + r * nx, rmask + r * nx, int32_t(nx), tmp.data(), out);
+      else if (e - b <= 2)  // sparse rows: skip background a word at a time
+        fill_runs(mask + r * nx, int32_t(nx), out);
+      else
+        fill_runs_impl<false>(mask + r * nx, nullptr, int32_t(nx), tmp.data(), out);
+      for (int64_t i = b; i < e; ++i) parent[size_t(i)] = uint32_t(i);
+    }
   }
 
   const Run* R = runs.data();
@@ -150,18 +176,23 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   const int e_diag = connectivity == 26 ? 1 : 0;  // (-1,-1) and (+1,-1) rows, 18 and 26 only
   auto rb = [&](int64_t y, int64_t z) { return row_begin[size_t(z * ny + y)]; };
   auto re = [&](int64_t y, int64_t z) { return row_begin[size_t(z * ny + y) + 1]; };
-  // Unites row (y, z) with its neighbour rows; with_prev_slice = false skips the z-1 rows.
+  // Unites row (y, z) with its neighbour rows; prev_slice = false skips the z-1 rows,
+  // same_slice = false the (y-1, z) row.
   auto unite_row = [&](int64_t y, int64_t z, bool same_slice, bool prev_slice) {
     const int64_t c0 = rb(y, z), c1 = re(y, z);
     if (c0 == c1) return;
-    if (same_slice && y > 0) merge_rows(R, P, c0, c1, rb(y - 1, z), re(y - 1, z), e_face);
+    NbrRow nb[4];
+    int n = 0;
+    auto add = [&](int64_t yy, int64_t zz, int e) {
+      if (rb(yy, zz) < re(yy, zz)) nb[n++] = NbrRow{rb(yy, zz), re(yy, zz), e};
+    };
     if (prev_slice && z > 0) {
-      merge_rows(R, P, c0, c1, rb(y, z - 1), re(y, z - 1), e_face);
-      if (connectivity != 6) {
-        if (y > 0) merge_rows(R, P, c0, c1, rb(y - 1, z - 1), re(y - 1, z - 1), e_diag);
-        if (y + 1 < ny) merge_rows(R, P, c0, c1, rb(y + 1, z - 1), re(y + 1, z - 1), e_diag);
-      }
+      if (connectivity != 6 && y > 0) add(y - 1, z - 1, e_diag);
+      add(y, z - 1, e_face);
+      if (connectivity != 6 && y + 1 < ny) add(y + 1, z - 1, e_diag);
     }
+    if (same_slice && y > 0) add(y - 1, z, e_face);
+    merge_runs(R, P, c0, c1, nb, n);
   };
 
   // Scan 1b: unite within z-slabs in parallel (a slab touches only its own runs), then the slab
