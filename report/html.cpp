@@ -1,17 +1,690 @@
-// report.html (self-contained, inline SVG) and slice montages: the summary as a page until the
-// plots land (issue 6, in progress).
+// report.html: one self-contained page (inline CSS and SVG, no scripts) rendered from the results
+// record, and the slice montages it shows (montages/<dataset>__<scan>.png). Every figure uses the
+// selected cell of each method (tuned methods: the parameter set chosen on the calibration slices)
+// scored on the held-out test slices. Undefined values are shown as "n/a" and never plotted.
+#include <algorithm>
+#include <cmath>
 #include <filesystem>
+#include <map>
+#include <set>
+#include <sstream>
 
 #include "core/io.hpp"
+#include "report/html.hpp"
+#include "report/montage.hpp"
 #include "report/report.hpp"
+#include "report/svg.hpp"
+#include "suites/results.hpp"
+
+namespace fs = std::filesystem;
 
 namespace pb::report {
 
+namespace {
+
+using svg::escape;
+
+// Method colours: Paul Tol's "muted" qualitative scheme (Tol 2021, SRON/EPS/TN/09-002), distinct
+// for colour-blind readers; every series also has its own marker shape.
+const char* const kMethodColours[] = {"#332288", "#CC6677", "#117733", "#DDAA33", "#88CCEE",
+                                      "#882255", "#44AA99", "#999933", "#AA4499", "#555555"};
+// Scans in the size-distribution panels: black for the reference recipe, then Okabe & Ito colours.
+const char* const kScanColours[] = {"#000000", "#0072B2", "#E69F00", "#CC79A7", "#009E73", "#D55E00", "#56B4E9"};
+
+std::string safe_name(std::string s) {  // as the runner names files
+  for (char& c : s)
+    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == '.')) c = '_';
+  return s;
+}
+
+std::string join(const std::vector<std::string>& v, const std::string& sep) {
+  std::string out;
+  for (size_t i = 0; i < v.size(); ++i) out += (i ? sep : "") + v[i];
+  return out;
+}
+
+double num(const Json& j) { return j.is_number() ? j.get<double>() : NAN; }
+std::string str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.is_null() ? "" : j.dump(); }
+std::string f3(double v) { return svg::num(v, 3); }
+
+std::string params_text(const Json& p, bool skip_defaults = true) {
+  std::string out;
+  for (auto it = p.begin(); it != p.end(); ++it) {
+    if (skip_defaults && it.key() == "min_pore_voxels" && str(it.value()) == "1") continue;
+    out += (out.empty() ? "" : ", ") + it.key() + "=" + str(it.value());
+  }
+  return out.empty() ? "defaults" : out;
+}
+
+struct Page {
+  const Json& r;
+  std::map<std::string, const Json*> cells;  // by id
+  std::map<std::string, size_t> method_index;
+  int ids = 0;
+  std::string next_id(const std::string& what) { return what + "-" + std::to_string(++ids); }
+  std::string colour(const std::string& method) const {
+    auto it = method_index.find(method);
+    return kMethodColours[(it == method_index.end() ? 9 : it->second) % 10];
+  }
+  svg::Marker marker(const std::string& method) const {
+    auto it = method_index.find(method);
+    return svg::marker_for(it == method_index.end() ? 0 : it->second);
+  }
+  const Json* cell(const Json& selection) const {
+    auto it = cells.find(selection["chosen_cell"].get<std::string>());
+    return it == cells.end() ? nullptr : it->second;
+  }
+};
+
+// The series axis of a dataset: projections, or dose at fixed projections (as scan_recipe_advice).
+struct SeriesAxis {
+  bool by_dose = false;
+  bool usable = false;  // at least two scans with a positive axis value
+  double reference = NAN;
+  std::string label() const { return by_dose ? "dose I0 (photons per detector pixel)" : "projections"; }
+  double of(const Json& s) const { return by_dose ? num(s["i0"]) : num(s["projections"]); }
+};
+
+SeriesAxis series_axis(const Json& d) {
+  SeriesAxis a;
+  std::set<double> proj, dose, all;
+  for (const auto& v : d["variants"]) {
+    if (v.value("reference", false)) continue;
+    proj.insert(num(v["projections"]));
+    dose.insert(num(v["i0"]));
+  }
+  a.by_dose = proj.size() == 1 && dose.size() > 1;
+  for (const auto& v : d["variants"]) {
+    const double x = a.by_dose ? num(v["i0"]) : num(v["projections"]);
+    if (std::isfinite(x) && x > 0) all.insert(x);
+    if (v.value("reference", false)) a.reference = x;
+  }
+  if (!d["variants"].empty()) {
+    const Json& v0 = d["variants"][0];
+    if (!std::isfinite(a.reference)) a.reference = a.by_dose ? num(v0["reference_i0"]) : num(v0["reference_projections"]);
+  }
+  a.usable = all.size() >= 2;
+  return a;
+}
+
+std::vector<std::string> dataset_scans(const Json& d) {
+  std::vector<std::string> s;
+  for (const auto& v : d["variants"]) s.push_back(v["scan"]);
+  return s;
+}
+
+// The selections of one dataset, by scan then method label.
+std::map<std::string, std::map<std::string, const Json*>> selections_of(const Page& p, const std::string& dataset) {
+  std::map<std::string, std::map<std::string, const Json*>> out;
+  for (const auto& s : p.r["selections"])
+    if (s["dataset"] == dataset) out[s["scan"]][s["method"]] = &s;
+  return out;
+}
+
+std::vector<std::string> method_labels(const Page& p) {
+  std::vector<std::string> m;
+  for (const auto& e : p.r["methods"]) m.push_back(e["label"]);
+  return m;
+}
+
+std::string figure(const std::string& svg_text, const std::string& caption = "") {
+  return "<figure>" + svg_text + (caption.empty() ? "" : "<figcaption>" + caption + "</figcaption>") + "</figure>\n";
+}
+
+// Why a POD figure is undefined, for the n/a notes.
+std::string pod_reason(const Json& cell, const std::string& metric) {
+  if (cell.value("status", "") != "ok") return "cell failed";
+  const Json& p = cell["test"]["pod"];
+  if (!p.value("estimable", false)) return str(p["reason"]);
+  if (metric == "a90_95_um" && p.contains("a90_95_reason")) return str(p["a90_95_reason"]);
+  return "";
+}
+
+// ---- sections ---------------------------------------------------------------------------------
+
+std::string header(const Page& p) {
+  const Json& r = p.r;
+  const Json& ctx = r["context"];
+  std::ostringstream h;
+  h << "<header><h1>porebench report: " << escape(str(r["suite"]["name"])) << "</h1>\n";
+  if (!str(r["suite"]["description"]).empty()) h << "<p class=\"lead\">" << escape(str(r["suite"]["description"])) << "</p>\n";
+  h << "<div class=\"caution\" role=\"note\"><strong>Caution.</strong> " << escape(kCaution) << "</div>\n";
+  const bool met = r.value("criteria_met", false);
+  h << "<div class=\"verdict " << (met ? "pass" : "fail") << "\">" << (met ? "Every declared acceptance criterion is met." : "At least one declared acceptance criterion is NOT met.");
+  if (r["criteria"].empty()) h << " (No criteria declared.)";
+  else {
+    h << " Criteria (on the held-out test slices):";
+    for (const auto& c : r["criteria"]) h << " <code>" << escape(str(c["text"])) << "</code>";
+  }
+  h << "</div>\n<table class=\"meta\">";
+  auto row = [&](const std::string& k, const std::string& v) { h << "<tr><th>" << escape(k) << "</th><td>" << escape(v) << "</td></tr>"; };
+  row("tool", "porebench " + str(ctx["version"]) + " (source revision " + str(ctx["git_hash"]) + ")");
+  row("run at (UTC)", str(ctx["time_utc"]));
+  row("host", str(ctx["host"]) + ", " + str(ctx["threads"]) + " threads");
+  row("suite file", str(r["suite"]["path"]));
+  row("suite sha256", str(r["suite_sha256"]));
+  row("calibration", "parameters tuned by " + str(r["calibration"]["objective"]) + " on the lowest " +
+                         f3(100 * num(r["calibration"]["fraction"])) + " % of the part's slices, gap of " +
+                         str(r["calibration"]["gap_slices"]) + " slices, scored on the slices above");
+  row("scoring", "match rule " + str(r["scoring"]["match"]) + ", connectivity " + str(r["scoring"]["connectivity"]) + ", " +
+                     str(r["scoring"]["bins_per_decade"]) + " size bins per decade");
+  h << "</table>\n<p class=\"links\">Files of this run: <a href=\"validation-record.md\">validation-record.md</a> · "
+       "<a href=\"summary.md\">summary.md</a> · <a href=\"results.csv\">results.csv</a> · <a href=\"results.json\">results.json</a></p>\n";
+  h << "<nav><strong>Contents:</strong> ";
+  int k = 0;
+  for (const auto& d : r["datasets"])
+    h << "<a href=\"#ds-" << k++ << "\">" << escape(str(d["name"])) << "</a> · ";
+  h << "<a href=\"#advice\">scan-recipe advice</a> · <a href=\"#failed\">failed cells</a> · <a href=\"#definitions\">definitions</a></nav>\n";
+  h << "</header>\n";
+  return h.str();
+}
+
+std::string summary_tables(Page& p, const Json& d) {
+  std::ostringstream h;
+  auto by_scan = selections_of(p, d["name"]);
+  for (const auto& scan : dataset_scans(d)) {
+    std::vector<const Json*> sels;
+    for (const auto& [m, s] : by_scan[scan]) sels.push_back(s);
+    auto jac = [&](const Json* s) {
+      const Json* c = p.cell(*s);
+      const double v = c ? suite::metric_value(*c, "test", "jaccard") : NAN;
+      return std::isfinite(v) ? v : -1.0;
+    };
+    std::stable_sort(sels.begin(), sels.end(), [&](const Json* a, const Json* b) { return jac(a) > jac(b); });
+    h << "<h4>" << escape(scan) << "</h4>\n<table class=\"data\"><thead><tr><th>rank</th><th>method</th><th>parameters</th>"
+         "<th>Jaccard</th><th>slice Jaccard (95 % CI)</th><th>porosity bias (pp)</th><th>a90 (µm)</th><th>a90/95 (µm)</th>"
+         "<th>false calls/cm³</th><th>runtime (s)</th><th>criteria</th></tr></thead><tbody>\n";
+    int rank = 0;
+    for (const Json* s : sels) {
+      const Json* c = p.cell(*s);
+      h << "<tr><td class=\"n\">" << ++rank << "</td><td><span class=\"sw\" style=\"background:" << p.colour(str((*s)["method"])) << "\"></span>"
+        << escape(str((*s)["method"])) << "</td><td>" << (c ? escape(params_text((*c)["params"])) : "") << ((*s).value("tuned", false) ? " (tuned)" : "")
+        << "</td>";
+      if (!c || c->value("status", "") != "ok") {
+        h << "<td colspan=\"7\" class=\"na\">failed: " << escape(c ? str((*c)["error"]) : "cell missing") << "</td><td class=\"fail\">FAIL</td></tr>\n";
+        continue;
+      }
+      const Json& t = (*c)["test"];
+      h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(t["slices"]["jaccard_mean"]) << " ("
+        << fmt(t["slices"]["jaccard_ci95"][0]) << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ")</td><td class=\"n\">"
+        << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_um"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_95_um"])
+        << "</td><td class=\"n\">" << fmt(t["pores"]["false_calls_per_cm3"]) << "</td><td class=\"n\">" << fmt((*c)["runtime_s"]) << "</td>";
+      if ((*s)["verdicts"].empty()) h << "<td>none set</td>";
+      else {
+        h << "<td class=\"" << ((*s).value("passed", false) ? "pass" : "fail") << "\">" << ((*s).value("passed", false) ? "pass" : "FAIL");
+        for (const auto& v : (*s)["verdicts"])
+          if (!v.value("passed", false)) h << "<br><small>" << escape(str(v["criterion"])) << "</small>";
+        h << "</td>";
+      }
+      h << "</tr>\n";
+    }
+    h << "</tbody></table>\n";
+  }
+  return h.str();
+}
+
+// Each metric against the series axis, one line per method.
+std::string metric_series(Page& p, const Json& d) {
+  const SeriesAxis ax = series_axis(d);
+  if (!ax.usable)
+    return "<p class=\"note\">Fewer than two scans with a known " + ax.label() +
+           ": no series to plot; see the tables above.</p>\n";
+  struct MetricPlot {
+    const char* metric;
+    const char* title;
+    const char* y_label;
+  };
+  const MetricPlot plots[] = {{"jaccard", "Jaccard", "Jaccard"},
+                              {"porosity_bias_pp", "Porosity bias", "bias (pp)"},
+                              {"a90_95_um", "a90/95", "a90/95 (µm)"},
+                              {"false_calls_per_cm3", "False calls", "false calls per cm³"}};
+  auto by_scan = selections_of(p, d["name"]);
+  std::vector<double> ticks;
+  for (const auto& v : d["variants"]) ticks.push_back(ax.by_dose ? num(v["i0"]) : num(v["projections"]));
+  std::ostringstream h;
+  h << "<div class=\"grid\">";
+  for (const auto& mp : plots) {
+    svg::Plot pl(p.next_id("series"), 600, 320, std::string(mp.title) + " vs " + ax.label());
+    pl.x.label = ax.label();
+    pl.x.log = true;
+    pl.x.ticks = ticks;
+    pl.y.label = mp.y_label;
+    pl.y.include_zero = std::string(mp.metric) != "jaccard" && std::string(mp.metric) != "a90_95_um";
+    if (std::string(mp.metric) == "jaccard") pl.y.lo = 0, pl.y.hi = 1;
+    svg::Style ref_style;
+    ref_style.color = "#777777";
+    ref_style.dashed = true;
+    ref_style.width = 1;
+    pl.vline(ax.reference, ref_style, "reference recipe");
+    std::map<std::string, std::vector<std::string>> missing;  // reason -> "method at x"
+    for (const auto& m : method_labels(p)) {
+      std::vector<std::pair<double, double>> pts;
+      for (const auto& scan : dataset_scans(d)) {
+        auto it = by_scan[scan].find(m);
+        if (it == by_scan[scan].end()) continue;
+        const Json* c = p.cell(*it->second);
+        const double xv = ax.of(*it->second);
+        const double yv = c ? suite::metric_value(*c, "test", mp.metric) : NAN;
+        if (!std::isfinite(yv)) {
+          const bool pod_metric = std::string(mp.metric).rfind("a9", 0) == 0;
+          const std::string why = !c ? "cell missing" : c->value("status", "") != "ok" ? "cell failed"
+                                  : pod_metric ? pod_reason(*c, mp.metric) : "not defined";
+          missing[why.empty() ? "not defined" : why].push_back(m + " at " + svg::num(xv));
+        }
+        pts.push_back({xv, yv});
+      }
+      std::sort(pts.begin(), pts.end(), [](auto& a, auto& b) { return a.first < b.first; });
+      std::vector<double> xs, ys;
+      for (auto& q : pts) xs.push_back(q.first), ys.push_back(q.second);
+      svg::Style st;
+      st.color = p.colour(m);
+      st.marker = p.marker(m);
+      pl.line(m, xs, ys, st);
+    }
+    svg::Style crit;
+    crit.color = "#B00000";
+    crit.dashed = true;
+    crit.width = 1.2;
+    for (const auto& c : p.r["criteria"]) {
+      if (c["metric"] != mp.metric) continue;
+      const double v = num(c["value"]);
+      pl.hline(v, crit, "criterion " + str(c["text"]));
+      if (c["op"].get<int>() == 2) pl.hline(-v, crit, "");
+    }
+    for (const auto& [why, list] : missing) pl.note("n/a, not plotted (" + why + "): " + join(list, ", "));
+    h << figure(pl.render());
+  }
+  h << "</div>\n<p class=\"caption\">Selected cell of each method on each scan, test slices. The dashed grey line is the "
+       "reference recipe; red dashed lines are acceptance criteria. A line breaks where a value is not defined.</p>\n";
+  return h.str();
+}
+
+std::string bias_bars(Page& p, const Json& d) {
+  auto by_scan = selections_of(p, d["name"]);
+  const auto scans = dataset_scans(d);
+  std::vector<svg::BarSeries> series;
+  for (const auto& m : method_labels(p)) {
+    svg::BarSeries s{m, p.colour(m), {}};
+    for (const auto& scan : scans) {
+      auto it = by_scan[scan].find(m);
+      const Json* c = it == by_scan[scan].end() ? nullptr : p.cell(*it->second);
+      s.values.push_back(c ? suite::metric_value(*c, "test", "porosity_bias_pp") : NAN);
+    }
+    series.push_back(s);
+  }
+  std::vector<std::pair<double, std::string>> refs;
+  for (const auto& c : p.r["criteria"])
+    if (c["metric"] == "porosity_bias_pp") {
+      refs.push_back({num(c["value"]), "criterion " + str(c["text"])});
+      if (c["op"].get<int>() == 2) refs.push_back({-num(c["value"]), ""});
+    }
+  const double width = std::max(600.0, 110.0 * double(scans.size()) + 120);
+  return figure(svg::bar_chart(p.next_id("bias"), std::min(width, 1180.0), 320, "Porosity bias by scan and method (test slices)",
+                               scans, series, "porosity bias (pp)", refs),
+                "Predicted minus reference porosity in percentage points; n/a marks a failed or undefined cell.");
+}
+
+std::string pod_panel(Page& p, const Json& sel, const Json* c) {
+  const std::string m = str(sel["method"]);
+  svg::Plot pl(p.next_id("pod"), 360, 270, m);
+  pl.x.label = "ESD (µm)";
+  pl.x.log = true;
+  pl.y.label = "POD";
+  pl.y.lo = 0, pl.y.hi = 1;
+  if (!c || c->value("status", "") != "ok") {
+    pl.note("cell failed: " + (c ? str((*c)["error"]) : std::string("missing")));
+    return pl.render();
+  }
+  const Json& pod = (*c)["test"]["pod"];
+  const std::string col = p.colour(m);
+  double lo = INFINITY, hi = 0;
+  std::vector<double> bx, by, blo, bhi;
+  for (const auto& b : pod["bins"]) {
+    if (b.value("n", 0) <= 0) continue;
+    lo = std::min(lo, num(b["lo_um"])), hi = std::max(hi, num(b["hi_um"]));
+    bx.push_back(std::sqrt(num(b["lo_um"]) * num(b["hi_um"])));
+    by.push_back(num(b["pod"]));
+    blo.push_back(num(b["ci95"][0]));
+    bhi.push_back(num(b["ci95"][1]));
+  }
+  const double a90 = num(pod["a90_um"]), a9095 = num(pod["a90_95_um"]);
+  for (double v : {a90, a9095})
+    if (std::isfinite(v) && v > 0) lo = std::min(lo, v), hi = std::max(hi, v);
+  if (!(lo < hi)) {
+    pl.note("no reference pores in the test slices: POD not defined");
+    return pl.render();
+  }
+  pl.x.lo = lo / 1.15, pl.x.hi = hi * 1.15;
+  svg::Style s90;
+  s90.color = "#999999";
+  s90.width = 1;
+  s90.dashed = true;
+  pl.hline(0.9, s90, "POD 0.9", true);
+  const double b0 = num(pod["b0"]), b1 = num(pod["b1"]);
+  const std::string link = str(pod["link"]);
+  if (pod.value("estimable", false) && std::isfinite(b0) && std::isfinite(b1)) {
+    const double c00 = num(pod["covariance"][0][0]), c01 = num(pod["covariance"][0][1]), c11 = num(pod["covariance"][1][1]);
+    std::vector<double> xs, ys, ylo, yhi;
+    const int n = 160;
+    for (int i = 0; i <= n; ++i) {
+      const double a = pl.x.lo * std::pow(pl.x.hi / pl.x.lo, double(i) / n);
+      const PodBandPoint q = pod_band_at(link, b0, b1, c00, c01, c11, a);
+      xs.push_back(a);
+      ys.push_back(q.pod);
+      ylo.push_back(q.lo);
+      yhi.push_back(q.hi);
+    }
+    pl.band("95 % band (delta method, " + link + " scale)", xs, ylo, yhi, col, 0.18);
+    svg::Style cs;
+    cs.color = col;
+    cs.marker = svg::Marker::none;
+    cs.width = 2;
+    pl.line(link + " fit", xs, ys, cs);
+  }
+  pl.error_bars(bx, blo, bhi, "#444444");
+  svg::Style ps;
+  ps.color = "#444444";
+  ps.width = 0;
+  ps.marker = svg::Marker::circle;
+  ps.marker_size = 3.2;
+  pl.line("binned POD, Clopper-Pearson 95 %", bx, by, ps);
+  svg::Style v90 = s90;
+  v90.color = col;
+  svg::Style v95;
+  v95.color = col;
+  v95.width = 1.6;
+  v95.marker = svg::Marker::none;
+  if (std::isfinite(a90)) pl.vline(a90, v90), pl.line("a90", {}, {}, [&] { auto s = v90; s.marker = svg::Marker::none; return s; }());
+  if (std::isfinite(a9095)) pl.vline(a9095, v95), pl.line("a90/95", {}, {}, v95);
+  std::string t = "a90 = " + f3(a90) + " µm, a90/95 = " + f3(a9095) + " µm";
+  if (!pod.value("estimable", false)) t = "no POD fit: " + str(pod["reason"]) + "; a90 and a90/95 n/a";
+  else if (!std::isfinite(a9095) && pod.contains("a90_95_reason")) t += " (" + str(pod["a90_95_reason"]) + ")";
+  t += "; " + str(pod["n_hits"]) + " of " + str(pod["n_targets"]) + " reference pores hit.";
+  pl.note(t);
+  for (const auto& w : pod["warnings"])
+    if (str(w) != str(pod.value("a90_95_reason", Json()))) pl.note("warning: " + str(w));
+  return pl.render();
+}
+
+std::string pod_section(Page& p, const Json& d) {
+  std::ostringstream h;
+  auto by_scan = selections_of(p, d["name"]);
+  for (const auto& scan : dataset_scans(d)) {
+    h << "<h4>POD on " << escape(scan) << "</h4>\n<div class=\"grid\">";
+    for (const auto& m : method_labels(p)) {
+      auto it = by_scan[scan].find(m);
+      if (it == by_scan[scan].end()) continue;
+      h << figure(pod_panel(p, *it->second, p.cell(*it->second)));
+    }
+    h << "</div>\n";
+  }
+  h << "<p class=\"caption\">Hit/miss POD against ESD of the reference pores in the test slices: the maximum-likelihood fit "
+       "(line), its pointwise 95 % band from the fit's covariance by the delta method on the link (logit) scale (shaded), "
+       "the binned empirical POD with Clopper-Pearson 95 % intervals (points and bars), a90 (dashed) and a90/95 (solid; "
+       "one-sided 95 % profile-likelihood bound, which need not coincide with the band's edge).</p>\n";
+  return h.str();
+}
+
+std::string sizes_section(Page& p, const Json& d) {
+  std::ostringstream h;
+  auto by_scan = selections_of(p, d["name"]);
+  const auto scans = dataset_scans(d);
+  h << "<div class=\"grid\">";
+  for (const auto& m : method_labels(p)) {
+    svg::Plot pl(p.next_id("esd"), 360, 270, m);
+    pl.x.label = "ESD (µm)";
+    pl.x.log = true;
+    pl.y.label = "pores per bin";
+    pl.y.log = true;  // false calls of a few voxels would otherwise flatten the reference
+    bool ref_drawn = false;
+    std::vector<std::string> missing;
+    for (size_t k = 0; k < scans.size(); ++k) {
+      auto it = by_scan[scans[k]].find(m);
+      const Json* c = it == by_scan[scans[k]].end() ? nullptr : p.cell(*it->second);
+      if (!c || c->value("status", "") != "ok") {
+        missing.push_back(scans[k]);
+        continue;
+      }
+      const Json& sz = (*c)["test"]["sizes"];
+      std::vector<double> edges, ref, pred;
+      for (const auto& e : sz["edges_um"]) edges.push_back(num(e));
+      for (const auto& e : sz["count_ref"]) ref.push_back(num(e));
+      for (const auto& e : sz["count_pred"]) pred.push_back(num(e));
+      if (edges.size() != pred.size() + 1) {
+        missing.push_back(scans[k]);
+        continue;
+      }
+      if (!ref_drawn) {
+        svg::Style rs;
+        rs.color = "#9a9a9a";
+        rs.opacity = 0.45;
+        pl.steps("reference", edges, ref, rs, true);
+        ref_drawn = true;
+      }
+      svg::Style s;
+      s.color = kScanColours[k % 7];
+      s.width = 1.6;
+      s.dashed = k % 2 == 1;
+      pl.steps(scans[k] + " (KS " + f3(num(sz["ks"])) + ")", edges, pred, s, false);
+    }
+    if (!ref_drawn) pl.note("no size distribution: every cell of this method failed");
+    else if (!missing.empty()) pl.note("not shown (cell failed): " + join(missing, ", "));
+    h << figure(pl.render());
+  }
+  h << "</div>\n<p class=\"caption\">Equivalent spherical diameter ESD = (6V/π)^(1/3) of the predicted pores (lines, one "
+       "per scan) over that of the reference pores (grey), on the shared log-spaced bins of the scoring; test slices. "
+       "KS: Kolmogorov–Smirnov distance.</p>\n";
+  return h.str();
+}
+
+std::string pareto_section(Page& p, const Json& d) {
+  std::ostringstream h;
+  auto by_scan = selections_of(p, d["name"]);
+  h << "<div class=\"grid\">";
+  for (const auto& scan : dataset_scans(d)) {
+    svg::Plot pl(p.next_id("pareto"), 600, 320, "Runtime vs Jaccard: " + scan);
+    pl.x.label = "runtime (s)";
+    pl.x.log = true;
+    pl.y.label = "Jaccard";
+    struct Pt {
+      double t, j;
+      std::string m;
+    };
+    std::vector<Pt> pts;
+    std::vector<std::string> missing;
+    for (const auto& m : method_labels(p)) {
+      auto it = by_scan[scan].find(m);
+      if (it == by_scan[scan].end()) continue;
+      const Json* c = p.cell(*it->second);
+      const double t = c ? suite::metric_value(*c, "test", "runtime_s") : NAN;
+      const double j = c ? suite::metric_value(*c, "test", "jaccard") : NAN;
+      svg::Style st;
+      st.color = p.colour(m);
+      st.marker = p.marker(m);
+      st.width = 0;
+      st.marker_size = 5;
+      pl.line(m, {t}, {j}, st);
+      if (std::isfinite(t) && t > 0 && std::isfinite(j)) pts.push_back({t, j, m});
+      else missing.push_back(m);
+    }
+    // Pareto front for min runtime, max Jaccard: sweep by runtime, keep each point that raises the best Jaccard.
+    std::sort(pts.begin(), pts.end(), [](const Pt& a, const Pt& b) { return a.t < b.t || (a.t == b.t && a.j > b.j); });
+    std::vector<double> fx, fy;
+    double best = -INFINITY;
+    for (const auto& q : pts) {
+      if (q.j <= best) continue;
+      if (!fx.empty()) fx.push_back(q.t), fy.push_back(fy.back());  // staircase: across, then up
+      fx.push_back(q.t), fy.push_back(q.j);
+      best = q.j;
+      pl.text(q.t, q.j, q.m);
+    }
+    svg::Style fs;
+    fs.color = "#000000";
+    fs.width = 1.2;
+    fs.dashed = true;
+    fs.marker = svg::Marker::none;
+    pl.line("Pareto front", fx, fy, fs);
+    if (!missing.empty()) pl.note("n/a, not plotted: " + join(missing, ", "));
+    h << figure(pl.render());
+  }
+  h << "</div>\n<p class=\"caption\">Method runtime (segmentation only, this host) against test Jaccard. The dashed staircase "
+       "joins the Pareto-optimal methods (no other method is both faster and better); they are labelled.</p>\n";
+  return h.str();
+}
+
+std::string montage_section(Page& p, const Json& d, const std::string& out_dir) {
+  std::ostringstream h;
+  auto by_scan = selections_of(p, d["name"]);
+  const fs::path dir(out_dir);
+  fs::create_directories(dir / "montages");
+  h << "<p class=\"legend\">Colour scheme <strong>" << kOverlaySchemeName << "</strong> (Okabe &amp; Ito colour-blind-safe palette):";
+  for (const OverlayColour* c : {&kOverlayFound, &kOverlayExtra, &kOverlayMissed})
+    h << " <span class=\"sw\" style=\"background:" << c->hex << "\"></span>" << escape(c->role) << ";";
+  h << " other voxels: the grey scan slice.</p>\n";
+  for (const auto& v : d["variants"]) {
+    const std::string scan = str(v["scan"]);
+    std::vector<MontageTile> tiles;
+    for (const auto& m : method_labels(p)) {
+      auto it = by_scan[scan].find(m);
+      if (it == by_scan[scan].end()) continue;
+      const Json* c = p.cell(*it->second);
+      MontageTile t;
+      t.label = m;
+      if (c && c->value("status", "") == "ok" && c->contains("montage_slice_png"))
+        t.mask_png = (dir / str((*c)["montage_slice_png"])).string();
+      else
+        t.note = "cell failed";
+      tiles.push_back(t);
+    }
+    const std::string rel = "montages/" + safe_name(str(d["name"])) + "__" + safe_name(scan) + ".png";
+    write_montage((dir / str(v["montage_png"])).string(), (dir / str(d["montage_reference_png"])).string(),
+                  "scan " + scan, tiles, (dir / rel).string());
+    h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)
+      << "\"><figcaption>" << escape(scan) << ", slice z = " << str(d["slices"]["montage_z"])
+      << " (middle of the test slices): scan, reference, then each method's selected cell.</figcaption></figure>\n";
+  }
+  return h.str();
+}
+
+std::string dataset_section(Page& p, const Json& d, int k, const std::string& out_dir) {
+  std::ostringstream h;
+  h << "<section id=\"ds-" << k << "\"><h2>Dataset " << escape(str(d["name"])) << "</h2>\n<p>" << escape(str(d["kind"]))
+    << " dataset; reference: ";
+  if (d["reference"].is_string()) h << escape(str(d["reference"]));
+  else if (d["reference"].contains("mask")) h << "mask " << escape(str(d["reference"]["mask"]));
+  else h << "scan " << escape(str(d["reference"]["scan"])) << " segmented by " << escape(str(d["reference"]["method"]));
+  const Json& sl = d["slices"];
+  h << ". Calibration slices z " << str(sl["calibration"][0]) << "–" << num(sl["calibration"][1]) - 1 << ", gap " << str(sl["gap"])
+    << ", test slices z " << str(sl["test"][0]) << "–" << num(sl["test"][1]) - 1 << ".</p>\n";
+  h << "<h3>Methods ranked by test Jaccard</h3>\n" << summary_tables(p, d);
+  h << "<h3>Metrics across the scan series</h3>\n" << metric_series(p, d);
+  h << "<h3>Porosity bias</h3>\n" << bias_bars(p, d);
+  h << "<h3>Probability of detection</h3>\n" << pod_section(p, d);
+  h << "<h3>Pore-size distributions</h3>\n" << sizes_section(p, d);
+  h << "<h3>Runtime and quality</h3>\n" << pareto_section(p, d);
+  h << "<h3>Slice montages</h3>\n" << montage_section(p, d, out_dir);
+  h << "</section>\n";
+  return h.str();
+}
+
+std::string advice_section(const Page& p) {
+  std::ostringstream h;
+  h << "<section id=\"advice\"><h2>Scan-recipe advice</h2>\n";
+  if (p.r["advice"].empty()) {
+    h << "<p>No projection or dose series with at least two scans besides the reference: no advice.</p></section>\n";
+    return h.str();
+  }
+  h << "<table class=\"data\"><thead><tr><th>dataset</th><th>method</th><th>series</th><th>cheapest scan meeting every "
+       "criterion</th><th>saving vs the reference recipe</th></tr></thead><tbody>\n";
+  for (const auto& a : p.r["advice"]) {
+    h << "<tr><td>" << escape(str(a["dataset"])) << "</td><td>" << escape(str(a["method"])) << "</td><td>" << escape(str(a["axis"]))
+      << "</td>";
+    if (a["scan"].is_null()) {
+      h << "<td class=\"na\">" << escape(str(a["note"])) << "</td><td>n/a</td></tr>\n";
+      continue;
+    }
+    h << "<td>" << escape(str(a["scan"]));
+    if (a.contains("projections")) h << " (" << str(a["projections"]) << " of " << str(a["reference_projections"]) << " projections)";
+    if (a.contains("i0")) h << " (I0 " << f3(num(a["i0"])) << ")";
+    h << "</td><td>";
+    if (a.contains("time_saving_factor")) h << f3(num(a["time_saving_factor"])) << "× scan time";
+    else if (a.contains("dose_saving_factor")) h << f3(num(a["dose_saving_factor"])) << "× dose";
+    else h << "n/a";
+    h << "</td></tr>\n";
+  }
+  h << "</tbody></table>\n<p class=\"caption\">The cheapest scan of the series from which every dearer scan also meets the "
+       "criteria. Scan time is taken to scale with the number of projections (common practice, no source).</p></section>\n";
+  return h.str();
+}
+
+std::string failed_section(const Page& p) {
+  std::ostringstream h;
+  h << "<section id=\"failed\"><h2>Failed cells</h2>\n";
+  int n = 0;
+  std::ostringstream rows;
+  for (const auto& c : p.r["cells"]) {
+    if (c.value("status", "") == "ok") continue;
+    ++n;
+    rows << "<tr><td>" << escape(str(c["id"])) << "</td><td>" << escape(params_text(c["params"], false)) << "</td><td>"
+         << escape(str(c["error"])) << "</td></tr>\n";
+  }
+  if (n == 0) h << "<p>No cell failed (" << p.r["cells"].size() << " cells).</p>";
+  else
+    h << "<p>" << n << " of " << p.r["cells"].size() << " cells failed; the run went on without them.</p><table class=\"data\">"
+      << "<thead><tr><th>cell</th><th>parameters</th><th>error</th></tr></thead><tbody>\n" << rows.str() << "</tbody></table>";
+  h << "</section>\n";
+  return h.str();
+}
+
+const char* const kStyle = R"css(
+body{font-family:"DejaVu Sans",Arial,sans-serif;margin:0 auto;max-width:1240px;padding:12px 20px;color:#222;background:#fff}
+h1{font-size:24px;margin:8px 0}h2{font-size:20px;border-bottom:2px solid #ccc;margin-top:32px}h3{font-size:16px;margin-top:22px}
+h4{font-size:14px;margin:14px 0 6px}
+.lead{font-size:15px;color:#333}
+.caution{border:3px solid #B00000;background:#fff3f0;padding:10px 14px;margin:10px 0;font-size:15px}
+.verdict{padding:8px 14px;margin:8px 0;font-weight:bold}.verdict.pass{background:#e6f4ea;border-left:6px solid #117733}
+.verdict.fail{background:#fdecea;border-left:6px solid #B00000}
+table{border-collapse:collapse;margin:6px 0;font-size:12.5px}th,td{border:1px solid #ccc;padding:3px 7px;text-align:left;vertical-align:top}
+td.n{text-align:right}table.meta th{background:#f4f4f4}thead th{background:#f0f0f0}
+td.pass{color:#0b5d1e;font-weight:bold}td.fail{color:#a00000;font-weight:bold}td.na{color:#666}
+.sw{display:inline-block;width:12px;height:12px;margin:0 5px 0 2px;vertical-align:-1px;border:1px solid #666}
+.grid{display:flex;flex-wrap:wrap;gap:8px}figure{margin:4px}figcaption,.caption{font-size:12px;color:#444;max-width:1200px}
+figure.montage img{max-width:100%;border:1px solid #ccc;image-rendering:pixelated}
+nav{margin:10px 0;font-size:13px}.links{font-size:13px}.note{color:#555}code{background:#f4f4f4;padding:0 3px}
+)css";
+
+}  // namespace
+
+PodBandPoint pod_band_at(const std::string& link, double b0, double b1, double c00, double c01, double c11, double size_um) {
+  // Inverse links: logistic, or the standard normal CDF for probit.
+  auto inv = [&](double eta) { return link == "probit" ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta)); };
+  if (!(size_um > 0)) return {NAN, NAN, NAN};
+  const double la = std::log(size_um), eta = b0 + b1 * la;
+  const double var = c00 + 2 * la * c01 + la * la * c11;
+  const double se = var >= 0 ? std::sqrt(var) : NAN;
+  const double z = 1.959963984540054;  // standard normal 0.975 quantile
+  return {inv(eta), inv(eta - z * se), inv(eta + z * se)};
+}
+
 void write_html_and_montages(const Json& results, const std::string& out_dir) {
-  std::string html = "<!DOCTYPE html><html><head><meta charset=\"utf-8\"><title>porebench report</title></head><body><pre>";
-  for (char c : summary_md(results)) html += c == '<' ? std::string("&lt;") : c == '&' ? std::string("&amp;") : std::string(1, c);
-  html += "</pre></body></html>\n";
-  write_text_atomic((std::filesystem::path(out_dir) / "report.html").string(), html);
+  Page p{results, {}, {}, 0};
+  for (const auto& c : results["cells"]) p.cells[c["id"].get<std::string>()] = &c;
+  for (const auto& m : results["methods"]) p.method_index.emplace(m["label"].get<std::string>(), p.method_index.size());
+  std::ostringstream h;
+  h << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>porebench report: "
+    << escape(str(results["suite"]["name"])) << "</title>\n<style>" << kStyle << "</style></head>\n<body>\n";
+  h << header(p);
+  int k = 0;
+  for (const auto& d : results["datasets"]) h << dataset_section(p, d, k++, out_dir);
+  h << advice_section(p) << failed_section(p);
+  h << "<section id=\"definitions\"><h2>Definitions</h2><p>Jaccard = TP/(TP+FP+FN) over part voxels of the test slices; "
+       "porosity bias = predicted − reference porosity (pp); pores are 3D connected components; a90/95 is the upper one-sided "
+       "95 % bound of the size detected with probability 0.9 (hit/miss POD, MIL-HDBK-1823A); false calls are predicted pores "
+       "matching no reference pore, per cm³ of part. Full definitions, references and sign-off fields: "
+       "<a href=\"validation-record.md\">validation-record.md</a>.</p>\n<p class=\"caption\">Written by porebench "
+    << escape(str(results["context"]["version"])) << " (" << escape(str(results["context"]["git_hash"])) << ") at "
+    << escape(str(results["context"]["time_utc"])) << ".</p></section>\n</body></html>\n";
+  write_text_atomic((fs::path(out_dir) / "report.html").string(), h.str());
 }
 
 }  // namespace pb::report

@@ -1,0 +1,398 @@
+// report.html, its SVG plot writer and the slice montages (issue 6). Checks: XML escaping against
+// the XML 1.0 predefined entities; the SVG parsed by Python's xml.etree.ElementTree; the POD band
+// against statsmodels' GLM prediction intervals; the overlay colours by hand; a real run of a tiny
+// suite rendered by headless Chromium (Debian chromium) without console errors, with a screenshot
+// decoded by OpenCV; results.csv loaded by pandas with the documented columns.
+#include <catch2/catch.hpp>
+#include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <opencv2/imgcodecs.hpp>
+#include <regex>
+#include <set>
+
+#include "report/html.hpp"
+#include "report/montage.hpp"
+#include "report/svg.hpp"
+#include "tests/helpers.hpp"
+
+using namespace pb::report;
+using pbtest::TempDir;
+namespace fs = std::filesystem;
+using OJson = nlohmann::ordered_json;
+
+namespace {
+
+std::string slurp(const std::string& path) {
+  std::ifstream f(path, std::ios::binary);
+  std::stringstream s;
+  s << f.rdbuf();
+  return s.str();
+}
+
+void spit(const std::string& path, const std::string& text) {
+  std::ofstream f(path, std::ios::binary);
+  f << text;
+}
+
+size_t count(const std::string& hay, const std::string& needle) {
+  size_t n = 0;
+  for (size_t p = hay.find(needle); p != std::string::npos; p = hay.find(needle, p + needle.size())) ++n;
+  return n;
+}
+
+// Parses every <svg> of a page with tests/ref/report_xml.py; returns its JSON.
+nlohmann::json check_xml(const std::string& html_path) {
+  const auto r = pbtest::run_ref_script("report_xml.py", html_path);
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  return nlohmann::json::parse(r.out);
+}
+
+const char* const kChromium = "/usr/bin/chromium";
+
+struct BrowserRun {
+  int exit_code = -1;
+  std::string out, err;
+  bool console_message = false;  // any page console line (our pages run no script, so any is an error)
+};
+
+// Headless Chromium on a local file, logging the page console to stderr.
+BrowserRun chromium(const std::string& file, const std::string& mode_args) {
+  TempDir profile;
+  const std::string cmd = std::string("timeout 120 ") + kChromium +
+                          " --headless --no-sandbox --disable-gpu --disable-quic --no-first-run"
+                          " --disable-background-networking --disable-component-update --disable-sync"
+                          " --user-data-dir=" + profile.path.string() + " --enable-logging=stderr --v=0 " + mode_args +
+                          " file://" + fs::absolute(file).string();
+  const auto r = pbtest::run_shell(cmd);
+  BrowserRun b{r.exit_code, r.out, r.err, false};
+  // Console lines look like "[pid:tid:date:INFO:CONSOLE:1] "Uncaught ReferenceError: ...", source: ...".
+  b.console_message = r.err.find(":CONSOLE") != std::string::npos || r.err.find("Uncaught") != std::string::npos;
+  return b;
+}
+
+// The tiny suite: a 48^3 blank at two projection counts plus the reference, two fast methods,
+// one tuned on a grid of two. Runs in a few seconds.
+const char* const kTinySuite = R"toml(
+[suite]
+name = "report-check"
+description = "Report check: a <tiny> gear blank & two methods"
+
+[[dataset]]
+name = "tiny blank"
+kind = "synthetic"
+preset = "demo-small"
+set = { phantom = { dims = [48, 48, 48], voxel_size_um = 20.0 }, scan = { projections = [100, 50], reference_projections = 200 } }
+
+[[method]]
+name = "otsu"
+
+[[method]]
+name = "hysteresis"
+params = { low = [0.02, 0.025], high = 0.035 }
+
+[calibration]
+fraction = 0.4
+gap_slices = 2
+
+[criteria]
+min_jaccard = 0.5
+)toml";
+
+struct TinyRun {
+  TempDir dir;
+  std::string out;
+  int exit_code = -1;
+  std::string log;
+  OJson results;
+};
+
+// One run shared by the test cases below (the suite takes a few seconds), built in place: a
+// TempDir must not be copied (its copy would remove the folder).
+const TinyRun& tiny_run() {
+  static TinyRun r;
+  static const bool done = [] {
+    spit(r.dir / "tiny.toml", kTinySuite);
+    r.out = r.dir / "out";
+    const auto res = pbtest::run_cli("--quiet run " + (r.dir / "tiny.toml") + " -o " + r.out);
+    r.exit_code = res.exit_code;
+    r.log = res.out + res.err;
+    if (fs::exists(r.out + "/results.json")) r.results = OJson::parse(slurp(r.out + "/results.json"));
+    return true;
+  }();
+  (void)done;
+  return r;
+}
+
+}  // namespace
+
+TEST_CASE("svg escape replaces the five XML predefined entities", "[report]") {
+  // XML 1.0 (W3C, 5th ed. 2008) section 4.6: &amp; &lt; &gt; &quot; &apos; (written here as &#39;).
+  CHECK(svg::escape("a<b & \"c\" 'd'>") == "a&lt;b &amp; &quot;c&quot; &#39;d&#39;&gt;");
+  CHECK(svg::escape("µm ≥ 5") == "µm ≥ 5");  // UTF-8 passes through
+  CHECK(svg::escape(std::string("x\x01y")) == "x y");  // control characters are not allowed in XML 1.0
+  CHECK(svg::num(NAN) == "n/a");
+  CHECK(svg::num(INFINITY) == "n/a");
+  CHECK(svg::num(1200) == "1200");
+  CHECK(svg::num(0.25) == "0.25");
+}
+
+TEST_CASE("svg plot draws no made-up point: NaN, Inf and non-positive values on log axes are left out", "[report]") {
+  TempDir d;
+  svg::Plot p("t1", 400, 300, "title with <markup> & \"quotes\"");
+  p.x.label = "projections";
+  p.x.log = true;
+  p.y.label = "Jaccard";
+  svg::Style s;
+  s.marker = svg::Marker::circle;
+  // Valid points: (10, 0.5) and (100, 0.7) only; x = -1 and x = 0 cannot sit on a log axis.
+  p.line("", {-1, 0, 10, 50, 100, 200}, {0.1, 0.2, 0.5, NAN, 0.7, INFINITY}, s);
+  const std::string out = p.render();
+  CHECK(count(out, "<circle") == 2);
+  // The two valid points are apart (NaN at x = 50 between them): two moves, no line segment.
+  std::smatch m;
+  REQUIRE(std::regex_search(out, m, std::regex("<path d=\"([^\"]*)\" fill=\"none\" stroke=\"#333333\"")));
+  CHECK(count(m[1].str(), "M") == 2);
+  CHECK(count(m[1].str(), "L") == 0);
+  CHECK(out.find("title with &lt;markup&gt; &amp; &quot;quotes&quot;") != std::string::npos);
+  spit(d / "p.html", "<html><body>" + out + "</body></html>");
+  const auto x = check_xml(d / "p.html");
+  CHECK(x["svg_count"] == 1);
+  CHECK(x["svg_ok"] == 1);
+}
+
+TEST_CASE("svg log axis puts each decade at the same distance", "[report]") {
+  // On a log axis the positions of 1, 10 and 100 are equally spaced (definition of a log scale).
+  svg::Plot p("t2", 500, 300);
+  p.x.log = true;
+  p.x.lo = 0.5, p.x.hi = 400;
+  svg::Style s;
+  s.width = 0;
+  p.line("", {1, 10, 100}, {1, 2, 3}, s);
+  const std::string out = p.render();
+  std::vector<double> cx;
+  const std::regex re("<circle cx=\"([0-9.]+)\"");
+  for (auto it = std::sregex_iterator(out.begin(), out.end(), re); it != std::sregex_iterator(); ++it) cx.push_back(std::stod((*it)[1]));
+  REQUIRE(cx.size() == 3);
+  CHECK(cx[1] - cx[0] == Approx(cx[2] - cx[1]).margin(0.02));
+  CHECK(cx[1] > cx[0]);
+}
+
+TEST_CASE("svg bar chart marks a missing value n/a instead of drawing a bar", "[report]") {
+  TempDir d;
+  const std::string out = svg::bar_chart("b", 500, 300, "bias", {"scan-a", "scan-b"},
+                                         {{"otsu", "#332288", {0.5, NAN}}, {"m&m", "#CC6677", {-0.25, 1.0}}},
+                                         "porosity bias (pp)", {{0.3, "criterion |bias| <= 0.3"}, {-0.3, ""}});
+  CHECK(out.find(">n/a<title>otsu, scan-b: n/a porosity bias (pp)</title>") != std::string::npos);
+  CHECK(count(out, "<title>") == 1 + 4);  // the chart's title and one per bar, drawn or n/a
+  CHECK(out.find("m&amp;m") != std::string::npos);
+  spit(d / "b.html", "<html><body>" + out + "</body></html>");
+  CHECK(check_xml(d / "b.html")["svg_ok"] == 1);
+}
+
+TEST_CASE("POD band equals statsmodels' GLM prediction interval on the link scale", "[report]") {
+  const std::string link = GENERATE(as<std::string>{}, "logit", "probit");
+  TempDir d;
+  // Invented hit/miss data with overlap of hits and misses (so that the fit exists).
+  spit(d / "hm.csv", "size_um,hit\n10,0\n12,0\n14,1\n16,0\n18,0\n20,1\n22,0\n25,1\n28,1\n30,0\n34,1\n38,1\n42,1\n50,1\n60,1\n");
+  const auto r = pbtest::run_ref_script("report_pod_band.py", d / "hm.csv" + " " + link + " 8 15 25 40 80");
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  const auto j = nlohmann::json::parse(r.out);
+  // statsmodels' fit is used as given: only the band formula is under test here.
+  const double b0 = j["b0"], b1 = j["b1"], c00 = j["cov"][0][0], c01 = j["cov"][0][1], c11 = j["cov"][1][1];
+  for (const auto& pt : j["points"]) {
+    const PodBandPoint q = pod_band_at(link, b0, b1, c00, c01, c11, pt[0].get<double>());
+    INFO("size " << pt[0]);
+    CHECK(q.pod == Approx(pt[1].get<double>()).epsilon(1e-9));
+    CHECK(q.lo == Approx(pt[2].get<double>()).epsilon(1e-7));
+    CHECK(q.hi == Approx(pt[3].get<double>()).epsilon(1e-7));
+    CHECK(q.lo <= q.pod);
+    CHECK(q.pod <= q.hi);
+  }
+  // Undefined input gives an undefined band, not a number.
+  CHECK(std::isnan(pod_band_at(link, b0, b1, c00, c01, c11, 0).pod));
+  CHECK(std::isnan(pod_band_at(link, b0, b1, -1, 0, 0, 1).lo));  // negative variance
+}
+
+TEST_CASE("overlay colours mark found, extra and missed voxels over the grey slice", "[report]") {
+  // Okabe & Ito (2008) "Color Universal Design" palette, RGB (from memory): sky blue 86,180,233;
+  // vermillion 213,94,0; yellow 240,228,66.
+  CHECK(std::string(kOverlayFound.hex) == "#56B4E9");
+  CHECK(std::string(kOverlayExtra.hex) == "#D55E00");
+  CHECK(std::string(kOverlayMissed.hex) == "#F0E442");
+  // 2x2 by hand: (0,0) in both masks, (1,0) prediction only, (0,1) reference only, (1,1) neither.
+  const cv::Mat grey = (cv::Mat_<uint8_t>(2, 2) << 10, 20, 30, 40);
+  const cv::Mat ref = (cv::Mat_<uint8_t>(2, 2) << 255, 0, 255, 0);
+  const cv::Mat pred = (cv::Mat_<uint8_t>(2, 2) << 255, 255, 0, 0);
+  const cv::Mat o = overlay_slice(grey, ref, pred);
+  REQUIRE(o.type() == CV_8UC3);
+  CHECK(o.at<cv::Vec3b>(0, 0) == cv::Vec3b(233, 180, 86));  // BGR of sky blue: found
+  CHECK(o.at<cv::Vec3b>(0, 1) == cv::Vec3b(0, 94, 213));    // vermillion: extra
+  CHECK(o.at<cv::Vec3b>(1, 0) == cv::Vec3b(66, 228, 240));  // yellow: missed
+  CHECK(o.at<cv::Vec3b>(1, 1) == cv::Vec3b(40, 40, 40));    // grey scan value kept
+}
+
+// The cases below share one run of the tiny suite: sections of one test case run in one process
+// (ctest starts a process per test case).
+TEST_CASE("a suite run writes report.html, montages and results.csv that outside tools accept", "[report][cli]") {
+  const TinyRun& r = tiny_run();
+  INFO(r.log);
+  REQUIRE((r.exit_code == 0 || r.exit_code == 1));
+  REQUIRE(!r.results.is_null());
+
+  SECTION("a suite run writes report.html with well-formed SVG, montages and links that exist") {
+    const std::string html = slurp(r.out + "/report.html");
+    REQUIRE(!html.empty());
+    // Self-contained: no script, nothing fetched from the network.
+    CHECK(html.find("<script") == std::string::npos);
+    CHECK(!std::regex_search(html, std::regex("(src|href)=\"(https?:)?//")));
+    // Header: suite, tool version and git hash, time, the caution.
+    CHECK(html.find("report-check") != std::string::npos);
+    CHECK(html.find("a &lt;tiny&gt; gear blank &amp; two methods") != std::string::npos);
+    CHECK(html.find(r.results["context"]["git_hash"].get<std::string>()) != std::string::npos);
+    CHECK(html.find(r.results["context"]["time_utc"].get<std::string>()) != std::string::npos);
+    CHECK(html.find(kCaution) != std::string::npos);
+    CHECK(html.find("porebench overlay") != std::string::npos);
+    const auto x = check_xml(r.out + "/report.html");
+    // Per dataset: 4 metric-series panels, 1 bar chart, POD 3 scans x 2 methods, ESD 2 methods,
+    // runtime vs Jaccard 3 scans: 4 + 1 + 6 + 2 + 3 = 16 figures (the layout of html.cpp, by hand).
+    CHECK(x["svg_count"] == 16);
+    CHECK(x["svg_ok"] == 16);
+    // Every image and file link exists; one montage per dataset and scan, decoding as a colour PNG.
+    std::set<std::string> imgs;
+    for (const auto& src : x["img_src"]) {
+      const std::string p = r.out + "/" + src.get<std::string>();
+      INFO(p);
+      CHECK(fs::exists(p));
+      const cv::Mat m = cv::imread(p, cv::IMREAD_UNCHANGED);
+      CHECK(!m.empty());
+      CHECK(m.channels() == 3);
+      imgs.insert(src.get<std::string>());
+    }
+    CHECK(imgs == std::set<std::string>{"montages/tiny_blank__reference-scan.png", "montages/tiny_blank__scan-100p.png",
+                                        "montages/tiny_blank__scan-50p.png"});
+    for (const auto& href : x["a_href"]) {
+      const std::string h = href.get<std::string>();
+      if (h[0] == '#') CHECK(html.find("id=\"" + h.substr(1) + "\"") != std::string::npos);
+      else CHECK(fs::exists(r.out + "/" + h));
+    }
+    // Honest with undefined values: each undefined a90/95 of a selected cell shows as n/a in a table.
+    int undefined = 0;
+    std::map<std::string, const OJson*> cells;
+    for (const auto& c : r.results["cells"]) cells[c["id"]] = &c;
+    for (const auto& s : r.results["selections"]) undefined += (*cells[s["chosen_cell"]])["test"]["pod"]["a90_95_um"].is_null();
+    CHECK(int(count(html, "<td class=\"n\">n/a</td>")) >= undefined);
+  }
+
+  SECTION("montage tiles show the overlay colours where the reference has pores") {
+    const auto& d = r.results["datasets"][0];
+    const cv::Mat ref = cv::imread(r.out + "/" + d["montage_reference_png"].get<std::string>(), cv::IMREAD_GRAYSCALE);
+    REQUIRE(!ref.empty());
+    const cv::Mat m = cv::imread(r.out + "/montages/tiny_blank__reference-scan.png", cv::IMREAD_COLOR);
+    REQUIRE(!m.empty());
+    int found_or_missed = 0, white = 0;
+    for (int y = 0; y < m.rows; ++y)
+      for (int x = 0; x < m.cols; ++x) {
+        const cv::Vec3b v = m.at<cv::Vec3b>(y, x);
+        found_or_missed += v == cv::Vec3b(kOverlayFound.b, kOverlayFound.g, kOverlayFound.r) ||
+                           v == cv::Vec3b(kOverlayMissed.b, kOverlayMissed.g, kOverlayMissed.r);
+        white += v == cv::Vec3b(255, 255, 255);
+      }
+    CHECK(white > 0);  // gaps between tiles
+    // Every reference pore voxel is either found or missed in each method tile.
+    if (cv::countNonZero(ref) > 0) CHECK(found_or_missed >= 2 * cv::countNonZero(ref));
+    else WARN("the montage slice holds no reference pore: colour presence not checked");
+  }
+
+  SECTION("report.html opens in headless Chromium without console errors; screenshot taken") {
+    if (!fs::exists(kChromium)) {
+      WARN("/usr/bin/chromium is absent (scripts/setup.sh --tests installs it): browser check skipped");
+      return;
+    }
+    // The detector itself: a page with a failing script must be caught.
+    TempDir d;
+    spit(d / "bad.html", "<!DOCTYPE html><html><body><p>x</p><script>undefined_function_here();</script></body></html>");
+    const BrowserRun bad = chromium(d / "bad.html", "--dump-dom");
+    INFO(bad.err);
+    REQUIRE(bad.exit_code == 0);
+    CHECK(bad.console_message);
+
+    REQUIRE(fs::exists(r.out + "/report.html"));
+    const std::string shot = d / "shot.png";
+    const BrowserRun b = chromium(r.out + "/report.html", "--screenshot=" + shot + " --window-size=1280,2000");
+    INFO(b.err);
+    CHECK(b.exit_code == 0);
+    CHECK(!b.console_message);
+    REQUIRE(fs::exists(shot));
+    CHECK(fs::file_size(shot) > 0);
+    const cv::Mat img = cv::imread(shot, cv::IMREAD_COLOR);
+    REQUIRE(!img.empty());
+    CHECK(img.cols == 1280);
+    CHECK(img.rows == 2000);
+    cv::Scalar mean, sd;
+    cv::meanStdDev(img, mean, sd);
+    CHECK(sd[0] > 10);  // not a blank page
+
+    // The DOM Chromium built holds the page's figures.
+    const BrowserRun dom = chromium(r.out + "/report.html", "--dump-dom");
+    CHECK(!dom.console_message);
+    CHECK(count(dom.out, "<svg") == 16);
+    CHECK(dom.out.find("Caution.") != std::string::npos);
+  }
+
+  SECTION("results.csv loads in pandas with the documented columns and the JSON's values") {
+    const auto p = pbtest::run_ref_script("report_csv.py", r.out + "/results.csv \"" + kCsvColumns + "\"");
+    INFO(p.out << p.err);
+    REQUIRE(p.exit_code == 0);
+    const auto j = nlohmann::json::parse(p.out);
+    CHECK(j["columns_match"] == true);
+    CHECK(j["value_dtype"] == "float64");  // empty values read as NaN, numbers as numbers
+    // 3 scans x (1 + 2) grid points = 9 cells.
+    REQUIRE(r.results["cells"].size() == 9);
+    for (const auto& c : r.results["cells"]) {
+      const std::string key = c["dataset"].get<std::string>() + "/" + c["scan"].get<std::string>() + "/" +
+                              c["method"].get<std::string>() + "/" + std::to_string(c["grid_index"].get<int>());
+      INFO(key);
+      REQUIRE(j["test_jaccard"].contains(key));
+      const auto& want = c["test"]["overlap"]["jaccard"];
+      if (want.is_null()) CHECK(j["test_jaccard"][key].is_null());
+      else CHECK(j["test_jaccard"][key].get<double>() == Approx(want.get<double>()).epsilon(1e-8));
+    }
+  }
+
+  SECTION("a failed cell is listed with its error and drawn as n/a, never as a point") {
+    // Re-render a copy of the run in which the chosen otsu cell of scan-50p failed.
+    TempDir d;
+    fs::copy(r.out, d.path / "run", fs::copy_options::recursive);
+    const std::string out = (d.path / "run").string();
+    OJson res = r.results;
+    std::string failed_id;
+    for (auto& c : res["cells"])
+      if (c["scan"] == "scan-50p" && c["method"] == "otsu") {
+        failed_id = c["id"];
+        c["status"] = "failed";
+        c["error"] = "invented failure <for the test>";
+        c.erase("test");
+        c.erase("calibration");
+        c.erase("montage_slice_png");
+      }
+    REQUIRE(!failed_id.empty());
+    write_documents(res, out);
+    const std::string html = slurp(out + "/report.html");
+    CHECK(html.find("invented failure &lt;for the test&gt;") != std::string::npos);
+    CHECK(html.find("1 of 9 cells failed") != std::string::npos);
+    CHECK(html.find(svg::escape(failed_id)) != std::string::npos);
+    CHECK(check_xml(out + "/report.html")["svg_ok"] == 16);
+    // The runtime-vs-Jaccard panel of scan-50p has one method point fewer than that of scan-100p.
+    const auto panel = [&](const std::string& scan) {
+      const size_t a = html.find("Runtime vs Jaccard: " + scan);
+      return html.substr(a, html.find("</svg>", a) - a);
+    };
+    CHECK(panel("scan-50p").find("n/a, not plotted: otsu") != std::string::npos);
+    CHECK(count(panel("scan-50p"), "<title>otsu: ") == 0);
+    CHECK(count(panel("scan-100p"), "<title>otsu: ") == 1);
+    REQUIRE(!cv::imread(out + "/montages/tiny_blank__scan-50p.png").empty());
+  }
+}
