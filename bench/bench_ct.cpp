@@ -79,8 +79,8 @@ void BM_SimulatedSliceDemoSmall(benchmark::State& state) {
   r.pores.clear();
   const Phantom ph = build_phantom(r);
   for (auto _ : state) {
-    auto v = simulate_scans(ph, r, 400, {r.i0[0]});
-    benchmark::DoNotOptimize(v[0].data());
+    auto v = simulate_scan(ph, r, {400, r.i0[0]});
+    benchmark::DoNotOptimize(v.data());
   }
   state.counters["slices_per_s"] = benchmark::Counter(8.0, benchmark::Counter::kIsIterationInvariantRate);
 }

@@ -234,10 +234,20 @@ Sinogram slice_transmission(const Phantom& ph, const Recipe& r, const ParallelGe
   return out;
 }
 
-std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, int projections, const std::vector<double>& i0s) {
+VolumeF simulate_scan(const Phantom& ph, const Recipe& r, const ScanSpec& spec) {
+  return std::move(simulate_scans(ph, r, {spec})[0]);
+}
+
+std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, const std::vector<ScanSpec>& specs) {
+  if (specs.empty()) return {};
+  const int projections = specs[0].projections;
   if (projections < 1) throw InputError("scan: projections = " + std::to_string(projections) + " must be >= 1");
-  for (double d : i0s)
-    if (!(d > 0)) throw InputError("scan: i0 must be > 0");
+  std::vector<double> i0s;
+  for (const ScanSpec& sp : specs) {
+    if (sp.projections != projections) throw InputError("scan: simulate_scans wants one projection count");
+    if (!(sp.i0 > 0)) throw InputError("scan: i0 = " + std::to_string(sp.i0) + " must be > 0");
+    i0s.push_back(sp.i0);
+  }
   const ParallelGeometry g = scan_geometry(r, projections);
   const Geometry& vg = ph.grid;
   std::vector<VolumeF> out;
@@ -257,7 +267,8 @@ std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, int proj
         uint64_t bits;
         std::memcpy(&bits, &i0, sizeof bits);
         // One noise stream per (seed, projections, dose, slice).
-        Rng rng(mix_seed(mix_seed(mix_seed(r.seed ^ 0x5ca11ab1eULL, uint64_t(projections)), bits), uint64_t(z)));
+        const uint64_t scan_key = mix_seed(mix_seed(r.seed ^ 0x5ca11ab1eULL, uint64_t(projections)), bits);
+        Rng rng(mix_seed(specs[d].reference ? mix_seed(scan_key, 1) : scan_key, uint64_t(z)));
         for (size_t k = 0; k < T.data.size(); ++k) {
           const double t = T.data[k];
           if (!r.noise) {

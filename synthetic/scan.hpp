@@ -39,9 +39,12 @@ Sinogram phantom_sinogram(const Phantom& ph, double z_mm, const ParallelGeometry
 // angular blur, then blurred by the detector PSF).
 Sinogram slice_transmission(const Phantom& ph, const Recipe& r, const ParallelGeometry& g, int64_t z);
 
-// Scans of one projection count at each dose in i0s, reconstructed (mu in 1/mm). Parallel over
-// slices, each slice with its own noise stream: identical for any thread count, and a scan does
-// not depend on which other scans are asked for.
-std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, int projections, const std::vector<double>& i0s);
+// Scans that share one projection count (at several doses, and the reference), reconstructed
+// (mu in 1/mm). Parallel over slices, each slice with its own noise stream keyed by (seed,
+// projections, i0, reference, slice): identical for any thread count, and a scan does not depend
+// on which other scans are asked for.
+std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, const std::vector<ScanSpec>& same_count);
+// Convenience: one scan.
+VolumeF simulate_scan(const Phantom& ph, const Recipe& r, const ScanSpec& spec);
 
 }  // namespace pb::synth

@@ -36,10 +36,10 @@ SynthResult synthesize(const Recipe& r, const std::function<void(const std::stri
   for (size_t i = 0; i < specs.size(); ++i) by_count[specs[i].projections].push_back(i);
   out.scans.resize(specs.size());
   for (auto& [n, idx] : by_count) {
-    std::vector<double> doses;
-    for (size_t i : idx) doses.push_back(specs[i].i0);
+    std::vector<ScanSpec> group;
+    for (size_t i : idx) group.push_back(specs[i]);
     say(progress, "scan: " + std::to_string(n) + " projections");
-    auto vols = simulate_scans(out.phantom, r, n, doses);
+    auto vols = simulate_scans(out.phantom, r, group);
     for (size_t j = 0; j < idx.size(); ++j) out.scans[idx[j]] = {specs[idx[j]], std::move(vols[j])};
   }
   return out;
@@ -109,10 +109,10 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
   // Largest count first: the reference scan is usually the slowest and the most wanted.
   for (auto it = by_count.rbegin(); it != by_count.rend(); ++it) {
     const int n = it->first;
-    std::vector<double> doses;
-    for (size_t i : it->second) doses.push_back(specs[i].i0);
+    std::vector<ScanSpec> group;
+    for (size_t i : it->second) group.push_back(specs[i]);
     t0 = std::chrono::steady_clock::now();
-    auto vols = simulate_scans(ph, r, n, doses);
+    auto vols = simulate_scans(ph, r, group);
     for (size_t j = 0; j < it->second.size(); ++j) {
       const ScanSpec& sp = specs[it->second[j]];
       const std::string name = sp.file_name(dose_series);
@@ -122,7 +122,7 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
       if (r.output_type == "uint16") extra["uint16_full_scale_mu_per_mm"] = uint16_full_scale(r);
       record(name, sp.reference ? "reference-scan" : "scan", extra);
     }
-    say(opt.progress, "scan: " + std::to_string(n) + " projections x " + std::to_string(doses.size()) + " dose(s), " +
+    say(opt.progress, "scan: " + std::to_string(n) + " projections x " + std::to_string(group.size()) + " scan(s), " +
                           std::to_string(seconds_since(t0)) + " s");
   }
 

@@ -242,8 +242,10 @@ TEST_CASE("noise: reconstructed variance scales as 1/I0 and falls with the numbe
   auto noise_var = [&](int n_proj, const std::vector<double>& i0s) {
     Recipe clean = r;
     clean.noise = false;
-    const VolumeF ref = simulate_scans(ph, clean, n_proj, {1.0})[0];
-    const auto vols = simulate_scans(ph, r, n_proj, i0s);
+    const VolumeF ref = simulate_scan(ph, clean, {n_proj, 1.0});
+    std::vector<ScanSpec> specs;
+    for (double i0 : i0s) specs.push_back({n_proj, i0});
+    const auto vols = simulate_scans(ph, r, specs);
     std::vector<double> out;
     for (const VolumeF& v : vols) {
       double s = 0, s2 = 0;
@@ -301,4 +303,77 @@ TEST_CASE("angular sampling: streaks vanish once N exceeds about pi/2 x detector
   CHECK(beyond > 0);  // always falling ...
   CHECK(approach > 1.2 * below);   // ... but steepest on the approach to Nc
   CHECK(approach > 1.2 * beyond);
+}
+
+TEST_CASE("detector blur: a Gaussian PSF gives the 10-90 % edge rise of 2.563 sigma and keeps the flux", "[synth][ct]") {
+  // Property of the normal distribution: an ideal step blurred by a Gaussian of sigma rises from
+  // 10 % to 90 % over 2 x 1.2816 sigma. Edge: the side of a box part seen at theta = 0.
+  Recipe r = disc_recipe(64);
+  r.shapes[0].kind = "box";
+  r.shapes[0].size_mm = {0.30, 0.30, 0.06};
+  r.mu_per_mm = 1.0;
+  const Phantom ph = build_phantom(r);
+  const ParallelGeometry g = scan_geometry(r, 4);
+  const Sinogram sharp = slice_transmission(ph, r, g, 5);
+  r.detector_blur_um = 30;  // sigma = 3 bins
+  const Sinogram blurred = slice_transmission(ph, r, g, 5);
+  const float* row = blurred.row(0);
+  const double inside = 1 - std::exp(-0.30);
+  auto crossing = [&](double level) -> double {  // right-hand edge, where (1 - T) / inside falls through level
+    for (int k = g.bins / 2; k + 1 < g.bins; ++k) {
+      const double a = (1 - row[k]) / inside, b = (1 - row[k + 1]) / inside;
+      if (a >= level && b < level) return g.bin_t_mm(k + (a - level) / (a - b));
+    }
+    return NAN;
+  };
+  const double rise_mm = crossing(0.1) - crossing(0.9);
+  CHECK(rise_mm == Approx(2 * 1.2816 * 0.030).epsilon(0.05));
+  double flux_sharp = 0, flux_blur = 0;
+  for (int k = 0; k < g.bins; ++k) flux_sharp += 1 - sharp.row(0)[k], flux_blur += 1 - row[k];
+  CHECK(flux_blur == Approx(flux_sharp).epsilon(1e-6));
+}
+
+TEST_CASE("angular blur smears a marker moving across the rays and not one moving along them", "[synth][ct]") {
+  // Continuous rotation: a point at (0.2 mm, 0) projects to t = 0.2 cos(theta); over the sub-angles
+  // delta_a of one step its shadow moves by 0.2 sin(theta) delta_a (geometry), so the shadow's
+  // variance grows by the variance of those shifts at theta = 90 degrees and not at theta = 0.
+  // Weak attenuation: the smear keeps the flux.
+  Recipe r = disc_recipe(64);
+  r.shapes[0].radius_mm = 0.03;
+  r.shapes[0].centre_mm = {0, 0.2, 0};  // the part's shadow stays clear of the marker's at 0 and 90 degrees
+  r.mu_per_mm = 0.5;
+  Marker m;
+  m.centre_mm = {0.2, 0, 0};
+  m.radius_mm = 0.03;
+  m.mu_per_mm = 0.5;
+  r.markers = {m};
+  r.detector_subsamples = 4;  // area integration over the bin, so that flux sums are not aliased
+  const Phantom ph = build_phantom(r);
+  const ParallelGeometry g = scan_geometry(r, 20);  // 9 degree steps
+  const Sinogram still = slice_transmission(ph, r, g, 5);
+  r.angular_blur = 1.0;
+  const Sinogram moving = slice_transmission(ph, r, g, 5);
+  struct Shadow {
+    double flux = 0, mean = 0, var = 0;
+  };
+  auto shadow_of = [&](const Sinogram& s, int angle) {
+    Shadow out;
+    const double t_marker = 0.2 * std::cos(g.angle_rad(angle));
+    double s1 = 0, s2 = 0;
+    for (int k = 0; k < g.bins; ++k)
+      if (std::abs(g.bin_t_mm(k) - t_marker) < 0.08) {
+        const double w = 1.0 - s.row(angle)[k], t = g.bin_t_mm(k);
+        out.flux += w, s1 += w * t, s2 += w * t * t;
+      }
+    out.mean = s1 / out.flux;
+    out.var = s2 / out.flux - out.mean * out.mean;
+    return out;
+  };
+  // The four sub-angles sit at (a + 0.5)/4 - 0.5 of a step: shifts of 0.2 mm x step x (+-1/8, +-3/8).
+  const double step = M_PI / 20, shift_var = std::pow(0.2 * step, 2) * (1.0 / 64 + 9.0 / 64) / 2;
+  const Shadow s90 = shadow_of(still, 10), m90 = shadow_of(moving, 10);
+  CHECK(m90.var - s90.var == Approx(shift_var).epsilon(0.1));
+  CHECK(m90.flux == Approx(s90.flux).epsilon(0.01));
+  const Shadow s0 = shadow_of(still, 0), m0 = shadow_of(moving, 0);
+  CHECK(std::abs(m0.var - s0.var) < 0.05 * shift_var);
 }
