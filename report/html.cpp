@@ -77,12 +77,18 @@ struct Page {
 };
 
 // The series axis of a dataset: projections, or dose at fixed projections (as scan_recipe_advice).
+// A scan belongs on the axis when its other setting is the series' one: a reference scan taken
+// with more projections is not a point of a dose series (it would sit above a series point).
 struct SeriesAxis {
   bool by_dose = false;
-  bool usable = false;  // at least two scans with a positive axis value
-  double reference = NAN;
+  bool usable = false;  // at least two scans on the axis
+  double reference = NAN, fixed = NAN;  // the reference recipe's axis value; the series' other setting
   std::string label() const { return by_dose ? "dose I0 (photons per detector pixel)" : "projections"; }
   double of(const Json& s) const { return by_dose ? num(s["i0"]) : num(s["projections"]); }
+  bool on_axis(const Json& s) const {
+    const double x = of(s), other = by_dose ? num(s["projections"]) : num(s["i0"]);
+    return std::isfinite(x) && x > 0 && (!std::isfinite(fixed) || other == fixed);
+  }
 };
 
 SeriesAxis series_axis(const Json& d) {
@@ -94,10 +100,11 @@ SeriesAxis series_axis(const Json& d) {
     dose.insert(num(v["i0"]));
   }
   a.by_dose = proj.size() == 1 && dose.size() > 1;
+  if (a.by_dose) a.fixed = *proj.begin();
+  else if (dose.size() == 1) a.fixed = *dose.begin();
   for (const auto& v : d["variants"]) {
-    const double x = a.by_dose ? num(v["i0"]) : num(v["projections"]);
-    if (std::isfinite(x) && x > 0) all.insert(x);
-    if (v.value("reference", false)) a.reference = x;
+    if (v.value("reference", false)) a.reference = a.of(v);
+    if (a.on_axis(v)) all.insert(a.of(v));
   }
   if (!d["variants"].empty()) {
     const Json& v0 = d["variants"][0];
@@ -150,9 +157,10 @@ std::string header(const Page& p) {
   if (!str(r["suite"]["description"]).empty()) h << "<p class=\"lead\">" << escape(str(r["suite"]["description"])) << "</p>\n";
   h << "<div class=\"caution\" role=\"note\"><strong>Caution.</strong> " << escape(kCaution) << "</div>\n";
   const bool met = r.value("criteria_met", false);
-  h << "<div class=\"verdict " << (met ? "pass" : "fail") << "\">" << (met ? "Every declared acceptance criterion is met." : "At least one declared acceptance criterion is NOT met.");
-  if (r["criteria"].empty()) h << " (No criteria declared.)";
+  h << "<div class=\"verdict " << (met ? "pass" : "fail") << "\">";
+  if (r["criteria"].empty()) h << "No acceptance criteria declared: nothing is judged pass or fail.";
   else {
+    h << (met ? "Every declared acceptance criterion is met." : "At least one declared acceptance criterion is NOT met.");
     h << " Criteria (on the held-out test slices):";
     for (const auto& c : r["criteria"]) h << " <code>" << escape(str(c["text"])) << "</code>";
   }
@@ -227,8 +235,8 @@ std::string summary_tables(Page& p, const Json& d) {
 std::string metric_series(Page& p, const Json& d) {
   const SeriesAxis ax = series_axis(d);
   if (!ax.usable)
-    return "<p class=\"note\">Fewer than two scans with a known " + ax.label() +
-           ": no series to plot; see the tables above.</p>\n";
+    return "<p class=\"note\">No series: fewer than two scans of this dataset differ only in " + ax.label() +
+           ". See the tables above.</p>\n";
   struct MetricPlot {
     const char* metric;
     const char* title;
@@ -240,7 +248,11 @@ std::string metric_series(Page& p, const Json& d) {
                               {"false_calls_per_cm3", "False calls", "false calls per cm³"}};
   auto by_scan = selections_of(p, d["name"]);
   std::vector<double> ticks;
-  for (const auto& v : d["variants"]) ticks.push_back(ax.by_dose ? num(v["i0"]) : num(v["projections"]));
+  std::vector<std::string> off_axis;
+  for (const auto& v : d["variants"]) {
+    if (ax.on_axis(v)) ticks.push_back(ax.of(v));
+    else off_axis.push_back(str(v["scan"]) + " (" + str(v["projections"]) + " projections, I0 " + svg::num(num(v["i0"])) + ")");
+  }
   std::ostringstream h;
   h << "<div class=\"grid\">";
   for (const auto& mp : plots) {
@@ -255,13 +267,14 @@ std::string metric_series(Page& p, const Json& d) {
     ref_style.color = "#777777";
     ref_style.dashed = true;
     ref_style.width = 1;
-    pl.vline(ax.reference, ref_style, "reference recipe");
+    pl.vline(ax.reference, ref_style, ax.by_dose ? "reference dose" : "reference recipe");
+    if (!off_axis.empty()) pl.note("not on this axis, see the tables: " + join(off_axis, ", "));
     std::map<std::string, std::vector<std::string>> missing;  // reason -> "method at x"
     for (const auto& m : method_labels(p)) {
       std::vector<std::pair<double, double>> pts;
       for (const auto& scan : dataset_scans(d)) {
         auto it = by_scan[scan].find(m);
-        if (it == by_scan[scan].end()) continue;
+        if (it == by_scan[scan].end() || !ax.on_axis(*it->second)) continue;
         const Json* c = p.cell(*it->second);
         const double xv = ax.of(*it->second);
         const double yv = c ? suite::metric_value(*c, "test", mp.metric) : NAN;

@@ -29,8 +29,11 @@ std::string escape(const std::string& s) {
 std::string num(double v, int digits) {
   if (!std::isfinite(v)) return "n/a";
   if (v == 0) return "0";
+  // Whole numbers below a million keep all their digits ("50000", not "5e+04").
+  const double a = std::abs(v);
+  const int int_digits = a >= 1 && a < 1e6 ? int(std::floor(std::log10(a))) + 1 : 0;
   char b[48];
-  std::snprintf(b, sizeof(b), "%.*g", digits, v);
+  std::snprintf(b, sizeof(b), "%.*g", std::max(digits, int_digits), v);
   return b;
 }
 
@@ -132,6 +135,13 @@ Scale make_scale(const Axis& a, std::vector<double> vals) {
         if (v >= s.lo * (1 - 1e-9) && v <= s.hi * (1 + 1e-9)) s.ticks.push_back(v);
       }
     if (s.ticks.size() >= 3) break;
+  }
+  if (s.ticks.size() < 2) {  // less than a factor of two in range: linear steps between the ends
+    const double step = nice_step((s.hi - s.lo) / 4);
+    s.ticks.clear();
+    for (double v = std::ceil(s.lo / step - 1e-9) * step; v <= s.hi * (1 + 1e-9); v += step) s.ticks.push_back(v);
+    s.labelled.assign(s.ticks.size(), true);
+    return s;
   }
   while (set == 0 && s.ticks.size() > 10) {  // many decades: every other one
     std::vector<double> t;

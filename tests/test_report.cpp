@@ -136,6 +136,8 @@ TEST_CASE("svg escape replaces the five XML predefined entities", "[report]") {
   CHECK(svg::num(INFINITY) == "n/a");
   CHECK(svg::num(1200) == "1200");
   CHECK(svg::num(0.25) == "0.25");
+  CHECK(svg::num(50000) == "50000");
+  CHECK(svg::num(1.5e6) == "1.5e+06");
 }
 
 TEST_CASE("svg plot draws no made-up point: NaN, Inf and non-positive values on log axes are left out", "[report]") {
