@@ -44,7 +44,7 @@ namespace {
 struct Scene {
   struct Part {
     int kind;  // 0 rectangle, 1 disc, 2 annulus
-    double cx, cy, hx, hy, angle, r_out, r_in;
+    double cx, cy, hx, hy, angle, r_out, r_in, ca = 1, sa = 0;
   };
   std::vector<Part> parts;
   std::vector<Ellipse2D> closed, open, markers;
@@ -60,6 +60,8 @@ Scene scene_at(const Phantom& ph, double z) {
     Scene::Part p{0, s.centre_mm[0], s.centre_mm[1], s.size_mm[0] / 2, s.size_mm[1] / 2, s.angle_deg * M_PI / 180,
                   s.radius_mm, s.bore_radius_mm};
     p.kind = s.kind == "box" ? 0 : s.kind == "cylinder" ? 1 : 2;
+    p.ca = std::cos(p.angle);
+    p.sa = std::sin(p.angle);
     sc.parts.push_back(p);
   }
   auto section = [z](const Vec3& c, const Vec3& ax, double yaw, double value, Ellipse2D& e) {
@@ -90,7 +92,7 @@ int part_intervals(const Scene& sc, double ct, double st, double t, Interval* ou
     if (n + 2 > max_tmp) break;
     const double px = ox - p.cx, py = oy - p.cy;
     if (p.kind == 0) {  // slab method in the rectangle's frame
-      const double c = std::cos(p.angle), s = std::sin(p.angle);
+      const double c = p.ca, s = p.sa;
       const double lx = px * c + py * s, ly = -px * s + py * c, ldx = dx * c + dy * s, ldy = -dx * s + dy * c;
       double lo = -1e300, hi = 1e300;
       bool miss = false;
@@ -133,14 +135,38 @@ int part_intervals(const Scene& sc, double ct, double st, double t, Interval* ou
   return m;
 }
 
-// Shadow of an ellipse on the detector: bins k with t0 + k dt inside [tc - w, tc + w].
-void shadow(const Ellipse2D& e, double theta, double t0, double dt, int n, int& k0, int& k1) {
-  const double tc = e.cx * std::cos(theta) + e.cy * std::sin(theta);
-  const double c = std::cos(theta - e.phi_rad), s = std::sin(theta - e.phi_rad);
-  const double w = std::sqrt(e.a * e.a * c * c + e.b * e.b * s * s);
-  k0 = std::max(0, int(std::floor((tc - w - t0) / dt)));
-  k1 = std::min(n - 1, int(std::ceil((tc + w - t0) / dt)));
-}
+// An ellipse seen at one angle: the ray origin in the ellipse's scaled frame is linear in t, so
+// each ray costs a quadratic and no trigonometry (same algebra as ellipse_interval in ct.cpp).
+struct EllipseAtAngle {
+  double u0c, u0t, v0c, v0t, ud, vd, A, inv_A;
+  int k0, k1;  // bins inside the shadow tc +- w
+  EllipseAtAngle(const Ellipse2D& e, double ct, double st, double t0, double dt, int n) {
+    const double cp = std::cos(e.phi_rad), sp = std::sin(e.phi_rad);
+    u0c = (-e.cx * cp - e.cy * sp) / e.a, u0t = (ct * cp + st * sp) / e.a;
+    v0c = (e.cx * sp - e.cy * cp) / e.b, v0t = (-ct * sp + st * cp) / e.b;
+    ud = (-st * cp + ct * sp) / e.a, vd = (st * sp + ct * cp) / e.b;
+    A = ud * ud + vd * vd, inv_A = 1 / A;
+    const double tc = e.cx * ct + e.cy * st;
+    const double c = ct * cp + st * sp, s = st * cp - ct * sp;  // cos and sin of theta - phi
+    const double w = std::sqrt(e.a * e.a * c * c + e.b * e.b * s * s);
+    k0 = std::max(0, int(std::floor((tc - w - t0) / dt)));
+    k1 = std::min(n - 1, int(std::ceil((tc + w - t0) / dt)));
+  }
+  bool interval(double t, double& s0, double& s1) const {
+    const double u0 = u0c + t * u0t, v0 = v0c + t * v0t;
+    const double B = u0 * ud + v0 * vd, C = u0 * u0 + v0 * v0 - 1, disc = B * B - A * C;
+    if (disc <= 0) return false;
+    const double r = std::sqrt(disc);
+    s0 = (-B - r) * inv_A;
+    s1 = (-B + r) * inv_A;
+    return true;
+  }
+  double chord(double t) const {
+    const double u0 = u0c + t * u0t, v0 = v0c + t * v0t;
+    const double B = u0 * ud + v0 * vd, C = u0 * u0 + v0 * v0 - 1, disc = B * B - A * C;
+    return disc > 0 ? 2 * std::sqrt(disc) * inv_A : 0.0;
+  }
+};
 
 void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, int n, double* out) {
   const double ct = std::cos(theta), st = std::sin(theta);
@@ -151,24 +177,23 @@ void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, i
     for (int i = 0; i < m; ++i) len += iv[i].b - iv[i].a;
     out[k] = len;
   }
-  int k0, k1;
   for (const Ellipse2D& e : sc.closed) {  // closed pores lie inside the part: subtract their chords
-    shadow(e, theta, t0, dt, n, k0, k1);
-    for (int k = k0; k <= k1; ++k) out[k] -= ellipse_chord(e, theta, t0 + k * dt);
+    const EllipseAtAngle ea(e, ct, st, t0, dt, n);
+    for (int k = ea.k0; k <= ea.k1; ++k) out[k] -= ea.chord(t0 + k * dt);
   }
   for (const Ellipse2D& e : sc.open) {  // open pores: subtract only where they cut the part
-    shadow(e, theta, t0, dt, n, k0, k1);
-    for (int k = k0; k <= k1; ++k) {
+    const EllipseAtAngle ea(e, ct, st, t0, dt, n);
+    for (int k = ea.k0; k <= ea.k1; ++k) {
       double s0, s1;
-      if (!ellipse_interval(e, theta, t0 + k * dt, s0, s1)) continue;
+      if (!ea.interval(t0 + k * dt, s0, s1)) continue;
       const int m = part_intervals(sc, ct, st, t0 + k * dt, iv, 32);
       for (int i = 0; i < m; ++i) out[k] -= std::max(0.0, std::min(s1, iv[i].b) - std::max(s0, iv[i].a));
     }
   }
   for (int k = 0; k < n; ++k) out[k] = std::max(0.0, out[k]) * sc.mu;
   for (const Ellipse2D& e : sc.markers) {
-    shadow(e, theta, t0, dt, n, k0, k1);
-    for (int k = k0; k <= k1; ++k) out[k] += e.value * ellipse_chord(e, theta, t0 + k * dt);
+    const EllipseAtAngle ea(e, ct, st, t0, dt, n);
+    for (int k = ea.k0; k <= ea.k1; ++k) out[k] += e.value * ea.chord(t0 + k * dt);
   }
 }
 
