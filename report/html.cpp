@@ -553,7 +553,7 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
   h << "<p class=\"legend\">Colour scheme <strong>" << kOverlaySchemeName << "</strong> (Okabe &amp; Ito colour-blind-safe palette):";
   for (const OverlayColour* c : {&kOverlayFound, &kOverlayExtra, &kOverlayMissed})
     h << " <span class=\"sw\" style=\"background:" << c->hex << "\"></span>" << escape(c->role) << ";";
-  h << " other voxels: the grey scan slice.</p>\n";
+  h << " other voxels: the grey scan slice, dimmed in the method tiles.</p>\n";
   for (const auto& v : d["variants"]) {
     const std::string scan = str(v["scan"]);
     std::vector<MontageTile> tiles;
@@ -571,7 +571,7 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
     }
     const std::string rel = "montages/" + safe_name(str(d["name"])) + "__" + safe_name(scan) + ".png";
     write_montage((dir / str(v["montage_png"])).string(), (dir / str(d["montage_reference_png"])).string(),
-                  "scan " + scan, tiles, (dir / rel).string());
+                  scan, tiles, (dir / rel).string());
     h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)
       << "\"><figcaption>" << escape(scan) << ", slice z = " << str(d["slices"]["montage_z"])
       << " (middle of the test slices): scan, reference, then each method's selected cell.</figcaption></figure>\n";

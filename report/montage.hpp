@@ -27,7 +27,9 @@ struct MontageTile {
 };
 
 // Colour overlay of pred against ref over a grey slice (all CV_8UC1 of one size; masks non-zero =
-// pore): BGR CV_8UC3, found / extra / missed in the overlay colours, grey elsewhere.
+// pore): BGR CV_8UC3, found / extra / missed in the overlay colours, elsewhere the grey value
+// dimmed to kOverlayDim (rounded) so that the light colours stand out on bright material.
+inline constexpr double kOverlayDim = 0.6;
 cv::Mat overlay_slice(const cv::Mat& grey, const cv::Mat& ref, const cv::Mat& pred);
 
 // Reads the PNGs (paths absolute or relative to the working folder) and writes the montage PNG

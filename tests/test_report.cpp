@@ -233,7 +233,7 @@ TEST_CASE("overlay colours mark found, extra and missed voxels over the grey sli
   CHECK(o.at<cv::Vec3b>(0, 0) == cv::Vec3b(233, 180, 86));  // BGR of sky blue: found
   CHECK(o.at<cv::Vec3b>(0, 1) == cv::Vec3b(0, 94, 213));    // vermillion: extra
   CHECK(o.at<cv::Vec3b>(1, 0) == cv::Vec3b(66, 228, 240));  // yellow: missed
-  CHECK(o.at<cv::Vec3b>(1, 1) == cv::Vec3b(40, 40, 40));    // grey scan value kept
+  CHECK(o.at<cv::Vec3b>(1, 1) == cv::Vec3b(24, 24, 24));    // grey scan value 40 dimmed to 0.6 x 40 = 24
 }
 
 // The cases below share one run of the tiny suite: sections of one test case run in one process
