@@ -1,5 +1,5 @@
 // Surface distances (hd95, assd) between two segmentations by exact nearest-neighbour search of
-// surface voxels on a uniform grid of 8^3-voxel cells, searched in rings of increasing Chebyshev
+// surface voxels on a uniform grid of 4^3-voxel cells, searched in rings of increasing Chebyshev
 // cell distance until no unsearched cell can hold a closer point. Definitions: see surface.hpp
 // (Nikolov et al. 2021 for the max of directed 95th percentiles; Heimann et al. 2009 for assd).
 #include "metrics/surface.hpp"
@@ -11,7 +11,7 @@
 namespace pb {
 namespace {
 
-constexpr int kCell = 8;
+constexpr int kCell = 4;
 
 std::vector<std::array<int32_t, 3>> surface_points(const Image<uint32_t>& l) {
   const int64_t nx = l.nx(), ny = l.ny(), nz = l.nz();
