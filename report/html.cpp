@@ -520,16 +520,13 @@ std::string pareto_section(Page& p, const Json& d) {
       if (std::isfinite(t) && t > 0 && std::isfinite(j)) pts.push_back({t, j, m});
       else missing.push_back(m);
     }
-    // Pareto front for min runtime, max Jaccard: sweep by runtime, keep each point that raises the best Jaccard.
-    std::sort(pts.begin(), pts.end(), [](const Pt& a, const Pt& b) { return a.t < b.t || (a.t == b.t && a.j > b.j); });
+    std::vector<std::pair<double, double>> tq;
+    for (const auto& q : pts) tq.push_back({q.t, q.j});
     std::vector<double> fx, fy;
-    double best = -INFINITY;
-    for (const auto& q : pts) {
-      if (q.j <= best) continue;
-      if (!fx.empty()) fx.push_back(q.t), fy.push_back(fy.back());  // staircase: across, then up
-      fx.push_back(q.t), fy.push_back(q.j);
-      best = q.j;
-      pl.text(q.t, q.j, q.m);
+    for (size_t i : pareto_front(tq)) {
+      if (!fx.empty()) fx.push_back(pts[i].t), fy.push_back(fy.back());  // staircase: across, then up
+      fx.push_back(pts[i].t), fy.push_back(pts[i].j);
+      pl.text(pts[i].t, pts[i].j, pts[i].m);
     }
     svg::Style fs;
     fs.color = "#000000";
@@ -667,6 +664,22 @@ nav{margin:10px 0;font-size:13px}.links{font-size:13px}.note{color:#555}code{bac
 )css";
 
 }  // namespace
+
+std::vector<size_t> pareto_front(const std::vector<std::pair<double, double>>& runtime_quality) {
+  // Sweep by runtime (ties: better quality first) and keep each point that raises the best quality.
+  std::vector<size_t> order;
+  for (size_t i = 0; i < runtime_quality.size(); ++i)
+    if (std::isfinite(runtime_quality[i].first) && std::isfinite(runtime_quality[i].second)) order.push_back(i);
+  std::stable_sort(order.begin(), order.end(), [&](size_t a, size_t b) {
+    const auto &pa = runtime_quality[a], &pb = runtime_quality[b];
+    return pa.first < pb.first || (pa.first == pb.first && pa.second > pb.second);
+  });
+  std::vector<size_t> front;
+  double best = -INFINITY;
+  for (size_t i : order)
+    if (runtime_quality[i].second > best) front.push_back(i), best = runtime_quality[i].second;
+  return front;
+}
 
 PodBandPoint pod_band_at(const std::string& link, double b0, double b1, double c00, double c01, double c11, double size_um) {
   // Inverse links: logistic, or the standard normal CDF for probit.

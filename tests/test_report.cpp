@@ -218,6 +218,16 @@ TEST_CASE("POD band equals statsmodels' GLM prediction interval on the link scal
   CHECK(std::isnan(pod_band_at(link, b0, b1, -1, 0, 0, 1).lo));  // negative variance
 }
 
+TEST_CASE("Pareto front of runtime and quality, by hand", "[report]") {
+  // (runtime s, Jaccard): index 3 (0.5 s, 0.40) is fastest; 0 (1 s, 0.50) is better; 1 (2 s, 0.70) is
+  // best. 4 (2 s, 0.65) is as slow as 1 and worse; 2 (3 s, 0.60) is slower and worse than 1;
+  // 5 has no runtime, 6 no Jaccard; 7 (0.5 s, 0.30) ties 3 on runtime and is worse.
+  const std::vector<std::pair<double, double>> pts = {{1, 0.5}, {2, 0.7}, {3, 0.6}, {0.5, 0.4}, {2, 0.65},
+                                                      {NAN, 0.9}, {0.1, NAN}, {0.5, 0.3}};
+  CHECK(pareto_front(pts) == std::vector<size_t>{3, 0, 1});
+  CHECK(pareto_front({}).empty());
+}
+
 TEST_CASE("overlay colours mark found, extra and missed voxels over the grey slice", "[report]") {
   // Okabe & Ito (2008) "Color Universal Design" palette, RGB (from memory): sky blue 86,180,233;
   // vermillion 213,94,0; yellow 240,228,66.
