@@ -42,8 +42,12 @@ Action setup_segment(CLI::App& app) {
     if (!a->json.empty()) check_writable(a->json);
     const ReadOptions ro = a->read.options(a->input);
 
-    const AnyVolume raw = read_volume(a->input, ro);
+    AnyVolume raw = read_volume(a->input, ro);
+    const Geometry geometry = raw.geometry();
+    const VoxelType stored_type = raw.type();
+    const std::string input_sha = a->json.empty() ? std::string() : sha256_hex(raw.raw(), raw.bytes());
     VolumeF vol = raw.to_float();
+    raw = AnyVolume();  // the float copy is all that is needed from here on
     const Stats st = compute_stats(vol);
     if (st.nan_count > 0 && !a->allow_nan)
       throw InputError("input " + a->input + " has " + std::to_string(st.nan_count) +
@@ -51,10 +55,10 @@ Action setup_segment(CLI::App& app) {
     Mask roi;
     if (!a->roi.empty()) {
       const AnyVolume r = read_volume(a->roi);
-      check_same_geometry(raw.geometry(), a->input, r.geometry(), a->roi);
+      check_same_geometry(geometry, a->input, r.geometry(), a->roi);
       roi = r.to_mask();
     }
-    MethodInput in{vol, a->roi.empty() ? nullptr : &roi, raw.type()};
+    MethodInput in{vol, a->roi.empty() ? nullptr : &roi, stored_type};
     MethodOutput out = run_method(m, params, in);
     for (const auto& w : out.warnings) log("porebench: warning: " + w);
 
@@ -78,7 +82,7 @@ Action setup_segment(CLI::App& app) {
       j["pore_voxels"] = pore_voxels;
       j["porosity_pct"] = std::isfinite(porosity) ? nlohmann::ordered_json(porosity) : nlohmann::ordered_json();
       j["warnings"] = out.warnings;
-      j["input"] = {{"path", a->input}, {"sha256_voxels", sha256_hex(raw.raw(), raw.bytes())}};
+      j["input"] = {{"path", a->input}, {"sha256_voxels", input_sha}};
       if (!a->roi.empty()) j["roi"] = a->roi;
       j["output"] = a->output;
       json_text = j.dump(2) + "\n";

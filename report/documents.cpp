@@ -5,6 +5,7 @@
 #include <sstream>
 
 #include "core/io.hpp"
+#include "report/html.hpp"
 #include "report/report.hpp"
 #include "suites/results.hpp"
 
@@ -106,7 +107,6 @@ std::string validation_record(const Json& r) {
 
 }  // namespace
 
-void write_html_and_montages(const Json& results, const std::string& out_dir);  // report/html.cpp
 
 void write_documents(const Json& results, const std::string& out_dir) {
   write_text_atomic((std::filesystem::path(out_dir) / "validation-record.md").string(), validation_record(results));

@@ -31,12 +31,6 @@ const char* const kMethodColours[] = {"#332288", "#CC6677", "#117733", "#DDAA33"
 // Scans in the size-distribution panels: black for the reference recipe, then Okabe & Ito colours.
 const char* const kScanColours[] = {"#000000", "#0072B2", "#E69F00", "#CC79A7", "#009E73", "#D55E00", "#56B4E9"};
 
-std::string safe_name(std::string s) {  // as the runner names files
-  for (char& c : s)
-    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == '.')) c = '_';
-  return s;
-}
-
 std::string join(const std::vector<std::string>& v, const std::string& sep) {
   std::string out;
   for (size_t i = 0; i < v.size(); ++i) out += (i ? sep : "") + v[i];
@@ -566,7 +560,7 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
         t.note = "cell failed";
       tiles.push_back(t);
     }
-    const std::string rel = "montages/" + safe_name(str(d["name"])) + "__" + safe_name(scan) + ".png";
+    const std::string rel = "montages/" + file_token(str(d["name"])) + "__" + file_token(scan) + ".png";
     write_montage((dir / str(v["montage_png"])).string(), (dir / str(d["montage_reference_png"])).string(),
                   scan, tiles, (dir / rel).string());
     h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)

@@ -29,6 +29,10 @@ Json scan_recipe_advice(const Json& results, const std::vector<Json>& cells);
 // report.html, montage PNGs and validation-record.md into out_dir.
 void write_documents(const Json& results, const std::string& out_dir);
 
+// A name made safe for file names: every character other than [A-Za-z0-9._-] becomes '_'. The
+// runner names cell and montage files with it; the pages link to them with it.
+std::string file_token(std::string s);
+
 // Formats a metric value for tables: "0.873", "n/a" for null.
 std::string fmt(const Json& v, int digits = 3);
 

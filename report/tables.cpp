@@ -17,6 +17,12 @@ const char* const kCaution =
 
 const char* const kCsvColumns = "dataset,scan,projections,i0,method,method_name,family,grid_index,params,selected,part,metric,value";
 
+std::string file_token(std::string s) {
+  for (char& c : s)
+    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == '.')) c = '_';
+  return s;
+}
+
 std::string fmt(const Json& v, int digits) {
   if (!v.is_number()) return "n/a";
   std::ostringstream s;

@@ -45,12 +45,6 @@ Json read_json(const std::string& path) {
   }
 }
 
-std::string safe_name(std::string s) {
-  for (char& c : s)
-    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == '.')) c = '_';
-  return s;
-}
-
 // Peak resident memory since the last reset, in MiB (Linux: /proc/self/status VmHWM, reset by
 // writing 5 to /proc/self/clear_refs). -1 where unavailable.
 void reset_peak_rss() {
@@ -128,7 +122,7 @@ void split_slices(Prepared& p, const Mask* part, int64_t nz, const Calibration& 
 Prepared prepare_synthetic(const DatasetSpec& d, const std::string& out_dir, const RunOptions& o) {
   Prepared p;
   p.name = d.name;
-  p.data_dir = (fs::path(out_dir) / "data" / safe_name(d.name)).string();
+  p.data_dir = (fs::path(out_dir) / "data" / report::file_token(d.name)).string();
   synth::Recipe r = d.preset.empty() ? synth::load_recipe(d.recipe) : synth::preset(d.preset);
   try {
     r = synth::apply_overrides(r, d.overrides);
@@ -178,7 +172,7 @@ Prepared prepare_synthetic(const DatasetSpec& d, const std::string& out_dir, con
 Prepared prepare_paired(const DatasetSpec& d, const std::string& out_dir) {
   Prepared p;
   p.name = d.name;
-  p.data_dir = (fs::path(out_dir) / "data" / safe_name(d.name)).string();
+  p.data_dir = (fs::path(out_dir) / "data" / report::file_token(d.name)).string();
   fs::create_directories(p.data_dir);
   p.part_mask_path = d.part_mask;
   const AnyVolume scan = read_volume(d.scan, d.read);
@@ -339,19 +333,29 @@ RunSummary run_suite(const Suite& s, const RunOptions& o) {
     data.push_back(d.kind == DatasetSpec::synthetic ? prepare_synthetic(d, o.out_dir, o) : prepare_paired(d, o.out_dir));
     Prepared& p = data.back();
     const Mask part = p.part_mask_path.empty() ? Mask() : read_volume(p.part_mask_path).to_mask();
-    const int64_t nz = read_volume(p.ref_mask_path).geometry().dims[2];
-    split_slices(p, part.empty() ? nullptr : &part, nz, s.calibration);
+    const Mask ref = read_volume(p.ref_mask_path).to_mask();
+    split_slices(p, part.empty() ? nullptr : &part, ref.nz(), s.calibration);
+    {
+      // Montages show the test slice with the most reference pore voxels.
+      int64_t best = -1;
+      for (int64_t z = p.test_begin; z < p.test_end; ++z) {
+        int64_t n = 0;
+        const uint8_t* sl = ref.slice(z);
+        for (int64_t i = 0; i < ref.geometry().slice_voxels(); ++i) n += sl[i] != 0;
+        if (n > best) best = n, p.montage_z = z;
+      }
+    }
     p.record["slices"] = {{"calibration", {p.cal_begin, p.cal_end}}, {"gap", s.calibration.gap_slices},
                           {"test", {p.test_begin, p.test_end}}, {"montage_z", p.montage_z}};
     // Montage backgrounds: the reference and each scan at the montage slice.
-    const std::string ref_png = "data/" + safe_name(p.name) + "/montage-reference.png";
-    write_mask_png(read_volume(p.ref_mask_path).to_mask(), p.montage_z, (dir / ref_png).string());
+    const std::string ref_png = "data/" + report::file_token(p.name) + "/montage-reference.png";
+    write_mask_png(ref, p.montage_z, (dir / ref_png).string());
     p.record["montage_reference_png"] = ref_png;
     Json variants = Json::array();
     for (const auto& v : p.variants) {
       const VolumeF f = read_volume(v.path).to_float();
       const Stats st = compute_stats(f);
-      const std::string png = "data/" + safe_name(p.name) + "/montage-" + safe_name(v.scan) + ".png";
+      const std::string png = "data/" + report::file_token(p.name) + "/montage-" + report::file_token(v.scan) + ".png";
       write_slice_png(f, p.montage_z, st.min, st.max, (dir / png).string());
       variants.push_back({{"scan", v.scan}, {"path", v.path}, {"projections", v.projections}, {"i0", v.i0},
                           {"reference", v.reference}, {"reference_projections", v.reference_projections},
@@ -395,7 +399,7 @@ RunSummary run_suite(const Suite& s, const RunOptions& o) {
         for (size_t g = 0; g < m.grid.size(); ++g) {
           CellPlan c{plan.size(), &p, &v, &m, g, "", ""};
           c.id = p.name + "/" + v.scan + "/" + m.label + "/" + std::to_string(g);
-          c.file = safe_name(p.name) + "__" + safe_name(v.scan) + "__" + safe_name(m.label) + "__g" + std::to_string(g);
+          c.file = report::file_token(p.name) + "__" + report::file_token(v.scan) + "__" + report::file_token(m.label) + "__g" + std::to_string(g);
           plan.push_back(c);
         }
   sum.cells_total = int(plan.size());

@@ -221,7 +221,7 @@ TEST_CASE("compare: identical runs show no difference; a worse candidate is a re
   CHECK(run_cli("compare " + (d / "base") + " " + (d / "cand") + " --metric nosuch").exit_code == 2);
 }
 
-TEST_CASE("quick suite: a fresh run shows no regression against the committed reference", "[.][suite][reference]") {
+TEST_CASE("quick suite: a fresh run shows no regression against the committed reference", "[suite][reference]") {
   // The reference was written by:  porebench run suites/quick.toml -o results/quick &&
   //   porebench report results/quick --reference-record results/reference/quick/results.json
   // The run is deterministic; float results of FFT codelets may differ between CPUs in the last
