@@ -1,25 +1,13 @@
 // Histogram kernel on a 256^3 float volume, in voxels/s: the seed of the performance work.
 #include <benchmark/benchmark.h>
 
-#include <random>
-
 #include "core/histogram.hpp"
+#include "bench/bench_volumes.hpp"
 #include "core/parallel.hpp"
 
 namespace {
 
-const pb::VolumeF& volume256() {
-  static pb::VolumeF v = [] {
-    pb::Geometry g;
-    g.dims = {256, 256, 256};
-    pb::VolumeF out(g);
-    std::mt19937 rng(1);
-    std::normal_distribution<float> n(0.5f, 0.2f);
-    for (int64_t i = 0; i < out.size(); ++i) out[i] = n(rng);
-    return out;
-  }();
-  return v;
-}
+const pb::VolumeF& volume256() { return pb::bench::noise_volume256(1); }
 
 void BM_Histogram256Bins(benchmark::State& state) {
   const auto& v = volume256();

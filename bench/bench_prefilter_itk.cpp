@@ -3,26 +3,14 @@
 #include <benchmark/benchmark.h>
 #include <itkMedianImageFilter.h>
 
-#include <random>
-
 #include "core/itk_bridge.hpp"
+#include "bench/bench_volumes.hpp"
 #include "core/parallel.hpp"
 #include "methods/prefilter.hpp"
 
 namespace {
 
-const pb::VolumeF& volume256() {
-  static pb::VolumeF v = [] {
-    pb::Geometry g;
-    g.dims = {256, 256, 256};
-    pb::VolumeF out(g);
-    std::mt19937 rng(2);
-    std::normal_distribution<float> n(0.5f, 0.2f);
-    for (int64_t i = 0; i < out.size(); ++i) out[i] = n(rng);
-    return out;
-  }();
-  return v;
-}
+const pb::VolumeF& volume256() { return pb::bench::noise_volume256(2); }
 
 void BM_MedianR1_Ours(benchmark::State& state) {
   pb::set_threads(0);
