@@ -4,7 +4,10 @@
 // types (uint8, uint16, int16, float32). Methods work on Image<float>; masks are Image<uint8_t>.
 #include <array>
 #include <cstdint>
+#include <memory>
 #include <string>
+#include <type_traits>
+#include <utility>
 #include <variant>
 #include <vector>
 
@@ -40,12 +43,33 @@ template <> struct VoxelTraits<uint16_t> { static constexpr VoxelType type = Vox
 template <> struct VoxelTraits<int16_t> { static constexpr VoxelType type = VoxelType::i16; };
 template <> struct VoxelTraits<float> { static constexpr VoxelType type = VoxelType::f32; };
 
+// An allocator that leaves new elements of trivial types uninitialised unless a value is given,
+// so that a large buffer can be first written (and its pages first touched) by the threads that
+// fill it, instead of a serial zero-fill.
+template <class T>
+struct DefaultInitAllocator : std::allocator<T> {
+  template <class U> struct rebind { using other = DefaultInitAllocator<U>; };
+  DefaultInitAllocator() = default;
+  template <class U> DefaultInitAllocator(const DefaultInitAllocator<U>&) noexcept {}
+  template <class U> void construct(U* p) noexcept(std::is_nothrow_default_constructible<U>::value) {
+    ::new (static_cast<void*>(p)) U;
+  }
+  template <class U, class... A> void construct(U* p, A&&... args) {
+    ::new (static_cast<void*>(p)) U(std::forward<A>(args)...);
+  }
+};
+
+struct Uninitialized {};  // tag: Image(g, Uninitialized{}) leaves the voxels unset
+
 template <class T>
 class Image {
  public:
   using value_type = T;
+  using Buffer = std::vector<T, DefaultInitAllocator<T>>;
   Image() = default;
   explicit Image(const Geometry& g, T fill = T{}) : geo_(g), data_(size_t(g.voxels()), fill) {}
+  // Every voxel must be written before it is read.
+  Image(const Geometry& g, Uninitialized) : geo_(g), data_(size_t(g.voxels())) {}
 
   const Geometry& geometry() const { return geo_; }
   void set_geometry_keep_dims(const Geometry& g) {  // spacing/origin only
@@ -67,12 +91,12 @@ class Image {
   const T& operator()(int64_t x, int64_t y, int64_t z) const { return data_[size_t(index(x, y, z))]; }
   T& operator[](int64_t i) { return data_[size_t(i)]; }
   const T& operator[](int64_t i) const { return data_[size_t(i)]; }
-  std::vector<T>& buffer() { return data_; }
-  const std::vector<T>& buffer() const { return data_; }
+  Buffer& buffer() { return data_; }
+  const Buffer& buffer() const { return data_; }
 
  private:
   Geometry geo_;
-  std::vector<T> data_;
+  Buffer data_;
 };
 
 using VolumeF = Image<float>;

@@ -136,7 +136,7 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   if (nx > INT32_MAX - 2) throw InputError("label_components: dims along x " + std::to_string(nx) + " too large");
   Components c;
-  c.labels = Image<uint32_t>(g, 0);
+  c.labels = Image<uint32_t>(g, Uninitialized{});  // every voxel is written in scan 2, in parallel
   c.sizes.assign(1, 0);
   if (m.size() == 0) return c;
   const int64_t nrows = ny * nz;
@@ -217,13 +217,18 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   c.sizes.assign(size_t(count) + 1, 0);
   for (int64_t i = 0; i < nruns; ++i) c.sizes[P[i]] += R[i].x1 - R[i].x0;
 
-  // Scan 2: write labels.
+  // Scan 2: write labels, background included (the label volume was left uninitialised).
   uint32_t* L = c.labels.data();
 #pragma omp parallel for schedule(static)
   for (int64_t r = 0; r < nrows; ++r) {
     uint32_t* row = L + r * nx;
-    for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i)
+    int64_t x = 0;
+    for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i) {
+      std::fill(row + x, row + R[i].x0, 0u);
       std::fill(row + R[i].x0, row + R[i].x1, P[i]);
+      x = R[i].x1;
+    }
+    std::fill(row + x, row + nx, 0u);
   }
   return c;
 }
