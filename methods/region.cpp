@@ -50,6 +50,14 @@ AutoSeeds auto_seeds(const Histogram& h, double seed_margin, double grow_margin)
   return a;
 }
 
+MethodOutput constant_volume_output(const MethodInput& in) {
+  MethodOutput out;
+  out.pores = Mask(in.volume.geometry());
+  out.part_voxels = air_to_pores(out.pores, in.roi);
+  out.warnings.push_back("the grey-value histogram has a single occupied bin (constant volume): no pores");
+  return out;
+}
+
 std::vector<ParamSpec> seed_params() {
   return {{"seed_margin", ParamType::Float, "0.5", 0, 1, {}, "fraction",
            "seeds are below otsu - seed_margin*(otsu - air mean): 0 = the Otsu split, 1 = the air mean"},
@@ -94,13 +102,8 @@ MethodInfo region_grow_info() {
   for (auto& s : seed_params()) m.params.push_back(s);
   m.run = [](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
+    if (single_occupied_bin(h)) return constant_volume_output(in);
     MethodOutput out;
-    if (single_occupied_bin(h)) {
-      out.pores = Mask(in.volume.geometry());
-      out.part_voxels = air_to_pores(out.pores, in.roi);
-      out.warnings.push_back("the grey-value histogram has a single occupied bin (constant volume): no pores");
-      return out;
-    }
     const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
     out.pores = grow_air(in.volume, a.seed, a.limit, in.roi, 6);
     out.part_voxels = air_to_pores(out.pores, in.roi);

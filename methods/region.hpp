@@ -18,6 +18,9 @@ struct AutoSeeds {
 };
 AutoSeeds auto_seeds(const Histogram& h, double seed_margin, double grow_margin);
 
+// The defined result for a constant volume: no pores, the part counted, and a warning.
+MethodOutput constant_volume_output(const MethodInput& in);
+
 // Schema entries for automatic seeding (seed_margin, grow_margin).
 std::vector<ParamSpec> seed_params();
 

@@ -44,13 +44,6 @@ Mask watershed_from_markers(const VolumeF& relief, const Mask& markers) {
 
 namespace {
 
-MethodOutput no_pores(const MethodInput& in) {
-  MethodOutput out;
-  out.pores = Mask(in.volume.geometry());
-  out.part_voxels = air_to_pores(out.pores, in.roi);
-  out.warnings.push_back("the grey-value histogram has a single occupied bin (constant volume): no pores");
-  return out;
-}
 
 MethodInfo confidence_info() {
   MethodInfo m;
@@ -65,7 +58,7 @@ MethodInfo confidence_info() {
   m.params.push_back({"max_seeds", ParamType::Int, "20000", 1, 1e7, {}, "voxels", "seeds are subsampled evenly to at most this many"});
   m.run = [](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
-    if (single_occupied_bin(h)) return no_pores(in);
+    if (single_occupied_bin(h)) return constant_volume_output(in);
     const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), 0);
     auto f = itk::ConfidenceConnectedImageFilter<ItkF, ItkL>::New();
     f->SetInput(itk_view(in.volume));
@@ -89,7 +82,7 @@ MethodInfo confidence_info() {
     }
     MethodOutput out;
     if (seeds.empty()) {
-      out = no_pores(in);
+      out = constant_volume_output(in);
       out.warnings = {"no voxel lies below the seed threshold: no seeds, no pores"};
     } else {
       f->Update();
@@ -117,7 +110,7 @@ MethodInfo watershed_info() {
   m.params.push_back({"sigma_vox", ParamType::Float, "1", 0.1, 10, {}, "voxels", "Gaussian scale of the gradient"});
   m.run = [](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
-    if (single_occupied_bin(h)) return no_pores(in);
+    if (single_occupied_bin(h)) return constant_volume_output(in);
     const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
     const VolumeF grad = gradient_magnitude(in.volume, p.num("sigma_vox") * in.volume.geometry().spacing_mm[0]);
     Mask markers(in.volume.geometry());
