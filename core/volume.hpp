@@ -2,14 +2,18 @@
 // The volume type: one contiguous buffer, x fastest, then y, then z; geometry in millimetres.
 // Image<T> owns its voxels (RAII, std::vector); AnyVolume holds one of the supported stored voxel
 // types (uint8, uint16, int16, float32). Methods work on Image<float>; masks are Image<uint8_t>.
+#include <algorithm>
 #include <array>
 #include <cstdint>
 #include <memory>
+#include <new>
 #include <string>
 #include <type_traits>
 #include <utility>
 #include <variant>
 #include <vector>
+
+#include "core/memory.hpp"
 
 namespace pb {
 
@@ -45,12 +49,17 @@ template <> struct VoxelTraits<float> { static constexpr VoxelType type = VoxelT
 
 // An allocator that leaves new elements of trivial types uninitialised unless a value is given,
 // so that a large buffer can be first written (and its pages first touched) by the threads that
-// fill it, instead of a serial zero-fill.
+// fill it, instead of a serial zero-fill. Large buffers get huge pages (core/memory.hpp).
 template <class T>
 struct DefaultInitAllocator : std::allocator<T> {
   template <class U> struct rebind { using other = DefaultInitAllocator<U>; };
   DefaultInitAllocator() = default;
   template <class U> DefaultInitAllocator(const DefaultInitAllocator<U>&) noexcept {}
+  T* allocate(size_t n) {
+    if (n > size_t(-1) / sizeof(T)) throw std::bad_alloc();
+    return static_cast<T*>(allocate_buffer(n * sizeof(T)));
+  }
+  void deallocate(T* p, size_t n) noexcept { free_buffer(p, n * sizeof(T)); }
   template <class U> void construct(U* p) noexcept(std::is_nothrow_default_constructible<U>::value) {
     ::new (static_cast<void*>(p)) U;
   }
@@ -60,6 +69,7 @@ struct DefaultInitAllocator : std::allocator<T> {
 };
 
 struct Uninitialized {};  // tag: Image(g, Uninitialized{}) leaves the voxels unset
+struct Zeroed {};         // tag: Image(g, Zeroed{}) is all zero, touching memory only when small
 
 template <class T>
 class Image {
@@ -70,6 +80,10 @@ class Image {
   explicit Image(const Geometry& g, T fill = T{}) : geo_(g), data_(size_t(g.voxels()), fill) {}
   // Every voxel must be written before it is read.
   Image(const Geometry& g, Uninitialized) : geo_(g), data_(size_t(g.voxels())) {}
+  Image(const Geometry& g, Zeroed) : geo_(g), data_(size_t(g.voxels())) {
+    static_assert(std::is_trivial<T>::value, "Zeroed needs a trivial voxel type");
+    if (!buffer_starts_zeroed(data_.size() * sizeof(T))) std::fill(data_.begin(), data_.end(), T{});
+  }
 
   const Geometry& geometry() const { return geo_; }
   void set_geometry_keep_dims(const Geometry& g) {  // spacing/origin only

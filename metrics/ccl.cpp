@@ -13,6 +13,7 @@
 // parallel, their boundaries afterwards in order: the partition (and so the labels) is unique.
 #include "metrics/ccl.hpp"
 
+#include <immintrin.h>
 #include <omp.h>
 
 #include <algorithm>
@@ -20,6 +21,7 @@
 #include <memory>
 #include <string>
 
+#include "core/cpu.hpp"
 #include "core/error.hpp"
 
 namespace pb {
@@ -68,54 +70,33 @@ inline void merge_runs(const Run* runs, uint32_t* p, int64_t c0, int64_t c1, Nbr
   }
 }
 
-inline int64_t count_runs(const uint8_t* a, int64_t nx) {
-  int64_t c = a[0] != 0;
-  for (int64_t x = 1; x < nx; ++x) c += (a[x] != 0) & (a[x - 1] == 0);
-  return c;
-}
+// Run extraction kernels, compiled twice: for AVX2 and for any x86-64 / other CPU.
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+#define PB_CCL_HAVE_AVX2_CLONE 1
+#pragma GCC push_options
+#pragma GCC target("avx2")
+namespace avx2 {
+#define PB_CCL_RUNS_AVX2 1
+#include "metrics/ccl_runs.inc"
+#undef PB_CCL_RUNS_AVX2
+}  // namespace avx2
+#pragma GCC pop_options
+#endif
+namespace generic {
+#include "metrics/ccl_runs.inc"
+}  // namespace generic
 
-inline int64_t count_runs_roi(const uint8_t* a, const uint8_t* r, int64_t nx) {
-  int64_t c = (a[0] != 0) & (r[0] != 0);
-  for (int64_t x = 1; x < nx; ++x) c += ((a[x] != 0) & (r[x] != 0)) & ((a[x - 1] == 0) | (r[x - 1] == 0));
-  return c;
+#ifdef PB_CCL_HAVE_AVX2_CLONE
+template <bool kAvx2>
+inline int64_t fill_runs(const uint8_t* a, const uint8_t* r, int32_t nx, Run* out) {
+  return kAvx2 ? avx2::fill_runs(a, r, nx, out) : generic::fill_runs(a, r, nx, out);
 }
-
-// Runs of a sparse row, skipping background eight voxels at a time.
-inline void fill_runs(const uint8_t* a, int32_t nx, Run* out) {
-  int32_t x = 0;
-  while (x < nx) {
-    while (x + 8 <= nx) {
-      uint64_t w;
-      std::memcpy(&w, a + x, 8);
-      if (w != 0) break;
-      x += 8;
-    }
-    while (x < nx && a[x] == 0) ++x;
-    if (x >= nx) break;
-    const int32_t s = x;
-    while (x < nx && a[x] != 0) ++x;
-    *out++ = Run{s, x};
-  }
+#else
+template <bool kAvx2>
+inline int64_t fill_runs(const uint8_t* a, const uint8_t* r, int32_t nx, Run* out) {
+  return generic::fill_runs(a, r, nx, out);
 }
-
-// Branch-free run extraction (random masks defeat branch prediction): every x writes a candidate
-// start and end, and the counters advance only at transitions. `tmp` holds nx + 1 runs.
-template <bool kRoi>
-inline int64_t fill_runs_impl(const uint8_t* a, const uint8_t* r, int32_t nx, Run* tmp, Run* out) {
-  int64_t ns = 0, ne = 0;
-  int prev = 0;
-  for (int32_t x = 0; x < nx; ++x) {
-    const int cur = kRoi ? ((a[x] != 0) & (r[x] != 0)) : (a[x] != 0);
-    tmp[ns].x0 = x;
-    ns += cur & (prev ^ 1);
-    tmp[ne].x1 = x;
-    ne += (cur ^ 1) & prev;
-    prev = cur;
-  }
-  if (prev) tmp[ne++].x1 = nx;
-  std::memcpy(out, tmp, size_t(ns) * sizeof(Run));
-  return ns;
-}
+#endif
 
 }  // namespace
 
@@ -136,42 +117,49 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   if (nx > INT32_MAX - 2) throw InputError("label_components: dims along x " + std::to_string(nx) + " too large");
   Components c;
-  c.labels = Image<uint32_t>(g, Uninitialized{});  // every voxel is written in scan 2, in parallel
+  // Zero without a pass over memory when large (fresh pages); scan 2 writes only the runs, so
+  // pages without foreground are never touched.
+  c.labels = Image<uint32_t>(g, Zeroed{});
   c.sizes.assign(1, 0);
   if (m.size() == 0) return c;
   const int64_t nrows = ny * nz;
   const uint8_t* mask = m.data();
 
-  // Scan 1a: runs per row, then their offsets.
-  std::vector<int64_t> row_begin(size_t(nrows) + 1, 0);
-#pragma omp parallel for schedule(static)
-  for (int64_t r = 0; r < nrows; ++r)
-    row_begin[size_t(r) + 1] = rmask ? count_runs_roi(mask + r * nx, rmask + r * nx, nx) : count_runs(mask + r * nx, nx);
+  // Slabs of z, one per thread: scan 1 extracts a slab's runs and unites them within the slab
+  // (a slab touches only its own runs); the slab boundaries are united afterwards, in order.
+  const int64_t nslabs = std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads()));
+  std::vector<int64_t> slab_z(size_t(nslabs) + 1), slab_base(size_t(nslabs) + 1, 0);
+  for (int64_t s = 0; s <= nslabs; ++s) slab_z[size_t(s)] = nz * s / nslabs;
+  std::vector<int64_t> row_begin(size_t(nrows) + 1, 0);  // run counts first, then offsets
+  using RunBuffer = std::vector<Run, DefaultInitAllocator<Run>>;
+  std::vector<RunBuffer> slab_runs(static_cast<size_t>(nslabs));
+
+  const bool use_avx2 = simd_level() >= Simd::avx2;
+  // Scan 1a: the runs of each slab's rows, into the slab's own buffer (one pass over the mask).
+#pragma omp parallel for schedule(static, 1)
+  for (int64_t s = 0; s < nslabs; ++s) {
+    RunBuffer& v = slab_runs[size_t(s)];
+    const size_t row_max = size_t(nx) / 2 + 1;  // most runs a row can hold
+    size_t n = 0;
+    for (int64_t r = slab_z[size_t(s)] * ny; r < slab_z[size_t(s) + 1] * ny; ++r) {
+      if (n + row_max > v.size()) v.resize(std::max(2 * v.size(), n + row_max));
+      const uint8_t* ra = rmask ? rmask + r * nx : nullptr;
+      const int64_t k = use_avx2 ? fill_runs<true>(mask + r * nx, ra, int32_t(nx), v.data() + n)
+                             : fill_runs<false>(mask + r * nx, ra, int32_t(nx), v.data() + n);
+      row_begin[size_t(r) + 1] = k;
+      n += size_t(k);
+    }
+    v.resize(n);
+  }
+  for (int64_t s = 0; s < nslabs; ++s)
+    slab_base[size_t(s) + 1] = slab_base[size_t(s)] + int64_t(slab_runs[size_t(s)].size());
   for (int64_t r = 0; r < nrows; ++r) row_begin[size_t(r) + 1] += row_begin[size_t(r)];
-  const int64_t nruns = row_begin[size_t(nrows)];
+  const int64_t nruns = slab_base[size_t(nslabs)];
   if (nruns >= int64_t(UINT32_MAX))
     throw InputError("label_components: " + std::to_string(nruns) + " runs exceed the 32-bit label range");
-  // Uninitialised (every element is written below, in parallel, so pages are first touched by
-  // the threads that use them): zero-filling 12 bytes per run first would cost a serial pass.
+  // Uninitialised: every element is written below by the thread of its slab.
   const std::unique_ptr<Run[]> runs(new Run[size_t(nruns)]);
   const std::unique_ptr<uint32_t[]> parent(new uint32_t[size_t(nruns)]);
-#pragma omp parallel
-  {
-    std::vector<Run> tmp(static_cast<size_t>(nx) + 1);
-#pragma omp for schedule(static)
-    for (int64_t r = 0; r < nrows; ++r) {
-      const int64_t b = row_begin[size_t(r)], e = row_begin[size_t(r) + 1];
-      if (b == e) continue;
-      Run* out = runs.get() + b;
-      if (rmask)
-        fill_runs_impl<true>(mask + r * nx, rmask + r * nx, int32_t(nx), tmp.data(), out);
-      else if (e - b <= 2)  // sparse rows: skip background a word at a time
-        fill_runs(mask + r * nx, int32_t(nx), out);
-      else
-        fill_runs_impl<false>(mask + r * nx, nullptr, int32_t(nx), tmp.data(), out);
-      for (int64_t i = b; i < e; ++i) parent[size_t(i)] = uint32_t(i);
-    }
-  }
 
   const Run* R = runs.get();
   uint32_t* P = parent.get();
@@ -198,15 +186,16 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
     merge_runs(R, P, c0, c1, nb, n);
   };
 
-  // Scan 1b: unite within z-slabs in parallel (a slab touches only its own runs), then the slab
-  // boundaries in order.
-  const int64_t nslabs = std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads()));
-  std::vector<int64_t> slab_z(size_t(nslabs) + 1);
-  for (int64_t s = 0; s <= nslabs; ++s) slab_z[size_t(s)] = nz * s / nslabs;
+  // Scan 1b: per slab, its runs into the shared array, then union within the slab.
 #pragma omp parallel for schedule(static, 1)
-  for (int64_t s = 0; s < nslabs; ++s)
+  for (int64_t s = 0; s < nslabs; ++s) {
+    RunBuffer& v = slab_runs[size_t(s)];
+    if (!v.empty()) std::memcpy(runs.get() + slab_base[size_t(s)], v.data(), v.size() * sizeof(Run));
+    RunBuffer().swap(v);
+    for (int64_t i = slab_base[size_t(s)]; i < slab_base[size_t(s) + 1]; ++i) P[i] = uint32_t(i);
     for (int64_t z = slab_z[size_t(s)]; z < slab_z[size_t(s) + 1]; ++z)
       for (int64_t y = 0; y < ny; ++y) unite_row(y, z, true, z > slab_z[size_t(s)]);
+  }
   for (int64_t s = 1; s < nslabs; ++s)
     for (int64_t y = 0; y < ny; ++y) unite_row(y, slab_z[size_t(s)], false, true);
 
@@ -217,18 +206,12 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   c.sizes.assign(size_t(count) + 1, 0);
   for (int64_t i = 0; i < nruns; ++i) c.sizes[P[i]] += R[i].x1 - R[i].x0;
 
-  // Scan 2: write labels, background included (the label volume was left uninitialised).
+  // Scan 2: write the labels of the runs into the zeroed label volume.
   uint32_t* L = c.labels.data();
 #pragma omp parallel for schedule(static)
   for (int64_t r = 0; r < nrows; ++r) {
     uint32_t* row = L + r * nx;
-    int64_t x = 0;
-    for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i) {
-      std::fill(row + x, row + R[i].x0, 0u);
-      std::fill(row + R[i].x0, row + R[i].x1, P[i]);
-      x = R[i].x1;
-    }
-    std::fill(row + x, row + nx, 0u);
+    for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i) std::fill(row + R[i].x0, row + R[i].x1, P[i]);
   }
   return c;
 }
