@@ -2,7 +2,9 @@
 // coaxial bore; union = min, difference = max(a, -b), e.g. Hart (1996) Sphere tracing, The Visual
 // Computer 12:527), pores placed by rejection sampling from log-normal sizes, and the voxel truth by
 // supersampling with a majority rule. Conventions: pores are air (dark in a scan); z is the part
-// axis and the build direction; lack-of-fusion voids lie flat in build layers.
+// axis and the build direction; lack-of-fusion voids lie flat in build layers, as one flat
+// ellipsoid or (irregular) a union of flat ellipsoids in one layer plane, whose volume is integrated
+// numerically (flat_union_volume_mm3; checked against 4/3 pi abc and the two-sphere lens).
 #include "synthetic/phantom.hpp"
 
 #include <algorithm>
@@ -52,21 +54,123 @@ uint64_t mix_seed(uint64_t seed, uint64_t stream) {
   return z ^ (z >> 31);
 }
 
-double Pore::volume_mm3() const { return 4.0 / 3.0 * M_PI * semi_axes_mm[0] * semi_axes_mm[1] * semi_axes_mm[2]; }
+namespace {
+
+double lobe_half_x(const Lobe& l) {
+  const double c = std::cos(l.yaw_rad), s = std::sin(l.yaw_rad);
+  return std::sqrt(l.a_mm * l.a_mm * c * c + l.b_mm * l.b_mm * s * s);
+}
+double lobe_half_y(const Lobe& l) {
+  const double c = std::cos(l.yaw_rad), s = std::sin(l.yaw_rad);
+  return std::sqrt(l.a_mm * l.a_mm * s * s + l.b_mm * l.b_mm * c * c);
+}
+
+}  // namespace
+
+double flat_union_volume_mm3(const std::vector<Lobe>& lobes, double c_mm, int n) {
+  if (lobes.empty() || !(c_mm > 0) || n < 1) return 0;
+  // Each lobe's ellipse, scaled by k about its centre, meets the line x (x measured from the
+  // centre) where P y'^2 + 2 Q x y' + S x^2 <= k^2 (y' = y - cy), with P, Q, S from its yaw and
+  // semi-axes: y' = (-Q x +- sqrt((Q^2 - P S) x^2 + P k^2)) / P.
+  struct Quad {
+    double cx, cy, P, Q, D;  // D = Q^2 - P S
+  };
+  std::vector<Quad> qs;
+  for (const Lobe& l : lobes) {
+    const double c = std::cos(l.yaw_rad), s = std::sin(l.yaw_rad), ia2 = 1 / (l.a_mm * l.a_mm),
+                 ib2 = 1 / (l.b_mm * l.b_mm);
+    const double P = s * s * ia2 + c * c * ib2, Q = c * s * (ia2 - ib2), S = c * c * ia2 + s * s * ib2;
+    qs.push_back({l.dx_mm, l.dy_mm, P, Q, Q * Q - P * S});
+  }
+  std::vector<std::array<double, 2>> iv(lobes.size());
+  std::vector<double> br;
+  double vol = 0;
+  for (int iz = 0; iz < n; ++iz) {
+    const double zr = -1 + (iz + 0.5) * 2.0 / n, k = std::sqrt(1 - zr * zr);  // z / c at the node
+    // Pieces between the lobes' x-ends (each lobe shrinks by k about its own centre), where the
+    // union's chord length has square-root edges; on each piece x = u + (v - u)(1 - cos phi) / 2
+    // with midpoints in phi, which removes those edges.
+    br.clear();
+    for (const Lobe& l : lobes) {
+      br.push_back(l.dx_mm - k * lobe_half_x(l));
+      br.push_back(l.dx_mm + k * lobe_half_x(l));
+    }
+    std::sort(br.begin(), br.end());
+    const int per = std::max(8, 8 * n / int(br.size() - 1));
+    double area = 0;
+    for (size_t ib = 0; ib + 1 < br.size(); ++ib) {
+      const double u = br[ib], v = br[ib + 1];
+      if (!(v > u)) continue;
+      for (int ix = 0; ix < per; ++ix) {
+        const double phi = (ix + 0.5) * M_PI / per;
+        const double x = u + (v - u) * (1 - std::cos(phi)) / 2, wx = (v - u) / 2 * std::sin(phi) * M_PI / per;
+        size_t m = 0;
+        for (const Quad& q : qs) {
+          const double xl = x - q.cx, disc = q.D * xl * xl + q.P * k * k;
+          if (disc <= 0) continue;
+          const double r = std::sqrt(disc);
+          iv[m++] = {q.cy + (-q.Q * xl - r) / q.P, q.cy + (-q.Q * xl + r) / q.P};
+        }
+        std::sort(iv.begin(), iv.begin() + long(m));
+        double len = 0, end = -1e300;
+        for (size_t i = 0; i < m; ++i) {
+          const double a = std::max(iv[i][0], end);
+          if (iv[i][1] > a) len += iv[i][1] - a;
+          end = std::max(end, iv[i][1]);
+        }
+        area += len * wx;
+      }
+    }
+    vol += area * (2.0 * c_mm / n);
+  }
+  return vol;
+}
+
+std::vector<Lobe> Pore::all_lobes() const {
+  std::vector<Lobe> out{Lobe{0, 0, semi_axes_mm[0], semi_axes_mm[1], yaw_rad}};
+  out.insert(out.end(), lobes.begin(), lobes.end());
+  return out;
+}
+
+void Pore::set_lobes(std::vector<Lobe> extra) {
+  lobes = std::move(extra);
+  lobed_volume_mm3 = lobes.empty() ? 0 : flat_union_volume_mm3(all_lobes(), semi_axes_mm[2]);
+}
+
+double Pore::volume_mm3() const {
+  if (!lobes.empty()) return lobed_volume_mm3;
+  return 4.0 / 3.0 * M_PI * semi_axes_mm[0] * semi_axes_mm[1] * semi_axes_mm[2];
+}
 double Pore::esd_um() const { return 1000.0 * std::cbrt(6.0 * volume_mm3() / M_PI); }
-double Pore::bounding_radius_mm() const { return *std::max_element(semi_axes_mm.begin(), semi_axes_mm.end()); }
+double Pore::bounding_radius_mm() const {
+  double r = *std::max_element(semi_axes_mm.begin(), semi_axes_mm.end());
+  for (const Lobe& l : lobes) r = std::max(r, std::hypot(l.dx_mm, l.dy_mm) + std::max(l.a_mm, l.b_mm));
+  return r;
+}
 
 bool Pore::contains(const Vec3& p) const {
   const double dx = p[0] - centre_mm[0], dy = p[1] - centre_mm[1], dz = p[2] - centre_mm[2];
+  const double w = dz / semi_axes_mm[2], ww = w * w;
+  if (ww > 1.0) return false;
   const double c = std::cos(yaw_rad), s = std::sin(yaw_rad);
-  const double u = (dx * c + dy * s) / semi_axes_mm[0], v = (-dx * s + dy * c) / semi_axes_mm[1],
-               w = dz / semi_axes_mm[2];
-  return u * u + v * v + w * w <= 1.0;
+  const double u = (dx * c + dy * s) / semi_axes_mm[0], v = (-dx * s + dy * c) / semi_axes_mm[1];
+  if (u * u + v * v + ww <= 1.0) return true;
+  for (const Lobe& l : lobes) {
+    const double ex = dx - l.dx_mm, ey = dy - l.dy_mm, lc = std::cos(l.yaw_rad), ls = std::sin(l.yaw_rad);
+    const double lu = (ex * lc + ey * ls) / l.a_mm, lv = (-ex * ls + ey * lc) / l.b_mm;
+    if (lu * lu + lv * lv + ww <= 1.0) return true;
+  }
+  return false;
 }
 
 Vec3 Pore::half_extent_mm() const {
   const double c = std::cos(yaw_rad), s = std::sin(yaw_rad), a = semi_axes_mm[0], b = semi_axes_mm[1];
-  return {std::sqrt(a * a * c * c + b * b * s * s), std::sqrt(a * a * s * s + b * b * c * c), semi_axes_mm[2]};
+  Vec3 h{std::sqrt(a * a * c * c + b * b * s * s), std::sqrt(a * a * s * s + b * b * c * c), semi_axes_mm[2]};
+  for (const Lobe& l : lobes) {
+    h[0] = std::max(h[0], std::abs(l.dx_mm) + lobe_half_x(l));
+    h[1] = std::max(h[1], std::abs(l.dy_mm) + lobe_half_y(l));
+  }
+  return h;
 }
 
 namespace {
@@ -236,6 +340,21 @@ Phantom build_phantom(const Recipe& r) {
         // Centred on a layer boundary, counted from the bottom of the part.
         const double layer = q.layer_um * 1e-3;
         p.centre_mm[2] = box[0][2] + std::round((c[2] - box[0][2]) / layer) * layer;
+        if (q.shape == "irregular") {
+          // Further lobes (recipe.hpp): size lobe_scale x U(0.5, 1), yaw U(0, pi), centre at
+          // rho = U(0.5, 0.9) of the first lobe's semi-axes in direction psi = U(0, 2 pi), so it lies
+          // inside the first ellipse and the union is one void. Volume integrated on acceptance.
+          const double a = p.semi_axes_mm[0], b = p.semi_axes_mm[1];
+          const double cy = std::cos(p.yaw_rad), sy = std::sin(p.yaw_rad);
+          for (int j = 1; j < q.lobes; ++j) {
+            const double scale = q.lobe_scale * (0.5 + 0.5 * g.uniform());
+            const double yaw = M_PI * g.uniform();
+            const double rho = 0.5 + 0.4 * g.uniform();
+            const double psi = 2 * M_PI * g.uniform();
+            const double lx = rho * a * std::cos(psi), ly = rho * b * std::sin(psi);
+            p.lobes.push_back(Lobe{lx * cy - ly * sy, lx * sy + ly * cy, scale * a, scale * b, yaw});
+          }
+        }
       } else {
         p.semi_axes_mm = {d / 2, d / 2, d / 2};
       }
@@ -268,13 +387,26 @@ Phantom build_phantom(const Recipe& r) {
         c = pl.random_point(g);
       }
       Pore p = make(c);
-      const double v = p.volume_mm3();
-      if (placed + v > target + tol) continue;
+      if (!p.lobes.empty()) {
+        // The union volume lies between the largest lobe's and the sum of the lobes' volumes:
+        // integrate it only when those bounds do not settle the porosity check (same decisions).
+        double largest = 0, sum = 0;
+        for (const Lobe& l : p.all_lobes()) {
+          const double vl = 4.0 / 3.0 * M_PI * l.a_mm * l.b_mm * p.semi_axes_mm[2];
+          largest = std::max(largest, vl);
+          sum += vl;
+        }
+        if (placed + largest > target + tol) continue;
+        if (placed + sum > target + tol) p.set_lobes(p.lobes);
+      }
+      if (placed + p.volume_mm3() > target + tol) continue;  // irregular and not integrated: <= sum
       const double rad = p.bounding_radius_mm();
       if (ph.part_sdf(p.centre_mm) > -(rad + s) || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p)) {
         if (q.type == "cluster" && attempts % 50 == 0) left_in_cluster = 0;  // crowded cluster: start another
         continue;
       }
+      if (!p.lobes.empty() && p.lobed_volume_mm3 == 0) p.set_lobes(p.lobes);
+      const double v = p.volume_mm3();
       p.id = int(ph.pores.size()) + 1;
       ph.pores.push_back(p);
       placed += v;
@@ -290,6 +422,7 @@ Phantom build_phantom(const Recipe& r) {
       const double rad = p.bounding_radius_mm();
       if (std::abs(ph.part_sdf(p.centre_mm)) > 0.5 * rad || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p))
         continue;
+      if (!p.lobes.empty()) p.set_lobes(p.lobes);
       p.open = true;
       p.id = int(ph.pores.size()) + 1;
       ph.pores.push_back(p);
@@ -382,14 +515,18 @@ Truth rasterize_truth(const Phantom& ph, int ss) {
 
 std::string pores_csv(const Phantom& ph) {
   std::ostringstream os;
+  const bool lobed = std::any_of(ph.pores.begin(), ph.pores.end(), [](const Pore& p) { return !p.lobes.empty(); });
   os << "id,type,population,x_mm,y_mm,z_mm,semi_axis_a_mm,semi_axis_b_mm,semi_axis_c_mm,yaw_deg,volume_mm3,esd_um,"
-        "inside_part\n";
+        "inside_part"
+     << (lobed ? ",lobes\n" : "\n");
   os << std::setprecision(9);
-  for (const Pore& p : ph.pores)
+  for (const Pore& p : ph.pores) {
     os << p.id << ',' << p.type << ',' << p.population << ',' << p.centre_mm[0] << ',' << p.centre_mm[1] << ','
        << p.centre_mm[2] << ',' << p.semi_axes_mm[0] << ',' << p.semi_axes_mm[1] << ',' << p.semi_axes_mm[2] << ','
-       << p.yaw_rad * 180 / M_PI << ',' << p.volume_mm3() << ',' << p.esd_um() << ',' << (p.open ? "false" : "true")
-       << '\n';
+       << p.yaw_rad * 180 / M_PI << ',' << p.volume_mm3() << ',' << p.esd_um() << ',' << (p.open ? "false" : "true");
+    if (lobed) os << ',' << 1 + p.lobes.size();
+    os << '\n';
+  }
   return os.str();
 }
 

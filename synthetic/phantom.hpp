@@ -1,7 +1,8 @@
 #pragma once
 // A porous phantom: the analytic description (part primitives, marker spheres, pore list) kept
 // apart from its rasterisation on the voxel grid and from any simulated acquisition.
-// Pores are ellipsoids with a rotation about z only (yaw); gas pores are spheres. Phantom frame:
+// Pores are ellipsoids with a rotation about z only (yaw); gas pores are spheres; an irregular
+// lack-of-fusion void is a union of flat ellipsoids in one layer plane (lobes). Phantom frame:
 // mm, origin at the volume centre, z = part axis = rotation axis = build direction.
 // Truth labels: 0 background (air, open pores, markers), 1 material, 2 closed pore.
 #include <array>
@@ -16,6 +17,14 @@ namespace pb::synth {
 
 using Vec3 = std::array<double, 3>;
 
+// A flat ellipsoid of an irregular void, in the pore's layer plane (z = centre_mm[2]) with the
+// pore's thickness semi-axis semi_axes_mm[2].
+struct Lobe {
+  double dx_mm = 0, dy_mm = 0;  // centre offset from the pore centre, phantom frame
+  double a_mm = 0, b_mm = 0;    // in-plane semi-axes, along the lobe's own x, y (after yaw)
+  double yaw_rad = 0;
+};
+
 struct Pore {
   int id = 0;                    // 1-based, in placement order
   int population = 0;            // index into Recipe::pores
@@ -24,12 +33,26 @@ struct Pore {
   Vec3 semi_axes_mm{0, 0, 0};    // along the pore's own x, y (after yaw) and z
   double yaw_rad = 0;            // rotation about z
   bool open = false;             // cut by the part surface (air connected to the outside)
-  double volume_mm3() const;     // of the whole ellipsoid
+  // Irregular void: the lobes unioned with the ellipsoid above; set with set_lobes (which also
+  // integrates the volume). Empty for an ellipsoid.
+  std::vector<Lobe> lobes;
+  double lobed_volume_mm3 = 0;
+  void set_lobes(std::vector<Lobe> extra);
+  std::vector<Lobe> all_lobes() const;  // the ellipsoid as lobe 0, then the extra lobes
+  double volume_mm3() const;     // ellipsoid: 4/3 pi abc; irregular: the integrated union
   double esd_um() const;         // diameter of the sphere of the same volume
-  double bounding_radius_mm() const;
+  double bounding_radius_mm() const;  // from the centre, over every lobe (true maximal extent)
   bool contains(const Vec3& p) const;
-  Vec3 half_extent_mm() const;   // axis-aligned bounding box half sizes
+  Vec3 half_extent_mm() const;   // axis-aligned bounding box half sizes, over every lobe
 };
+
+// Volume of a union of flat ellipsoids sharing the plane z = 0 and the semi-axis c_mm along z.
+// At height z every lobe's section is its ellipse scaled by k = sqrt(1 - z^2/c^2) about its own
+// centre, so V = int A(z) dz with A(z) = int L(x) dx, L the length of the union of the lobes'
+// exact chords along y. Midpoint rule with n nodes in z; about 8 n nodes in x, over the pieces
+// between the lobes' x-ends, each with a cosine substitution that removes the square-root edges
+// there (checked against 4/3 pi a b c and the lens of two spheres in tests).
+double flat_union_volume_mm3(const std::vector<Lobe>& lobes, double c_mm, int n = 256);
 
 struct Phantom {
   Geometry grid;                 // voxel centres in the phantom frame (origin = -(n-1)/2 voxel)
@@ -63,7 +86,8 @@ struct Truth {
 Truth rasterize_truth(const Phantom& ph, int supersampling);
 
 // One row per pore: id, type, population, centre in mm, semi-axes in mm, volume_mm3, esd_um,
-// inside_part (false for open pores).
+// inside_part (false for open pores); when the phantom has irregular voids, one more column
+// `lobes` (flat ellipsoids in the union, 1 for an ellipsoid; semi-axes and yaw are lobe 0's).
 std::string pores_csv(const Phantom& ph);
 
 // Uniform [0,1) and normal draws from mt19937_64 by explicit formulas (53-bit mantissa,

@@ -28,7 +28,8 @@ bool PorePopulation::operator==(const PorePopulation& o) const {
   return type == o.type && porosity_pct == o.porosity_pct && median_diameter_um == o.median_diameter_um &&
          spread == o.spread && min_diameter_um == o.min_diameter_um && thickness_um == o.thickness_um &&
          aspect == o.aspect && layer_um == o.layer_um && pores_per_cluster == o.pores_per_cluster &&
-         cluster_radius_um == o.cluster_radius_um && open_count == o.open_count;
+         cluster_radius_um == o.cluster_radius_um && open_count == o.open_count && shape == o.shape &&
+         lobes == o.lobes && lobe_scale == o.lobe_scale;
 }
 bool Recipe::operator==(const Recipe& o) const { return to_toml(*this) == to_toml(o); }
 
@@ -174,6 +175,15 @@ template <class F> void pore_fields(PorePopulation& q, F&& f) {
   f("aspect", q.aspect), f("layer_um", q.layer_um), f("pores_per_cluster", q.pores_per_cluster);
   f("cluster_radius_um", q.cluster_radius_um), f("open_count", q.open_count);
 }
+// The lack-of-fusion shape keys: always read, written only when not the defaults, so that the
+// recipe.toml of every ellipsoid-only recipe (and its hash in run records) is as before.
+template <class F> void pore_shape_fields(PorePopulation& q, F&& f) {
+  f("shape", q.shape), f("lobes", q.lobes), f("lobe_scale", q.lobe_scale);
+}
+bool default_pore_shape(const PorePopulation& q) {
+  const PorePopulation d;
+  return q.shape == d.shape && q.lobes == d.lobes && q.lobe_scale == d.lobe_scale;
+}
 template <class F> void phantom_fields(Recipe& r, F&& f) {
   f("dims", r.dims), f("voxel_size_um", r.voxel_size_um), f("material", r.material), f("mu_per_mm", r.mu_per_mm);
   f("supersampling", r.supersampling), f("placement_budget", r.placement_budget);
@@ -214,7 +224,10 @@ Recipe from_table(const toml::table& t, const std::string& source) {
     read_list(p, "marker", "phantom.marker", source, r.markers, [](Marker& m, auto&& f) { marker_fields(m, f); });
     p.finish();
   }
-  read_list(top, "pores", "pores", source, r.pores, [](PorePopulation& q, auto&& f) { pore_fields(q, f); });
+  read_list(top, "pores", "pores", source, r.pores, [](PorePopulation& q, auto&& f) {
+    pore_fields(q, f);
+    pore_shape_fields(q, f);
+  });
   if (const toml::table* sc = top.table("scan")) {
     Reader s(*sc, "scan", source);
     scan_fields(r, [&s](const char* k, auto& v) { s.get(k, v); });
@@ -440,6 +453,7 @@ std::string to_toml(const Recipe& recipe) {
   for (PorePopulation& q : r.pores) {
     toml::table e;
     pore_fields(q, Writer{e});
+    if (!default_pore_shape(q)) pore_shape_fields(q, Writer{e});
     pores.push_back(e);
   }
   ph.insert("shape", shapes);
@@ -510,6 +524,12 @@ void validate(const Recipe& r) {
     if (q.pores_per_cluster < 1) bad(k + ".pores_per_cluster", "must be >= 1");
     if (!(q.cluster_radius_um > 0)) bad(k + ".cluster_radius_um", "must be > 0");
     if (q.open_count < 0) bad(k + ".open_count", "must be >= 0");
+    if (q.shape != "ellipsoid" && q.shape != "irregular")
+      bad(k + ".shape", "= '" + q.shape + "' is not known; shapes: ellipsoid, irregular");
+    if (q.shape == "irregular" && q.type != "lack-of-fusion")
+      bad(k + ".shape", "= 'irregular' applies to type lack-of-fusion only (this population is " + q.type + ")");
+    if (q.lobes < 2 || q.lobes > 8) bad(k + ".lobes", "= " + std::to_string(q.lobes) + " must be in 2..8");
+    if (!(q.lobe_scale > 0 && q.lobe_scale <= 1)) bad(k + ".lobe_scale", "= " + num(q.lobe_scale) + " must be in (0, 1]");
   }
   for (int n : r.projections)
     if (n < 1) bad("scan.projections", "= " + std::to_string(n) + " must be >= 1");

@@ -35,6 +35,12 @@ struct Marker {
 // thickness_um along z, centres on layer boundaries), "cluster" (gas pores gathered around
 // cluster centres). porosity_pct counts closed pores over the part volume; open_count more pores
 // are placed cut by the part surface (open pores, not counted in porosity).
+// Lack-of-fusion shape: "ellipsoid" (one flat ellipsoid) or "irregular": the union of `lobes` flat
+// ellipsoids in the same layer plane with the same thickness; the first is the ellipsoid above,
+// each further lobe has semi-axes lobe_scale x U(0.5, 1) times the first's, its own yaw U(0, 180)
+// deg, and its centre at rho = U(0.5, 0.9) of the first's semi-axes in a direction U(0, 360) deg
+// (inside the first ellipse, so the union is one void). Volume by numerical integration (phantom.hpp).
+// The three shape keys are written to recipe.toml only when they differ from the defaults.
 struct PorePopulation {
   std::string type = "gas";
   double porosity_pct = 0.5;
@@ -47,6 +53,9 @@ struct PorePopulation {
   int pores_per_cluster = 8;
   double cluster_radius_um = 150;
   int open_count = 0;
+  std::string shape = "ellipsoid";  // lack-of-fusion: ellipsoid or irregular
+  int lobes = 3;                    // irregular: flat ellipsoids in the union, 2..8
+  double lobe_scale = 0.7;          // irregular: largest further lobe relative to the first, (0, 1]
   bool operator==(const PorePopulation& o) const;
 };
 

@@ -1,4 +1,5 @@
-// Simulated acquisition: exact chords through z-extruded part shapes, ellipsoid cross-sections and
+// Simulated acquisition: exact chords through z-extruded part shapes, ellipsoid cross-sections
+// (an irregular void: the union of its lobes' sections, chord = length of the merged intervals) and
 // marker spheres (Kak & Slaney 1988 ch. 3 for ellipse projections), photon counting noise
 // I = Poisson(I0 exp(-p)) (Beer-Lambert), -log with a noise-free flat field, FBP (ct.hpp).
 // Conventions: see ct.hpp; slices are independent, so everything is parallel over z.
@@ -48,6 +49,7 @@ struct Scene {
   };
   std::vector<Part> parts;
   std::vector<Ellipse2D> closed, open, markers;
+  std::vector<std::vector<Ellipse2D>> closed_unions, open_unions;  // irregular voids: lobe sections
   double mu = 0;
 };
 
@@ -71,8 +73,19 @@ Scene scene_at(const Phantom& ph, double z) {
     return true;
   };
   Ellipse2D e;
-  for (const Pore& p : ph.pores)
-    if (section(p.centre_mm, p.semi_axes_mm, p.yaw_rad, 1.0, e)) (p.open ? sc.open : sc.closed).push_back(e);
+  for (const Pore& p : ph.pores) {
+    if (!section(p.centre_mm, p.semi_axes_mm, p.yaw_rad, 1.0, e)) continue;
+    if (p.lobes.empty()) {
+      (p.open ? sc.open : sc.closed).push_back(e);
+      continue;
+    }
+    // Lobes share the pore's plane and thickness, so each section is the lobe scaled by the same k.
+    const double k = e.a / p.semi_axes_mm[0];
+    std::vector<Ellipse2D> u{e};
+    for (const Lobe& l : p.lobes)
+      u.push_back({p.centre_mm[0] + l.dx_mm, p.centre_mm[1] + l.dy_mm, k * l.a_mm, k * l.b_mm, l.yaw_rad, 1.0});
+    (p.open ? sc.open_unions : sc.closed_unions).push_back(std::move(u));
+  }
   for (const Marker& m : ph.markers)
     if (section(m.centre_mm, {m.radius_mm, m.radius_mm, m.radius_mm}, 0, m.mu_per_mm, e)) sc.markers.push_back(e);
   return sc;
@@ -190,6 +203,45 @@ void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, i
       for (int i = 0; i < m; ++i) out[k] -= std::max(0.0, std::min(s1, iv[i].b) - std::max(s0, iv[i].a));
     }
   }
+  // Irregular voids: the merged intervals of the lobes along each ray; closed ones lie inside the
+  // part, open ones count only where they cut it.
+  auto unions = [&](const std::vector<std::vector<Ellipse2D>>& list, bool open) {
+    std::vector<EllipseAtAngle> lobes;
+    for (const auto& u : list) {
+      lobes.clear();
+      int k0 = n, k1 = -1;
+      for (const Ellipse2D& e : u) {
+        lobes.emplace_back(e, ct, st, t0, dt, n);
+        k0 = std::min(k0, lobes.back().k0);
+        k1 = std::max(k1, lobes.back().k1);
+      }
+      Interval li[16];
+      for (int k = k0; k <= k1; ++k) {
+        const double t = t0 + k * dt;
+        int m = 0;
+        for (const EllipseAtAngle& ea : lobes) {
+          double s0, s1;
+          if (m < 16 && ea.interval(t, s0, s1)) li[m++] = {s0, s1};
+        }
+        if (m == 0) continue;
+        std::sort(li, li + m, [](const Interval& x, const Interval& y) { return x.a < y.a; });
+        int nm = 0;
+        for (int i = 0; i < m; ++i) {
+          if (nm > 0 && li[i].a <= li[nm - 1].b) li[nm - 1].b = std::max(li[nm - 1].b, li[i].b);
+          else li[nm++] = li[i];
+        }
+        if (!open) {
+          for (int i = 0; i < nm; ++i) out[k] -= li[i].b - li[i].a;
+          continue;
+        }
+        const int mp = part_intervals(sc, ct, st, t, iv, 32);
+        for (int i = 0; i < nm; ++i)
+          for (int j = 0; j < mp; ++j) out[k] -= std::max(0.0, std::min(li[i].b, iv[j].b) - std::max(li[i].a, iv[j].a));
+      }
+    }
+  };
+  if (!sc.closed_unions.empty()) unions(sc.closed_unions, false);
+  if (!sc.open_unions.empty()) unions(sc.open_unions, true);
   for (int k = 0; k < n; ++k) out[k] = std::max(0.0, out[k]) * sc.mu;
   for (const Ellipse2D& e : sc.markers) {
     const EllipseAtAngle ea(e, ct, st, t0, dt, n);

@@ -1,7 +1,9 @@
 // porebench synth: the output contract (files, manifest hashes, recipe.toml that reproduces the
 // run), bit-identical output for any --threads, and exit code 2 with the field named on bad input.
 #include <catch2/catch.hpp>
+#include <cmath>
 #include <nlohmann/json.hpp>
+#include <sstream>
 
 #include "core/io.hpp"
 #include "core/sha256.hpp"
@@ -68,6 +70,39 @@ TEST_CASE("synth is bit-identical for any --threads, and recipe.toml reproduces 
   }
 }
 
+TEST_CASE("synth with irregular lack-of-fusion voids: bit-identical for any --threads, volumes in pores.csv",
+          "[synth][cli][irregular]") {
+  TempDir d;
+  const std::string irr = kSmall + " --projections 20 --set pores.1.shape=irregular --set pores.1.porosity_pct=1";
+  REQUIRE(run_cli("--threads 1 " + irr + " -o " + d / "a").exit_code == 0);
+  REQUIRE(run_cli("--threads 2 " + irr + " -o " + d / "b").exit_code == 0);
+  const auto a = manifest(d / "a"), b = manifest(d / "b");
+  REQUIRE(a["files"].size() == b["files"].size());
+  for (size_t i = 0; i < a["files"].size(); ++i) CHECK(a["files"][i]["sha256"] == b["files"][i]["sha256"]);
+  // pores.csv: the lobes column; the closed pores' volume_mm3 sum is the manifest's analytic
+  // porosity times the part volume, and esd_um is the diameter of the sphere of that volume.
+  std::ifstream csv(d / "a/pores.csv");
+  std::string line;
+  std::getline(csv, line);
+  REQUIRE(line.size() > 6);
+  CHECK(line.substr(line.size() - 6) == ",lobes");
+  double closed_mm3 = 0;
+  int irregular = 0;
+  while (std::getline(csv, line)) {
+    std::vector<std::string> f;
+    std::stringstream ss(line);
+    for (std::string c; std::getline(ss, c, ',');) f.push_back(c);
+    REQUIRE(f.size() == 14);
+    const double v = std::stod(f[10]), esd = std::stod(f[11]);
+    CHECK(esd == Approx(1000 * std::cbrt(6 * v / M_PI)).epsilon(1e-7));
+    if (f[12] == "true") closed_mm3 += v;
+    irregular += f[1] == "lack-of-fusion" && f[13] == "3";
+  }
+  CHECK(irregular > 0);
+  CHECK(100 * closed_mm3 / a["part_volume_mm3"].get<double>() ==
+        Approx(a["analytic_porosity_pct"].get<double>()).epsilon(1e-6));
+}
+
 TEST_CASE("synth dose series writes one scan per projection count and dose; uint16 output", "[synth][cli]") {
   TempDir d;
   const auto r = run_cli(kSmall + " --projections 20 --i0 10000,40000 --set scan.output_type=uint16 -o " + d / "o");
@@ -92,6 +127,10 @@ TEST_CASE("synth bad input exits 2 naming the field", "[synth][cli]") {
       {"--set pores.0.porosity_pct=39 --set phantom.placement_budget=2000", "pores.0"},
       {"--set scan.nonsense=1", "scan.nonsense"},
       {"--set phantom.material=unobtainium", "phantom.material"},
+      {"--set pores.1.shape=blob", "pores.1.shape"},
+      {"--set pores.0.shape=irregular", "pores.0.shape"},
+      {"--set pores.1.shape=irregular --set pores.1.lobes=1", "pores.1.lobes"},
+      {"--set pores.1.shape=irregular --set pores.1.lobe_scale=1.5", "pores.1.lobe_scale"},
   };
   for (const Case& c : cases) {
     INFO(c.args);
