@@ -23,6 +23,17 @@ std::string ScanSpec::file_name(bool dose_series) const {
   return os.str();
 }
 
+double detector_counts(Rng& rng, double expected, double electronic_sigma) {
+  double counts = double(rng.poisson(expected));
+  if (electronic_sigma > 0) counts += electronic_sigma * rng.normal();
+  return counts;
+}
+
+double log_transmission(double counts, double i0) {
+  // Common practice, no source: clamp counts at half a photon before the log.
+  return -std::log(std::max(counts, 0.5) / i0);
+}
+
 std::vector<ScanSpec> scan_list(const Recipe& r) {
   std::vector<ScanSpec> out{{r.reference_projections, r.reference_dose(), true}};
   for (int n : r.projections)
@@ -352,10 +363,7 @@ std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, const st
             sino.data[k] = float(-std::log(std::max(t, 1e-30)));
             continue;
           }
-          double counts = double(rng.poisson(i0 * t));
-          if (r.electronic_noise > 0) counts += r.electronic_noise * rng.normal();
-          // Common practice, no source: clamp counts at half a photon before the log.
-          sino.data[k] = float(-std::log(std::max(counts, 0.5) / i0));
+          sino.data[k] = float(log_transmission(detector_counts(rng, i0 * t, r.electronic_noise), i0));
         }
         fbp.filter(sino);
         float* dst = out[d].slice(z);

@@ -22,6 +22,13 @@ struct ScanSpec {
   std::string file_name(bool dose_series) const;
 };
 
+// One detector reading of expected count `expected` (= I0 x transmission): Poisson(expected) plus,
+// when electronic_sigma > 0, independent Gaussian read noise of that sigma (in photons). Draws
+// from `rng` in this order; the scan simulation uses exactly this function.
+double detector_counts(Rng& rng, double expected, double electronic_sigma);
+// The measured line integral -log(counts / i0), counts clamped at half a photon first.
+double log_transmission(double counts, double i0);
+
 // The reference scan first, then every projection count at every i0.
 std::vector<ScanSpec> scan_list(const Recipe& r);
 
