@@ -41,7 +41,11 @@ void BM_ForwardProjectJoseph(benchmark::State& state) {
 }
 BENCHMARK(BM_ForwardProjectJoseph)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
-void BM_BackProject(benchmark::State& state) {
+void back_project(benchmark::State& state, BpKernel kernel) {
+  if (!bp_kernel_supported(kernel)) {
+    state.SkipWithError("kernel not supported by this CPU");
+    return;
+  }
   pb::set_threads(int(state.range(0)));
   const ParallelGeometry g = geo();
   Fbp fbp(g, RampWindow::RamLak);
@@ -50,12 +54,19 @@ void BM_BackProject(benchmark::State& state) {
   std::vector<float> out(size_t(kN) * kN);
   for (auto _ : state) {
     std::fill(out.begin(), out.end(), 0.f);
-    fbp.backproject(s, kN, kN, 1.0, out.data(), true);
+    fbp.backproject(s, kN, kN, 1.0, out.data(), true, kernel);
     benchmark::DoNotOptimize(out.data());
   }
   set_rate(state);
+  state.SetLabel(bp_kernel_name(kernel == BpKernel::Auto ? best_bp_kernel() : kernel));
 }
+// The kernel this CPU gets (label), and the others for comparison.
+void BM_BackProject(benchmark::State& state) { back_project(state, BpKernel::Auto); }
+void BM_BackProjectAvx2(benchmark::State& state) { back_project(state, BpKernel::Avx2); }
+void BM_BackProjectGeneric(benchmark::State& state) { back_project(state, BpKernel::Generic); }
 BENCHMARK(BM_BackProject)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_BackProjectAvx2)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_BackProjectGeneric)->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 void BM_FbpFilterAndBackProject(benchmark::State& state) {
   pb::set_threads(int(state.range(0)));

@@ -13,6 +13,14 @@
 
 #include "core/error.hpp"
 
+#if defined(__x86_64__) && defined(__GNUC__)
+// GCC 12 warns about the _mm512_undefined_* values inside its own intrinsic headers (a false positive).
+#pragma GCC diagnostic push
+#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
+#include <immintrin.h>
+#pragma GCC diagnostic pop
+#endif
+
 // Hot loops get an AVX2 clone picked at run time (the binary stays portable x86-64).
 #if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
 #define PB_SIMD_CLONES __attribute__((target_clones("avx2", "default")))
@@ -236,100 +244,294 @@ void Fbp::filter(Sinogram& sino) {
 
 namespace {
 
-// One row of back-projection for one angle: out[i] += q(u0 + i du), linear interpolation. The
-// detector covers the slice diagonal, so 0 <= u < bins - 1 for every pixel.
-PB_SIMD_CLONES
-void bp_row(const float* __restrict q, const float* __restrict dq, float u0, float du, int nx,
-            float* __restrict out) {
-  for (int i = 0; i < nx; ++i) {
-    const float u = u0 + float(i) * du;
-    const int k = int(u);
-    const float w = u - float(k);
-    out[i] += q[k] + w * dq[k];
-  }
+// ---- Back-projection kernels -----------------------------------------------------------------
+// Pixel (i, j) of an angle reads the filtered projection at u = u00 + i du + j su (in bins), with
+// linear interpolation q[k] + w dq[k], k = floor(u), w = u - k, dq[k] = q[k+1] - q[k]. Every pixel
+// sums its angles in order 0..N-1, whatever the kernel's tiling and the thread count.
+//
+// SIMD kernels (AVX-512: 16 pixels, AVX2: 8 pixels of one image row per register; a tile is R
+// rows, its accumulators stay in registers over a chunk of angles) avoid gathers: the bins a tile
+// needs for one angle span 1 + (lanes-1)|du| + (R-1)|su| bins, which for pixels no coarser than
+// bins fit in a window of 2 x lanes floats starting at kmin = floor(min u) - 1. The window is loaded
+// once per angle and tile (two registers of q, two of dq) and every row picks its values with a
+// two-source permute. Steeper angles take one window per row (|du| <= kMaxDu), then gathers.
+
+constexpr double kMaxDu = 1.8;   // 15 x 1.8 + 3 < 32 (AVX-512) and 7 x 1.8 + 3 < 16 (AVX2)
+constexpr int kFront = 32;       // zero bins before each padded row: tail lanes may reach u ~ -27
+constexpr int kAngleChunk = 64;  // angles per pass over a row group (their rows stay in L2)
+
+// q and dq of every angle in zero-padded rows of length L (q at 0, dq at L), with per-angle
+// coordinates in padded bins.
+struct BpPlan {
+  int L = 0;
+  std::vector<float> rows;         // angles x 2L
+  std::vector<double> u00, du, su;  // u of pixel (0, 0) in padded bins; steps per pixel and row
+  std::vector<float> du_f;
+  const float* q(int a) const { return rows.data() + size_t(a) * 2 * size_t(L); }
+};
+
+int round_up(int n, int m) { return (n + m - 1) / m * m; }
+
+#if defined(__x86_64__) && defined(__GNUC__)
+#define PB_BP_X86 1
+
+// Broadcasts of per-row values stored by a tile: from memory they take a load port, where the
+// compiler's own choice (a shuffle and a register broadcast of the value it still holds) takes
+// two ALU slots.
+__attribute__((target("avx512f"))) inline __m512 bcast16(const float& x) {
+  __m512 v;
+  __asm__("vbroadcastss %1, %0" : "=v"(v) : "m"(x));
+  return v;
+}
+__attribute__((target("avx2"))) inline __m256 bcast8(const float& x) {
+  __m256 v;
+  __asm__("vbroadcastss %1, %0" : "=x"(v) : "m"(x));
+  return v;
 }
 
-// Four angles at once (fewer passes over the accumulators); same per-pixel order of summation as
-// four calls of bp_row: ((((acc + a0) + a1) + a2) + a3).
-PB_SIMD_CLONES
-void bp_row4(const float* const* __restrict q, const float* const* __restrict dq, const float* u0, const float* du,
-             int nx, float* __restrict out) {
-  const float *q0 = q[0], *q1 = q[1], *q2 = q[2], *q3 = q[3];
-  const float *d0 = dq[0], *d1 = dq[1], *d2 = dq[2], *d3 = dq[3];
-  for (int i = 0; i < nx; ++i) {
-    const float fi = float(i);
-    const float ua = u0[0] + fi * du[0], ub = u0[1] + fi * du[1], uc = u0[2] + fi * du[2], ud = u0[3] + fi * du[3];
-    const int ka = int(ua), kb = int(ub), kc = int(uc), kd = int(ud);
-    float acc = out[i];
-    acc += q0[ka] + (ua - float(ka)) * d0[ka];
-    acc += q1[kb] + (ub - float(kb)) * d1[kb];
-    acc += q2[kc] + (uc - float(kc)) * d2[kc];
-    acc += q3[kd] + (ud - float(kd)) * d3[kd];
-    out[i] = acc;
+// R rows x 16 pixels from (i0, j0), angles [a0, a1), adding into acc (row stride `stride`).
+template <int R>
+__attribute__((target("avx512f,avx512bw,avx512vl,avx512dq"))) void bp_tile_avx512(
+    const BpPlan& p, int j0, int i0, int a0, int a1, float* acc, int stride) {
+  static_assert(R >= 1 && R <= 8, "rows per tile");
+  __m512 s[R];
+#pragma GCC unroll 8
+  for (int r = 0; r < R; ++r) s[r] = _mm512_loadu_ps(acc + size_t(r) * size_t(stride));
+  const __m512 lane = _mm512_setr_ps(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
+  const __m512d rows = _mm512_setr_pd(0, 1, 2, 3, 4, 5, 6, 7);
+  const __m512i last = _mm512_set1_epi32(p.L - 2);
+  alignas(32) float base[8];
+  alignas(32) int kmin[8];
+  for (int a = a0; a < a1; ++a) {
+    const float* q = p.q(a);
+    const float* dq = q + p.L;
+    const double du = p.du[size_t(a)], su = p.su[size_t(a)], v = p.u00[size_t(a)] + i0 * du + j0 * su;
+    const __m512 duv = _mm512_set1_ps(p.du_f[size_t(a)]);
+    const __m512d ur = _mm512_fmadd_pd(rows, _mm512_set1_pd(su), _mm512_set1_pd(v));  // u of each row's lane 0
+    const double lo_du = std::min(0.0, 15 * du);
+    if (15 * std::abs(du) + (R - 1) * std::abs(su) <= 28) {  // one window for the tile
+      const int k0 = int(v + lo_du + (R - 1) * std::min(0.0, su)) - 1;
+      _mm256_store_ps(base, _mm512_cvtpd_ps(_mm512_sub_pd(ur, _mm512_set1_pd(k0))));
+      const __m512 q0 = _mm512_loadu_ps(q + k0), q1 = _mm512_loadu_ps(q + k0 + 16);
+      const __m512 d0 = _mm512_loadu_ps(dq + k0), d1 = _mm512_loadu_ps(dq + k0 + 16);
+#pragma GCC unroll 8
+      for (int r = 0; r < R; ++r) {
+        const __m512 t = _mm512_fmadd_ps(lane, duv, bcast16(base[r]));
+        const __m512i idx = _mm512_cvttps_epi32(t);
+        const __m512 w = _mm512_sub_ps(t, _mm512_cvtepi32_ps(idx));
+        s[r] = _mm512_add_ps(s[r], _mm512_fmadd_ps(w, _mm512_permutex2var_ps(d0, idx, d1),
+                                                   _mm512_permutex2var_ps(q0, idx, q1)));
+      }
+    } else if (std::abs(du) <= kMaxDu) {  // one window per row
+      const __m256i km = _mm256_sub_epi32(_mm512_cvttpd_epi32(_mm512_add_pd(ur, _mm512_set1_pd(lo_du))),
+                                          _mm256_set1_epi32(1));
+      _mm256_store_si256(reinterpret_cast<__m256i*>(kmin), km);
+      _mm256_store_ps(base, _mm512_cvtpd_ps(_mm512_sub_pd(ur, _mm512_cvtepi32_pd(km))));
+#pragma GCC unroll 8
+      for (int r = 0; r < R; ++r) {
+        const int k = kmin[r];
+        const __m512 t = _mm512_fmadd_ps(lane, duv, bcast16(base[r]));
+        const __m512i idx = _mm512_cvttps_epi32(t);
+        const __m512 w = _mm512_sub_ps(t, _mm512_cvtepi32_ps(idx));
+        const __m512 qv = _mm512_permutex2var_ps(_mm512_loadu_ps(q + k), idx, _mm512_loadu_ps(q + k + 16));
+        const __m512 dv = _mm512_permutex2var_ps(_mm512_loadu_ps(dq + k), idx, _mm512_loadu_ps(dq + k + 16));
+        s[r] = _mm512_add_ps(s[r], _mm512_fmadd_ps(w, dv, qv));
+      }
+    } else {  // gathers
+      _mm256_store_ps(base, _mm512_cvtpd_ps(ur));
+#pragma GCC unroll 8
+      for (int r = 0; r < R; ++r) {
+        const __m512 t = _mm512_fmadd_ps(lane, duv, bcast16(base[r]));
+        // Tail lanes past the row end may leave the detector: clamp them (their sums are dropped).
+        const __m512i idx = _mm512_min_epi32(_mm512_max_epi32(_mm512_cvttps_epi32(t), _mm512_setzero_si512()), last);
+        const __m512 w = _mm512_sub_ps(t, _mm512_cvtepi32_ps(idx));
+        const __m512 qv = _mm512_i32gather_ps(idx, q, 4), dv = _mm512_i32gather_ps(idx, dq, 4);
+        s[r] = _mm512_add_ps(s[r], _mm512_fmadd_ps(w, dv, qv));
+      }
+    }
   }
+#pragma GCC unroll 8
+  for (int r = 0; r < R; ++r) _mm512_storeu_ps(acc + size_t(r) * size_t(stride), s[r]);
 }
+
+// The AVX2 twin: 8 pixels, window of 16 bins, two one-source permutes and a blend per table.
+template <int R>
+__attribute__((target("avx2,fma"))) void bp_tile_avx2(const BpPlan& p, int j0, int i0, int a0, int a1, float* acc,
+                                                      int stride) {
+  static_assert(R >= 1 && R <= 4, "rows per tile");
+  __m256 s[R];
+#pragma GCC unroll 4
+  for (int r = 0; r < R; ++r) s[r] = _mm256_loadu_ps(acc + size_t(r) * size_t(stride));
+  const __m256 lane = _mm256_setr_ps(0, 1, 2, 3, 4, 5, 6, 7);
+  const __m256d rows = _mm256_setr_pd(0, 1, 2, 3);
+  const __m256i last = _mm256_set1_epi32(p.L - 2);
+  alignas(16) float base[4];
+  alignas(16) int kmin[4];
+  for (int a = a0; a < a1; ++a) {
+    const float* q = p.q(a);
+    const float* dq = q + p.L;
+    const double du = p.du[size_t(a)], su = p.su[size_t(a)], v = p.u00[size_t(a)] + i0 * du + j0 * su;
+    const __m256 duv = _mm256_set1_ps(p.du_f[size_t(a)]);
+    const __m256d ur = _mm256_fmadd_pd(rows, _mm256_set1_pd(su), _mm256_set1_pd(v));
+    const double lo_du = std::min(0.0, 7 * du);
+    if (std::abs(du) <= kMaxDu) {
+      int k0 = 0;
+      const bool shared = 7 * std::abs(du) + (R - 1) * std::abs(su) <= 12;
+      if (shared) {
+        k0 = int(v + lo_du + (R - 1) * std::min(0.0, su)) - 1;
+        _mm_store_ps(base, _mm256_cvtpd_ps(_mm256_sub_pd(ur, _mm256_set1_pd(k0))));
+      } else {
+        const __m128i km = _mm_sub_epi32(_mm256_cvttpd_epi32(_mm256_add_pd(ur, _mm256_set1_pd(lo_du))), _mm_set1_epi32(1));
+        _mm_store_si128(reinterpret_cast<__m128i*>(kmin), km);
+        _mm_store_ps(base, _mm256_cvtpd_ps(_mm256_sub_pd(ur, _mm256_cvtepi32_pd(km))));
+      }
+#pragma GCC unroll 4
+      for (int r = 0; r < R; ++r) {
+        const int k = shared ? k0 : kmin[r];
+        const __m256 t = _mm256_fmadd_ps(lane, duv, bcast8(base[r]));
+        const __m256i idx = _mm256_cvttps_epi32(t);
+        const __m256 w = _mm256_sub_ps(t, _mm256_cvtepi32_ps(idx));
+        const __m256 hi = _mm256_castsi256_ps(_mm256_slli_epi32(idx, 28));  // sign bit = (idx & 8)
+        const __m256 qv = _mm256_blendv_ps(_mm256_permutevar8x32_ps(_mm256_loadu_ps(q + k), idx),
+                                           _mm256_permutevar8x32_ps(_mm256_loadu_ps(q + k + 8), idx), hi);
+        const __m256 dv = _mm256_blendv_ps(_mm256_permutevar8x32_ps(_mm256_loadu_ps(dq + k), idx),
+                                           _mm256_permutevar8x32_ps(_mm256_loadu_ps(dq + k + 8), idx), hi);
+        s[r] = _mm256_add_ps(s[r], _mm256_fmadd_ps(w, dv, qv));
+      }
+    } else {
+      _mm_store_ps(base, _mm256_cvtpd_ps(ur));
+#pragma GCC unroll 4
+      for (int r = 0; r < R; ++r) {
+        const __m256 t = _mm256_fmadd_ps(lane, duv, bcast8(base[r]));
+        const __m256i idx = _mm256_min_epi32(_mm256_max_epi32(_mm256_cvttps_epi32(t), _mm256_setzero_si256()), last);
+        const __m256 w = _mm256_sub_ps(t, _mm256_cvtepi32_ps(idx));
+        const __m256 qv = _mm256_i32gather_ps(q, idx, 4), dv = _mm256_i32gather_ps(dq, idx, 4);
+        s[r] = _mm256_add_ps(s[r], _mm256_fmadd_ps(w, dv, qv));
+      }
+    }
+  }
+#pragma GCC unroll 4
+  for (int r = 0; r < R; ++r) _mm256_storeu_ps(acc + size_t(r) * size_t(stride), s[r]);
+}
+
+using TileFn = void (*)(const BpPlan&, int, int, int, int, float*, int);
+#endif
 
 }  // namespace
 
-void Fbp::backproject(const Sinogram& f, int nx, int ny, double s, float* out, bool parallel) const {
+bool bp_kernel_supported(BpKernel k) {
+  switch (k) {
+    case BpKernel::Auto:
+    case BpKernel::Generic: return true;
+#ifdef PB_BP_X86
+    case BpKernel::Avx2: return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+    case BpKernel::Avx512:
+      return __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512bw") &&
+             __builtin_cpu_supports("avx512vl") && __builtin_cpu_supports("avx512dq");
+#else
+    default: return false;
+#endif
+  }
+  return false;
+}
+
+BpKernel best_bp_kernel() {
+  static const BpKernel best = bp_kernel_supported(BpKernel::Avx512) ? BpKernel::Avx512
+                               : bp_kernel_supported(BpKernel::Avx2) ? BpKernel::Avx2
+                                                                     : BpKernel::Generic;
+  return best;
+}
+
+const char* bp_kernel_name(BpKernel k) {
+  switch (k) {
+    case BpKernel::Auto: return "auto";
+    case BpKernel::Generic: return "generic";
+    case BpKernel::Avx2: return "avx2";
+    case BpKernel::Avx512: return "avx512";
+  }
+  return "?";
+}
+
+void Fbp::backproject(const Sinogram& f, int nx, int ny, double s, float* out, bool parallel, BpKernel kernel) const {
   const int nb = g_.bins, na = g_.angles;
   if (f.geo.bins != nb || f.geo.angles != na) throw InputError("FBP: sinogram geometry differs from the filter's");
   const double diag_bins = std::sqrt(double(nx) * nx + double(ny) * ny) * s / g_.bin_mm;
   if (nb < diag_bins + 1)
     throw InputError("FBP: detector of " + std::to_string(nb) + " bins is narrower than the slice diagonal (" +
                      std::to_string(diag_bins) + " bins)");
-  // q and its forward differences, so the inner loop makes two loads per update.
-  std::vector<float> dq(size_t(na) * size_t(nb));
-  for (int i = 0; i < na; ++i) {
-    const float* q = f.row(i);
-    float* d = dq.data() + size_t(i) * size_t(nb);
-    for (int k = 0; k + 1 < nb; ++k) d[k] = q[k + 1] - q[k];
-    d[nb - 1] = 0;
-  }
-  std::vector<float> cu(static_cast<size_t>(na)), su(static_cast<size_t>(na));
-  for (int i = 0; i < na; ++i) {
-    cu[size_t(i)] = float(std::cos(g_.angle_rad(i)) * s / g_.bin_mm);
-    su[size_t(i)] = float(std::sin(g_.angle_rad(i)) * s / g_.bin_mm);
-  }
+  const BpKernel kern = kernel == BpKernel::Auto ? best_bp_kernel() : kernel;
+  if (!bp_kernel_supported(kern))
+    throw InputError(std::string("FBP: back-projection kernel '") + bp_kernel_name(kern) + "' is not supported by this CPU");
   const double cx = (nx - 1) / 2.0, cy = (ny - 1) / 2.0, cb = (nb - 1) / 2.0;
   const float scale = float(M_PI / na);  // Kak & Slaney eq. 3.60: f = pi/N sum_i Q_i (180 and 360 arcs)
-  // Blocks of rows, angles outside, rows inside: a block's accumulators stay in L1/L2 while each
-  // filtered projection is read once per block. Every pixel sums its angles in order, whatever
-  // the thread count.
-  constexpr int kBlock = 16;
-  const int n_blocks = (ny + kBlock - 1) / kBlock;
+  std::vector<double> du(static_cast<size_t>(na)), su(static_cast<size_t>(na)), u00(static_cast<size_t>(na));
+  for (int a = 0; a < na; ++a) {
+    du[size_t(a)] = std::cos(g_.angle_rad(a)) * s / g_.bin_mm;
+    su[size_t(a)] = std::sin(g_.angle_rad(a)) * s / g_.bin_mm;
+    u00[size_t(a)] = -cx * du[size_t(a)] - cy * su[size_t(a)] + cb;  // u of pixel (0, 0)
+  }
+
+  if (kern == BpKernel::Generic) {
+    // One row at a time, angles in order; u in double, so this is also the reference of the SIMD
+    // kernels. The detector covers the diagonal: 0 <= u < bins - 1 for every pixel.
 #pragma omp parallel for schedule(static) if (parallel)
-  for (int b = 0; b < n_blocks; ++b) {
-    const int j0 = b * kBlock, j1 = std::min(ny, j0 + kBlock);
-    std::vector<float> acc(size_t(kBlock) * size_t(nx), 0.f);
-    int i = 0;
-    for (; i + 4 <= na; i += 4) {
-      const float* qs[4] = {f.row(i), f.row(i + 1), f.row(i + 2), f.row(i + 3)};
-      const float* ds[4];
-      float dus[4], u0s[4];
-      for (int a = 0; a < 4; ++a) {
-        ds[a] = dq.data() + size_t(i + a) * size_t(nb);
-        dus[a] = cu[size_t(i + a)];
+    for (int j = 0; j < ny; ++j) {
+      std::vector<float> acc(size_t(nx), 0.f);
+      for (int a = 0; a < na; ++a) {
+        const float* q = f.row(a);
+        const double u0 = u00[size_t(a)] + j * su[size_t(a)], d = du[size_t(a)];
+        for (int i = 0; i < nx; ++i) {
+          const double u = u0 + i * d;
+          const int k = int(u);
+          const float w = float(u - k);
+          acc[size_t(i)] += q[k] + w * (q[k + 1] - q[k]);
+        }
       }
-      for (int j = j0; j < j1; ++j) {
-        for (int a = 0; a < 4; ++a) u0s[a] = float(-cx * cu[size_t(i + a)] + (j - cy) * su[size_t(i + a)] + cb);
-        bp_row4(qs, ds, u0s, dus, nx, acc.data() + size_t(j - j0) * size_t(nx));
-      }
-    }
-    for (; i < na; ++i) {
-      const float* q = f.row(i);
-      const float* d = dq.data() + size_t(i) * size_t(nb);
-      for (int j = j0; j < j1; ++j) {
-        const float u0 = float(-cx * cu[size_t(i)] + (j - cy) * su[size_t(i)] + cb);
-        bp_row(q, d, u0, cu[size_t(i)], nx, acc.data() + size_t(j - j0) * size_t(nx));
-      }
-    }
-    for (int j = j0; j < j1; ++j) {
       float* o = out + size_t(j) * size_t(nx);
-      const float* a = acc.data() + size_t(j - j0) * size_t(nx);
-      for (int x = 0; x < nx; ++x) o[x] += scale * a[x];
+      for (int i = 0; i < nx; ++i) o[i] += scale * acc[size_t(i)];
+    }
+    return;
+  }
+#ifdef PB_BP_X86
+  const bool avx512 = kern == BpKernel::Avx512;
+  const int lanes = avx512 ? 16 : 8, R = avx512 ? 8 : 4;
+  BpPlan p;
+  // Tail lanes reach (lanes - 1) kMaxDu bins past either end of the detector, and a window reads
+  // 2 x lanes floats from kmin.
+  p.L = round_up(kFront + nb + 2 * 16 + 32, 16);
+  p.rows.assign(size_t(na) * 2 * size_t(p.L), 0.f);
+  p.u00.resize(size_t(na));
+  p.du = du;
+  p.su = su;
+  p.du_f.resize(size_t(na));
+#pragma omp parallel for schedule(static) if (parallel)
+  for (int a = 0; a < na; ++a) {
+    float* q = p.rows.data() + size_t(a) * 2 * size_t(p.L) + kFront;
+    float* dq = q + p.L;
+    const float* src = f.row(a);
+    std::copy(src, src + nb, q);
+    for (int k = 0; k + 1 < nb; ++k) dq[k] = src[k + 1] - src[k];
+    p.u00[size_t(a)] = u00[size_t(a)] + kFront;
+    p.du_f[size_t(a)] = float(du[size_t(a)]);
+  }
+  const TileFn full = avx512 ? TileFn(&bp_tile_avx512<8>) : TileFn(&bp_tile_avx2<4>);
+  const TileFn one = avx512 ? TileFn(&bp_tile_avx512<1>) : TileFn(&bp_tile_avx2<1>);
+  const int stride = round_up(nx, lanes);
+  const int n_full = ny / R, n_units = n_full + ny % R;  // row groups of R, then single rows
+#pragma omp parallel for schedule(static) if (parallel)
+  for (int unit = 0; unit < n_units; ++unit) {
+    const int j0 = unit < n_full ? unit * R : n_full * R + (unit - n_full), rows = unit < n_full ? R : 1;
+    const TileFn tile = unit < n_full ? full : one;
+    std::vector<float> acc(size_t(rows) * size_t(stride), 0.f);
+    for (int a0 = 0; a0 < na; a0 += kAngleChunk)
+      for (int i0 = 0; i0 < nx; i0 += lanes) tile(p, j0, i0, a0, std::min(na, a0 + kAngleChunk), acc.data() + i0, stride);
+    for (int r = 0; r < rows; ++r) {
+      float* o = out + size_t(j0 + r) * size_t(nx);
+      const float* src = acc.data() + size_t(r) * size_t(stride);
+      for (int i = 0; i < nx; ++i) o[i] += scale * src[i];
     }
   }
+#endif
 }
 
 std::vector<float> Fbp::reconstruct(Sinogram sino, int nx, int ny, double s, bool parallel) {

@@ -64,6 +64,13 @@ Sinogram project_image(const float* image, int nx, int ny, double pixel_mm, cons
                        bool parallel = true);
 
 enum class RampWindow { RamLak, SheppLogan, Cosine, Hamming, Hann };
+
+// Back-projection kernels: Auto picks the best this CPU runs (checked once at run time); the
+// others force one (tests compare them). Generic is plain C++ with u in double precision.
+enum class BpKernel { Auto, Generic, Avx2, Avx512 };
+bool bp_kernel_supported(BpKernel k);
+BpKernel best_bp_kernel();
+const char* bp_kernel_name(BpKernel k);
 RampWindow parse_window(const std::string& name);  // ram-lak, shepp-logan, cosine, hamming, hann
 
 // Filtered back-projection on an nx x ny grid of pixel_mm; output in the sinogram's units per mm
@@ -78,8 +85,10 @@ class Fbp {
   // Filters every row of `sino` in place (ramp x window, zero-padded to avoid wrap-around).
   void filter(Sinogram& sino);
   // Back-projects a filtered sinogram, adding into `out` (nx x ny); parallel over rows when asked.
-  // The detector must cover the slice diagonal (detector_bins_for), else InputError.
-  void backproject(const Sinogram& filtered, int nx, int ny, double pixel_mm, float* out, bool parallel) const;
+  // The detector must cover the slice diagonal (detector_bins_for), else InputError. Every pixel
+  // sums its angles in order, so results do not depend on the thread count.
+  void backproject(const Sinogram& filtered, int nx, int ny, double pixel_mm, float* out, bool parallel,
+                   BpKernel kernel = BpKernel::Auto) const;
   // filter + backproject into a zeroed image.
   std::vector<float> reconstruct(Sinogram sino, int nx, int ny, double pixel_mm, bool parallel = true);
   int padded_length() const { return pad_; }
