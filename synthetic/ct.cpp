@@ -9,6 +9,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <memory>
 #include <mutex>
 
 #include "core/error.hpp"
@@ -224,22 +225,22 @@ Fbp::~Fbp() {
   if (buf_) fftwf_free(buf_);
 }
 
+void Fbp::filter_row(const float* in, float* out, float* work) const {
+  auto* spec = reinterpret_cast<fftwf_complex*>(work + pad_);
+  std::copy(in, in + g_.bins, work);
+  std::fill(work + g_.bins, work + pad_, 0.f);
+  fftwf_execute_dft_r2c(static_cast<fftwf_plan>(fwd_), work, spec);
+  for (int j = 0; j < pad_ / 2 + 1; ++j) {
+    spec[j][0] *= response_[size_t(j)];
+    spec[j][1] *= response_[size_t(j)];
+  }
+  fftwf_execute_dft_c2r(static_cast<fftwf_plan>(inv_), spec, work);
+  std::copy(work, work + g_.bins, out);
+}
+
 void Fbp::filter(Sinogram& sino) {
   if (sino.geo.bins != g_.bins || sino.geo.angles != g_.angles) throw InputError("FBP: sinogram geometry differs from the filter's");
-  const int nf = pad_ / 2 + 1;
-  auto* spec = reinterpret_cast<fftwf_complex*>(buf_ + pad_);
-  for (int i = 0; i < g_.angles; ++i) {
-    float* row = sino.row(i);
-    std::copy(row, row + g_.bins, buf_);
-    std::fill(buf_ + g_.bins, buf_ + pad_, 0.f);
-    fftwf_execute(static_cast<fftwf_plan>(fwd_));
-    for (int j = 0; j < nf; ++j) {
-      spec[j][0] *= response_[size_t(j)];
-      spec[j][1] *= response_[size_t(j)];
-    }
-    fftwf_execute(static_cast<fftwf_plan>(inv_));
-    std::copy(buf_, buf_ + g_.bins, row);
-  }
+  for (int i = 0; i < g_.angles; ++i) filter_row(sino.row(i), sino.row(i), buf_);
 }
 
 namespace {
@@ -453,6 +454,11 @@ const char* bp_kernel_name(BpKernel k) {
 }
 
 void Fbp::backproject(const Sinogram& f, int nx, int ny, double s, float* out, bool parallel, BpKernel kernel) const {
+  back_project(f, false, nx, ny, s, out, parallel, kernel);
+}
+
+void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, double s, float* out, bool parallel,
+                       BpKernel kernel) const {
   const int nb = g_.bins, na = g_.angles;
   if (f.geo.bins != nb || f.geo.angles != na) throw InputError("FBP: sinogram geometry differs from the filter's");
   const double diag_bins = std::sqrt(double(nx) * nx + double(ny) * ny) * s / g_.bin_mm;
@@ -470,15 +476,25 @@ void Fbp::backproject(const Sinogram& f, int nx, int ny, double s, float* out, b
     su[size_t(a)] = std::sin(g_.angle_rad(a)) * s / g_.bin_mm;
     u00[size_t(a)] = -cx * du[size_t(a)] - cy * su[size_t(a)] + cb;  // u of pixel (0, 0)
   }
-
-  if (kern == BpKernel::Generic) {
+#ifdef PB_BP_X86
+  const bool simd = kern != BpKernel::Generic;
+#else
+  const bool simd = false;
+#endif
+  if (!simd) {
+    Sinogram filtered(filter_rows ? g_ : ParallelGeometry{});
+    if (filter_rows) {
+      std::copy(f.data.begin(), f.data.end(), filtered.data.begin());
+      for (int a = 0; a < na; ++a) filter_row(filtered.row(a), filtered.row(a), buf_);
+    }
+    const Sinogram& src = filter_rows ? filtered : f;
     // One row at a time, angles in order; u in double, so this is also the reference of the SIMD
     // kernels. The detector covers the diagonal: 0 <= u < bins - 1 for every pixel.
 #pragma omp parallel for schedule(static) if (parallel)
     for (int j = 0; j < ny; ++j) {
       std::vector<float> acc(size_t(nx), 0.f);
       for (int a = 0; a < na; ++a) {
-        const float* q = f.row(a);
+        const float* q = src.row(a);
         const double u0 = u00[size_t(a)] + j * su[size_t(a)], d = du[size_t(a)];
         for (int i = 0; i < nx; ++i) {
           const double u = u0 + i * d;
@@ -504,40 +520,52 @@ void Fbp::backproject(const Sinogram& f, int nx, int ny, double s, float* out, b
   p.du = du;
   p.su = su;
   p.du_f.resize(size_t(na));
-#pragma omp parallel for schedule(static) if (parallel)
   for (int a = 0; a < na; ++a) {
-    float* q = p.rows.data() + size_t(a) * 2 * size_t(p.L) + kFront;
-    float* dq = q + p.L;
-    const float* src = f.row(a);
-    std::copy(src, src + nb, q);
-    for (int k = 0; k + 1 < nb; ++k) dq[k] = src[k + 1] - src[k];
     p.u00[size_t(a)] = u00[size_t(a)] + kFront;
     p.du_f[size_t(a)] = float(du[size_t(a)]);
   }
-  const TileFn full = avx512 ? TileFn(&bp_tile_avx512<8>) : TileFn(&bp_tile_avx2<4>);
-  const TileFn one = avx512 ? TileFn(&bp_tile_avx512<1>) : TileFn(&bp_tile_avx2<1>);
-  const int stride = round_up(nx, lanes);
-  const int n_full = ny / R, n_units = n_full + ny % R;  // row groups of R, then single rows
-#pragma omp parallel for schedule(static) if (parallel)
-  for (int unit = 0; unit < n_units; ++unit) {
-    const int j0 = unit < n_full ? unit * R : n_full * R + (unit - n_full), rows = unit < n_full ? R : 1;
-    const TileFn tile = unit < n_full ? full : one;
-    std::vector<float> acc(size_t(rows) * size_t(stride), 0.f);
-    for (int a0 = 0; a0 < na; a0 += kAngleChunk)
-      for (int i0 = 0; i0 < nx; i0 += lanes) tile(p, j0, i0, a0, std::min(na, a0 + kAngleChunk), acc.data() + i0, stride);
-    for (int r = 0; r < rows; ++r) {
-      float* o = out + size_t(j0 + r) * size_t(nx);
-      const float* src = acc.data() + size_t(r) * size_t(stride);
-      for (int i = 0; i < nx; ++i) o[i] += scale * src[i];
+  // Row groups of R rows (the last one may be shorter), split evenly over the threads.
+  static const TileFn tiles512[8] = {&bp_tile_avx512<1>, &bp_tile_avx512<2>, &bp_tile_avx512<3>, &bp_tile_avx512<4>,
+                                     &bp_tile_avx512<5>, &bp_tile_avx512<6>, &bp_tile_avx512<7>, &bp_tile_avx512<8>};
+  static const TileFn tiles256[4] = {&bp_tile_avx2<1>, &bp_tile_avx2<2>, &bp_tile_avx2<3>, &bp_tile_avx2<4>};
+  const int stride = round_up(nx, lanes), n_groups = (ny + R - 1) / R;
+  // One parallel region: (filter and) pad the rows, then the row groups.
+#pragma omp parallel if (parallel)
+  {
+    std::unique_ptr<float, void (*)(void*)> work(
+        filter_rows ? static_cast<float*>(fftwf_malloc(sizeof(float) * size_t(pad_) + sizeof(fftwf_complex) * size_t(pad_ / 2 + 1)))
+                    : nullptr,
+        fftwf_free);
+#pragma omp for schedule(static)
+    for (int a = 0; a < na; ++a) {
+      float* q = p.rows.data() + size_t(a) * 2 * size_t(p.L) + kFront;
+      float* dq = q + p.L;
+      if (filter_rows)
+        filter_row(f.row(a), q, work.get());
+      else
+        std::copy(f.row(a), f.row(a) + nb, q);
+      for (int k = 0; k + 1 < nb; ++k) dq[k] = q[k + 1] - q[k];
+    }
+#pragma omp for schedule(static)
+    for (int grp = 0; grp < n_groups; ++grp) {
+      const int j0 = grp * R, rows = std::min(R, ny - j0);
+      const TileFn tile = avx512 ? tiles512[rows - 1] : tiles256[rows - 1];
+      std::vector<float> acc(size_t(rows) * size_t(stride), 0.f);
+      for (int a0 = 0; a0 < na; a0 += kAngleChunk)
+        for (int i0 = 0; i0 < nx; i0 += lanes) tile(p, j0, i0, a0, std::min(na, a0 + kAngleChunk), acc.data() + i0, stride);
+      for (int r = 0; r < rows; ++r) {
+        float* o = out + size_t(j0 + r) * size_t(nx);
+        const float* src = acc.data() + size_t(r) * size_t(stride);
+        for (int i = 0; i < nx; ++i) o[i] += scale * src[i];
+      }
     }
   }
 #endif
 }
 
 std::vector<float> Fbp::reconstruct(Sinogram sino, int nx, int ny, double s, bool parallel) {
-  filter(sino);
   std::vector<float> img(size_t(nx) * size_t(ny), 0.f);
-  backproject(sino, nx, ny, s, img.data(), parallel);
+  back_project(sino, true, nx, ny, s, img.data(), parallel, BpKernel::Auto);
   return img;
 }
 

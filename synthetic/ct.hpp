@@ -95,6 +95,13 @@ class Fbp {
   const std::vector<float>& response() const { return response_; }  // real filter, pad/2+1 values
 
  private:
+  // One row through the filter (in may equal out); work: pad_ reals + (pad_/2+1) complex, from
+  // fftwf_malloc (same alignment as the plans' buffer).
+  void filter_row(const float* in, float* out, float* work) const;
+  // backproject, with the filter applied on the fly when filter_rows (reconstruct): one parallel
+  // region for both.
+  void back_project(const Sinogram& f, bool filter_rows, int nx, int ny, double pixel_mm, float* out, bool parallel,
+                    BpKernel kernel) const;
   ParallelGeometry g_;
   int pad_ = 0;
   std::vector<float> response_;

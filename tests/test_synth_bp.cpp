@@ -110,7 +110,7 @@ TEST_CASE("every back-projection kernel is exact on a linear projection", "[synt
   }
 }
 
-TEST_CASE("back-projection is bit-identical for 1 and 2 threads, and checks its kernel", "[synth][ct][bp]") {
+TEST_CASE("back-projection is bit-identical for 1 and 2 threads and with the fused filter, and checks its kernel", "[synth][ct][bp]") {
   const int n = 131;
   const ParallelGeometry g = geometry(203, 180, 0, n, n, 1.0);
   const Fbp fbp(g, RampWindow::RamLak);
@@ -128,6 +128,19 @@ TEST_CASE("back-projection is bit-identical for 1 and 2 threads, and checks its 
     set_threads(0);
     INFO(bp_kernel_name(k));
     CHECK(std::memcmp(a.data(), b.data(), a.size() * sizeof(float)) == 0);
+  }
+  // reconstruct() filters the rows inside the back-projection's parallel region: the same image
+  // as filter() then backproject(), bit for bit, for any thread count.
+  Fbp fbp2(g, RampWindow::Hann);
+  Sinogram filtered = s;
+  fbp2.filter(filtered);
+  const auto two_steps = backproject(fbp2, filtered, n, n, 1.0, BpKernel::Auto);
+  for (int threads : {1, 2}) {
+    set_threads(threads);
+    const auto fused = fbp2.reconstruct(s, n, n, 1.0, true);
+    set_threads(0);
+    INFO(threads << " thread(s)");
+    CHECK(std::memcmp(fused.data(), two_steps.data(), fused.size() * sizeof(float)) == 0);
   }
   for (BpKernel k : {BpKernel::Avx2, BpKernel::Avx512})
     if (!bp_kernel_supported(k)) CHECK_THROWS_AS(backproject(fbp, s, n, n, 1.0, k), InputError);
