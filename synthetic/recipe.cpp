@@ -554,7 +554,9 @@ void validate(const Recipe& r) {
     bad("scan.filter", "= '" + r.filter + "' is not known; filters: ram-lak, shepp-logan, cosine, hamming, hann");
   if (r.output_type != "float32" && r.output_type != "uint16")
     bad("scan.output_type", "= '" + r.output_type + "' must be float32 or uint16");
-  if (r.uint16_full_scale_mu < 0) bad("scan.uint16_full_scale_mu", "must be >= 0");
+  if (r.uint16_full_scale_mu < 0)
+    bad("scan.uint16_full_scale_mu", "= " + num(r.uint16_full_scale_mu) +
+                                         " must be >= 0 (the mu in 1/mm stored as 65535; 0 = 2 x the material mu)");
 }
 
 }  // namespace pb::synth

@@ -53,7 +53,7 @@ AnyVolume stored_scan(const VolumeF& mu, const Recipe& r) {
   if (r.output_type == "float32") return AnyVolume(mu);
   const double fs = uint16_full_scale(r);
   Image<uint16_t> u(mu.geometry());
-  for (int64_t i = 0; i < mu.size(); ++i) u[i] = uint16_t(std::lround(std::clamp(double(mu[i]) / fs, 0.0, 1.0) * 65535.0));
+  for (int64_t i = 0; i < mu.size(); ++i) u[i] = uint16_t(std::lround(std::clamp(double(mu[i]) * 65535.0 / fs, 0.0, 65535.0)));
   return AnyVolume(std::move(u));
 }
 
@@ -119,7 +119,10 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
       write_volume(stored_scan(vols[j], r), path(name), wo);
       nlohmann::ordered_json extra{{"projections", sp.projections}, {"i0", sp.i0}, {"arc_deg", r.arc_deg},
                                    {"voxel_type", r.output_type}};
-      if (r.output_type == "uint16") extra["uint16_full_scale_mu_per_mm"] = uint16_full_scale(r);
+      if (r.output_type == "uint16") {
+        extra["uint16_full_scale_mu_per_mm"] = uint16_full_scale(r);
+        extra["uint16_to_mu"] = "mu_per_mm = value * uint16_full_scale_mu_per_mm / 65535";
+      }
       record(name, sp.reference ? "reference-scan" : "scan", extra);
     }
     say(opt.progress, "scan: " + std::to_string(n) + " projections x " + std::to_string(group.size()) + " scan(s), " +

@@ -29,7 +29,9 @@ struct SynthResult {
 // Everything in memory. `progress` (optional) is told about each step.
 SynthResult synthesize(const Recipe& r, const std::function<void(const std::string&)>& progress = {});
 
-// Scan volume as written: float32 mu, or uint16 with 0 -> 0 and uint16_full_scale_mu -> 65535.
+// Scan volume as written: float32 mu (1/mm), or uint16 value = round(mu x 65535 / full_scale)
+// clipped to [0, 65535] (0 -> 0, full_scale -> 65535; back: mu = value x full_scale / 65535, to
+// half a step). The manifest records full_scale per scan as uint16_full_scale_mu_per_mm.
 AnyVolume stored_scan(const VolumeF& mu, const Recipe& r);
 double uint16_full_scale(const Recipe& r);
 

@@ -1,11 +1,13 @@
 // porebench synth: the output contract (files, manifest hashes, recipe.toml that reproduces the
 // run), bit-identical output for any --threads, and exit code 2 with the field named on bad input.
 #include <catch2/catch.hpp>
+#include <algorithm>
 #include <cmath>
 #include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "core/io.hpp"
+#include "synthetic/synth.hpp"
 #include "core/sha256.hpp"
 #include "tests/helpers.hpp"
 
@@ -113,6 +115,80 @@ TEST_CASE("synth dose series writes one scan per projection count and dose; uint
   CHECK(pb::read_volume(d / "o/scan-20p-i0-10000.mha").type() == pb::VoxelType::u16);
 }
 
+TEST_CASE("uint16 scaling: 0 -> 0, full scale -> 65535, half-way rounds up, clipped outside", "[synth][cli][uint16]") {
+  // Hand values for full scale 0.125 /mm (exact in binary, as is 0.0625): 0.0625 x 65535 / 0.125 =
+  // 32767.5 -> 32768 (round half away from zero); 1e-6 x 65535 / 0.125 = 0.524 -> 1; 0.9e-6 ->
+  // 0.472 -> 0; below 0 -> 0; 0.125 -> 65535; above -> 65535.
+  pb::synth::Recipe r = pb::synth::preset("demo-small");
+  r.output_type = "uint16";
+  r.uint16_full_scale_mu = 0.125;
+  pb::Geometry g;
+  g.dims = {8, 1, 1};
+  pb::VolumeF mu(g);
+  const float in[8] = {-0.5f, 0.f, 0.9e-6f, 1e-6f, 0.0625f, 0.125f, 0.13f, 7.f};
+  const uint16_t want[8] = {0, 0, 0, 1, 32768, 65535, 65535, 65535};
+  for (int i = 0; i < 8; ++i) mu[i] = in[i];
+  const pb::AnyVolume u = pb::synth::stored_scan(mu, r);
+  REQUIRE(u.type() == pb::VoxelType::u16);
+  const auto* v = static_cast<const uint16_t*>(u.raw());
+  for (int i = 0; i < 8; ++i) CHECK(v[i] == want[i]);
+  // The default full scale is twice the material mu (recipe.hpp), here 2 x 0.060 /mm.
+  r.uint16_full_scale_mu = 0;
+  CHECK(pb::synth::uint16_full_scale(r) == Approx(0.12));
+}
+
+TEST_CASE("uint16 scans are round(mu x 65535 / full_scale) of the float32 scan, with the scale and spacing recorded",
+          "[synth][cli][uint16]") {
+  TempDir d;
+  const std::string base = kSmall + " --projections 20";
+  REQUIRE(run_cli(base + " -o " + d / "f").exit_code == 0);
+  // Default full scale, and one below the material mu (0.060 /mm) so that the material clips.
+  for (const std::string fs_arg : {"", " --set scan.uint16_full_scale_mu=0.05"}) {
+    INFO("uint16 run" << fs_arg);
+    const std::string out = d / (fs_arg.empty() ? "u" : "c");
+    REQUIRE(run_cli(base + " --set scan.output_type=uint16" + fs_arg + " -o " + out).exit_code == 0);
+    const auto m = manifest(out);
+    double fs = 0;
+    for (const auto& f : m["files"])
+      if (f["file"] == "scan-20p.mha") {
+        fs = f["uint16_full_scale_mu_per_mm"].get<double>();
+        CHECK(f["uint16_to_mu"].get<std::string>().find("65535") != std::string::npos);
+      }
+    CHECK(fs == Approx(fs_arg.empty() ? 2 * m["material"]["mu_per_mm"].get<double>() : 0.05));
+    for (const char* name : {"scan-20p.mha", "reference-scan.mha"}) {
+      INFO(name);
+      const pb::AnyVolume fv = pb::read_volume(d / (std::string("f/") + name));
+      const pb::AnyVolume uv = pb::read_volume(out + "/" + name);
+      REQUIRE(uv.type() == pb::VoxelType::u16);
+      REQUIRE(fv.type() == pb::VoxelType::f32);
+      // The documented geometry: spacing = voxel_size_um / 1000 = 0.020 mm, voxel centres from
+      // -(n - 1) / 2 voxels (phantom.hpp): -23.5 x 0.020 = -0.47 mm.
+      for (int i = 0; i < 3; ++i) {
+        CHECK(uv.geometry().dims[i] == 48);
+        CHECK(uv.geometry().spacing_mm[i] == Approx(0.020));
+        CHECK(uv.geometry().origin_mm[i] == Approx(-0.47));
+      }
+      const auto* mu = static_cast<const float*>(fv.raw());
+      const auto* val = static_cast<const uint16_t*>(uv.raw());
+      const int64_t n = int64_t(fv.bytes() / sizeof(float));
+      int64_t wrong = 0, back_off = 0, low = 0, high = 0;
+      for (int64_t i = 0; i < n; ++i) {
+        const double x = double(mu[i]) * 65535.0 / fs;
+        const int64_t want = std::clamp<int64_t>(std::llround(x), 0, 65535);
+        wrong += val[i] != want;
+        low += x < 0;
+        high += x > 65535;
+        // Back to mu (the conversion the manifest states): within half a step when not clipped.
+        if (x >= 0 && x <= 65535) back_off += std::abs(val[i] * fs / 65535.0 - double(mu[i])) > 0.5 * fs / 65535.0 * (1 + 1e-9);
+      }
+      CHECK(wrong == 0);
+      CHECK(back_off == 0);
+      CHECK(low > 0);  // FBP undershoots in air: those voxels clip to 0
+      if (!fs_arg.empty()) CHECK(high > 1000);  // material above 0.05 /mm clips to 65535
+    }
+  }
+}
+
 TEST_CASE("synth bad input exits 2 naming the field", "[synth][cli]") {
   TempDir d;
   struct Case {
@@ -127,6 +203,8 @@ TEST_CASE("synth bad input exits 2 naming the field", "[synth][cli]") {
       {"--set pores.0.porosity_pct=39 --set phantom.placement_budget=2000", "pores.0"},
       {"--set scan.nonsense=1", "scan.nonsense"},
       {"--set phantom.material=unobtainium", "phantom.material"},
+      {"--set scan.output_type=uint16 --set scan.uint16_full_scale_mu=-0.1", "scan.uint16_full_scale_mu"},
+      {"--set scan.output_type=uint8", "scan.output_type"},
       {"--set pores.1.shape=blob", "pores.1.shape"},
       {"--set pores.0.shape=irregular", "pores.0.shape"},
       {"--set pores.1.shape=irregular --set pores.1.lobes=1", "pores.1.lobes"},

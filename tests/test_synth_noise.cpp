@@ -60,7 +60,7 @@ TEST_CASE("detector counts: variance I0 T + sigma_e^2 and mean I0 T (Poisson plu
     for (int i = 0; i < 100; ++i) CHECK(x[size_t(i)] == std::floor(x[size_t(i)]));
 }
 
-TEST_CASE("-log transmission: variance (I0 T + sigma_e^2) / (I0 T)^2 by the delta method", "[synth][noise]") {
+TEST_CASE("log transmission: variance (I0 T + sigma_e^2) / (I0 T)^2 by the delta method", "[synth][noise]") {
   // p = -log(X / I0) with X = counts: var(p) ~ var(X) / E[X]^2 (delta method, e.g. Casella & Berger,
   // Statistical Inference, 2nd ed., 5.5.4; from memory). The next terms are smaller by about
   // var(X) / E[X]^2 itself (<= 0.2 % here), added to the tolerance. Flat field (T = 1) and a path
@@ -83,7 +83,7 @@ TEST_CASE("-log transmission: variance (I0 T + sigma_e^2) / (I0 T)^2 by the delt
   CHECK(std::abs(m.mean - c.line_integral) < 5 * std::sqrt(v / n) + v);
 }
 
-TEST_CASE("-log transmission clamps at half a photon, and zero noise adds nothing", "[synth][noise]") {
+TEST_CASE("log transmission clamps at half a photon, and zero noise adds nothing", "[synth][noise]") {
   // Hand values: -log(0.5 / 1000) = log 2000 = 7.6009; -log(1000 / 1000) = 0.
   CHECK(log_transmission(0, 1000) == Approx(std::log(2000.0)));
   CHECK(log_transmission(-3, 1000) == Approx(std::log(2000.0)));
