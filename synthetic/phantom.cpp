@@ -1,10 +1,9 @@
 // Porous phantoms: part primitives as signed distance functions (box, cylinder, cylinder minus a
 // coaxial bore; union = min, difference = max(a, -b), e.g. Hart (1996) Sphere tracing, The Visual
 // Computer 12:527), pores placed by rejection sampling from log-normal sizes, and the voxel truth by
-// supersampling with a majority rule. Conventions: pores are air (dark in a scan); z is the part
-// axis and the build direction; lack-of-fusion voids lie flat in build layers, as one flat
-// ellipsoid or (irregular) a union of flat ellipsoids in one layer plane, whose volume is integrated
-// numerically (flat_union_volume_mm3; checked against 4/3 pi abc and the two-sphere lens).
+// supersampling with a majority rule. Pores are air (dark in a scan); z is the part axis and the
+// build direction; lack-of-fusion voids lie flat in build layers: a flat ellipsoid, or (irregular)
+// a union of flat ellipsoids in one layer plane with a numerically integrated volume.
 #include "synthetic/phantom.hpp"
 
 #include <algorithm>
