@@ -68,6 +68,18 @@ struct DefaultInitAllocator : std::allocator<T> {
   }
 };
 
+// A buffer whose trivial elements are left uninitialised, and one that reads as zero: large ones
+// come zeroed from the kernel (core/memory.hpp), so their pages are only touched where written.
+template <class T>
+using Buffer = std::vector<T, DefaultInitAllocator<T>>;
+template <class T>
+Buffer<T> zeroed_buffer(size_t n) {
+  static_assert(std::is_trivial<T>::value, "zeroed_buffer needs a trivial type");
+  Buffer<T> b(n);
+  if (!buffer_starts_zeroed(n * sizeof(T))) std::fill(b.begin(), b.end(), T{});
+  return b;
+}
+
 struct Uninitialized {};  // tag: Image(g, Uninitialized{}) leaves the voxels unset
 struct Zeroed {};         // tag: Image(g, Zeroed{}) is all zero, touching memory only when small
 

@@ -27,10 +27,6 @@
 namespace pb {
 namespace {
 
-struct Run {
-  int32_t x0, x1;  // [x0, x1)
-};
-
 inline uint32_t find_root(uint32_t* p, uint32_t i) {
   while (p[i] != i) {  // path halving
     p[i] = p[p[i]];
@@ -107,7 +103,7 @@ void check_connectivity(int connectivity, const char* field) {
 
 Components label_components(const Mask& m, int connectivity) { return label_components(m, nullptr, connectivity); }
 
-Components label_components(const Mask& m, const Mask* roi, int connectivity) {
+LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity) {
   check_connectivity(connectivity);
   const Geometry& g = m.geometry();
   if (roi && !roi->geometry().same_dims(g))
@@ -116,13 +112,12 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   const uint8_t* rmask = roi ? roi->data() : nullptr;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   if (nx > INT32_MAX - 2) throw InputError("label_components: dims along x " + std::to_string(nx) + " too large");
-  Components c;
-  // Zero without a pass over memory when large (fresh pages); scan 2 writes only the runs, so
-  // pages without foreground are never touched.
-  c.labels = Image<uint32_t>(g, Zeroed{});
+  LabelRuns c;
+  c.geometry = g;
   c.sizes.assign(1, 0);
-  if (m.size() == 0) return c;
   const int64_t nrows = ny * nz;
+  c.row_begin.assign(size_t(nrows) + 1, 0);  // run counts first, then offsets
+  if (m.size() == 0) return c;
   const uint8_t* mask = m.data();
 
   // Slabs of z, one per thread: scan 1 extracts a slab's runs and unites them within the slab
@@ -130,7 +125,7 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   const int64_t nslabs = std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads()));
   std::vector<int64_t> slab_z(size_t(nslabs) + 1), slab_base(size_t(nslabs) + 1, 0);
   for (int64_t s = 0; s <= nslabs; ++s) slab_z[size_t(s)] = nz * s / nslabs;
-  std::vector<int64_t> row_begin(size_t(nrows) + 1, 0);  // run counts first, then offsets
+  std::vector<int64_t>& row_begin = c.row_begin;
   using RunBuffer = std::vector<Run, DefaultInitAllocator<Run>>;
   std::vector<RunBuffer> slab_runs(static_cast<size_t>(nslabs));
 
@@ -158,11 +153,13 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   if (nruns >= int64_t(UINT32_MAX))
     throw InputError("label_components: " + std::to_string(nruns) + " runs exceed the 32-bit label range");
   // Uninitialised: every element is written below by the thread of its slab.
-  const std::unique_ptr<Run[]> runs(new Run[size_t(nruns)]);
-  const std::unique_ptr<uint32_t[]> parent(new uint32_t[size_t(nruns)]);
+  auto& runs = c.runs;
+  auto& parent = c.label;  // parents during union-find, labels after the flattening
+  runs.resize(size_t(nruns));
+  parent.resize(size_t(nruns));
 
-  const Run* R = runs.get();
-  uint32_t* P = parent.get();
+  const Run* R = runs.data();
+  uint32_t* P = parent.data();
   const int e_face = connectivity == 6 ? 0 : 1;   // (-1,0) and (0,-1) rows
   const int e_diag = connectivity == 26 ? 1 : 0;  // (-1,-1) and (+1,-1) rows, 18 and 26 only
   auto rb = [&](int64_t y, int64_t z) { return row_begin[size_t(z * ny + y)]; };
@@ -190,7 +187,7 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
 #pragma omp parallel for schedule(static, 1)
   for (int64_t s = 0; s < nslabs; ++s) {
     RunBuffer& v = slab_runs[size_t(s)];
-    if (!v.empty()) std::memcpy(runs.get() + slab_base[size_t(s)], v.data(), v.size() * sizeof(Run));
+    if (!v.empty()) std::memcpy(runs.data() + slab_base[size_t(s)], v.data(), v.size() * sizeof(Run));
     RunBuffer().swap(v);
     for (int64_t i = slab_base[size_t(s)]; i < slab_base[size_t(s) + 1]; ++i) P[i] = uint32_t(i);
     for (int64_t z = slab_z[size_t(s)]; z < slab_z[size_t(s) + 1]; ++z)
@@ -206,13 +203,31 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   c.sizes.assign(size_t(count) + 1, 0);
   for (int64_t i = 0; i < nruns; ++i) c.sizes[P[i]] += R[i].x1 - R[i].x0;
 
-  // Scan 2: write the labels of the runs into the zeroed label volume.
-  uint32_t* L = c.labels.data();
+  return c;
+}
+
+Image<uint32_t> label_volume(const LabelRuns& c) {
+  // Zero without a pass over memory when large (fresh pages); only the runs are written, so
+  // pages without foreground are never touched.
+  Image<uint32_t> labels(c.geometry, Zeroed{});
+  uint32_t* L = labels.data();
+  const int64_t nx = c.geometry.dims[0], nrows = c.rows();
+  if (labels.size() == 0) return labels;
 #pragma omp parallel for schedule(static)
   for (int64_t r = 0; r < nrows; ++r) {
     uint32_t* row = L + r * nx;
-    for (int64_t i = row_begin[size_t(r)]; i < row_begin[size_t(r) + 1]; ++i) std::fill(row + R[i].x0, row + R[i].x1, P[i]);
+    for (int64_t i = c.row_begin[size_t(r)]; i < c.row_begin[size_t(r) + 1]; ++i)
+      std::fill(row + c.runs[size_t(i)].x0, row + c.runs[size_t(i)].x1, c.label[size_t(i)]);
   }
+  return labels;
+}
+
+Components label_components(const Mask& m, const Mask* roi, int connectivity) {
+  LabelRuns r = label_runs(m, roi, connectivity);
+  Components c;
+  c.labels = label_volume(r);
+  c.count = r.count;
+  c.sizes = std::move(r.sizes);
   return c;
 }
 

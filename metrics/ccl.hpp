@@ -11,6 +11,28 @@
 
 namespace pb {
 
+// A labelled mask as runs: the maximal foreground runs [x0, x1) along x of every row (row r = y +
+// ny * z), in raster order, each with its component label. Scoring works on these (a sparse pore
+// mask has few runs); label_volume() writes them out as a voxel volume.
+struct Run {
+  int32_t x0, x1;  // [x0, x1)
+};
+struct LabelRuns {
+  Geometry geometry;
+  std::vector<int64_t> row_begin;  // runs of row r: [row_begin[r], row_begin[r + 1])
+  std::vector<Run, DefaultInitAllocator<Run>> runs;
+  std::vector<uint32_t, DefaultInitAllocator<uint32_t>> label;  // label of each run, 1..count
+  uint32_t count = 0;
+  std::vector<int64_t> sizes;      // sizes[k] = voxels of label k; sizes[0] = 0
+  int64_t rows() const { return geometry.dims[1] * geometry.dims[2]; }
+  int64_t row_of(int64_t y, int64_t z) const { return z * geometry.dims[1] + y; }
+};
+
+// Labels the voxels that are non-zero in m (and in roi, unless nullptr).
+LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity);
+// The label volume of runs (0 = background).
+Image<uint32_t> label_volume(const LabelRuns& r);
+
 struct Components {
   Image<uint32_t> labels;      // same geometry as the mask
   uint32_t count = 0;          // number of components

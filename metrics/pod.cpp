@@ -53,16 +53,49 @@ inline Terms obs_terms(PodLink link, int y, double eta) {
   return {logPhi, lambda, -lambda * (lambda + eta)};
 }
 
+// Targets grouped by size: the likelihood depends on each distinct ln(size) only through its hit
+// and miss counts (voxelised pores share sizes, so thousands of targets make a few hundred groups).
+struct Groups {
+  std::vector<double> x, hits, misses;  // ascending x
+};
+
+Groups group_targets(const std::vector<double>& x, const std::vector<int>& y) {
+  std::vector<size_t> order(x.size());
+  for (size_t i = 0; i < order.size(); ++i) order[i] = i;
+  std::sort(order.begin(), order.end(), [&](size_t a, size_t b) { return x[a] < x[b]; });
+  Groups g;
+  for (size_t i : order) {
+    if (g.x.empty() || g.x.back() != x[i]) g.x.push_back(x[i]), g.hits.push_back(0), g.misses.push_back(0);
+    (y[i] ? g.hits : g.misses).back() += 1;
+  }
+  return g;
+}
+
+// Sum of obs_terms over group i at eta.
+inline Terms group_terms(PodLink link, const Groups& g, size_t i, double eta) {
+  Terms t{0, 0, 0};
+  if (g.hits[i] > 0) {
+    const Terms h = obs_terms(link, 1, eta);
+    t.ll += g.hits[i] * h.ll, t.d1 += g.hits[i] * h.d1, t.d2 += g.hits[i] * h.d2;
+  }
+  if (g.misses[i] > 0) {
+    const Terms m = obs_terms(link, 0, eta);
+    t.ll += g.misses[i] * m.ll, t.d1 += g.misses[i] * m.d1, t.d2 += g.misses[i] * m.d2;
+  }
+  return t;
+}
+
 struct Eval {
   double ll = 0;
   Eigen::Vector2d grad = Eigen::Vector2d::Zero();
   Eigen::Matrix2d hess = Eigen::Matrix2d::Zero();
 };
 
-Eval evaluate(PodLink link, const std::vector<double>& x, const std::vector<int>& y, double b0, double b1) {
+Eval evaluate(PodLink link, const Groups& g, double b0, double b1) {
   Eval e;
+  const std::vector<double>& x = g.x;
   for (size_t i = 0; i < x.size(); ++i) {
-    const Terms t = obs_terms(link, y[i], b0 + b1 * x[i]);
+    const Terms t = group_terms(link, g, i, b0 + b1 * x[i]);
     e.ll += t.ll;
     e.grad += t.d1 * Eigen::Vector2d(1, x[i]);
     e.hess(0, 0) += t.d2;
@@ -74,13 +107,12 @@ Eval evaluate(PodLink link, const std::vector<double>& x, const std::vector<int>
 }
 
 // Profile: for fixed theta = ln a90, eta = g90 + b1 (x - theta); maximise over b1 by 1D Newton.
-double profile_ll(PodLink link, const std::vector<double>& x, const std::vector<int>& y, double g90, double theta,
-                  double& b1) {
+double profile_ll(PodLink link, const Groups& g, double g90, double theta, double& b1) {
   auto ll_at = [&](double b, double* d1, double* d2) {
     double ll = 0, a = 0, c = 0;
-    for (size_t i = 0; i < x.size(); ++i) {
-      const double z = x[i] - theta;
-      const Terms t = obs_terms(link, y[i], g90 + b * z);
+    for (size_t i = 0; i < g.x.size(); ++i) {
+      const double z = g.x[i] - theta;
+      const Terms t = group_terms(link, g, i, g90 + b * z);
       ll += t.ll, a += t.d1 * z, c += t.d2 * z * z;
     }
     if (d1) *d1 = a;
@@ -150,17 +182,18 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
                       "no maximum-likelihood estimate exists",
            f;
 
+  const Groups groups = group_targets(x, y);
   // Newton with step halving from b = (logit of the hit rate, 0).
   const double rate = double(f.n_hits) / double(f.n_targets);
   Eigen::Vector2d b(link_quantile(link, rate), 0);
-  Eval e = evaluate(link, x, y, b[0], b[1]);
+  Eval e = evaluate(link, groups, b[0], b[1]);
   for (f.iterations = 1; f.iterations <= 100; ++f.iterations) {
     const Eigen::Matrix2d negH = -e.hess;
     Eigen::Vector2d step = negH.ldlt().solve(e.grad);
     if (!step.allFinite()) break;
     Eigen::Vector2d nb = b + step;
-    Eval ne = evaluate(link, x, y, nb[0], nb[1]);
-    for (int h = 0; h < 40 && !(ne.ll >= e.ll - 1e-12); ++h) step *= 0.5, nb = b + step, ne = evaluate(link, x, y, nb[0], nb[1]);
+    Eval ne = evaluate(link, groups, nb[0], nb[1]);
+    for (int h = 0; h < 40 && !(ne.ll >= e.ll - 1e-12); ++h) step *= 0.5, nb = b + step, ne = evaluate(link, groups, nb[0], nb[1]);
     b = nb;
     e = ne;
     if (step.cwiseAbs().maxCoeff() < 1e-10 * (1 + b.cwiseAbs().maxCoeff())) {
@@ -193,7 +226,7 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
   const double crit = boost::math::quantile(boost::math::chi_squared(1.0), 0.90);  // 2.7055
   const double llmax = e.ll;
   double b1 = f.b1;
-  auto rise = [&](double t) { return 2 * (llmax - profile_ll(link, x, y, g90, t, b1)); };
+  auto rise = [&](double t) { return 2 * (llmax - profile_ll(link, groups, g90, t, b1)); };
   const double xmax = *std::max_element(x.begin(), x.end()), xmin = *std::min_element(x.begin(), x.end());
   const double span = std::max(xmax - xmin, 1e-3);
   double lo = theta, hi = theta, step = 0.02 * span;

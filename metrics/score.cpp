@@ -163,20 +163,21 @@ struct Acc {
   bool touch = false;
 };
 
-// Geometry of every component: sums for centroids, bounding boxes, boundary crossings along the
-// 13 directions, and whether a voxel is 6-adjacent to the outside of the ROI or of the volume.
-std::vector<Pore> pore_geometry(const Components& c, const Mask* roi, const Directions& D, int64_t z_offset) {
-  const Image<uint32_t>& L = c.labels;
-  const Geometry& g = L.geometry();
+// Geometry of every component from its runs: sums for centroids, bounding boxes, boundary
+// crossings along the 13 directions (a voxel and its neighbour along +-d differ in label, or the
+// neighbour is outside the volume), and whether a voxel is 6-adjacent to the outside of the ROI
+// or of the volume. Crossings count, per run and neighbour offset, the run's voxels whose
+// neighbour lies in a run of the same label: interval overlaps, no voxel visits.
+std::vector<Pore> pore_geometry(const LabelRuns& c, const Mask* roi, const Directions& D, int64_t z_offset) {
+  const Geometry& g = c.geometry;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   const uint8_t* R = roi ? roi->data() : nullptr;
-  const int64_t sxy = nx * ny;
-  int64_t off[13];
-  bool face[13];
+  // Direction index of each of the 26 offsets (dx, dy, dz) in 0..2 each (+1 shifted).
+  std::array<int, 27> dir_of{};
   for (int k = 0; k < 13; ++k) {
     const auto& d = D.d[size_t(k)];
-    off[k] = (d[2] * ny + d[1]) * nx + d[0];
-    face[k] = std::abs(d[0]) + std::abs(d[1]) + std::abs(d[2]) == 1;
+    dir_of[size_t((d[2] + 1) * 9 + (d[1] + 1) * 3 + d[0] + 1)] = k;
+    dir_of[size_t((1 - d[2]) * 9 + (1 - d[1]) * 3 + 1 - d[0])] = k;
   }
   const int nt = omp_get_max_threads();
   std::vector<std::vector<Acc>> acc(static_cast<size_t>(nt));
@@ -187,35 +188,57 @@ std::vector<Pore> pore_geometry(const Components& c, const Mask* roi, const Dire
 #pragma omp for schedule(static)
     for (int64_t z = 0; z < nz; ++z)
       for (int64_t y = 0; y < ny; ++y) {
-        const uint32_t* row = L.data() + (z * ny + y) * nx;
-        for (int64_t x = 0; x < nx; ++x) {
-          const uint32_t l = row[x];
-          if (!l) continue;
-          Acc& a = A[l];
-          a.sx += x, a.sy += y, a.sz += z;
-          const int32_t p[3] = {int32_t(x), int32_t(y), int32_t(z)};
-          for (int i = 0; i < 3; ++i) a.lo[i] = std::min(a.lo[i], p[i]), a.hi[i] = std::max(a.hi[i], p[i]);
-          const bool interior = x > 0 && y > 0 && z > 0 && x + 1 < nx && y + 1 < ny && z + 1 < nz;
-          const int64_t i = (z * ny + y) * nx + x;
-          if (interior) {  // fast path: no bounds checks, offsets precomputed
-            for (int k = 0; k < 13; ++k)
-              a.cross[k] += int64_t(L[i + off[k]] != l) + int64_t(L[i - off[k]] != l);
-            if (R && !(R[i - 1] && R[i + 1] && R[i - nx] && R[i + nx] && R[i - sxy] && R[i + sxy])) a.touch = true;
-            continue;
-          }
-          for (int k = 0; k < 13; ++k) {
-            const auto& d = D.d[size_t(k)];
-            for (int s = -1; s <= 1; s += 2) {
-              const int64_t qx = x + s * d[0], qy = y + s * d[1], qz = z + s * d[2];
-              if (qx < 0 || qy < 0 || qz < 0 || qx >= nx || qy >= ny || qz >= nz) {
-                ++a.cross[k];
-                if (face[k]) a.touch = true;
-                continue;
-              }
-              const int64_t q = (qz * ny + qy) * nx + qx;
-              if (L[q] != l) ++a.cross[k];
-              if (face[k] && R && !R[q]) a.touch = true;
+        const int64_t row = c.row_of(y, z), i0 = c.row_begin[size_t(row)], i1 = c.row_begin[size_t(row) + 1];
+        if (i0 == i1) continue;
+        // The nine neighbour rows (dy, dz) with a cursor each; absent rows hold no runs.
+        int64_t cur[9], end[9];
+        for (int dz = -1; dz <= 1; ++dz)
+          for (int dy = -1; dy <= 1; ++dy) {
+            const int n = (dz + 1) * 3 + dy + 1;
+            const int64_t yy = y + dy, zz = z + dz;
+            if (yy < 0 || zz < 0 || yy >= ny || zz >= nz) {
+              cur[n] = end[n] = 0;
+            } else {
+              cur[n] = c.row_begin[size_t(c.row_of(yy, zz))];
+              end[n] = c.row_begin[size_t(c.row_of(yy, zz)) + 1];
             }
+          }
+        const bool edge_row = y == 0 || z == 0 || y + 1 == ny || z + 1 == nz;
+        for (int64_t i = i0; i < i1; ++i) {
+          const int32_t a = c.runs[size_t(i)].x0, b = c.runs[size_t(i)].x1;
+          const uint32_t l = c.label[size_t(i)];
+          const int64_t len = b - a;
+          Acc& t = A[l];
+          t.sx += (int64_t(a) + b - 1) * len / 2, t.sy += y * len, t.sz += z * len;
+          t.lo[0] = std::min(t.lo[0], a), t.hi[0] = std::max(t.hi[0], b - 1);
+          t.lo[1] = std::min(t.lo[1], int32_t(y)), t.hi[1] = std::max(t.hi[1], int32_t(y));
+          t.lo[2] = std::min(t.lo[2], int32_t(z)), t.hi[2] = std::max(t.hi[2], int32_t(z));
+          int64_t same[27] = {};
+          for (int n = 0; n < 9; ++n) {
+            int64_t& j = cur[n];
+            while (j < end[n] && c.runs[size_t(j)].x1 <= a - 1) ++j;  // runs before [a-1, b+1)
+            for (int64_t k = j; k < end[n] && c.runs[size_t(k)].x0 < b + 1; ++k) {
+              if (c.label[size_t(k)] != l) continue;
+              const int32_t e0 = c.runs[size_t(k)].x0, e1 = c.runs[size_t(k)].x1;
+              for (int dx = -1; dx <= 1; ++dx) {  // voxels x in [a, b) with x + dx in [e0, e1)
+                const int64_t o = std::min<int64_t>(b, e1 - dx) - std::max<int64_t>(a, e0 - dx);
+                if (o > 0) same[n * 3 + dx + 1] += o;
+              }
+            }
+          }
+          for (int o = 0; o < 27; ++o)
+            if (o != 13) t.cross[dir_of[size_t(o)]] += len - same[o];
+          if (edge_row || a == 0 || b == nx) t.touch = true;
+          if (R && !t.touch) {  // a 6-neighbour outside the ROI (x-neighbours: only the ends)
+            const int64_t base = (z * ny + y) * nx;
+            if ((a > 0 && !R[base + a - 1]) || (b < nx && !R[base + b])) t.touch = true;
+            const int64_t offs[4] = {-nx, nx, -nx * ny, nx * ny};
+            for (int q = 0; q < 4 && !t.touch; ++q)
+              for (int64_t x = a; x < b; ++x)
+                if (!R[base + offs[q] + x]) {
+                  t.touch = true;
+                  break;
+                }
           }
         }
       }
@@ -290,18 +313,16 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   const Geometry& g = r.geometry;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2], sxy = nx * ny;
 
-  const Components cp = label_components(pred, roi, opt.connectivity);
-  const Components cr = label_components(ref, roi, opt.connectivity);
+  const LabelRuns cp = label_runs(pred, roi, opt.connectivity);
+  const LabelRuns cr = label_runs(ref, roi, opt.connectivity);
 
-  // --- the overlap pass --------------------------------------------------------------------
+  // --- the overlap pass: per row, a sweep over the ref and pred runs ------------------------
   r.slice_tp.assign(size_t(nz), 0);
   r.slice_fp.assign(size_t(nz), 0);
   r.slice_fn.assign(size_t(nz), 0);
   std::vector<int64_t> slice_in(size_t(nz), 0);
   const int nt = omp_get_max_threads();
   std::vector<std::unordered_map<uint64_t, int64_t>> pair_maps(static_cast<size_t>(nt));
-  const uint32_t* LP = cp.labels.data();
-  const uint32_t* LR = cr.labels.data();
   const uint8_t* O = roi ? roi->data() : nullptr;
 #pragma omp parallel num_threads(nt)
   {
@@ -310,29 +331,34 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
     int64_t* last = nullptr;
 #pragma omp for schedule(static)
     for (int64_t z = 0; z < nz; ++z) {
-      int64_t tp = 0, fp = 0, fn = 0, in = 0;
-      const int64_t b = z * sxy, e = b + sxy;
-      for (int64_t i = b; i < e; ++i) {
-        const uint32_t a = LR[i], p = LP[i];
-        if ((a | p) == 0) continue;
-        tp += (a != 0) & (p != 0);
-        fp += (a == 0) & (p != 0);
-        fn += (a != 0) & (p == 0);
-        if (a && p) {
-          const uint64_t key = (uint64_t(a) << 32) | p;
-          if (!last || key != last_key) {
-            last = &pm[key];
-            last_key = key;
+      int64_t tp = 0, n_ref = 0, n_pred = 0, in = 0;
+      for (int64_t y = 0; y < ny; ++y) {
+        const int64_t row = cr.row_of(y, z);
+        int64_t i = cr.row_begin[size_t(row)], j = cp.row_begin[size_t(row)];
+        const int64_t ie = cr.row_begin[size_t(row) + 1], je = cp.row_begin[size_t(row) + 1];
+        for (int64_t k = i; k < ie; ++k) n_ref += cr.runs[size_t(k)].x1 - cr.runs[size_t(k)].x0;
+        for (int64_t k = j; k < je; ++k) n_pred += cp.runs[size_t(k)].x1 - cp.runs[size_t(k)].x0;
+        while (i < ie && j < je) {
+          const Run &u = cr.runs[size_t(i)], &v = cp.runs[size_t(j)];
+          const int64_t o = std::min(u.x1, v.x1) - std::max(u.x0, v.x0);
+          if (o > 0) {
+            tp += o;
+            const uint64_t key = (uint64_t(cr.label[size_t(i)]) << 32) | cp.label[size_t(j)];
+            if (!last || key != last_key) {
+              last = &pm[key];
+              last_key = key;
+            }
+            *last += o;
           }
-          ++*last;
+          if (u.x1 <= v.x1) ++i; else ++j;
         }
       }
       if (O) {
-        for (int64_t i = b; i < e; ++i) in += O[i] != 0;
+        for (int64_t q = z * sxy, e = q + sxy; q < e; ++q) in += O[q] != 0;
       } else {
         in = sxy;
       }
-      r.slice_tp[size_t(z)] = tp, r.slice_fp[size_t(z)] = fp, r.slice_fn[size_t(z)] = fn;
+      r.slice_tp[size_t(z)] = tp, r.slice_fp[size_t(z)] = n_pred - tp, r.slice_fn[size_t(z)] = n_ref - tp;
       slice_in[size_t(z)] = in;
     }
   }
@@ -427,7 +453,7 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   r.pod_bins = binned_pod(esd_ref, hit, edges);
   for (const auto& w : r.pod.warnings) r.warnings.push_back("pod: " + w);
   if (!r.pod.estimable) r.warnings.push_back("pod: not estimable: " + r.pod.reason);
-  if (opt.surface_distances) r.surface = surface_distances(cp.labels, cr.labels);
+  if (opt.surface_distances) r.surface = surface_distances(cp, cr);
   if (r.roi_voxels == 0) r.warnings.push_back("the ROI holds no voxels: every metric is undefined");
   return r;
 }

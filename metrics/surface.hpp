@@ -19,6 +19,8 @@ struct SurfaceDistances {
   int64_t surface_voxels_ref = 0, surface_voxels_pred = 0;
 };
 
+struct LabelRuns;
+SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref);
 SurfaceDistances surface_distances(const Image<uint32_t>& pred, const Image<uint32_t>& ref);
 
 // The directed distances pred -> ref (for tests): one per surface voxel of `from`, raster order.
