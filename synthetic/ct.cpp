@@ -259,6 +259,7 @@ namespace {
 
 constexpr double kMaxDu = 1.8;   // 15 x 1.8 + 3 < 32 (AVX-512) and 7 x 1.8 + 3 < 16 (AVX2)
 constexpr int kFront = 32;       // zero bins before each padded row: tail lanes may reach u ~ -27
+constexpr int kRows512 = 16;  // rows per AVX-512 tile: 16 accumulators, a window spans <= 15 |du| + 15 |su| + 3 < 32 bins
 constexpr int kAngleChunk = 64;  // angles per pass over a row group (their rows stay in L2)
 
 // q and dq of every angle in zero-padded rows of length L (q at 0, dq at L), with per-angle
@@ -294,28 +295,31 @@ __attribute__((target("avx2"))) inline __m256 bcast8(const float& x) {
 template <int R>
 __attribute__((target("avx512f,avx512bw,avx512vl,avx512dq"))) void bp_tile_avx512(
     const BpPlan& p, int j0, int i0, int a0, int a1, float* acc, int stride) {
-  static_assert(R >= 1 && R <= 8, "rows per tile");
+  static_assert(R >= 1 && R <= 16, "rows per tile");
   __m512 s[R];
-#pragma GCC unroll 8
+#pragma GCC unroll 16
   for (int r = 0; r < R; ++r) s[r] = _mm512_loadu_ps(acc + size_t(r) * size_t(stride));
   const __m512 lane = _mm512_setr_ps(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
-  const __m512d rows = _mm512_setr_pd(0, 1, 2, 3, 4, 5, 6, 7);
+  const __m512d rows = _mm512_setr_pd(0, 1, 2, 3, 4, 5, 6, 7), eight = _mm512_set1_pd(8);
   const __m512i last = _mm512_set1_epi32(p.L - 2);
-  alignas(32) float base[8];
-  alignas(32) int kmin[8];
+  alignas(32) float base[16];
+  alignas(32) int kmin[16];
   for (int a = a0; a < a1; ++a) {
     const float* q = p.q(a);
     const float* dq = q + p.L;
     const double du = p.du[size_t(a)], su = p.su[size_t(a)], v = p.u00[size_t(a)] + i0 * du + j0 * su;
     const __m512 duv = _mm512_set1_ps(p.du_f[size_t(a)]);
-    const __m512d ur = _mm512_fmadd_pd(rows, _mm512_set1_pd(su), _mm512_set1_pd(v));  // u of each row's lane 0
+    // u of each row's lane 0, rows 0-7 and 8-15
+    const __m512d ur = _mm512_fmadd_pd(rows, _mm512_set1_pd(su), _mm512_set1_pd(v));
+    const __m512d ur8 = _mm512_fmadd_pd(_mm512_add_pd(rows, eight), _mm512_set1_pd(su), _mm512_set1_pd(v));
     const double lo_du = std::min(0.0, 15 * du);
     if (15 * std::abs(du) + (R - 1) * std::abs(su) <= 28) {  // one window for the tile
       const int k0 = int(v + lo_du + (R - 1) * std::min(0.0, su)) - 1;
       _mm256_store_ps(base, _mm512_cvtpd_ps(_mm512_sub_pd(ur, _mm512_set1_pd(k0))));
+      if (R > 8) _mm256_store_ps(base + 8, _mm512_cvtpd_ps(_mm512_sub_pd(ur8, _mm512_set1_pd(k0))));
       const __m512 q0 = _mm512_loadu_ps(q + k0), q1 = _mm512_loadu_ps(q + k0 + 16);
       const __m512 d0 = _mm512_loadu_ps(dq + k0), d1 = _mm512_loadu_ps(dq + k0 + 16);
-#pragma GCC unroll 8
+#pragma GCC unroll 16
       for (int r = 0; r < R; ++r) {
         const __m512 t = _mm512_fmadd_ps(lane, duv, bcast16(base[r]));
         const __m512i idx = _mm512_cvttps_epi32(t);
@@ -328,7 +332,13 @@ __attribute__((target("avx512f,avx512bw,avx512vl,avx512dq"))) void bp_tile_avx51
                                           _mm256_set1_epi32(1));
       _mm256_store_si256(reinterpret_cast<__m256i*>(kmin), km);
       _mm256_store_ps(base, _mm512_cvtpd_ps(_mm512_sub_pd(ur, _mm512_cvtepi32_pd(km))));
-#pragma GCC unroll 8
+      if (R > 8) {
+        const __m256i km8 = _mm256_sub_epi32(_mm512_cvttpd_epi32(_mm512_add_pd(ur8, _mm512_set1_pd(lo_du))),
+                                             _mm256_set1_epi32(1));
+        _mm256_store_si256(reinterpret_cast<__m256i*>(kmin + 8), km8);
+        _mm256_store_ps(base + 8, _mm512_cvtpd_ps(_mm512_sub_pd(ur8, _mm512_cvtepi32_pd(km8))));
+      }
+#pragma GCC unroll 16
       for (int r = 0; r < R; ++r) {
         const int k = kmin[r];
         const __m512 t = _mm512_fmadd_ps(lane, duv, bcast16(base[r]));
@@ -340,7 +350,8 @@ __attribute__((target("avx512f,avx512bw,avx512vl,avx512dq"))) void bp_tile_avx51
       }
     } else {  // gathers
       _mm256_store_ps(base, _mm512_cvtpd_ps(ur));
-#pragma GCC unroll 8
+      if (R > 8) _mm256_store_ps(base + 8, _mm512_cvtpd_ps(ur8));
+#pragma GCC unroll 16
       for (int r = 0; r < R; ++r) {
         const __m512 t = _mm512_fmadd_ps(lane, duv, bcast16(base[r]));
         // Tail lanes past the row end may leave the detector: clamp them (their sums are dropped).
@@ -351,7 +362,7 @@ __attribute__((target("avx512f,avx512bw,avx512vl,avx512dq"))) void bp_tile_avx51
       }
     }
   }
-#pragma GCC unroll 8
+#pragma GCC unroll 16
   for (int r = 0; r < R; ++r) _mm512_storeu_ps(acc + size_t(r) * size_t(stride), s[r]);
 }
 
@@ -510,7 +521,7 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
   }
 #ifdef PB_BP_X86
   const bool avx512 = kern == BpKernel::Avx512;
-  const int lanes = avx512 ? 16 : 8, R = avx512 ? 8 : 4;
+  const int lanes = avx512 ? 16 : 8, R = avx512 ? kRows512 : 4;
   BpPlan p;
   // Tail lanes reach (lanes - 1) kMaxDu bins past either end of the detector, and a window reads
   // 2 x lanes floats from kmin.
@@ -525,8 +536,10 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
     p.du_f[size_t(a)] = float(du[size_t(a)]);
   }
   // Row groups of R rows (the last one may be shorter), split evenly over the threads.
-  static const TileFn tiles512[8] = {&bp_tile_avx512<1>, &bp_tile_avx512<2>, &bp_tile_avx512<3>, &bp_tile_avx512<4>,
-                                     &bp_tile_avx512<5>, &bp_tile_avx512<6>, &bp_tile_avx512<7>, &bp_tile_avx512<8>};
+  static const TileFn tiles512[16] = {
+      &bp_tile_avx512<1>,  &bp_tile_avx512<2>,  &bp_tile_avx512<3>,  &bp_tile_avx512<4>,  &bp_tile_avx512<5>,  &bp_tile_avx512<6>,
+      &bp_tile_avx512<7>,  &bp_tile_avx512<8>,  &bp_tile_avx512<9>,  &bp_tile_avx512<10>, &bp_tile_avx512<11>, &bp_tile_avx512<12>,
+      &bp_tile_avx512<13>, &bp_tile_avx512<14>, &bp_tile_avx512<15>, &bp_tile_avx512<16>};
   static const TileFn tiles256[4] = {&bp_tile_avx2<1>, &bp_tile_avx2<2>, &bp_tile_avx2<3>, &bp_tile_avx2<4>};
   const int stride = round_up(nx, lanes), n_groups = (ny + R - 1) / R;
   // One parallel region: (filter and) pad the rows, then the row groups.
