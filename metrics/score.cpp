@@ -266,6 +266,7 @@ std::vector<Pore> pore_geometry(const LabelRuns& c, const Mask* roi, const Direc
     p.bbox = {t.lo[0], t.lo[1], t.lo[2] + z_offset, t.hi[0], t.hi[1], t.hi[2] + z_offset};
     double s = 0;
     for (int k = 0; k < 13; ++k) s += D.weight[size_t(k)] * double(t.cross[k]) * D.line_area_mm2[size_t(k)];
+    for (int k = 0; k < 13; ++k) p.crossings[size_t(k)] = t.cross[k];
     p.surface_mm2 = 2 * s;
     p.sphericity = std::cbrt(M_PI) * std::pow(6 * p.volume_mm3, 2.0 / 3.0) / p.surface_mm2;
     p.touches_border = t.touch;

@@ -52,6 +52,10 @@ struct Pore {
   std::array<double, 3> centroid_mm{0, 0, 0};
   std::array<int64_t, 6> bbox{0, 0, 0, 0, 0, 0};  // x0 y0 z0 x1 y1 z1, inclusive, voxel indices of the input
   double surface_mm2 = 0, sphericity = 0;
+  // Boundary crossings behind the surface estimate: for each of the 13 lattice directions d (one
+  // of each +-pair, the first non-zero of (dz, dy, dx) positive, in raster order of (dz, dy, dx)),
+  // the voxels whose neighbour at +d or -d has another label or lies outside the volume.
+  std::array<int64_t, 13> crossings{};
   bool touches_border = false;  // a voxel 6-adjacent to the outside of the ROI, z-range or volume
   // Matching against the other side.
   int64_t overlap_voxels = 0;  // own voxels covered by pores of the other side

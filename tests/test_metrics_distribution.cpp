@@ -74,30 +74,43 @@ TEST_CASE("surface distances by hand: two slabs one voxel apart", "[metrics][sur
 
 TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metrics][surface][ref]") {
   // Reference: scipy.ndimage.binary_erosion surfaces and distance_transform_edt with sampling
-  // (python3-scipy). Random blobs: thresholded noise so that surfaces are irregular and far apart.
+  // (python3-scipy). Random balls, independently for the two sides (surfaces far apart: ring
+  // searches), or the second side = the first moved one voxel along x plus a few balls (nearly
+  // coincident surfaces: the 3x3x3 first look). Rows of 40 and of 130 voxels (two 64-voxel words
+  // and a tail).
+  const int nx = GENERATE(40, 130);
+  const bool near = GENERATE(false, true);
   Geometry g;
-  g.dims = {40, 33, 27};
+  g.dims = {nx, 33, 27};
   g.spacing_mm = {0.02, 0.025, 0.03};
   std::mt19937_64 rng(17);
   std::uniform_real_distribution<double> u(0, 1);
   Mask p(g), r(g);
-  // Balls of random radius at random centres, independently for the two sides.
-  for (Mask* m : {&p, &r})
-    for (int k = 0; k < 12; ++k) {
-      const double cx = u(rng) * 40, cy = u(rng) * 33, cz = u(rng) * 27, rad = 1 + 4 * u(rng);
+  auto balls = [&](Mask& m, int n) {
+    for (int k = 0; k < n; ++k) {
+      const double cx = u(rng) * nx, cy = u(rng) * 33, cz = u(rng) * 27, rad = 1 + 4 * u(rng);
       for (int z = 0; z < 27; ++z)
         for (int y = 0; y < 33; ++y)
-          for (int x = 0; x < 40; ++x)
-            if ((x - cx) * (x - cx) + (y - cy) * (y - cy) + (z - cz) * (z - cz) <= rad * rad) (*m)(x, y, z) = 1;
+          for (int x = 0; x < nx; ++x)
+            if ((x - cx) * (x - cx) + (y - cy) * (y - cy) + (z - cz) * (z - cz) <= rad * rad) m(x, y, z) = 1;
     }
+  };
+  balls(p, 12 * nx / 40);
+  if (near) {
+    for (int64_t i = 1; i < p.size(); ++i) r[i] = p[i - 1];
+    balls(r, 3);
+  } else {
+    balls(r, 12 * nx / 40);
+  }
   pbtest::TempDir d;
   write_raw(AnyVolume(p), d / "p.raw");
   write_raw(AnyVolume(r), d / "r.raw");
-  const auto out = pbtest::run_ref_script("metrics_surface.py", d / "p.raw" + " " + d / "r.raw" +
-                                                                    " 40 33 27 0.02 0.025 0.03");
+  const auto out = pbtest::run_ref_script("metrics_surface.py", d / "p.raw" + " " + d / "r.raw" + " " +
+                                                                    std::to_string(nx) + " 33 27 0.02 0.025 0.03");
   INFO(out.err);
   REQUIRE(out.exit_code == 0);
   const auto j = nlohmann::json::parse(out.out);
+  INFO("nx " << nx << " near " << near);
   const SurfaceDistances s = surface_distances(label_components(p, 26).labels, label_components(r, 26).labels);
   CHECK(s.surface_voxels_pred == j["n_pred"].get<int64_t>());
   CHECK(s.surface_voxels_ref == j["n_ref"].get<int64_t>());

@@ -5,9 +5,11 @@
 #include <omp.h>
 
 #include <cmath>
+#include <map>
 #include <nlohmann/json.hpp>
 
 #include "core/error.hpp"
+#include "metrics/ccl.hpp"
 #include "metrics/score.hpp"
 #include "tests/helpers.hpp"
 #include "tests/metrics_helpers.hpp"
@@ -283,4 +285,99 @@ TEST_CASE("mismatched geometry is an input error naming the field", "[metrics][s
   b = a;
   b.spacing_mm[0] = 2;
   CHECK_THROWS_WITH(score(Mask(a), Mask(b), nullptr), Catch::Contains("spacing along x"));
+}
+
+TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "[metrics][score]") {
+  // Scoring works on runs (interval overlaps); this recomputes every quantity voxel by voxel from
+  // the definitions in metrics/score.hpp, on the label volumes (labels checked against scipy in
+  // test_metrics_ccl.cpp). Rows wider than 64 voxels and a part mask with holes included.
+  const int conn = GENERATE(6, 18, 26);
+  Geometry g;
+  g.dims = {70, 23, 17};
+  g.spacing_mm = {0.01, 0.012, 0.015};
+  const Mask ref = random_mask(g, 0.25, unsigned(conn)), pred = random_mask(g, 0.25, unsigned(conn + 1));
+  const Mask roi = random_mask(g, 0.95, 17);
+  ScoreOptions o;
+  o.connectivity = conn;
+  o.surface_distances = false;
+  const ScoreResult r = score(pred, ref, &roi, o);
+  const Components cr = label_components(ref, &roi, conn), cp = label_components(pred, &roi, conn);
+  REQUIRE(r.pores_ref.size() == cr.count);
+  REQUIRE(r.pores_pred.size() == cp.count);
+
+  std::vector<std::array<int, 3>> dirs;  // documented order of the 13 directions
+  for (int dz = -1; dz <= 1; ++dz)
+    for (int dy = -1; dy <= 1; ++dy)
+      for (int dx = -1; dx <= 1; ++dx) {
+        const int first = dz != 0 ? dz : (dy != 0 ? dy : dx);
+        if (first > 0) dirs.push_back({dx, dy, dz});
+      }
+  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
+  auto inside = [&](int64_t x, int64_t y, int64_t z) { return x >= 0 && y >= 0 && z >= 0 && x < nx && y < ny && z < nz; };
+  auto check_side = [&](const Components& c, const std::vector<Pore>& pores, const char* side) {
+    struct Want {
+      int64_t n = 0, sx = 0, sy = 0, sz = 0;
+      std::array<int64_t, 6> bbox{INT64_MAX, INT64_MAX, INT64_MAX, -1, -1, -1};
+      std::array<int64_t, 13> cross{};
+      bool touch = false;
+    };
+    std::vector<Want> w(size_t(c.count) + 1);
+    for (int64_t z = 0; z < nz; ++z)
+      for (int64_t y = 0; y < ny; ++y)
+        for (int64_t x = 0; x < nx; ++x) {
+          const uint32_t l = c.labels(x, y, z);
+          if (!l) continue;
+          Want& a = w[l];
+          ++a.n, a.sx += x, a.sy += y, a.sz += z;
+          const int64_t p[3] = {x, y, z};
+          for (int i = 0; i < 3; ++i) a.bbox[size_t(i)] = std::min(a.bbox[size_t(i)], p[i]), a.bbox[size_t(i) + 3] = std::max(a.bbox[size_t(i) + 3], p[i]);
+          for (size_t k = 0; k < 13; ++k)
+            for (int s = -1; s <= 1; s += 2) {
+              const int64_t qx = x + s * dirs[k][0], qy = y + s * dirs[k][1], qz = z + s * dirs[k][2];
+              if (!inside(qx, qy, qz) || c.labels(qx, qy, qz) != l) ++a.cross[k];
+            }
+          const int64_t f[6][3] = {{-1, 0, 0}, {1, 0, 0}, {0, -1, 0}, {0, 1, 0}, {0, 0, -1}, {0, 0, 1}};
+          for (const auto& d : f) {
+            const int64_t qx = x + d[0], qy = y + d[1], qz = z + d[2];
+            if (!inside(qx, qy, qz) || !roi(qx, qy, qz)) a.touch = true;
+          }
+        }
+    int bad = 0;
+    for (uint32_t l = 1; l <= c.count && bad < 5; ++l) {
+      const Pore& p = pores[l - 1];
+      const Want& a = w[l];
+      INFO(side << " label " << l << " connectivity " << conn);
+      const bool ok = p.voxels == a.n && p.crossings == a.cross && p.touches_border == a.touch &&
+                      p.bbox == a.bbox &&
+                      p.centroid_mm[0] == Approx(g.spacing_mm[0] * double(a.sx) / double(a.n)) &&
+                      p.centroid_mm[2] == Approx(g.spacing_mm[2] * double(a.sz) / double(a.n));
+      CHECK(ok);
+      bad += !ok;
+    }
+  };
+  check_side(cr, r.pores_ref, "ref");
+  check_side(cp, r.pores_pred, "pred");
+
+  // Pair overlaps and per-slice counts, voxel by voxel.
+  std::map<std::pair<uint32_t, uint32_t>, int64_t> pairs;
+  std::vector<int64_t> tp(size_t(nz), 0), fp(size_t(nz), 0), fn(size_t(nz), 0);
+  for (int64_t z = 0; z < nz; ++z)
+    for (int64_t y = 0; y < ny; ++y)
+      for (int64_t x = 0; x < nx; ++x) {
+        const uint32_t a = cr.labels(x, y, z), b = cp.labels(x, y, z);
+        if (a && b) ++pairs[{a, b}], ++tp[size_t(z)];
+        if (!a && b) ++fp[size_t(z)];
+        if (a && !b) ++fn[size_t(z)];
+      }
+  REQUIRE(r.pairs.size() == pairs.size());
+  size_t k = 0;
+  for (const auto& [key, v] : pairs) {
+    CHECK(r.pairs[k].ref == key.first);
+    CHECK(r.pairs[k].pred == key.second);
+    CHECK(r.pairs[k].voxels == v);
+    ++k;
+  }
+  CHECK(r.slice_tp == tp);
+  CHECK(r.slice_fp == fp);
+  CHECK(r.slice_fn == fn);
 }
