@@ -59,9 +59,10 @@ std::vector<Ellipse2D> shepp_logan(double radius, bool modified_contrast = false
 std::vector<float> rasterize_ellipses(const std::vector<Ellipse2D>& e, int nx, int ny, double pixel_mm, int m);
 
 // Joseph's projector of a pixel image (x fastest): line integrals in image-value x mm.
-// Parallel over angles when `parallel`.
+// Parallel over angles when `parallel`. An AVX-512 kernel runs where the CPU has it; simd = false
+// forces the portable one (tests compare them).
 Sinogram project_image(const float* image, int nx, int ny, double pixel_mm, const ParallelGeometry& g,
-                       bool parallel = true);
+                       bool parallel = true, bool simd = true);
 
 enum class RampWindow { RamLak, SheppLogan, Cosine, Hamming, Hann };
 
