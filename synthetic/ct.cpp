@@ -12,7 +12,9 @@
 #include <memory>
 #include <mutex>
 
+#include "core/cpu.hpp"
 #include "core/error.hpp"
+#include "core/memory.hpp"
 
 #if defined(__x86_64__) && defined(__GNUC__)
 // GCC 12 warns about the _mm512_undefined_* values inside its own intrinsic headers (a false positive).
@@ -164,7 +166,7 @@ Sinogram project_image(const float* img, int nx, int ny, double s, const Paralle
   Sinogram out(g);
   const double tau = g.bin_mm;
 #if defined(__x86_64__) && defined(__GNUC__)
-  simd = simd && bp_kernel_supported(BpKernel::Avx512);
+  simd = simd && simd_level() == Simd::avx512;
   constexpr int slack = kJosephSlack;
 #else
   simd = false;
@@ -320,10 +322,15 @@ constexpr int kAngleChunk = 64;  // angles per pass over a row group (their rows
 // coordinates in padded bins.
 struct BpPlan {
   int L = 0;
-  std::vector<float> rows;         // angles x 2L
+  float* rows = nullptr;  // angles x 2L, from allocate_buffer, every float written by its angle's thread
+  size_t bytes = 0;
+  BpPlan() = default;
+  BpPlan(const BpPlan&) = delete;
+  BpPlan& operator=(const BpPlan&) = delete;
+  ~BpPlan() { if (rows) free_buffer(rows, bytes); }
   std::vector<double> u00, du, su;  // u of pixel (0, 0) in padded bins; steps per pixel and row
   std::vector<float> du_f;
-  const float* q(int a) const { return rows.data() + size_t(a) * 2 * size_t(L); }
+  const float* q(int a) const { return rows + size_t(a) * 2 * size_t(L); }
 };
 
 int round_up(int n, int m) { return (n + m - 1) / m * m; }
@@ -489,23 +496,18 @@ bool bp_kernel_supported(BpKernel k) {
   switch (k) {
     case BpKernel::Auto:
     case BpKernel::Generic: return true;
-#ifdef PB_BP_X86
-    case BpKernel::Avx2: return __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
-    case BpKernel::Avx512:
-      return __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512bw") &&
-             __builtin_cpu_supports("avx512vl") && __builtin_cpu_supports("avx512dq");
-#else
-    default: return false;
-#endif
+    case BpKernel::Avx2: return simd_level() != Simd::generic;
+    case BpKernel::Avx512: return simd_level() == Simd::avx512;
   }
   return false;
 }
 
 BpKernel best_bp_kernel() {
-  static const BpKernel best = bp_kernel_supported(BpKernel::Avx512) ? BpKernel::Avx512
-                               : bp_kernel_supported(BpKernel::Avx2) ? BpKernel::Avx2
-                                                                     : BpKernel::Generic;
-  return best;
+  switch (simd_level()) {
+    case Simd::avx512: return BpKernel::Avx512;
+    case Simd::avx2: return BpKernel::Avx2;
+    default: return BpKernel::Generic;
+  }
 }
 
 const char* bp_kernel_name(BpKernel k) {
@@ -580,7 +582,8 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
   // Tail lanes reach (lanes - 1) kMaxDu bins past either end of the detector, and a window reads
   // 2 x lanes floats from kmin.
   p.L = round_up(kFront + nb + 2 * 16 + 32, 16);
-  p.rows.assign(size_t(na) * 2 * size_t(p.L), 0.f);
+  p.bytes = sizeof(float) * size_t(na) * 2 * size_t(p.L);
+  p.rows = static_cast<float*>(allocate_buffer(p.bytes));
   p.u00.resize(size_t(na));
   p.du = du;
   p.su = su;
@@ -605,13 +608,17 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
         fftwf_free);
 #pragma omp for schedule(static)
     for (int a = 0; a < na; ++a) {
-      float* q = p.rows.data() + size_t(a) * 2 * size_t(p.L) + kFront;
+      float* row = p.rows + size_t(a) * 2 * size_t(p.L);  // zeros, q, zeros, then the same for dq
+      float* q = row + kFront;
       float* dq = q + p.L;
+      std::fill(row, q, 0.f);
       if (filter_rows)
         filter_row(f.row(a), q, work.get());
       else
         std::copy(f.row(a), f.row(a) + nb, q);
+      std::fill(q + nb, dq, 0.f);
       for (int k = 0; k + 1 < nb; ++k) dq[k] = q[k + 1] - q[k];
+      std::fill(dq + nb - 1, row + 2 * size_t(p.L), 0.f);
     }
 #pragma omp for schedule(static)
     for (int grp = 0; grp < n_groups; ++grp) {

@@ -59,15 +59,16 @@ std::vector<Ellipse2D> shepp_logan(double radius, bool modified_contrast = false
 std::vector<float> rasterize_ellipses(const std::vector<Ellipse2D>& e, int nx, int ny, double pixel_mm, int m);
 
 // Joseph's projector of a pixel image (x fastest): line integrals in image-value x mm.
-// Parallel over angles when `parallel`. An AVX-512 kernel runs where the CPU has it; simd = false
-// forces the portable one (tests compare them).
+// Parallel over angles when `parallel`. An AVX-512 kernel runs where simd_level() allows it;
+// simd = false forces the portable one (tests compare them).
 Sinogram project_image(const float* image, int nx, int ny, double pixel_mm, const ParallelGeometry& g,
                        bool parallel = true, bool simd = true);
 
 enum class RampWindow { RamLak, SheppLogan, Cosine, Hamming, Hann };
 
-// Back-projection kernels: Auto picks the best this CPU runs (checked once at run time); the
-// others force one (tests compare them). Generic is plain C++ with u in double precision.
+// Back-projection kernels: Auto picks the best of pb::simd_level() (core/cpu.hpp: what the CPU
+// runs, under the cap tests may set); the others force one (tests compare them). Generic is plain
+// C++ with u in double precision.
 enum class BpKernel { Auto, Generic, Avx2, Avx512 };
 bool bp_kernel_supported(BpKernel k);
 BpKernel best_bp_kernel();

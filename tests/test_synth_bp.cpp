@@ -8,6 +8,7 @@
 #include <cstring>
 #include <random>
 
+#include "core/cpu.hpp"
 #include "core/error.hpp"
 #include "core/parallel.hpp"
 #include "synthetic/ct.hpp"
@@ -174,4 +175,26 @@ TEST_CASE("Joseph projector: the AVX-512 kernel agrees with the portable one", "
               << " bins: max diff / range " << worst / range << (bp_kernel_supported(BpKernel::Avx512) ? "" : " (no AVX-512 here)"));
     CHECK(worst <= 1e-5 * range);
   }
+}
+
+TEST_CASE("the CT kernels follow the SIMD cap of core/cpu.hpp", "[synth][ct][bp]") {
+  // Under a generic cap, Auto is the generic back-projection and the projector takes its portable
+  // kernel: the same bits as forcing them.
+  const int n = 40;
+  const ParallelGeometry g = geometry(30, 180, 0, n, n, 1.0);
+  std::vector<float> img(size_t(n) * n);
+  std::mt19937 rng(2);
+  std::uniform_real_distribution<float> uni(0.f, 1.f);
+  for (float& v : img) v = uni(rng);
+  const Fbp fbp(g, RampWindow::RamLak);
+  const Sinogram portable = project_image(img.data(), n, n, 1.0, g, true, false);
+  const auto generic = backproject(fbp, portable, n, n, 1.0, BpKernel::Generic);
+  set_simd_cap(Simd::generic);
+  const BpKernel capped = best_bp_kernel();
+  const Sinogram s = project_image(img.data(), n, n, 1.0, g, true, true);
+  const auto bp = backproject(fbp, s, n, n, 1.0, BpKernel::Auto);
+  set_simd_cap(Simd::avx512);
+  CHECK(capped == BpKernel::Generic);
+  CHECK(std::memcmp(s.data.data(), portable.data.data(), s.data.size() * sizeof(float)) == 0);
+  CHECK(std::memcmp(bp.data(), generic.data(), bp.size() * sizeof(float)) == 0);
 }
