@@ -316,6 +316,7 @@ namespace {
 constexpr double kMaxDu = 1.8;   // 15 x 1.8 + 3 < 32 (AVX-512) and 7 x 1.8 + 3 < 16 (AVX2)
 constexpr int kFront = 32;       // zero bins before each padded row: tail lanes may reach u ~ -27
 constexpr int kRows512 = 16;  // rows per AVX-512 tile: 16 accumulators, a window spans <= 15 |du| + 15 |su| + 3 < 32 bins
+constexpr int kRows256 = 8;   // rows per AVX2 tile: 7 |du| + 7 |su| + 3 < 16 bins
 constexpr int kAngleChunk = 64;  // angles per pass over a row group (their rows stay in L2)
 
 // q and dq of every angle in zero-padded rows of length L (q at 0, dq at L), with per-angle
@@ -428,52 +429,65 @@ __attribute__((target("avx512f,avx512bw,avx512vl,avx512dq"))) void bp_tile_avx51
 }
 
 // The AVX2 twin: 8 pixels, window of 16 bins, two one-source permutes and a blend per table.
+__attribute__((target("avx2,fma"))) inline __m256 pick16(__m256 lo, __m256 hi, __m256i idx, __m256 upper) {
+  return _mm256_blendv_ps(_mm256_permutevar8x32_ps(lo, idx), _mm256_permutevar8x32_ps(hi, idx), upper);
+}
+
 template <int R>
 __attribute__((target("avx2,fma"))) void bp_tile_avx2(const BpPlan& p, int j0, int i0, int a0, int a1, float* acc,
                                                       int stride) {
-  static_assert(R >= 1 && R <= 4, "rows per tile");
+  static_assert(R >= 1 && R <= 8, "rows per tile");
   __m256 s[R];
-#pragma GCC unroll 4
+#pragma GCC unroll 8
   for (int r = 0; r < R; ++r) s[r] = _mm256_loadu_ps(acc + size_t(r) * size_t(stride));
   const __m256 lane = _mm256_setr_ps(0, 1, 2, 3, 4, 5, 6, 7);
-  const __m256d rows = _mm256_setr_pd(0, 1, 2, 3);
+  const __m256d rows = _mm256_setr_pd(0, 1, 2, 3), four = _mm256_set1_pd(4);
   const __m256i last = _mm256_set1_epi32(p.L - 2);
-  alignas(16) float base[4];
-  alignas(16) int kmin[4];
+  alignas(32) float base[8];
+  alignas(32) int kmin[8];
   for (int a = a0; a < a1; ++a) {
     const float* q = p.q(a);
     const float* dq = q + p.L;
     const double du = p.du[size_t(a)], su = p.su[size_t(a)], v = p.u00[size_t(a)] + i0 * du + j0 * su;
     const __m256 duv = _mm256_set1_ps(p.du_f[size_t(a)]);
-    const __m256d ur = _mm256_fmadd_pd(rows, _mm256_set1_pd(su), _mm256_set1_pd(v));
+    const __m256d ur = _mm256_fmadd_pd(rows, _mm256_set1_pd(su), _mm256_set1_pd(v));  // rows 0-3, 4-7
+    const __m256d ur4 = _mm256_fmadd_pd(_mm256_add_pd(rows, four), _mm256_set1_pd(su), _mm256_set1_pd(v));
     const double lo_du = std::min(0.0, 7 * du);
-    if (std::abs(du) <= kMaxDu) {
-      int k0 = 0;
-      const bool shared = 7 * std::abs(du) + (R - 1) * std::abs(su) <= 12;
-      if (shared) {
-        k0 = int(v + lo_du + (R - 1) * std::min(0.0, su)) - 1;
-        _mm_store_ps(base, _mm256_cvtpd_ps(_mm256_sub_pd(ur, _mm256_set1_pd(k0))));
-      } else {
-        const __m128i km = _mm_sub_epi32(_mm256_cvttpd_epi32(_mm256_add_pd(ur, _mm256_set1_pd(lo_du))), _mm_set1_epi32(1));
-        _mm_store_si128(reinterpret_cast<__m128i*>(kmin), km);
-        _mm_store_ps(base, _mm256_cvtpd_ps(_mm256_sub_pd(ur, _mm256_cvtepi32_pd(km))));
-      }
-#pragma GCC unroll 4
+    if (7 * std::abs(du) + (R - 1) * std::abs(su) <= 12) {  // one window for the tile
+      const int k0 = int(v + lo_du + (R - 1) * std::min(0.0, su)) - 1;
+      _mm_store_ps(base, _mm256_cvtpd_ps(_mm256_sub_pd(ur, _mm256_set1_pd(k0))));
+      if (R > 4) _mm_store_ps(base + 4, _mm256_cvtpd_ps(_mm256_sub_pd(ur4, _mm256_set1_pd(k0))));
+      const __m256 q0 = _mm256_loadu_ps(q + k0), q1 = _mm256_loadu_ps(q + k0 + 8);
+      const __m256 d0 = _mm256_loadu_ps(dq + k0), d1 = _mm256_loadu_ps(dq + k0 + 8);
+#pragma GCC unroll 8
       for (int r = 0; r < R; ++r) {
-        const int k = shared ? k0 : kmin[r];
         const __m256 t = _mm256_fmadd_ps(lane, duv, bcast8(base[r]));
         const __m256i idx = _mm256_cvttps_epi32(t);
         const __m256 w = _mm256_sub_ps(t, _mm256_cvtepi32_ps(idx));
-        const __m256 hi = _mm256_castsi256_ps(_mm256_slli_epi32(idx, 28));  // sign bit = (idx & 8)
-        const __m256 qv = _mm256_blendv_ps(_mm256_permutevar8x32_ps(_mm256_loadu_ps(q + k), idx),
-                                           _mm256_permutevar8x32_ps(_mm256_loadu_ps(q + k + 8), idx), hi);
-        const __m256 dv = _mm256_blendv_ps(_mm256_permutevar8x32_ps(_mm256_loadu_ps(dq + k), idx),
-                                           _mm256_permutevar8x32_ps(_mm256_loadu_ps(dq + k + 8), idx), hi);
+        const __m256 upper = _mm256_castsi256_ps(_mm256_slli_epi32(idx, 28));  // sign bit = (idx & 8)
+        s[r] = _mm256_add_ps(s[r], _mm256_fmadd_ps(w, pick16(d0, d1, idx, upper), pick16(q0, q1, idx, upper)));
+      }
+    } else if (std::abs(du) <= kMaxDu) {  // one window per row
+      _mm_store_si128(reinterpret_cast<__m128i*>(kmin),
+                      _mm_sub_epi32(_mm256_cvttpd_epi32(_mm256_add_pd(ur, _mm256_set1_pd(lo_du))), _mm_set1_epi32(1)));
+      _mm_store_si128(reinterpret_cast<__m128i*>(kmin + 4),
+                      _mm_sub_epi32(_mm256_cvttpd_epi32(_mm256_add_pd(ur4, _mm256_set1_pd(lo_du))), _mm_set1_epi32(1)));
+#pragma GCC unroll 8
+      for (int r = 0; r < R; ++r) {
+        const int k = kmin[r];
+        base[r] = float((r < 4 ? ur[r] : ur4[r - 4]) - k);
+        const __m256 t = _mm256_fmadd_ps(lane, duv, _mm256_set1_ps(base[r]));
+        const __m256i idx = _mm256_cvttps_epi32(t);
+        const __m256 w = _mm256_sub_ps(t, _mm256_cvtepi32_ps(idx));
+        const __m256 upper = _mm256_castsi256_ps(_mm256_slli_epi32(idx, 28));
+        const __m256 qv = pick16(_mm256_loadu_ps(q + k), _mm256_loadu_ps(q + k + 8), idx, upper);
+        const __m256 dv = pick16(_mm256_loadu_ps(dq + k), _mm256_loadu_ps(dq + k + 8), idx, upper);
         s[r] = _mm256_add_ps(s[r], _mm256_fmadd_ps(w, dv, qv));
       }
-    } else {
+    } else {  // gathers
       _mm_store_ps(base, _mm256_cvtpd_ps(ur));
-#pragma GCC unroll 4
+      _mm_store_ps(base + 4, _mm256_cvtpd_ps(ur4));
+#pragma GCC unroll 8
       for (int r = 0; r < R; ++r) {
         const __m256 t = _mm256_fmadd_ps(lane, duv, bcast8(base[r]));
         const __m256i idx = _mm256_min_epi32(_mm256_max_epi32(_mm256_cvttps_epi32(t), _mm256_setzero_si256()), last);
@@ -483,7 +497,7 @@ __attribute__((target("avx2,fma"))) void bp_tile_avx2(const BpPlan& p, int j0, i
       }
     }
   }
-#pragma GCC unroll 4
+#pragma GCC unroll 8
   for (int r = 0; r < R; ++r) _mm256_storeu_ps(acc + size_t(r) * size_t(stride), s[r]);
 }
 
@@ -577,7 +591,7 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
   }
 #ifdef PB_BP_X86
   const bool avx512 = kern == BpKernel::Avx512;
-  const int lanes = avx512 ? 16 : 8, R = avx512 ? kRows512 : 4;
+  const int lanes = avx512 ? 16 : 8, R = avx512 ? kRows512 : kRows256;
   BpPlan p;
   // Tail lanes reach (lanes - 1) kMaxDu bins past either end of the detector, and a window reads
   // 2 x lanes floats from kmin.
@@ -597,7 +611,8 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
       &bp_tile_avx512<1>,  &bp_tile_avx512<2>,  &bp_tile_avx512<3>,  &bp_tile_avx512<4>,  &bp_tile_avx512<5>,  &bp_tile_avx512<6>,
       &bp_tile_avx512<7>,  &bp_tile_avx512<8>,  &bp_tile_avx512<9>,  &bp_tile_avx512<10>, &bp_tile_avx512<11>, &bp_tile_avx512<12>,
       &bp_tile_avx512<13>, &bp_tile_avx512<14>, &bp_tile_avx512<15>, &bp_tile_avx512<16>};
-  static const TileFn tiles256[4] = {&bp_tile_avx2<1>, &bp_tile_avx2<2>, &bp_tile_avx2<3>, &bp_tile_avx2<4>};
+  static const TileFn tiles256[8] = {&bp_tile_avx2<1>, &bp_tile_avx2<2>, &bp_tile_avx2<3>, &bp_tile_avx2<4>,
+                                     &bp_tile_avx2<5>, &bp_tile_avx2<6>, &bp_tile_avx2<7>, &bp_tile_avx2<8>};
   const int stride = round_up(nx, lanes), n_groups = (ny + R - 1) / R;
   // One parallel region: (filter and) pad the rows, then the row groups.
 #pragma omp parallel if (parallel)
