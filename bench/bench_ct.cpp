@@ -1,7 +1,8 @@
 // Parallel-beam CT kernels on a 256^2 Shepp-Logan slice with 400 angles (the case that
-// bench/peers/ct_vs_skimage.py times with scikit-image): Joseph forward projection, back-projection,
-// full FBP, in updates/s = pixels x angles / s. Also one simulated phantom slice (analytic
-// projection + noise + FBP) of demo-small.
+// bench/peers/ct_vs_skimage.py times with scikit-image): Joseph forward projection, back-projection
+// (the kernel this CPU gets, named in the label, and the AVX2 and generic kernels), full FBP, in
+// updates/s = pixels x angles / s. Also one simulated phantom slice (analytic projection + noise +
+// FBP) of demo-small.
 #include <benchmark/benchmark.h>
 
 #include "core/parallel.hpp"

@@ -198,7 +198,7 @@ Sinogram project_image(const float* img, int nx, int ny, double s, const Paralle
     const double c = along_y ? ct : st, o = along_y ? st : ct;
     const int n_lines = along_y ? ny : nx, n_along = along_y ? nx : ny;
     const float* lines = (along_y ? rows.data() : cols.data()) + slack;
-    const float* dlines = simd ? (along_y ? drows.data() : dcols.data()) + slack : nullptr;
+    [[maybe_unused]] const float* dlines = simd ? (along_y ? drows.data() : dcols.data()) + slack : nullptr;
     const size_t pitch = size_t(n_along + 2);
     const double centre_lines = (n_lines - 1) / 2.0, centre_along = (n_along - 1) / 2.0;
     const float w = float(s / std::abs(c));
