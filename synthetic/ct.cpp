@@ -315,8 +315,9 @@ namespace {
 
 constexpr double kMaxDu = 1.8;   // 15 x 1.8 + 3 < 32 (AVX-512) and 7 x 1.8 + 3 < 16 (AVX2)
 constexpr int kFront = 32;       // zero bins before each padded row: tail lanes may reach u ~ -27
-constexpr int kRows512 = 16;  // rows per AVX-512 tile: 16 accumulators, a window spans <= 15 |du| + 15 |su| + 3 < 32 bins
-constexpr int kRows256 = 8;   // rows per AVX2 tile: 7 |du| + 7 |su| + 3 < 16 bins
+// Rows per tile; with |du|, |su| <= 1 one window serves the tile at every angle.
+constexpr int kRows512 = 16;  // 16 accumulators; 15 |du| + 15 |su| + 3 <= 24.3 < 32 bins
+constexpr int kRows256 = 8;   // 8 accumulators; 7 |du| + 7 |su| + 3 <= 12.9 < 16 bins
 constexpr int kAngleChunk = 64;  // angles per pass over a row group (their rows stay in L2)
 
 // q and dq of every angle in zero-padded rows of length L (q at 0, dq at L), with per-angle
@@ -564,7 +565,7 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
 #endif
   if (!simd) {
     Sinogram filtered(filter_rows ? g_ : ParallelGeometry{});
-    if (filter_rows) {
+    if (filter_rows) {  // only reconstruct() (non-const) gets here: buf_ is the object's own buffer
       std::copy(f.data.begin(), f.data.end(), filtered.data.begin());
       for (int a = 0; a < na; ++a) filter_row(filtered.row(a), filtered.row(a), buf_);
     }
@@ -607,20 +608,19 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
     p.du_f[size_t(a)] = float(du[size_t(a)]);
   }
   // Row groups of R rows (the last one may be shorter), split evenly over the threads.
-  static const TileFn tiles512[16] = {
-      &bp_tile_avx512<1>,  &bp_tile_avx512<2>,  &bp_tile_avx512<3>,  &bp_tile_avx512<4>,  &bp_tile_avx512<5>,  &bp_tile_avx512<6>,
-      &bp_tile_avx512<7>,  &bp_tile_avx512<8>,  &bp_tile_avx512<9>,  &bp_tile_avx512<10>, &bp_tile_avx512<11>, &bp_tile_avx512<12>,
-      &bp_tile_avx512<13>, &bp_tile_avx512<14>, &bp_tile_avx512<15>, &bp_tile_avx512<16>};
+  static const TileFn tiles512[16] = {&bp_tile_avx512<1>,  &bp_tile_avx512<2>,  &bp_tile_avx512<3>,  &bp_tile_avx512<4>,
+                                      &bp_tile_avx512<5>,  &bp_tile_avx512<6>,  &bp_tile_avx512<7>,  &bp_tile_avx512<8>,
+                                      &bp_tile_avx512<9>,  &bp_tile_avx512<10>, &bp_tile_avx512<11>, &bp_tile_avx512<12>,
+                                      &bp_tile_avx512<13>, &bp_tile_avx512<14>, &bp_tile_avx512<15>, &bp_tile_avx512<16>};
   static const TileFn tiles256[8] = {&bp_tile_avx2<1>, &bp_tile_avx2<2>, &bp_tile_avx2<3>, &bp_tile_avx2<4>,
                                      &bp_tile_avx2<5>, &bp_tile_avx2<6>, &bp_tile_avx2<7>, &bp_tile_avx2<8>};
   const int stride = round_up(nx, lanes), n_groups = (ny + R - 1) / R;
   // One parallel region: (filter and) pad the rows, then the row groups.
 #pragma omp parallel if (parallel)
   {
+    const size_t work_bytes = sizeof(float) * size_t(pad_) + sizeof(fftwf_complex) * size_t(pad_ / 2 + 1);
     std::unique_ptr<float, void (*)(void*)> work(
-        filter_rows ? static_cast<float*>(fftwf_malloc(sizeof(float) * size_t(pad_) + sizeof(fftwf_complex) * size_t(pad_ / 2 + 1)))
-                    : nullptr,
-        fftwf_free);
+        filter_rows ? static_cast<float*>(fftwf_malloc(work_bytes)) : nullptr, fftwf_free);
 #pragma omp for schedule(static)
     for (int a = 0; a < na; ++a) {
       float* row = p.rows + size_t(a) * 2 * size_t(p.L);  // zeros, q, zeros, then the same for dq
