@@ -15,6 +15,7 @@ namespace pb::cli {
 struct Globals {
   int threads = 0;
   bool quiet = false;
+  std::string simd = "auto";  // cap on hand-written SIMD kernels (core/cpu.hpp)
 };
 const Globals& globals();
 

@@ -6,6 +6,7 @@
 
 #include "apps/cli.hpp"
 #include "build_info.hpp"
+#include "core/cpu.hpp"
 #include "core/error.hpp"
 #include "core/parallel.hpp"
 
@@ -66,6 +67,10 @@ int main(int argc, char** argv) {
   app.set_version_flag("--version", std::string(build::version) + " (" + build::git_hash + ")");
   app.add_option("--threads", cli::g_globals.threads, "worker threads (default: all cores)")->check(CLI::NonNegativeNumber);
   app.add_flag("--quiet", cli::g_globals.quiet, "print only results and errors");
+  app.add_option("--simd", cli::g_globals.simd,
+                 "SIMD kernels: auto (best this CPU has), avx512, avx2 or generic; results agree to float rounding "
+                 "across levels, and are bit-identical for one level whatever --threads")
+      ->check(CLI::IsMember({"auto", "avx512", "avx2", "generic"}));
   app.require_subcommand(1);
   app.fallthrough();
   auto& defs = cli::commands();
@@ -83,6 +88,8 @@ int main(int argc, char** argv) {
   }
   try {
     set_threads(cli::g_globals.threads);
+    const std::string& simd = cli::g_globals.simd;
+    set_simd_cap(simd == "generic" ? Simd::generic : simd == "avx2" ? Simd::avx2 : Simd::avx512);
     for (auto& [sub, action] : actions)
       if (sub->parsed()) return action();
   } catch (const InputError& e) {

@@ -10,6 +10,7 @@
 #include <toml++/impl/version.h>
 
 #include "build_info.hpp"
+#include "core/cpu.hpp"
 #include "core/parallel.hpp"
 
 namespace pb {
@@ -33,7 +34,8 @@ nlohmann::ordered_json run_context() {
       {"compiler", std::string(__VERSION__)},
   };
   return {{"tool", "porebench"}, {"version", build::version}, {"git_hash", build::git_hash},
-          {"dependencies", deps}, {"host", host}, {"threads", thread_count()}, {"time_utc", when}};
+          {"dependencies", deps}, {"host", host}, {"threads", thread_count()},
+          {"simd", simd_name(simd_level())}, {"time_utc", when}};
 }
 
 }  // namespace pb
