@@ -111,7 +111,7 @@ LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity) {
                      describe(g) + ")");
   const uint8_t* rmask = roi ? roi->data() : nullptr;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
-  if (nx > INT32_MAX - 2) throw InputError("label_components: dims along x " + std::to_string(nx) + " too large");
+  if (nx > INT32_MAX - 64) throw InputError("label_components: dims along x " + std::to_string(nx) + " too large");
   LabelRuns c;
   c.geometry = g;
   c.sizes.assign(1, 0);
