@@ -21,6 +21,7 @@
 #include <utility>
 #include <vector>
 
+#include "core/cpu.hpp"
 #include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "methods/prefilter.hpp"
@@ -228,12 +229,6 @@ __attribute__((target("avx"))) void median27_block(const float* const* rows, int
 #endif
 
 using NetworkFn = void (*)(const MedianNetwork&, float*);
-NetworkFn pick_network_fn() {
-#if defined(__x86_64__)
-  if (__builtin_cpu_supports("avx")) return apply_network_avx;
-#endif
-  return apply_network;
-}
 
 }  // namespace
 
@@ -241,10 +236,14 @@ VolumeF median_filter(const VolumeF& in, int radius) {
   const int64_t nx = in.nx(), ny = in.ny(), nz = in.nz();
   const int w = 2 * radius + 1, count = w * w * w;
   const MedianNetwork net = make_median_network(count);
-  static const NetworkFn run_network = pick_network_fn();
+  // The AVX kernels run from the AVX2 level of core/cpu.hpp on (so --simd generic reaches the
+  // portable network too); min/max networks give the same medians on every path.
 #if defined(__x86_64__)
-  static const bool has_avx = __builtin_cpu_supports("avx");
+  const bool has_avx = simd_level() >= Simd::avx2;
   const bool fast27 = radius == 1 && has_avx;
+  const NetworkFn run_network = has_avx ? apply_network_avx : apply_network;
+#else
+  const NetworkFn run_network = apply_network;
 #endif
   constexpr int L = kLanes;
   VolumeF out(in.geometry());

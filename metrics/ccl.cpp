@@ -231,6 +231,4 @@ Components label_components(const Mask& m, const Mask* roi, int connectivity) {
   return c;
 }
 
-std::vector<int64_t> component_sizes(const Components& c) { return c.sizes; }
-
 }  // namespace pb

@@ -45,9 +45,6 @@ Components label_components(const Mask& m, int connectivity = 26);
 // Labels the voxels that are non-zero in both m and roi (roi may be nullptr: whole volume).
 Components label_components(const Mask& m, const Mask* roi, int connectivity);
 
-// Voxels per label, indexed by label (index 0 = 0). Same as Components::sizes.
-std::vector<int64_t> component_sizes(const Components& c);
-
 // Throws InputError unless connectivity is 6, 18 or 26; `field` names the option in the message.
 void check_connectivity(int connectivity, const char* field = "connectivity");
 

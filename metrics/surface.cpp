@@ -212,11 +212,6 @@ double percentile_linear(std::vector<double> v, double q_pct) {
   return v_lo + (pos - double(lo)) * (v_hi - v_lo);
 }
 
-std::vector<double> directed_surface_distances(const Image<uint32_t>& from, const Image<uint32_t>& to) {
-  const Surface a(runs_of(from)), b(runs_of(to));
-  return distances(a.pts, make_grid(b.pts, to.geometry()), b.bits, from.geometry().spacing_mm);
-}
-
 SurfaceDistances surface_distances(const Image<uint32_t>& pred, const Image<uint32_t>& ref) {
   return surface_distances(runs_of(pred), runs_of(ref));
 }

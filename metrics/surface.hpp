@@ -23,9 +23,6 @@ struct LabelRuns;
 SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref);
 SurfaceDistances surface_distances(const Image<uint32_t>& pred, const Image<uint32_t>& ref);
 
-// The directed distances pred -> ref (for tests): one per surface voxel of `from`, raster order.
-std::vector<double> directed_surface_distances(const Image<uint32_t>& from, const Image<uint32_t>& to);
-
 // Percentile with linear interpolation between order statistics (numpy's default); NaN if empty.
 double percentile_linear(std::vector<double> v, double q_pct);
 

@@ -80,7 +80,7 @@ TEST_CASE("labels are numbered in raster order of first voxels, sizes per label"
     CHECK(c.labels(2, 0, 0) == 1);
     CHECK(c.labels(0, 0, 2) == 2);
     CHECK(c.labels(1, 0, 0) == 0);
-    const auto s = component_sizes(c);
+    const auto& s = c.sizes;
     REQUIRE(s.size() == 3);
     CHECK(s[1] == 5);
     CHECK(s[2] == 1);
