@@ -13,12 +13,10 @@
 // parallel, their boundaries afterwards in order: the partition (and so the labels) is unique.
 #include "metrics/ccl.hpp"
 
-#include <immintrin.h>
 #include <omp.h>
 
 #include <algorithm>
 #include <cstring>
-#include <memory>
 #include <string>
 
 #include "core/cpu.hpp"
@@ -69,6 +67,7 @@ inline void merge_runs(const Run* runs, uint32_t* p, int64_t c0, int64_t c1, Nbr
 // Run extraction kernels, compiled twice: for AVX2 and for any x86-64 / other CPU.
 #if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
 #define PB_CCL_HAVE_AVX2_CLONE 1
+#include <immintrin.h>
 #pragma GCC push_options
 #pragma GCC target("avx2")
 namespace avx2 {
