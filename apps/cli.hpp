@@ -2,6 +2,7 @@
 // Subcommand registration for the porebench command line. Each apps/cmd_*.cpp file adds its
 // subcommands with PB_REGISTER_COMMAND; main.cpp knows none of them by name.
 #include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
 #include <array>
 #include <functional>
 #include <optional>
@@ -42,6 +43,9 @@ struct ReadArgs {
 };
 
 void log(const std::string& msg);  // to stderr unless --quiet
+
+// DIR/results.json of a suite run; InputError naming the file when it is missing or not JSON.
+nlohmann::ordered_json load_results(const std::string& dir);
 
 #define PB_CLI_CONCAT_INNER(a, b) a##b
 #define PB_CLI_CONCAT(a, b) PB_CLI_CONCAT_INNER(a, b)

@@ -11,17 +11,6 @@
 namespace pb::cli {
 namespace {
 
-nlohmann::ordered_json load_results(const std::string& dir) {
-  const std::string path = dir + "/results.json";
-  std::ifstream f(path);
-  if (!f) throw InputError("no results.json in " + dir + " (run the suite there first)");
-  try {
-    return nlohmann::ordered_json::parse(f);
-  } catch (const std::exception& e) {
-    throw InputError("cannot parse " + path + ": " + e.what());
-  }
-}
-
 Action setup_compare(CLI::App& app) {
   app.description("compare two runs of a suite: deltas with paired bootstrap CIs, exit 1 on a regression");
   struct Args {

@@ -68,8 +68,7 @@ Action setup_report(CLI::App& app) {
     const bool ok = suite::write_results(a->dir);
     std::cout << "wrote " << a->dir << "/results.json, results.csv, summary.md, report.html, validation-record.md\n";
     if (!a->record.empty()) {
-      std::ifstream f(a->dir + "/results.json");
-      write_text_atomic(a->record, suite::regression_record(nlohmann::ordered_json::parse(f)).dump(1) + "\n");
+      write_text_atomic(a->record, suite::regression_record(load_results(a->dir)).dump(1) + "\n");
       std::cout << "wrote " << a->record << '\n';
     }
     return ok ? 0 : 1;

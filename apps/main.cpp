@@ -2,6 +2,7 @@
 // Exit codes: 0 success, 1 acceptance criteria not met, 2 bad usage or input, 3 internal error.
 #include <algorithm>
 #include <cstdio>
+#include <fstream>
 #include <iostream>
 
 #include "apps/cli.hpp"
@@ -57,6 +58,17 @@ ReadOptions ReadArgs::options(const std::string& input) const {
     o.raw = r;
   }
   return o;
+}
+
+nlohmann::ordered_json load_results(const std::string& dir) {
+  const std::string path = dir + "/results.json";
+  std::ifstream f(path);
+  if (!f) throw InputError("no results.json in " + dir + " (run the suite there first)");
+  try {
+    return nlohmann::ordered_json::parse(f);
+  } catch (const std::exception& e) {
+    throw InputError("cannot parse " + path + ": " + e.what());
+  }
 }
 
 }  // namespace pb::cli

@@ -87,15 +87,12 @@ template <class T>
 class Image {
  public:
   using value_type = T;
-  using Buffer = std::vector<T, DefaultInitAllocator<T>>;
+  using Buffer = pb::Buffer<T>;
   Image() = default;
   explicit Image(const Geometry& g, T fill = T{}) : geo_(g), data_(size_t(g.voxels()), fill) {}
   // Every voxel must be written before it is read.
   Image(const Geometry& g, Uninitialized) : geo_(g), data_(size_t(g.voxels())) {}
-  Image(const Geometry& g, Zeroed) : geo_(g), data_(size_t(g.voxels())) {
-    static_assert(std::is_trivial<T>::value, "Zeroed needs a trivial voxel type");
-    if (!buffer_starts_zeroed(data_.size() * sizeof(T))) std::fill(data_.begin(), data_.end(), T{});
-  }
+  Image(const Geometry& g, Zeroed) : geo_(g), data_(zeroed_buffer<T>(size_t(g.voxels()))) {}
 
   const Geometry& geometry() const { return geo_; }
   void set_geometry_keep_dims(const Geometry& g) {  // spacing/origin only
