@@ -565,7 +565,7 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
                   scan, tiles, (dir / rel).string());
     h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)
       << "\"><figcaption>" << escape(scan) << ", slice z = " << str(d["slices"]["montage_z"])
-      << " (middle of the test slices): scan, reference, then each method's selected cell.</figcaption></figure>\n";
+      << " (the test slice with the most reference pore voxels): scan, reference, then each method's selected cell.</figcaption></figure>\n";
   }
   return h.str();
 }

@@ -24,7 +24,7 @@ std::string summary_md(const Json& results);
 // For each dataset and method over a projection (or dose) series: the fewest projections (lowest
 // dose) from which on every scan meets the criteria, and the time (dose) saving factor against
 // the reference recipe.
-Json scan_recipe_advice(const Json& results, const std::vector<Json>& cells);
+Json scan_recipe_advice(const Json& results);
 
 // report.html, montage PNGs and validation-record.md into out_dir.
 void write_documents(const Json& results, const std::string& out_dir);

@@ -83,8 +83,7 @@ std::string results_csv(const Json& results) {
   return out.str();
 }
 
-Json scan_recipe_advice(const Json& results, const std::vector<Json>& cells) {
-  (void)cells;
+Json scan_recipe_advice(const Json& results) {
   // Group the selections by dataset and method; a series is the non-reference scans.
   std::map<std::pair<std::string, std::string>, std::vector<const Json*>> groups;
   for (const auto& s : results["selections"]) groups[{s["dataset"], s["method"]}].push_back(&s);

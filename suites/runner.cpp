@@ -116,7 +116,6 @@ void split_slices(Prepared& p, const Mask* part, int64_t nz, const Calibration& 
     throw InputError("dataset '" + p.name + "': " + std::to_string(span) + " part slices leave no test slices after " +
                      std::to_string(p.cal_end - p.cal_begin) + " calibration slices and a gap of " +
                      std::to_string(c.gap_slices) + "; lower [calibration] fraction or gap_slices");
-  p.montage_z = (p.test_begin + p.test_end) / 2;
 }
 
 Prepared prepare_synthetic(const DatasetSpec& d, const std::string& out_dir, const RunOptions& o) {
@@ -465,7 +464,7 @@ bool write_results(const std::string& out_dir) {
     all_passed = all_passed && s.passed;
   }
   results["selections"] = js;
-  results["advice"] = report::scan_recipe_advice(results, cells);
+  results["advice"] = report::scan_recipe_advice(results);
   results["criteria_met"] = all_passed;
   results["cells"] = cells;
   write_text_atomic((dir / "results.json").string(), results.dump(1) + "\n");

@@ -9,7 +9,6 @@
 #include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
 
-#include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "core/parallel.hpp"
 #include "methods/pores.hpp"

@@ -16,7 +16,6 @@
 #include "tests/metrics_helpers.hpp"
 
 using namespace pb;
-using pbtest::ball;
 using pbtest::random_mask;
 
 namespace {

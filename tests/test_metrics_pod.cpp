@@ -96,7 +96,7 @@ TEST_CASE("POD is not estimable without a made-up number", "[metrics][pod]") {
     const PodFit f = fit_pod(a, {0, 1, 0, 1, 1, 1});
     CHECK(f.estimable);
     REQUIRE_FALSE(f.warnings.empty());
-    CHECK_THAT(f.warnings[0], Catch::Contains("60"));
+    CHECK_THAT(f.warnings[0], Catch::Contains("60"));  // MIL-HDBK-1823A: at least 60 hit/miss targets
   }
   SECTION("bad input") {
     CHECK_THROWS_AS(fit_pod({10, -1}, {0, 1}), InputError);

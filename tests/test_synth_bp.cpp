@@ -157,6 +157,10 @@ TEST_CASE("Joseph projector: the AVX-512 kernel agrees with the portable one", "
     int nx, ny, angles;
     double arc, pixel_mm;
   };
+  if (!bp_kernel_supported(BpKernel::Avx512)) {
+    WARN("no AVX-512 on this CPU: the SIMD Joseph kernel cannot be compared here");
+    return;
+  }
   const Case cases[] = {{37, 37, 7, 180, 1.0}, {256, 257, 101, 360, 1.0}, {64, 50, 33, 180, 0.7}, {129, 129, 400, 180, 1.0}};
   std::mt19937 rng(11);
   std::uniform_real_distribution<float> uni(0.f, 1.f);
@@ -172,7 +176,7 @@ TEST_CASE("Joseph projector: the AVX-512 kernel agrees with the portable one", "
     double worst = 0;
     for (size_t i = 0; i < ref.data.size(); ++i) worst = std::max(worst, std::abs(double(got.data[i]) - double(ref.data[i])));
     INFO(c.nx << "x" << c.ny << ", " << c.angles << " angles over " << c.arc << " deg, pixel " << c.pixel_mm
-              << " bins: max diff / range " << worst / range << (bp_kernel_supported(BpKernel::Avx512) ? "" : " (no AVX-512 here)"));
+              << " bins: max diff / range " << worst / range);
     CHECK(worst <= 1e-5 * range);
   }
 }
