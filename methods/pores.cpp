@@ -20,42 +20,51 @@ Mask air_below(const VolumeF& v, double threshold, const Mask* roi) {
 }
 
 int64_t air_to_pores(Mask& m, const Mask* roi) {
-  // Label air and the outside of the ROI together (6-connected, with our run-based CCL); a
-  // component that reaches the volume border or holds an outside voxel is background. The same
-  // as a flood fill from the outside through air, but parallel and cache-friendly.
-  const int64_t nx = m.nx(), ny = m.ny(), nz = m.nz(), n = m.size();
+  // Label air and the outside of the ROI together (6-connected, run-based CCL); a component that
+  // reaches the volume border or holds an outside voxel is background. The same as a flood fill
+  // from the outside through air, but parallel, and on runs instead of a label volume.
+  const Geometry& g = m.geometry();
+  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2], n = m.size();
   uint8_t* a = m.data();
   const uint8_t* r = roi ? roi->data() : nullptr;
-  Mask open(m.geometry());
+  Mask open(g, Uninitialized{});
   uint8_t* o = open.data();
 #pragma omp parallel for schedule(static)
   for (int64_t i = 0; i < n; ++i) o[i] = a[i] || (r && !r[i]);
-  const Components c = label_components(open, 6);
+  const LabelRuns c = label_runs(open, nullptr, 6);
+  const int64_t nrows = c.rows();
+  // Per run: on the volume border (border rows, x = 0 or nx - 1) or holding a voxel outside the ROI.
+  std::vector<uint8_t> run_out(c.runs.size(), 0);
+#pragma omp parallel for schedule(static)
+  for (int64_t row = 0; row < nrows; ++row) {
+    const int64_t y = row % ny, z = row / ny, base = row * nx;
+    const bool border_row = z == 0 || z == nz - 1 || y == 0 || y == ny - 1;
+    for (int64_t i = c.row_begin[size_t(row)]; i < c.row_begin[size_t(row) + 1]; ++i) {
+      const Run& u = c.runs[size_t(i)];
+      bool out = border_row || u.x0 == 0 || u.x1 == nx;
+      if (r && !out)
+        for (int64_t x = u.x0; x < u.x1 && !out; ++x) out = !r[base + x];
+      run_out[size_t(i)] = out;
+    }
+  }
   std::vector<uint8_t> outside(size_t(c.count) + 1, 0);
-  const uint32_t* l = c.labels.data();
-  auto mark = [&](int64_t i) { outside[l[i]] = 1; };
-  for (int64_t z = 0; z < nz; ++z)
-    for (int64_t y = 0; y < ny; ++y) {
-      const int64_t row = (z * ny + y) * nx;
-      if (z == 0 || z == nz - 1 || y == 0 || y == ny - 1) {
-        for (int64_t x = 0; x < nx; ++x) mark(row + x);
-      } else {
-        mark(row);
-        mark(row + nx - 1);
+  for (size_t i = 0; i < run_out.size(); ++i)
+    if (run_out[i]) outside[c.label[i]] = 1;
+  // Background runs leave the air; the part is the ROI minus its background voxels.
+  int64_t background_in_part = 0;
+#pragma omp parallel for schedule(static) reduction(+ : background_in_part)
+  for (int64_t row = 0; row < nrows; ++row) {
+    const int64_t base = row * nx;
+    for (int64_t i = c.row_begin[size_t(row)]; i < c.row_begin[size_t(row) + 1]; ++i) {
+      if (!outside[c.label[size_t(i)]]) continue;
+      const Run& u = c.runs[size_t(i)];
+      for (int64_t x = u.x0; x < u.x1; ++x) {
+        background_in_part += !r || r[base + x];
+        a[base + x] = 0;
       }
     }
-  if (r)
-    for (int64_t i = 0; i < n; ++i)
-      if (!r[i]) mark(i);
-  outside[0] = 0;  // label 0 is solid
-  int64_t part = 0;
-#pragma omp parallel for schedule(static) reduction(+ : part)
-  for (int64_t i = 0; i < n; ++i) {
-    const bool bg = outside[l[i]] != 0;
-    part += !bg && (!r || r[i]);
-    a[i] = a[i] && !bg;
   }
-  return part;
+  return (r ? count_nonzero(*roi) : n) - background_in_part;
 }
 
 int64_t count_nonzero(const Mask& m) {

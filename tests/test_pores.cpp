@@ -5,6 +5,7 @@
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"
 #include "tests/helpers.hpp"
+#include "tests/metrics_helpers.hpp"
 
 using namespace pb;
 
@@ -84,4 +85,51 @@ TEST_CASE("min_pore_voxels drops noise specks, reported as chosen", "[pores]") {
   CHECK(big.chosen.back() == std::make_pair(std::string("small_pores_removed"), 1.0));
   // A cut-off above both sizes leaves none.
   CHECK(count_nonzero(run_method(m, parse_params(m, {"threshold=50", "min_pore_voxels=9"}), MethodInput{v}).pores) == 0);
+}
+
+TEST_CASE("pores equal a breadth-first flood fill from the outside through air", "[pores]") {
+  // The definition computed directly: seed every air voxel on the volume border and every voxel
+  // outside the part mask, grow through 6-neighbours that are air or outside; what stays unreached
+  // of the air is pores, and the part is the ROI minus the reached voxels. Random volumes, rows
+  // wider than 64 voxels.
+  const bool with_roi = GENERATE(false, true);
+  Geometry g;
+  g.dims = {70, 19, 13};
+  const Mask air0 = pbtest::random_mask(g, 0.45, 5), roi_all = pbtest::random_mask(g, 0.9, 6);
+  Mask air = air0;
+  if (with_roi)
+    for (int64_t i = 0; i < air.size(); ++i) air[i] = air[i] && roi_all[i];
+  const Mask* roi = with_roi ? &roi_all : nullptr;
+  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
+  auto open = [&](int64_t i) { return air[i] || (roi && !roi_all[i]); };
+  std::vector<uint8_t> reached(size_t(air.size()), 0);
+  std::vector<int64_t> queue;
+  for (int64_t z = 0; z < nz; ++z)
+    for (int64_t y = 0; y < ny; ++y)
+      for (int64_t x = 0; x < nx; ++x) {
+        const int64_t i = air.index(x, y, z);
+        const bool border = x == 0 || y == 0 || z == 0 || x == nx - 1 || y == ny - 1 || z == nz - 1;
+        if (open(i) && (border || (roi && !roi_all[i]))) reached[size_t(i)] = 1, queue.push_back(i);
+      }
+  for (size_t h = 0; h < queue.size(); ++h) {
+    const int64_t i = queue[h], x = i % nx, y = (i / nx) % ny, z = i / (nx * ny);
+    const int64_t d[6][3] = {{-1, 0, 0}, {1, 0, 0}, {0, -1, 0}, {0, 1, 0}, {0, 0, -1}, {0, 0, 1}};
+    for (const auto& e : d) {
+      const int64_t qx = x + e[0], qy = y + e[1], qz = z + e[2];
+      if (qx < 0 || qy < 0 || qz < 0 || qx >= nx || qy >= ny || qz >= nz) continue;
+      const int64_t q = air.index(qx, qy, qz);
+      if (!reached[size_t(q)] && open(q)) reached[size_t(q)] = 1, queue.push_back(q);
+    }
+  }
+  int64_t part = 0, pores = 0;
+  Mask want(g);
+  for (int64_t i = 0; i < air.size(); ++i) {
+    want[i] = air[i] && !reached[size_t(i)];
+    pores += want[i];
+    part += (!roi || roi_all[i]) && !reached[size_t(i)];
+  }
+  REQUIRE(pores > 0);  // the case is not trivial
+  Mask got = air;
+  CHECK(air_to_pores(got, roi) == part);
+  CHECK(got.buffer() == want.buffer());
 }
