@@ -122,7 +122,7 @@ LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity) {
   // Slabs of z, one per thread: scan 1 extracts a slab's runs and unites them within the slab
   // (a slab touches only its own runs); the slab boundaries are united afterwards, in order.
   const int64_t nslabs = std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads()));
-  std::vector<int64_t> slab_z(size_t(nslabs) + 1), slab_base(size_t(nslabs) + 1, 0);
+  std::vector<int64_t> slab_z(size_t(nslabs) + 1);
   for (int64_t s = 0; s <= nslabs; ++s) slab_z[size_t(s)] = nz * s / nslabs;
   std::vector<int64_t>& row_begin = c.row_begin;
   using RunBuffer = std::vector<Run, DefaultInitAllocator<Run>>;
@@ -145,10 +145,9 @@ LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity) {
     }
     v.resize(n);
   }
-  for (int64_t s = 0; s < nslabs; ++s)
-    slab_base[size_t(s) + 1] = slab_base[size_t(s)] + int64_t(slab_runs[size_t(s)].size());
   for (int64_t r = 0; r < nrows; ++r) row_begin[size_t(r) + 1] += row_begin[size_t(r)];
-  const int64_t nruns = slab_base[size_t(nslabs)];
+  const int64_t nruns = row_begin[size_t(nrows)];
+  auto slab_base = [&](int64_t s) { return row_begin[size_t(slab_z[size_t(s)] * ny)]; };  // first run of slab s
   if (nruns >= int64_t(UINT32_MAX))
     throw InputError("label_components: " + std::to_string(nruns) + " runs exceed the 32-bit label range");
   // Uninitialised: every element is written below by the thread of its slab.
@@ -186,9 +185,9 @@ LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity) {
 #pragma omp parallel for schedule(static, 1)
   for (int64_t s = 0; s < nslabs; ++s) {
     RunBuffer& v = slab_runs[size_t(s)];
-    if (!v.empty()) std::memcpy(runs.data() + slab_base[size_t(s)], v.data(), v.size() * sizeof(Run));
+    if (!v.empty()) std::memcpy(runs.data() + slab_base(s), v.data(), v.size() * sizeof(Run));
     RunBuffer().swap(v);
-    for (int64_t i = slab_base[size_t(s)]; i < slab_base[size_t(s) + 1]; ++i) P[i] = uint32_t(i);
+    for (int64_t i = slab_base(s); i < slab_base(s + 1); ++i) P[i] = uint32_t(i);
     for (int64_t z = slab_z[size_t(s)]; z < slab_z[size_t(s) + 1]; ++z)
       for (int64_t y = 0; y < ny; ++y) unite_row(y, z, true, z > slab_z[size_t(s)]);
   }

@@ -194,12 +194,6 @@ std::vector<double> distances(const std::vector<Point>& from, const Grid& G, con
   return d;
 }
 
-LabelRuns runs_of(const Image<uint32_t>& l) {
-  Mask m(l.geometry(), Uninitialized{});
-  for (int64_t i = 0; i < l.size(); ++i) m[i] = l[i] != 0;
-  return label_runs(m, nullptr, 26);  // only foreground vs background matters here
-}
-
 }  // namespace
 
 double percentile_linear(std::vector<double> v, double q_pct) {
@@ -211,10 +205,6 @@ double percentile_linear(std::vector<double> v, double q_pct) {
   const double v_lo = v[lo];
   const double v_hi = lo + 1 < v.size() ? *std::min_element(v.begin() + lo + 1, v.end()) : v_lo;
   return v_lo + (pos - double(lo)) * (v_hi - v_lo);
-}
-
-SurfaceDistances surface_distances(const Image<uint32_t>& pred, const Image<uint32_t>& ref) {
-  return surface_distances(runs_of(pred), runs_of(ref));
 }
 
 SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref) {

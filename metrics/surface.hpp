@@ -21,7 +21,6 @@ struct SurfaceDistances {
 
 struct LabelRuns;
 SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref);
-SurfaceDistances surface_distances(const Image<uint32_t>& pred, const Image<uint32_t>& ref);
 
 // Percentile with linear interpolation between order statistics (numpy's default); NaN if empty.
 double percentile_linear(std::vector<double> v, double q_pct);

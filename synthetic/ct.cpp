@@ -652,7 +652,7 @@ void Fbp::back_project(const Sinogram& f, bool filter_rows, int nx, int ny, doub
 #endif
 }
 
-std::vector<float> Fbp::reconstruct(Sinogram sino, int nx, int ny, double s, bool parallel) {
+std::vector<float> Fbp::reconstruct(const Sinogram& sino, int nx, int ny, double s, bool parallel) {
   std::vector<float> img(size_t(nx) * size_t(ny), 0.f);
   back_project(sino, true, nx, ny, s, img.data(), parallel, BpKernel::Auto);
   return img;

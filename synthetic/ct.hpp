@@ -92,7 +92,7 @@ class Fbp {
   void backproject(const Sinogram& filtered, int nx, int ny, double pixel_mm, float* out, bool parallel,
                    BpKernel kernel = BpKernel::Auto) const;
   // filter + backproject into a zeroed image.
-  std::vector<float> reconstruct(Sinogram sino, int nx, int ny, double pixel_mm, bool parallel = true);
+  std::vector<float> reconstruct(const Sinogram& sino, int nx, int ny, double pixel_mm, bool parallel = true);
   int padded_length() const { return pad_; }
   const std::vector<float>& response() const { return response_; }  // real filter, pad/2+1 values
 

@@ -60,15 +60,16 @@ TEST_CASE("surface distances by hand: two slabs one voxel apart", "[metrics][sur
   Geometry g;
   g.dims = {6, 4, 4};
   g.spacing_mm = {0.5, 0.2, 0.2};
-  Image<uint32_t> a(g), b(g);
+  Mask a(g), b(g);
   for (int z = 0; z < 4; ++z)
     for (int y = 0; y < 4; ++y) a(3, y, z) = 1, b(2, y, z) = 1;
-  const SurfaceDistances s = surface_distances(a, b);
+  const LabelRuns ra = label_runs(a, nullptr, 26), rb = label_runs(b, nullptr, 26);
+  const SurfaceDistances s = surface_distances(ra, rb);
   CHECK(s.hd95_mm == Approx(0.5));
   CHECK(s.assd_mm == Approx(0.5));
   CHECK(s.surface_voxels_ref == 16);
-  const Image<uint32_t> none(g);
-  CHECK(std::isnan(surface_distances(a, none).hd95_mm));
+  const Mask none(g);
+  CHECK(std::isnan(surface_distances(ra, label_runs(none, nullptr, 26)).hd95_mm));
   CHECK(percentile_linear({1, 2, 3, 4}, 95) == Approx(3.85));  // numpy.percentile([1,2,3,4], 95) = 3.85 by hand
 }
 
@@ -111,7 +112,7 @@ TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metric
   REQUIRE(out.exit_code == 0);
   const auto j = nlohmann::json::parse(out.out);
   INFO("nx " << nx << " near " << near);
-  const SurfaceDistances s = surface_distances(label_components(p, 26).labels, label_components(r, 26).labels);
+  const SurfaceDistances s = surface_distances(label_runs(p, nullptr, 26), label_runs(r, nullptr, 26));
   CHECK(s.surface_voxels_pred == j["n_pred"].get<int64_t>());
   CHECK(s.surface_voxels_ref == j["n_ref"].get<int64_t>());
   CHECK(s.hd95_mm == Approx(j["hd95"].get<double>()).epsilon(1e-9));
