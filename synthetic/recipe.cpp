@@ -8,11 +8,11 @@
 #include <fstream>
 #include <iomanip>
 #include <limits>
-#include <set>
 #include <sstream>
 #include <toml++/toml.h>
 
 #include "core/error.hpp"
+#include "synthetic/ct.hpp"
 #include "methods/registry.hpp"  // closest_name
 
 namespace pb::synth {
@@ -549,9 +549,11 @@ void validate(const Recipe& r) {
   if (r.detector_blur_um < 0) bad("scan.detector_blur_um", "must be >= 0");
   if (!(r.angular_blur >= 0 && r.angular_blur <= 1)) bad("scan.angular_blur", "= " + num(r.angular_blur) + " must be in [0, 1]");
   if (r.electronic_noise < 0) bad("scan.electronic_noise", "must be >= 0");
-  static const std::set<std::string> filters{"ram-lak", "shepp-logan", "cosine", "hamming", "hann"};
-  if (!filters.count(r.filter))
-    bad("scan.filter", "= '" + r.filter + "' is not known; filters: ram-lak, shepp-logan, cosine, hamming, hann");
+  try {
+    parse_window(r.filter);  // the one list of filters (synthetic/ct.cpp)
+  } catch (const InputError& e) {
+    bad("scan.filter", "= '" + r.filter + "': " + e.what());
+  }
   if (r.output_type != "float32" && r.output_type != "uint16")
     bad("scan.output_type", "= '" + r.output_type + "' must be float32 or uint16");
   if (r.uint16_full_scale_mu < 0)

@@ -339,7 +339,7 @@ std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, const st
   const ParallelGeometry g = scan_geometry(r, projections);
   const Geometry& vg = ph.grid;
   std::vector<VolumeF> out;
-  for (size_t d = 0; d < i0s.size(); ++d) out.emplace_back(vg);
+  for (size_t d = 0; d < i0s.size(); ++d) out.emplace_back(vg, Uninitialized{});  // every slice set below
   const RampWindow win = parse_window(r.filter);
   const int64_t nz = vg.dims[2];
   const int nx = int(vg.dims[0]), ny = int(vg.dims[1]);
