@@ -140,6 +140,18 @@ double link_quantile(PodLink link, double p) {
 
 }  // namespace
 
+PodBandPoint pod_band_at(PodLink link, double b0, double b1, double c00, double c01, double c11, double size_um) {
+  auto inv = [&](double eta) {  // logistic, or the standard normal CDF
+    return link == PodLink::probit ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta));
+  };
+  if (!(size_um > 0)) return {kMetricNaN, kMetricNaN, kMetricNaN};
+  const double la = std::log(size_um), eta = b0 + b1 * la;
+  const double var = c00 + 2 * la * c01 + la * la * c11;
+  const double se = var >= 0 ? std::sqrt(var) : kMetricNaN;
+  const double z = boost::math::quantile(boost::math::normal(), 0.975);
+  return {inv(eta), inv(eta - z * se), inv(eta + z * se)};
+}
+
 double pod_size_at(const PodFit& f, double p) {
   if (!f.estimable || !(f.b1 > 0)) return kMetricNaN;
   return std::exp((link_quantile(f.link, p) - f.b0) / f.b1);

@@ -42,6 +42,14 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
 // Size with POD p under a fit (NaN when not estimable).
 double pod_size_at(const PodFit& f, double p);
 
+// The fitted POD at a size and its pointwise 95 % band: the interval of the linear predictor
+// eta = b0 + b1 ln a, var(eta) = c00 + 2 ln(a) c01 + ln(a)^2 c11 (delta method), mapped through the
+// inverse link. NaN where the variance is negative or the size is not positive.
+struct PodBandPoint {
+  double pod, lo, hi;
+};
+PodBandPoint pod_band_at(PodLink link, double b0, double b1, double c00, double c01, double c11, double size_um);
+
 struct PodBin {
   double lo_um = 0, hi_um = 0;  // [lo, hi)
   int64_t n = 0, hits = 0;

@@ -10,6 +10,7 @@
 #include <sstream>
 
 #include "core/io.hpp"
+#include "metrics/pod.hpp"
 #include "report/html.hpp"
 #include "report/montage.hpp"
 #include "report/report.hpp"
@@ -368,7 +369,7 @@ std::string pod_panel(Page& p, const Json& sel, const Json* c) {
   s90.dashed = true;
   pl.hline(0.9, s90, "POD 0.9", true);
   const double b0 = num(pod["b0"]), b1 = num(pod["b1"]);
-  const std::string link = str(pod["link"]);
+  const PodLink link = parse_pod_link(str(pod["link"]));
   if (pod.value("estimable", false) && std::isfinite(b0) && std::isfinite(b1)) {
     const double c00 = num(pod["covariance"][0][0]), c01 = num(pod["covariance"][0][1]), c11 = num(pod["covariance"][1][1]);
     std::vector<double> xs, ys, ylo, yhi;
@@ -381,12 +382,12 @@ std::string pod_panel(Page& p, const Json& sel, const Json* c) {
       ylo.push_back(q.lo);
       yhi.push_back(q.hi);
     }
-    pl.band("95 % band (delta method, " + link + " scale)", xs, ylo, yhi, col, 0.18);
+    pl.band(std::string("95 % band (delta method, ") + pod_link_name(link) + " scale)", xs, ylo, yhi, col, 0.18);
     svg::Style cs;
     cs.color = col;
     cs.marker = svg::Marker::none;
     cs.width = 2;
-    pl.line(link + " fit", xs, ys, cs);
+    pl.line(std::string(pod_link_name(link)) + " fit", xs, ys, cs);
   }
   pl.error_bars(bx, blo, bhi, "#444444");
   svg::Style ps;
@@ -673,17 +674,6 @@ std::vector<size_t> pareto_front(const std::vector<std::pair<double, double>>& r
   for (size_t i : order)
     if (runtime_quality[i].second > best) front.push_back(i), best = runtime_quality[i].second;
   return front;
-}
-
-PodBandPoint pod_band_at(const std::string& link, double b0, double b1, double c00, double c01, double c11, double size_um) {
-  // Inverse links: logistic, or the standard normal CDF for probit.
-  auto inv = [&](double eta) { return link == "probit" ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta)); };
-  if (!(size_um > 0)) return {NAN, NAN, NAN};
-  const double la = std::log(size_um), eta = b0 + b1 * la;
-  const double var = c00 + 2 * la * c01 + la * la * c11;
-  const double se = var >= 0 ? std::sqrt(var) : NAN;
-  const double z = 1.959963984540054;  // standard normal 0.975 quantile
-  return {inv(eta), inv(eta - z * se), inv(eta + z * se)};
 }
 
 void write_html_and_montages(const Json& results, const std::string& out_dir) {

@@ -11,12 +11,16 @@
 #include <regex>
 #include <set>
 
+#include "metrics/pod.hpp"
 #include "report/html.hpp"
 #include "report/montage.hpp"
 #include "report/svg.hpp"
 #include "tests/helpers.hpp"
 
 using namespace pb::report;
+using pb::parse_pod_link;
+using pb::pod_band_at;
+using pb::PodBandPoint;
 using pbtest::TempDir;
 namespace fs = std::filesystem;
 using OJson = nlohmann::ordered_json;
@@ -205,7 +209,7 @@ TEST_CASE("POD band equals statsmodels' GLM prediction interval on the link scal
   // statsmodels' fit is used as given: only the band formula is under test here.
   const double b0 = j["b0"], b1 = j["b1"], c00 = j["cov"][0][0], c01 = j["cov"][0][1], c11 = j["cov"][1][1];
   for (const auto& pt : j["points"]) {
-    const PodBandPoint q = pod_band_at(link, b0, b1, c00, c01, c11, pt[0].get<double>());
+    const PodBandPoint q = pod_band_at(parse_pod_link(link), b0, b1, c00, c01, c11, pt[0].get<double>());
     INFO("size " << pt[0]);
     CHECK(q.pod == Approx(pt[1].get<double>()).epsilon(1e-9));
     CHECK(q.lo == Approx(pt[2].get<double>()).epsilon(1e-7));
@@ -214,8 +218,8 @@ TEST_CASE("POD band equals statsmodels' GLM prediction interval on the link scal
     CHECK(q.pod <= q.hi);
   }
   // Undefined input gives an undefined band, not a number.
-  CHECK(std::isnan(pod_band_at(link, b0, b1, c00, c01, c11, 0).pod));
-  CHECK(std::isnan(pod_band_at(link, b0, b1, -1, 0, 0, 1).lo));  // negative variance
+  CHECK(std::isnan(pod_band_at(parse_pod_link(link), b0, b1, c00, c01, c11, 0).pod));
+  CHECK(std::isnan(pod_band_at(parse_pod_link(link), b0, b1, -1, 0, 0, 1).lo));  // negative variance
 }
 
 TEST_CASE("Pareto front of runtime and quality, by hand", "[report]") {
