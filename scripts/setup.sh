@@ -4,7 +4,7 @@
 set -euo pipefail
 build=(cmake g++ make pkg-config
        libinsighttoolkit5-dev libopencv-dev libeigen3-dev libfftw3-dev
-       libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev)
+       libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev libboost-dev)
 tests=(python3-skimage python3-scipy python3-sklearn python3-statsmodels python3-pandas python3-numpy chromium)
 want=("${build[@]}")
 [ "${1:-}" = "--tests" ] && want+=("${tests[@]}")
