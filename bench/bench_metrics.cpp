@@ -6,7 +6,7 @@
 #include <omp.h>
 
 #include "bench/bench_metrics.hpp"
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 #include "metrics/score.hpp"
 
 namespace {

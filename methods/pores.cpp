@@ -2,7 +2,7 @@
 
 #include <vector>
 
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 
 namespace pb {
 

@@ -13,7 +13,7 @@
 #include "core/error.hpp"
 #include "methods/pores.hpp"
 #include "methods/threshold.hpp"
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 
 namespace pb {
 

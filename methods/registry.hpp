@@ -107,9 +107,6 @@ ParamValues parse_params(const MethodInfo& m, const std::vector<std::string>& ke
 // Runs and times a method; checks the input first (non-empty volume, ROI geometry).
 MethodOutput run_method(const MethodInfo& m, const ParamValues& p, const MethodInput& in);
 
-// The closest of `candidates` to `word` by edit distance, or "" when none is close.
-std::string closest_name(const std::string& word, const std::vector<std::string>& candidates);
-
 #define PB_CONCAT_INNER(a, b) a##b
 #define PB_CONCAT(a, b) PB_CONCAT_INNER(a, b)
 // Registers a MethodInfo at static-initialisation time: PB_REGISTER_METHOD(make_info());

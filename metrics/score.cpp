@@ -20,7 +20,7 @@
 #include <unordered_map>
 
 #include "core/error.hpp"
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 
 namespace pb {
 

@@ -11,7 +11,7 @@
 
 #include <omp.h>
 
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 
 namespace pb {
 namespace {

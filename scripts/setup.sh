@@ -1,12 +1,14 @@
 #!/usr/bin/env bash
 # Installs the Debian packages porebench needs, only those missing. Idempotent; fast when all present.
 # Usage: scripts/setup.sh [--tests]   (--tests adds the Python reference libraries used by tests/)
+#        scripts/setup.sh --list      (prints every package it would install, build and tests)
 set -euo pipefail
 build=(cmake g++ make pkg-config
        libinsighttoolkit5-dev libopencv-dev libeigen3-dev libfftw3-dev
        libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev libboost-dev)
 tests=(python3-skimage python3-scipy python3-sklearn python3-statsmodels python3-pandas python3-numpy chromium)
 want=("${build[@]}")
+if [ "${1:-}" = "--list" ]; then echo "${build[*]} ${tests[*]}"; exit 0; fi
 [ "${1:-}" = "--tests" ] && want+=("${tests[@]}")
 missing=()
 for p in "${want[@]}"; do

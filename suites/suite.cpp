@@ -9,6 +9,7 @@
 #include <toml++/toml.h>
 
 #include "core/error.hpp"
+#include "core/names.hpp"
 #include "core/sha256.hpp"
 #include "methods/registry.hpp"
 

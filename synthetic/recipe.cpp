@@ -13,7 +13,7 @@
 
 #include "core/error.hpp"
 #include "synthetic/ct.hpp"
-#include "methods/registry.hpp"  // closest_name
+#include "core/names.hpp"
 
 namespace pb::synth {
 

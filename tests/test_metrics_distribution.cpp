@@ -6,7 +6,7 @@
 #include <fstream>
 #include <nlohmann/json.hpp>
 
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 #include "metrics/distribution.hpp"
 #include "metrics/surface.hpp"
 #include "tests/helpers.hpp"

@@ -9,7 +9,7 @@
 #include <nlohmann/json.hpp>
 
 #include "core/error.hpp"
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 #include "metrics/score.hpp"
 #include "tests/helpers.hpp"
 #include "tests/metrics_helpers.hpp"

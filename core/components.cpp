@@ -11,7 +11,7 @@
 // Union-find links the larger root to the smaller, so a component's root is its first run in
 // raster order, and labels come out in raster order of first voxels. Slabs of z are united in
 // parallel, their boundaries afterwards in order: the partition (and so the labels) is unique.
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 
 #include <omp.h>
 
@@ -72,13 +72,13 @@ inline void merge_runs(const Run* runs, uint32_t* p, int64_t c0, int64_t c1, Nbr
 #pragma GCC target("avx2")
 namespace avx2 {
 #define PB_CCL_RUNS_AVX2 1
-#include "metrics/ccl_runs.inc"
+#include "core/components_runs.inc"
 #undef PB_CCL_RUNS_AVX2
 }  // namespace avx2
 #pragma GCC pop_options
 #endif
 namespace generic {
-#include "metrics/ccl_runs.inc"
+#include "core/components_runs.inc"
 }  // namespace generic
 
 #ifdef PB_CCL_HAVE_AVX2_CLONE

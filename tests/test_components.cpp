@@ -11,7 +11,7 @@
 
 #include "core/cpu.hpp"
 #include "core/error.hpp"
-#include "metrics/ccl.hpp"
+#include "core/components.hpp"
 #include "tests/helpers.hpp"
 #include "tests/metrics_helpers.hpp"
 
@@ -36,7 +36,7 @@ bool same_partition(const uint32_t* a, const uint32_t* b, int64_t n) {
 
 }  // namespace
 
-TEST_CASE("tiny volumes: face, edge and corner neighbours per connectivity", "[metrics][ccl]") {
+TEST_CASE("tiny volumes: face, edge and corner neighbours per connectivity", "[core][ccl]") {
   Geometry g;
   g.dims = {3, 3, 3};
   // Edge neighbours (0,0,0) and (1,1,0): two components under 6, one under 18 and 26.
@@ -63,7 +63,7 @@ TEST_CASE("tiny volumes: face, edge and corner neighbours per connectivity", "[m
   CHECK(label_components(yz, 18).count == 1);
 }
 
-TEST_CASE("labels are numbered in raster order of first voxels, sizes per label", "[metrics][ccl]") {
+TEST_CASE("labels are numbered in raster order of first voxels, sizes per label", "[core][ccl]") {
   // A U shape in one slice: row y=0 has voxels x=0 and x=2, row y=1 joins them (x=0..2). Under any
   // connectivity it is one component of 5 voxels; a lone voxel at (0,0,2) is label 2 (size 1).
   Geometry g;
@@ -86,7 +86,7 @@ TEST_CASE("labels are numbered in raster order of first voxels, sizes per label"
   }
 }
 
-TEST_CASE("empty and full masks, bad connectivity", "[metrics][ccl]") {
+TEST_CASE("empty and full masks, bad connectivity", "[core][ccl]") {
   Geometry g;
   g.dims = {4, 3, 2};
   const Mask empty(g);
@@ -100,7 +100,7 @@ TEST_CASE("empty and full masks, bad connectivity", "[metrics][ccl]") {
   CHECK(label_components(none, 26).count == 0);
 }
 
-TEST_CASE("same partition as scipy.ndimage.label on random volumes", "[metrics][ccl][ref]") {
+TEST_CASE("same partition as scipy.ndimage.label on random volumes", "[core][ccl][ref]") {
   // Reference: scipy.ndimage.label with generate_binary_structure(3, 1|2|3) (Debian python3-scipy).
   // Rows are scanned 64 voxels at a time: nx = 37 (one partial chunk), 128 (runs open at a chunk
   // end and at the row end) and 131 (two chunks and a tail); with and without a part mask (ROI:
@@ -143,7 +143,7 @@ TEST_CASE("same partition as scipy.ndimage.label on random volumes", "[metrics][
   CHECK(total == int64_t(ref.size()) - int64_t(std::count(ref.begin(), ref.end(), 0u)));  // all foreground labelled
 }
 
-TEST_CASE("large label volumes start at zero and stay zero outside the pores", "[metrics][ccl]") {
+TEST_CASE("large label volumes start at zero and stay zero outside the pores", "[core][ccl]") {
   // Labels of a volume above the huge-page buffer size (core/memory.hpp) are written only where
   // the mask has runs; the rest must read as background. A single voxel, hand-checked.
   Geometry g;
@@ -158,7 +158,7 @@ TEST_CASE("large label volumes start at zero and stay zero outside the pores", "
   }
 }
 
-TEST_CASE("labels do not depend on the thread count", "[metrics][ccl]") {
+TEST_CASE("labels do not depend on the thread count", "[core][ccl]") {
   Geometry g;
   g.dims = {40, 30, 50};
   const Mask m = random_mask(g, 0.45, 7);
