@@ -37,30 +37,31 @@ bool same_partition(const uint32_t* a, const uint32_t* b, int64_t n) {
 }  // namespace
 
 TEST_CASE("tiny volumes: face, edge and corner neighbours per connectivity", "[core][ccl]") {
+  // Two voxels of a 3x3x3 volume are one component when they are neighbours under the
+  // connectivity: 6 = shared face, 18 = face or edge, 26 = face, edge or corner (the definitions of
+  // 3D digital topology, Kong & Rosenfeld 1989, Comput. Vision Graph. Image Process. 48:357-393).
+  struct Case {
+    const char* what;
+    std::array<int, 3> a, b;
+    int n6, n18, n26;  // expected component counts
+  };
+  const Case cases[] = {
+      {"face step (+1,0,0)", {0, 0, 0}, {1, 0, 0}, 1, 1, 1},
+      {"edge step (+1,+1,0)", {0, 0, 0}, {1, 1, 0}, 2, 1, 1},
+      {"corner step (+1,+1,+1)", {0, 0, 0}, {1, 1, 1}, 2, 2, 1},
+      {"corner step backwards in y (+1,-1,+1): the (+1,-1) row offset", {1, 2, 0}, {2, 1, 1}, 2, 2, 1},
+      {"edge step (0,-1,+1) seen from the later voxel", {1, 2, 0}, {1, 1, 1}, 2, 1, 1},
+  };
   Geometry g;
   g.dims = {3, 3, 3};
-  // Edge neighbours (0,0,0) and (1,1,0): two components under 6, one under 18 and 26.
-  Mask edge(g);
-  edge(0, 0, 0) = edge(1, 1, 0) = 1;
-  CHECK(label_components(edge, 6).count == 2);
-  CHECK(label_components(edge, 18).count == 1);
-  CHECK(label_components(edge, 26).count == 1);
-  // Corner neighbours (0,0,0) and (1,1,1): two under 6 and 18, one under 26.
-  Mask corner(g);
-  corner(0, 0, 0) = corner(1, 1, 1) = 1;
-  CHECK(label_components(corner, 6).count == 2);
-  CHECK(label_components(corner, 18).count == 2);
-  CHECK(label_components(corner, 26).count == 1);
-  // Corner step backwards in y (x+1, y-1, z+1), the (+1,-1) row offset: (1,2,0) and (2,1,1).
-  Mask back(g);
-  back(1, 2, 0) = back(2, 1, 1) = 1;
-  CHECK(label_components(back, 18).count == 2);
-  CHECK(label_components(back, 26).count == 1);
-  // Edge step (y+1, z-1) seen from the later voxel: (1,2,0) and (1,1,1): one under 18.
-  Mask yz(g);
-  yz(1, 2, 0) = yz(1, 1, 1) = 1;
-  CHECK(label_components(yz, 6).count == 2);
-  CHECK(label_components(yz, 18).count == 1);
+  for (const auto& c : cases) {
+    INFO(c.what);
+    Mask m(g);
+    m(c.a[0], c.a[1], c.a[2]) = m(c.b[0], c.b[1], c.b[2]) = 1;
+    CHECK(label_components(m, 6).count == uint32_t(c.n6));
+    CHECK(label_components(m, 18).count == uint32_t(c.n18));
+    CHECK(label_components(m, 26).count == uint32_t(c.n26));
+  }
 }
 
 TEST_CASE("labels are numbered in raster order of first voxels, sizes per label", "[core][ccl]") {
