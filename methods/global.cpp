@@ -8,7 +8,9 @@
 // Degenerate input (defined result and a warning, never a silent split of one population):
 //   - constant volume (one occupied bin) or a single-mode histogram (no second significant mode:
 //     a crop inside dense material, or all air): no voxel is called air (threshold = the lowest
-//     grey value); percentile and manual are exempt (the user chose the split);
+//     grey value); percentile and manual are exempt (the user chose the split); triangle is made
+//     for one peak with a tail of pores (Zack et al. 1977), so a single mode with a dark tail is
+//     only warned about (a bright tail: no air);
 //   - a method that finds no split (no fixed point, no two modes after smoothing): the same;
 //   - everything outside air after the split (no part voxels): porosity undefined, warned.
 // Integer data (MethodInput::stored_type): when the histogram range spans more grey levels than
@@ -107,17 +109,28 @@ struct Prefix {
 // counts. Persistence of peaks: Edelsbrunner H., Harer J. (2010) Computational Topology (from memory); the
 // 4-sigma noise rule is our choice.
 // With clipping, the end bins also hold the clipped tails: they take their neighbours' counts here
-// so that the clipped tails do not pose as modes.
-int significant_modes(const Histogram& h, bool clipped) {
-  const int f = (h.bins() + 255) / 256;
+// so that the clipped tails do not pose as modes. Integer data binned finer than one grey level
+// leave bins empty by construction (a comb); the bins are merged into grey levels first, else every empty bin
+// is a saddle of depth zero and every level a "mode"; each bin goes to the level nearest its
+// centre (a voxel lies within half a bin of its bin's centre).
+int significant_modes(const Histogram& h, bool clipped, bool integer_data) {
   Counts raw = counts_of(h), c;
   if (clipped) {
     raw.front() = raw[1];
     raw.back() = raw[raw.size() - 2];
   }
-  for (int i = 0; i < h.bins(); i += f) {
+  if (integer_data && h.width() < 1) {  // one entry per grey level: the level nearest each bin centre
+    Counts levels(size_t(std::floor(h.hi) - std::ceil(h.lo)) + 1, 0.0);
+    for (int i = 0; i < h.bins(); ++i) {
+      const double level = std::clamp(std::round(h.centre(i)) - std::ceil(h.lo), 0.0, double(levels.size() - 1));
+      levels[size_t(level)] += raw[size_t(i)];
+    }
+    raw.swap(levels);
+  }
+  const int bins = int(raw.size()), f = (bins + 255) / 256;
+  for (int i = 0; i < bins; i += f) {
     double s = 0;
-    for (int j = i; j < std::min(h.bins(), i + f); ++j) s += raw[size_t(j)];
+    for (int j = i; j < std::min(bins, i + f); ++j) s += raw[size_t(j)];
     c.push_back(s);
   }
   const int n = int(c.size());
@@ -517,8 +530,8 @@ std::vector<std::string> resolution_warnings(const MethodInput& in, const Histog
   const int bins = h.bins();
   if (levels > bins)
     return {std::string(voxel_type_name(in.stored_type)) + " data span " + fmt(levels) + " grey levels over the histogram range [" +
-            fmt(h.lo) + ", " + fmt(h.hi) + "] but bins=" + std::to_string(bins) + ": each bin is " + fmt(h.width()) +
-            " grey levels wide, so the threshold is resolved to that; set bins=" + fmt(std::min(levels, 65536.0)) +
+            fmt(h.lo) + ", " + fmt(h.hi) + "] but bins=" + std::to_string(bins) + ": some bins hold more than one level (bin width " +
+            fmt(h.width()) + " grey levels), so the threshold is resolved to that; set bins=" + fmt(std::min(levels, 65536.0)) +
             " for one bin per grey level"};
   if (levels >= 2 && levels < bins)
     return {std::string(voxel_type_name(in.stored_type)) + " data span only " + fmt(levels) + " grey levels but bins=" +
@@ -533,7 +546,14 @@ double no_air_threshold(const MethodInput& in, const Histogram& h, const ParamVa
   return compute_stats(in.volume, in.roi).min;
 }
 
-MethodInfo global_method(std::string name, std::string doc, std::string citation, Calc calc, bool needs_two_modes,
+// What a method needs of the histogram's shape (the two-mode guard of the file header).
+enum class Shape {
+  two_modes,       // a split between two populations: a single significant mode gives no air
+  peak_with_tail,  // one peak and a tail (triangle): a single mode is its case, only said
+  any,             // the user chose the split (percentile)
+};
+
+MethodInfo global_method(std::string name, std::string doc, std::string citation, Calc calc, Shape shape,
                          std::vector<ParamSpec> extra = {}) {
   // histogram_method gives the shared schema (bins, clip_pct) and family; the run is ours, so that
   // degenerate histograms and integer resolution are handled the same way for every method.
@@ -542,7 +562,7 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
                                     return ThresholdChoice{calc(h, p).threshold, {}};
                                   },
                                   std::move(extra));
-  m.run = [calc, needs_two_modes, name](const MethodInput& in, const ParamValues& p) {
+  m.run = [calc, shape, name](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
     std::vector<std::string> warnings = resolution_warnings(in, h);
     Choice c;
@@ -552,13 +572,26 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
                          " = the lowest grey value); if the part has pores, include surrounding air in the volume or "
                          "use manual or percentile");
     };
+    const bool single_mode = shape != Shape::any && h.bins() >= 3 &&
+                             significant_modes(h, p.num("clip_pct") > 0, integer_type(in.stored_type)) < 2;
     if (single_occupied_bin(h)) {
       no_air(name + ": the grey-value histogram has a single occupied bin (constant volume)");
-    } else if (needs_two_modes && h.bins() >= 3 && significant_modes(h, p.num("clip_pct") > 0) < 2) {
+    } else if (shape == Shape::two_modes && single_mode) {
       no_air(name + ": the grey-value histogram has a single significant mode (dense material only, or all air)");
     } else {
       try {
         c = calc(h, p);
+        if (single_mode) {
+          // peak_with_tail: pores are dark, so only a tail below the peak can be air.
+          const int peak = int(std::max_element(h.counts.begin(), h.counts.end()) - h.counts.begin());
+          if (c.threshold > h.centre(peak))
+            no_air(name + ": the grey-value histogram has a single significant mode whose longer tail is brighter "
+                          "than its peak (no dark tail of pores)");
+          else
+            warnings.push_back(name + ": the grey-value histogram has a single significant mode; the threshold cuts off "
+                                      "its dark tail (what " + name + " is made for: one peak and a tail of pores); "
+                                      "check that the tail is air and not the noise of a single phase");
+        }
       } catch (const NoSplit& e) {
         no_air(e.what());
       }
@@ -599,53 +632,53 @@ const char* kPrewitt = "Prewitt J.M.S., Mendelsohn M.L. (1966) The analysis of c
 
 PB_REGISTER_METHOD(global_method(
     "otsu", "Otsu's method: the threshold that maximises the between-class variance of the histogram", kOtsu,
-    [](const Histogram& h, const ParamValues&) { return split_at(h, otsu_split(h)); }, true));
+    [](const Histogram& h, const ParamValues&) { return split_at(h, otsu_split(h)); }, Shape::two_modes));
 PB_REGISTER_METHOD(manual_info());
 PB_REGISTER_METHOD(global_method("iso50",
                                  "halfway between the air and the material histogram peaks (the modes of Otsu's two classes)",
-                                 "common practice in CT, no published source; peaks split by Otsu (1979)", iso50, true));
+                                 "common practice in CT, no published source; peaks split by Otsu (1979)", iso50, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("isodata", "Ridler-Calvard iterative selection: the threshold halfway between the two class means",
                                  "Ridler T.W., Calvard S. (1978) Picture thresholding using an iterative selection method. "
                                  "IEEE Trans. Syst. Man Cybern. 8(8):630-632",
-                                 isodata, true));
+                                 isodata, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("triangle", "the bin farthest below the line from the histogram peak to the end of its longer tail",
                                  "Zack G.W., Rogers W.E., Latt S.A. (1977) Automatic measurement of sister chromatid exchange "
                                  "frequency. J. Histochem. Cytochem. 25(7):741-753",
-                                 triangle, true));
+                                 triangle, Shape::peak_with_tail));
 PB_REGISTER_METHOD(global_method("li", "minimum cross entropy between the image and its two-level version (iterative)",
                                  "Li C.H., Lee C.K. (1993) Minimum cross entropy thresholding. Pattern Recognit. 26(4):617-625; "
                                  "Li C.H., Tam P.K.S. (1998) An iterative algorithm for minimum cross entropy thresholding. "
                                  "Pattern Recognit. Lett. 18(8):771-776",
-                                 li, true));
+                                 li, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("yen", "maximum entropic correlation of the two classes",
                                  "Yen J.C., Chang F.J., Chang S. (1995) A new criterion for automatic multilevel thresholding. "
                                  "IEEE Trans. Image Process. 4(3):370-378",
-                                 yen, true));
+                                 yen, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("kapur", "maximum entropy: the split maximising the sum of the two class entropies",
                                  "Kapur J.N., Sahoo P.K., Wong A.K.C. (1985) A new method for gray-level picture thresholding "
                                  "using the entropy of the histogram. Comput. Vis. Graph. Image Process. 29(3):273-285",
-                                 kapur, true));
+                                 kapur, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("kittler-illingworth", "minimum error: the split that best fits two Gaussian classes",
                                  "Kittler J., Illingworth J. (1986) Minimum error thresholding. Pattern Recognit. 19(1):41-47",
-                                 kittler_illingworth, true));
+                                 kittler_illingworth, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("huang", "minimum fuzziness (Shannon entropy of memberships to the class means)",
                                  "Huang L.K., Wang M.J.J. (1995) Image thresholding by minimizing the measures of fuzziness. "
                                  "Pattern Recognit. 28(1):41-51",
-                                 huang, true));
+                                 huang, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("moments", "moment-preserving: the two-level image keeps the first three moments",
                                  "Tsai W.H. (1985) Moment-preserving thresholding: a new approach. Comput. Vis. Graph. Image "
                                  "Process. 29(3):377-393",
-                                 moments, true));
+                                 moments, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("intermodes", "smooth the histogram until bimodal; the midpoint between the two peaks",
-                                 kPrewitt, intermodes, true));
+                                 kPrewitt, intermodes, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("minimum", "smooth the histogram until bimodal; the minimum between the two peaks",
-                                 kPrewitt, minimum, true));
+                                 kPrewitt, minimum, Shape::two_modes));
 PB_REGISTER_METHOD(global_method("mean", "the mean grey value", "Glasbey C.A. (1993) An analysis of histogram-based "
                                  "thresholding algorithms. CVGIP Graph. Models Image Process. 55(6):532-537",
-                                 mean, true));
+                                 mean, Shape::two_modes));
 PB_REGISTER_METHOD(global_method(
     "percentile", "a given percentage of the ROI voxels is called air (p-tile)",
-    "Doyle W. (1962) Operations useful for similarity-invariant pattern recognition. J. ACM 9(2):259-267", percentile, false,
+    "Doyle W. (1962) Operations useful for similarity-invariant pattern recognition. J. ACM 9(2):259-267", percentile, Shape::any,
     {{"air_pct", ParamType::Float, "1", 0, 100, {}, "%", "percentage of the ROI voxels below the threshold (called air)"}}));
 
 }  // namespace pb
