@@ -8,6 +8,7 @@
 
 #include "apps/cli.hpp"
 #include "core/error.hpp"
+#include "report/reporter.hpp"
 #include "suites/results.hpp"
 #include "suites/runner.hpp"
 
@@ -32,6 +33,7 @@ Action setup_run(CLI::App& app) {
     o.resume = a->resume;
     o.quiet = globals().quiet;
     o.progress_bar = ::isatty(2);
+    o.log = [](const std::string& m) { cli::log("porebench: " + m); };
     if (!a->shard.empty()) {
       int k = 0, n = 0;
       char extra = 0;
@@ -43,14 +45,16 @@ Action setup_run(CLI::App& app) {
     const suite::Suite s = suite::load_suite(a->suite);
     const suite::RunSummary r = suite::run_suite(s, o);
     std::cout << "porebench run: " << r.cells_run << " cells run, " << r.cells_skipped << " already done, " << r.cells_failed
-              << " failed, of " << r.cells_total << '\n';
+              << " failed, of " << r.cells_total << " (" << r.datasets_prepared << " of " << s.datasets.size()
+              << " datasets prepared)\n";
     if (!r.complete) {
       std::cout << "not all cells are present yet: after every shard, run again with --resume to write the reports\n";
       return 0;
     }
-    std::cout << "wrote " << a->out << "/results.json, results.csv, summary.md, report.html, validation-record.md\n"
-              << (r.criteria_met ? "every acceptance criterion is met\n" : "at least one acceptance criterion is NOT met\n");
-    return r.criteria_met ? 0 : 1;
+    const bool met = report::write_results(a->out);
+    std::cout << "wrote " << a->out << "/: " << report::report_files_text() << '\n'
+              << (met ? "every acceptance criterion is met\n" : "at least one acceptance criterion is NOT met\n");
+    return met ? 0 : 1;
   };
 }
 
@@ -65,8 +69,8 @@ Action setup_report(CLI::App& app) {
                  "also write the machine-independent record of the run (the committed regression reference)");
   return [a] {
     if (!a->record.empty()) check_writable(a->record);
-    const bool ok = suite::write_results(a->dir);
-    std::cout << "wrote " << a->dir << "/results.json, results.csv, summary.md, report.html, validation-record.md\n";
+    const bool ok = report::write_results(a->dir);
+    std::cout << "wrote " << a->dir << "/: " << report::report_files_text() << '\n';
     if (!a->record.empty()) {
       write_text_atomic(a->record, suite::regression_record(load_results(a->dir)).dump(1) + "\n");
       std::cout << "wrote " << a->record << '\n';

@@ -1,19 +1,13 @@
-// The documents of a suite run: validation-record.md (and, in report/html.cpp, report.html and
-// the montages).
-#include <filesystem>
+// validation-record.md of a suite run.
 #include <map>
 #include <sstream>
 
-#include "core/io.hpp"
-#include "report/html.hpp"
 #include "report/report.hpp"
 #include "suites/results.hpp"
 
 namespace pb::report {
 
-namespace {
-
-std::string validation_record(const Json& r) {
+std::string validation_record_md(const Json& r) {
   std::ostringstream md;
   const Json& ctx = r["context"];
   md << "# Validation record — " << r["suite"]["name"].get<std::string>() << "\n\n";
@@ -76,14 +70,12 @@ std::string validation_record(const Json& r) {
         "- Tuned methods: parameters chosen by " << r["calibration"]["objective"].get<std::string>()
      << " on the calibration slices; every figure in section 5 is on the held-out test slices.\n\n";
   md << "## 5. Results and criteria\n\n";
-  std::map<std::string, const Json*> cells;
-  for (const auto& c : r["cells"]) cells[c["id"]] = &c;
+  const auto cells = cells_by_id(r);
   md << "| dataset | scan | method | chosen parameters | Jaccard | slice Jaccard 95 % CI | porosity bias (pp) | a90/95 (µm) | verdict |\n";
   md << "|---|---|---|---|---:|---|---:|---:|---|\n";
   for (const auto& s : r["selections"]) {
-    const Json& c = *cells[s["chosen_cell"]];
-    std::string p;
-    for (auto it = c["params"].begin(); it != c["params"].end(); ++it) p += (p.empty() ? "" : ", ") + it.key() + "=" + it.value().get<std::string>();
+    const Json& c = *cells.at(s["chosen_cell"]);
+    const std::string p = params_text(c["params"]);
     md << "| " << s["dataset"].get<std::string>() << " | " << s["scan"].get<std::string>() << " | " << s["method"].get<std::string>()
        << " | " << p << " | ";
     if (c["status"] != "ok") {
@@ -103,14 +95,6 @@ std::string validation_record(const Json& r) {
         "| prepared by | | | |\n| reviewed by (qualified person) | | | |\n| approved by | | | |\n\n"
         "Remarks of the reviewer:\n\n\n";
   return md.str();
-}
-
-}  // namespace
-
-
-void write_documents(const Json& results, const std::string& out_dir) {
-  write_text_atomic((std::filesystem::path(out_dir) / "validation-record.md").string(), validation_record(results));
-  write_html_and_montages(results, out_dir);
 }
 
 }  // namespace pb::report

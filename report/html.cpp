@@ -9,12 +9,14 @@
 #include <set>
 #include <sstream>
 
+#include "core/format.hpp"
 #include "core/io.hpp"
 #include "metrics/pod.hpp"
 #include "report/html.hpp"
 #include "report/montage.hpp"
 #include "report/report.hpp"
 #include "report/svg.hpp"
+#include "suites/layout.hpp"
 #include "suites/results.hpp"
 
 namespace fs = std::filesystem;
@@ -40,16 +42,7 @@ std::string join(const std::vector<std::string>& v, const std::string& sep) {
 
 double num(const Json& j) { return j.is_number() ? j.get<double>() : NAN; }
 std::string str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.is_null() ? "" : j.dump(); }
-std::string f3(double v) { return svg::num(v, 3); }
-
-std::string params_text(const Json& p, bool skip_defaults = true) {
-  std::string out;
-  for (auto it = p.begin(); it != p.end(); ++it) {
-    if (skip_defaults && it.key() == "min_pore_voxels" && str(it.value()) == "1") continue;
-    out += (out.empty() ? "" : ", ") + it.key() + "=" + str(it.value());
-  }
-  return out.empty() ? "defaults" : out;
-}
+std::string f3(double v) { return format_number(v, 3); }
 
 struct Page {
   const Json& r;
@@ -201,7 +194,7 @@ std::string summary_tables(Page& p, const Json& d) {
     for (const Json* s : sels) {
       const Json* c = p.cell(*s);
       h << "<tr><td class=\"n\">" << ++rank << "</td><td><span class=\"sw\" style=\"background:" << p.colour(str((*s)["method"])) << "\"></span>"
-        << escape(str((*s)["method"])) << "</td><td>" << (c ? escape(params_text((*c)["params"])) : "") << ((*s).value("tuned", false) ? " (tuned)" : "")
+        << escape(str((*s)["method"])) << "</td><td>" << (c ? escape(params_text((*c)["params"], ", ", method_entry(p.r, str((*s)["method"])))) : "") << ((*s).value("tuned", false) ? " (tuned)" : "")
         << "</td>";
       if (!c || c->value("status", "") != "ok") {
         h << "<td colspan=\"7\" class=\"na\">failed: " << escape(c ? str((*c)["error"]) : "cell missing") << "</td><td class=\"fail\">FAIL</td></tr>\n";
@@ -246,7 +239,7 @@ std::string metric_series(Page& p, const Json& d) {
   std::vector<std::string> off_axis;
   for (const auto& v : d["variants"]) {
     if (ax.on_axis(v)) ticks.push_back(ax.of(v));
-    else off_axis.push_back(str(v["scan"]) + " (" + str(v["projections"]) + " projections, I0 " + svg::num(num(v["i0"])) + ")");
+    else off_axis.push_back(str(v["scan"]) + " (" + str(v["projections"]) + " projections, I0 " + format_number(num(v["i0"])) + ")");
   }
   std::ostringstream h;
   h << "<div class=\"grid\">";
@@ -277,7 +270,7 @@ std::string metric_series(Page& p, const Json& d) {
           const bool pod_metric = std::string(mp.metric).rfind("a9", 0) == 0;
           const std::string why = !c ? "cell missing" : c->value("status", "") != "ok" ? "cell failed"
                                   : pod_metric ? pod_reason(*c, mp.metric) : "not defined";
-          missing[why.empty() ? "not defined" : why].push_back(m + " at " + svg::num(xv));
+          missing[why.empty() ? "not defined" : why].push_back(m + " at " + format_number(xv));
         }
         pts.push_back({xv, yv});
       }
@@ -561,7 +554,7 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
         t.note = "cell failed";
       tiles.push_back(t);
     }
-    const std::string rel = "montages/" + file_token(str(d["name"])) + "__" + file_token(scan) + ".png";
+    const std::string rel = "montages/" + suite::file_token(str(d["name"])) + "__" + suite::file_token(scan) + ".png";
     write_montage((dir / str(v["montage_png"])).string(), (dir / str(d["montage_reference_png"])).string(),
                   scan, tiles, (dir / rel).string());
     h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)
@@ -630,7 +623,7 @@ std::string failed_section(const Page& p) {
   for (const auto& c : p.r["cells"]) {
     if (c.value("status", "") == "ok") continue;
     ++n;
-    rows << "<tr><td>" << escape(str(c["id"])) << "</td><td>" << escape(params_text(c["params"], false)) << "</td><td>"
+    rows << "<tr><td>" << escape(str(c["id"])) << "</td><td>" << escape(params_text(c["params"])) << "</td><td>"
          << escape(str(c["error"])) << "</td></tr>\n";
   }
   if (n == 0) h << "<p>No cell failed (" << p.r["cells"].size() << " cells).</p>";
@@ -677,8 +670,7 @@ std::vector<size_t> pareto_front(const std::vector<std::pair<double, double>>& r
 }
 
 void write_html_and_montages(const Json& results, const std::string& out_dir) {
-  Page p{results, {}, {}, 0};
-  for (const auto& c : results["cells"]) p.cells[c["id"].get<std::string>()] = &c;
+  Page p{results, cells_by_id(results), {}, 0};
   for (const auto& m : results["methods"]) p.method_index.emplace(m["label"].get<std::string>(), p.method_index.size());
   std::ostringstream h;
   h << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>porebench report: "

@@ -13,7 +13,7 @@ namespace pb::report {
 // missing value are never on the front.
 std::vector<size_t> pareto_front(const std::vector<std::pair<double, double>>& runtime_quality);
 
-// report.html and montages/<dataset>__<scan>.png into out_dir (called by write_documents).
+// report.html and montages/<dataset>__<scan>.png into out_dir (the HTML reporter, reporter.cpp).
 void write_html_and_montages(const Json& results, const std::string& out_dir);
 
 }  // namespace pb::report

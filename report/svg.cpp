@@ -7,6 +7,8 @@
 #include <cstdio>
 #include <sstream>
 
+#include "core/format.hpp"
+
 namespace pb::report::svg {
 
 std::string escape(const std::string& s) {
@@ -24,17 +26,6 @@ std::string escape(const std::string& s) {
         else o += c;
     }
   return o;
-}
-
-std::string num(double v, int digits) {
-  if (!std::isfinite(v)) return "n/a";
-  if (v == 0) return "0";
-  // Whole numbers below a million keep all their digits ("50000", not "5e+04").
-  const double a = std::abs(v);
-  const int int_digits = a >= 1 && a < 1e6 ? int(std::floor(std::log10(a))) + 1 : 0;
-  char b[48];
-  std::snprintf(b, sizeof(b), "%.*g", std::max(digits, int_digits), v);
-  return b;
 }
 
 Marker marker_for(size_t i) {
@@ -267,14 +258,14 @@ std::string axes_svg(const Frame& f, const Scale& sx, const Scale& sy, const Axi
     o << "<line x1=\"" << px(X(v)) << "\" y1=\"" << px(f.mt + f.ph) << "\" x2=\"" << px(X(v)) << "\" y2=\""
       << px(f.mt + f.ph + (sx.labelled[i] ? 4 : 2)) << "\" stroke=\"#888888\"/>";
     if (sx.labelled[i])
-      o << "<text x=\"" << px(X(v)) << "\" y=\"" << px(f.mt + f.ph + 16) << "\" text-anchor=\"middle\">" << escape(num(v)) << "</text>";
+      o << "<text x=\"" << px(X(v)) << "\" y=\"" << px(f.mt + f.ph + 16) << "\" text-anchor=\"middle\">" << escape(format_number(v)) << "</text>";
   }
   for (size_t i = 0; i < sy.ticks.size(); ++i) {
     const double v = sy.ticks[i];
     o << "<line x1=\"" << px(f.ml - (sy.labelled[i] ? 4 : 2)) << "\" y1=\"" << px(Y(v)) << "\" x2=\"" << px(f.ml) << "\" y2=\""
       << px(Y(v)) << "\" stroke=\"#888888\"/>";
     if (sy.labelled[i])
-      o << "<text x=\"" << px(f.ml - 6) << "\" y=\"" << px(Y(v) + 4) << "\" text-anchor=\"end\">" << escape(num(v)) << "</text>";
+      o << "<text x=\"" << px(f.ml - 6) << "\" y=\"" << px(Y(v) + 4) << "\" text-anchor=\"end\">" << escape(format_number(v)) << "</text>";
   }
   o << "</g>";
   const std::string xl = ax.label + (ax.log ? " (log scale)" : "");
@@ -344,11 +335,133 @@ void Plot::text(double xv, double yv, const std::string& t, const std::string& c
 }
 void Plot::note(const std::string& t) { notes_.push_back(t); }
 
-std::string Plot::render() const {
+namespace {
+
+// One rendering of a plot panel: the frame and the two scales, data to px.
+struct Canvas {
   Frame f;
-  f.mt = title_.empty() ? 10 : 26;
-  f.pw = w_ - f.ml - f.mr;
-  f.ph = h_ - f.mt - f.mb;
+  Scale sx, sy;
+  double X(double v) const { return f.ml + f.pw * sx.frac(v); }
+  double Y(double v) const { return f.mt + f.ph * (1 - sy.frac(v)); }
+};
+
+std::string band_svg(const Canvas& c, const std::vector<double>& xs, const std::vector<double>& lo,
+                     const std::vector<double>& hi, const Style& st) {
+  std::ostringstream body;
+  std::vector<std::pair<double, std::pair<double, double>>> run;
+  auto flush = [&] {
+    if (run.size() >= 2) {
+      body << "<polygon points=\"";
+      for (const auto& p : run) body << px(c.X(p.first)) << "," << px(c.Y(p.second.second)) << " ";
+      for (auto r = run.rbegin(); r != run.rend(); ++r) body << px(c.X(r->first)) << "," << px(c.Y(r->second.first)) << " ";
+      body << "\" fill=\"" << escape(st.color) << "\" fill-opacity=\"" << px(st.opacity) << "\" stroke=\"none\"/>";
+    }
+    run.clear();
+  };
+  for (size_t i = 0; i < xs.size(); ++i) {
+    if (c.sx.valid(xs[i]) && c.sy.valid(lo[i]) && c.sy.valid(hi[i])) run.push_back({xs[i], {lo[i], hi[i]}});
+    else flush();
+  }
+  flush();
+  return body.str();
+}
+
+std::string steps_svg(const Canvas& c, const std::vector<double>& edges, const std::vector<double>& counts, const Style& st,
+                      bool filled) {
+  const double bottom = c.f.mt + c.f.ph;
+  const double y0 = c.sy.valid(0) ? c.Y(0) : bottom;
+  auto YC = [&](double v) { return c.sy.valid(v) ? std::min(c.Y(v), bottom) : bottom; };
+  std::ostringstream d;
+  bool open = false;
+  for (size_t i = 0; i + 1 < edges.size() && i < counts.size(); ++i) {
+    const bool ok = c.sx.valid(edges[i]) && c.sx.valid(edges[i + 1]) && std::isfinite(counts[i]);
+    if (!ok) {
+      if (open) d << "V" << px(y0) << (filled ? "Z" : "");
+      open = false;
+      continue;
+    }
+    if (!open) d << "M" << px(c.X(edges[i])) << " " << px(y0);
+    d << "V" << px(YC(counts[i])) << "H" << px(c.X(edges[i + 1]));
+    open = true;
+  }
+  if (open) d << "V" << px(y0) << (filled ? "Z" : "");
+  if (d.str().empty()) return "";
+  if (filled)
+    return "<path d=\"" + d.str() + "\" fill=\"" + escape(st.color) + "\" fill-opacity=\"" + px(st.opacity) + "\" stroke=\"none\"/>";
+  return "<path d=\"" + d.str() + "\"" + stroke_attrs(st) + "/>";
+}
+
+std::string line_svg(const Canvas& c, const std::vector<double>& xs, const std::vector<double>& ys, const Style& st,
+                     const std::string& label) {
+  std::ostringstream body, d;
+  bool pen = false;
+  for (size_t i = 0; i < xs.size() && i < ys.size(); ++i) {
+    if (!(c.sx.valid(xs[i]) && c.sy.valid(ys[i]))) {
+      pen = false;
+      continue;
+    }
+    d << (pen ? "L" : "M") << px(c.X(xs[i])) << " " << px(c.Y(ys[i]));
+    pen = true;
+  }
+  if (st.width > 0 && !d.str().empty()) body << "<path d=\"" << d.str() << "\"" << stroke_attrs(st) << "/>";
+  for (size_t i = 0; i < xs.size() && i < ys.size(); ++i)
+    if (c.sx.valid(xs[i]) && c.sy.valid(ys[i]))
+      body << marker_svg(st.marker, c.X(xs[i]), c.Y(ys[i]), st.marker_size, st.color,
+                         (label.empty() ? "" : label + ": ") + format_number(xs[i]) + ", " + format_number(ys[i]));
+  return body.str();
+}
+
+std::string error_bars_svg(const Canvas& c, const std::vector<double>& xs, const std::vector<double>& lo,
+                           const std::vector<double>& hi, const Style& st) {
+  std::ostringstream body;
+  for (size_t i = 0; i < xs.size(); ++i) {
+    if (!(c.sx.valid(xs[i]) && c.sy.valid(lo[i]) && c.sy.valid(hi[i]))) continue;
+    const double xp = c.X(xs[i]), y1 = c.Y(lo[i]), y2 = c.Y(hi[i]);
+    body << "<path d=\"M" << px(xp) << " " << px(y1) << "V" << px(y2) << "M" << px(xp - 3) << " " << px(y1) << "H" << px(xp + 3)
+         << "M" << px(xp - 3) << " " << px(y2) << "H" << px(xp + 3) << "\"" << stroke_attrs(st) << "/>";
+  }
+  return body.str();
+}
+
+// A reference line across the panel (body) and its label (overlay, above the data).
+void hline_svg(const Canvas& c, double yv, const Style& st, const std::string& label, bool left, std::ostream& body,
+               std::ostream& overlay) {
+  if (!c.sy.valid(yv) || yv < c.sy.lo || yv > c.sy.hi) return;
+  body << "<line x1=\"" << px(c.f.ml) << "\" y1=\"" << px(c.Y(yv)) << "\" x2=\"" << px(c.f.ml + c.f.pw) << "\" y2=\""
+       << px(c.Y(yv)) << "\"" << stroke_attrs(st) << "/>";
+  if (label.empty()) return;
+  overlay << "<text x=\"" << px(left ? c.f.ml + 4 : c.f.ml + c.f.pw - 4) << "\" y=\"" << px(c.Y(yv) - 4) << "\" text-anchor=\""
+          << (left ? "start" : "end") << "\" font-size=\"10\" fill=\"" << escape(st.color) << "\">" << escape(label) << "</text>";
+}
+
+void vline_svg(const Canvas& c, double xv, const Style& st, const std::string& label, std::ostream& body, std::ostream& overlay) {
+  if (!c.sx.valid(xv) || xv < c.sx.lo || xv > c.sx.hi) return;
+  body << "<line x1=\"" << px(c.X(xv)) << "\" y1=\"" << px(c.f.mt) << "\" x2=\"" << px(c.X(xv)) << "\" y2=\""
+       << px(c.f.mt + c.f.ph) << "\"" << stroke_attrs(st) << "/>";
+  if (label.empty()) return;
+  overlay << "<text x=\"" << px(c.X(xv) - 3) << "\" y=\"" << px(c.f.mt + 11) << "\" text-anchor=\"end\" font-size=\"10\" fill=\""
+          << escape(st.color) << "\">" << escape(label) << "</text>";
+}
+
+std::string text_svg(const Canvas& c, double xv, double yv, const std::string& t, const Style& st) {
+  if (!(c.sx.valid(xv) && c.sy.valid(yv))) return "";
+  const double xp = c.X(xv);
+  const bool right_half = xp > c.f.ml + 0.7 * c.f.pw;  // keep the label inside the panel
+  std::ostringstream o;
+  o << "<text x=\"" << px(right_half ? xp - 5 : xp + 5) << "\" y=\"" << px(c.Y(yv) - 5) << "\" text-anchor=\""
+    << (right_half ? "end" : "start") << "\" font-size=\"10\" fill=\"" << escape(st.color) << "\">" << escape(t) << "</text>";
+  return o.str();
+}
+
+}  // namespace
+
+// Layout (the frame, and scales over every drawn value), then the items in order inside the
+// clipped panel with labels above them, then the legend and the notes below.
+std::string Plot::render() const {
+  Canvas c;
+  c.f.mt = title_.empty() ? 10 : 26;
+  c.f.pw = w_ - c.f.ml - c.f.mr;
+  c.f.ph = h_ - c.f.mt - c.f.mb;
   std::vector<double> xv, yv;
   for (const auto& it : items_) {
     xv.insert(xv.end(), it.xs.begin(), it.xs.end());
@@ -358,117 +471,24 @@ std::string Plot::render() const {
     yv.insert(yv.end(), it.lo.begin(), it.lo.end());
     yv.insert(yv.end(), it.hi.begin(), it.hi.end());
   }
-  const Scale sx = make_scale(x, xv), sy = make_scale(y, yv);
-  auto X = [&](double v) { return f.ml + f.pw * sx.frac(v); };
-  auto Y = [&](double v) { return f.mt + f.ph * (1 - sy.frac(v)); };
+  c.sx = make_scale(x, xv), c.sy = make_scale(y, yv);
   std::ostringstream body;
-  body << axes_svg(f, sx, sy, x, y);
+  body << axes_svg(c.f, c.sx, c.sy, x, y);
   const std::string clip = id_ + "-clip";
-  body << "<clipPath id=\"" << clip << "\"><rect x=\"" << px(f.ml - 6) << "\" y=\"" << px(f.mt - 6) << "\" width=\""
-       << px(f.pw + 12) << "\" height=\"" << px(f.ph + 12) << "\"/></clipPath>";
+  body << "<clipPath id=\"" << clip << "\"><rect x=\"" << px(c.f.ml - 6) << "\" y=\"" << px(c.f.mt - 6) << "\" width=\""
+       << px(c.f.pw + 12) << "\" height=\"" << px(c.f.ph + 12) << "\"/></clipPath>";
   body << "<g clip-path=\"url(#" << clip << ")\">";
   std::ostringstream overlay;  // labels of reference lines, above the data
   for (const auto& it : items_) {
     switch (it.kind) {
-      case Kind::band: {
-        std::vector<std::pair<double, std::pair<double, double>>> run;
-        auto flush = [&] {
-          if (run.size() >= 2) {
-            body << "<polygon points=\"";
-            for (const auto& p : run) body << px(X(p.first)) << "," << px(Y(p.second.second)) << " ";
-            for (auto r = run.rbegin(); r != run.rend(); ++r) body << px(X(r->first)) << "," << px(Y(r->second.first)) << " ";
-            body << "\" fill=\"" << escape(it.style.color) << "\" fill-opacity=\"" << px(it.style.opacity) << "\" stroke=\"none\"/>";
-          }
-          run.clear();
-        };
-        for (size_t i = 0; i < it.xs.size(); ++i) {
-          if (sx.valid(it.xs[i]) && sy.valid(it.lo[i]) && sy.valid(it.hi[i])) run.push_back({it.xs[i], {it.lo[i], it.hi[i]}});
-          else flush();
-        }
-        flush();
-        break;
-      }
+      case Kind::band: body << band_svg(c, it.xs, it.lo, it.hi, it.style); break;
       case Kind::steps:
-      case Kind::steps_filled: {
-        const double y0 = sy.valid(0) ? Y(0) : f.mt + f.ph;
-        auto YC = [&](double c) { return sy.valid(c) ? std::min(Y(c), f.mt + f.ph) : f.mt + f.ph; };
-        std::ostringstream d;
-        bool open = false;
-        for (size_t i = 0; i + 1 < it.xs.size() && i < it.ys.size(); ++i) {
-          const bool ok = sx.valid(it.xs[i]) && sx.valid(it.xs[i + 1]) && std::isfinite(it.ys[i]);
-          if (!ok) {
-            if (open) d << "V" << px(y0) << (it.kind == Kind::steps_filled ? "Z" : "");
-            open = false;
-            continue;
-          }
-          if (!open) d << "M" << px(X(it.xs[i])) << " " << px(y0);
-          d << "V" << px(YC(it.ys[i])) << "H" << px(X(it.xs[i + 1]));
-          open = true;
-        }
-        if (open) d << "V" << px(y0) << (it.kind == Kind::steps_filled ? "Z" : "");
-        if (d.str().empty()) break;
-        if (it.kind == Kind::steps_filled)
-          body << "<path d=\"" << d.str() << "\" fill=\"" << escape(it.style.color) << "\" fill-opacity=\"" << px(it.style.opacity)
-               << "\" stroke=\"none\"/>";
-        else
-          body << "<path d=\"" << d.str() << "\"" << stroke_attrs(it.style) << "/>";
-        break;
-      }
-      case Kind::line: {
-        std::ostringstream d;
-        bool pen = false;
-        for (size_t i = 0; i < it.xs.size() && i < it.ys.size(); ++i) {
-          if (!(sx.valid(it.xs[i]) && sy.valid(it.ys[i]))) {
-            pen = false;
-            continue;
-          }
-          d << (pen ? "L" : "M") << px(X(it.xs[i])) << " " << px(Y(it.ys[i]));
-          pen = true;
-        }
-        if (it.style.width > 0 && !d.str().empty()) body << "<path d=\"" << d.str() << "\"" << stroke_attrs(it.style) << "/>";
-        for (size_t i = 0; i < it.xs.size() && i < it.ys.size(); ++i)
-          if (sx.valid(it.xs[i]) && sy.valid(it.ys[i]))
-            body << marker_svg(it.style.marker, X(it.xs[i]), Y(it.ys[i]), it.style.marker_size, it.style.color,
-                               (it.label.empty() ? "" : it.label + ": ") + num(it.xs[i]) + ", " + num(it.ys[i]));
-        break;
-      }
-      case Kind::error_bars:
-        for (size_t i = 0; i < it.xs.size(); ++i) {
-          if (!(sx.valid(it.xs[i]) && sy.valid(it.lo[i]) && sy.valid(it.hi[i]))) continue;
-          const double xp = X(it.xs[i]), y1 = Y(it.lo[i]), y2 = Y(it.hi[i]);
-          body << "<path d=\"M" << px(xp) << " " << px(y1) << "V" << px(y2) << "M" << px(xp - 3) << " " << px(y1) << "H"
-               << px(xp + 3) << "M" << px(xp - 3) << " " << px(y2) << "H" << px(xp + 3) << "\"" << stroke_attrs(it.style) << "/>";
-        }
-        break;
-      case Kind::hline:
-        if (!sy.valid(it.ys[0]) || it.ys[0] < sy.lo || it.ys[0] > sy.hi) break;
-        body << "<line x1=\"" << px(f.ml) << "\" y1=\"" << px(Y(it.ys[0])) << "\" x2=\"" << px(f.ml + f.pw) << "\" y2=\""
-             << px(Y(it.ys[0])) << "\"" << stroke_attrs(it.style) << "/>";
-        if (!it.label.empty()) {
-          const bool left = !it.hi.empty() && it.hi[0] > 0;
-          overlay << "<text x=\"" << px(left ? f.ml + 4 : f.ml + f.pw - 4) << "\" y=\"" << px(Y(it.ys[0]) - 4) << "\" text-anchor=\""
-                  << (left ? "start" : "end") << "\" font-size=\"10\" fill=\"" << escape(it.style.color) << "\">" << escape(it.label)
-                  << "</text>";
-        }
-        break;
-      case Kind::vline:
-        if (!sx.valid(it.xs[0]) || it.xs[0] < sx.lo || it.xs[0] > sx.hi) break;
-        body << "<line x1=\"" << px(X(it.xs[0])) << "\" y1=\"" << px(f.mt) << "\" x2=\"" << px(X(it.xs[0])) << "\" y2=\""
-             << px(f.mt + f.ph) << "\"" << stroke_attrs(it.style) << "/>";
-        if (!it.label.empty())
-          overlay << "<text x=\"" << px(X(it.xs[0]) - 3) << "\" y=\"" << px(f.mt + 11) << "\" text-anchor=\"end\" font-size=\"10\" fill=\""
-                  << escape(it.style.color) << "\">" << escape(it.label) << "</text>";
-        break;
-      case Kind::text:
-        if (!(sx.valid(it.xs[0]) && sy.valid(it.ys[0]))) break;
-      {
-        const double xp = X(it.xs[0]);
-        const bool right_half = xp > f.ml + 0.7 * f.pw;  // keep the label inside the panel
-        overlay << "<text x=\"" << px(right_half ? xp - 5 : xp + 5) << "\" y=\"" << px(Y(it.ys[0]) - 5) << "\" text-anchor=\""
-                << (right_half ? "end" : "start") << "\" font-size=\"10\" fill=\"" << escape(it.style.color) << "\">"
-                << escape(it.label) << "</text>";
-      }
-        break;
+      case Kind::steps_filled: body << steps_svg(c, it.xs, it.ys, it.style, it.kind == Kind::steps_filled); break;
+      case Kind::line: body << line_svg(c, it.xs, it.ys, it.style, it.label); break;
+      case Kind::error_bars: body << error_bars_svg(c, it.xs, it.lo, it.hi, it.style); break;
+      case Kind::hline: hline_svg(c, it.ys[0], it.style, it.label, !it.hi.empty() && it.hi[0] > 0, body, overlay); break;
+      case Kind::vline: vline_svg(c, it.xs[0], it.style, it.label, body, overlay); break;
+      case Kind::text: overlay << text_svg(c, it.xs[0], it.ys[0], it.label, it.style); break;
     }
   }
   body << "</g>" << overlay.str();
@@ -501,7 +521,7 @@ std::string bar_chart(const std::string& id, double width_px, double height_px, 
     << "\" fill=\"none\" stroke=\"#888888\"/>";
   o << "<g font-size=\"11\" fill=\"#333333\">";
   for (double v : sy.ticks)
-    o << "<text x=\"" << px(f.ml - 6) << "\" y=\"" << px(Y(v) + 4) << "\" text-anchor=\"end\">" << escape(num(v)) << "</text>";
+    o << "<text x=\"" << px(f.ml - 6) << "\" y=\"" << px(Y(v) + 4) << "\" text-anchor=\"end\">" << escape(format_number(v)) << "</text>";
   o << "</g>";
   const double gw = categories.empty() ? f.pw : f.pw / double(categories.size());
   const double bw = series.empty() ? 0 : gw * 0.8 / double(series.size());
@@ -510,7 +530,7 @@ std::string bar_chart(const std::string& id, double width_px, double height_px, 
     for (size_t s = 0; s < series.size(); ++s) {
       const double v = c < series[s].values.size() ? series[s].values[c] : NAN;
       const double bx = gx + bw * double(s);
-      const std::string tip = series[s].name + ", " + categories[c] + ": " + num(v) + (y_label.empty() ? "" : " " + y_label);
+      const std::string tip = series[s].name + ", " + categories[c] + ": " + format_number(v) + (y_label.empty() ? "" : " " + y_label);
       if (!std::isfinite(v)) {
         o << "<text x=\"" << px(bx + bw / 2) << "\" y=\"" << px(Y(0) - 3) << "\" text-anchor=\"middle\" font-size=\"9\" fill=\"#777777\">n/a<title>"
           << escape(tip) << "</title></text>";

@@ -12,9 +12,6 @@ namespace pb::report::svg {
 // XML escaping for text and attribute values (& < > " ').
 std::string escape(const std::string& s);
 
-// Compact number text for ticks and labels: "0.25", "1200", "3.5e+06"; "n/a" when not finite.
-std::string num(double v, int digits = 4);
-
 enum class Marker { none, circle, square, triangle, diamond, cross };
 Marker marker_for(size_t i);  // a distinct shape per series, so that colour is not the only cue
 

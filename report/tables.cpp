@@ -4,32 +4,14 @@
 #include <set>
 #include <sstream>
 
+#include "core/format.hpp"
 #include "report/report.hpp"
 #include "suites/results.hpp"
 #include "suites/suite.hpp"
 
 namespace pb::report {
 
-const char* const kCaution =
-    "porebench supports, and does not replace, qualification of the inspection to the applicable standards "
-    "and local codes, and the judgement of qualified personnel. Porosity results can decide whether a "
-    "safety-relevant part ships.";
-
 const char* const kCsvColumns = "dataset,scan,projections,i0,method,method_name,family,grid_index,params,selected,part,metric,value";
-
-std::string file_token(std::string s) {
-  for (char& c : s)
-    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' || c == '.')) c = '_';
-  return s;
-}
-
-std::string fmt(const Json& v, int digits) {
-  if (!v.is_number()) return "n/a";
-  std::ostringstream s;
-  s.precision(digits);
-  s << v.get<double>();
-  return s.str();
-}
 
 namespace {
 
@@ -40,19 +22,7 @@ std::string csv_field(const std::string& s) {
   return out + "\"";
 }
 
-std::string params_text(const Json& p) {
-  std::string out;
-  for (auto it = p.begin(); it != p.end(); ++it) out += (out.empty() ? "" : ";") + it.key() + "=" + it.value().get<std::string>();
-  return out;
-}
-
-std::string num_text(double v) {
-  if (!std::isfinite(v)) return "";
-  std::ostringstream s;
-  s.precision(10);
-  s << v;
-  return s.str();
-}
+std::string num_text(double v) { return format_number(v, 10, ""); }
 
 std::set<std::string> selected_ids(const Json& results) {
   std::set<std::string> ids;
@@ -70,7 +40,7 @@ std::string results_csv(const Json& results) {
     const std::string head = csv_field(c["dataset"]) + "," + csv_field(c["scan"]) + "," +
                              std::to_string(c["projections"].get<int>()) + "," + num_text(c["i0"].get<double>()) + "," +
                              csv_field(c["method"]) + "," + csv_field(c["method_name"]) + "," + csv_field(c["family"]) +
-                             "," + std::to_string(c["grid_index"].get<int>()) + "," + csv_field(params_text(c["params"])) +
+                             "," + std::to_string(c["grid_index"].get<int>()) + "," + csv_field(params_text(c["params"], ";")) +
                              "," + (chosen.count(c["id"]) ? "true" : "false");
     out << head << ",run,runtime_s," << num_text(suite::metric_value(c, "test", "runtime_s")) << '\n';
     out << head << ",run,peak_rss_mib," << (c.contains("peak_rss_mib") ? num_text(c["peak_rss_mib"].get<double>()) : "") << '\n';
@@ -155,8 +125,7 @@ std::string summary_md(const Json& results) {
      << "), suite sha256 " << results["suite_sha256"].get<std::string>().substr(0, 16) << "…, "
      << "tuning objective " << results["calibration"]["objective"].get<std::string>() << " on calibration slices; "
      << "all figures below are on held-out test slices.\n\n";
-  std::map<std::string, const Json*> cell_by_id;
-  for (const auto& c : results["cells"]) cell_by_id[c["id"]] = &c;
+  const auto cell_by_id = cells_by_id(results);
   std::vector<std::string> order;
   std::map<std::string, std::vector<const Json*>> by_scan;
   for (const auto& s : results["selections"]) {
@@ -167,8 +136,8 @@ std::string summary_md(const Json& results) {
   for (const auto& k : order) {
     auto& v = by_scan[k];
     std::stable_sort(v.begin(), v.end(), [&](const Json* a, const Json* b) {
-      const double ja = suite::metric_value(*cell_by_id[(*a)["chosen_cell"]], "test", "jaccard");
-      const double jb = suite::metric_value(*cell_by_id[(*b)["chosen_cell"]], "test", "jaccard");
+      const double ja = suite::metric_value(*cell_by_id.at((*a)["chosen_cell"]), "test", "jaccard");
+      const double jb = suite::metric_value(*cell_by_id.at((*b)["chosen_cell"]), "test", "jaccard");
       return (std::isfinite(ja) ? ja : -1) > (std::isfinite(jb) ? jb : -1);
     });
     md << "## " << k << "\n\n";
@@ -176,12 +145,10 @@ std::string summary_md(const Json& results) {
     md << "|---:|---|---|---:|---|---:|---:|---:|---:|---:|---|\n";
     int rank = 0;
     for (const Json* s : v) {
-      const Json& c = *cell_by_id[(*s)["chosen_cell"]];
+      const Json& c = *cell_by_id.at((*s)["chosen_cell"]);
       md << "| " << ++rank << " | " << (*s)["method"].get<std::string>() << " | ";
-      std::string p;
-      for (auto it = c["params"].begin(); it != c["params"].end(); ++it)
-        if (it.key() != "min_pore_voxels" || it.value() != "1") p += (p.empty() ? "" : ", ") + it.key() + "=" + it.value().get<std::string>();
-      md << (p.empty() ? "defaults" : p) << ((*s)["tuned"].get<bool>() ? " (tuned)" : "") << " | ";
+      md << params_text(c["params"], ", ", method_entry(results, (*s)["method"])) << ((*s)["tuned"].get<bool>() ? " (tuned)" : "")
+         << " | ";
       if (c["status"] != "ok") {
         md << "failed: " << c["error"].get<std::string>() << " | | | | | | | FAIL |\n";
         continue;

@@ -25,7 +25,7 @@ namespace fs = std::filesystem;
 
 namespace {
 
-// A tiny synthetic trial: 40^3 voxels of 20 um, a reference scan and two faster ones.
+// A tiny synthetic trial: 40^3 voxels of 24 um, a reference scan and two faster ones.
 const char* kTinySuite = R"(
 [suite]
 name = "tiny"
@@ -182,7 +182,10 @@ TEST_CASE("SIGKILL mid-run, then --resume: same results as an uninterrupted run"
   waitpid(pid, &status, 0);
   const int before = count_cells();
   INFO("cells before the kill: " << before);
-  CHECK(before < 15);  // really interrupted
+  // Really interrupted, and after some cells were written (a kill before the first cell would
+  // turn this into a fresh run and test nothing of resuming).
+  REQUIRE(before >= 4);
+  REQUIRE(before < 15);
   const auto r = run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "cut") + " --resume");
   INFO(r.err);
   REQUIRE(r.exit_code == 0);
@@ -271,4 +274,17 @@ TEST_CASE("shards run apart into one folder and merge into the whole run", "[sui
   CHECK(regression_record(read_json(d / "whole/results.json"))["cells"].dump() ==
         regression_record(read_json(d / "sharded/results.json"))["cells"].dump());
   CHECK(run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "x") + " --shard 3/2").exit_code == 2);
+  // Resuming a folder whose cells are all present sets up no dataset again: no mask is read, no
+  // montage background rewritten (issue 10); the reports are written again from the cells.
+  const fs::path bg = d.path / "sharded/data/blank/montage-reference.png";
+  REQUIRE(fs::exists(bg));
+  const auto stamp = fs::last_write_time(bg);
+  const std::string before = regression_record(read_json(d / "sharded/results.json"))["cells"].dump();
+  auto again = run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "sharded") + " --resume");
+  INFO(again.out << again.err);
+  CHECK(again.exit_code == 0);
+  CHECK_THAT(again.out, Catch::Contains("0 cells run, 15 already done"));
+  CHECK_THAT(again.out, Catch::Contains("0 of 1 datasets prepared"));
+  CHECK(fs::last_write_time(bg) == stamp);
+  CHECK(regression_record(read_json(d / "sharded/results.json"))["cells"].dump() == before);
 }

@@ -1,0 +1,99 @@
+// The reporters of a run and the assembly of its results record (see reporter.hpp).
+#include "report/reporter.hpp"
+
+#include <algorithm>
+#include <filesystem>
+
+#include "core/context.hpp"
+#include "core/io.hpp"
+#include "report/html.hpp"
+#include "suites/layout.hpp"
+#include "suites/results.hpp"
+
+namespace fs = std::filesystem;
+
+namespace pb::report {
+
+namespace {
+
+// A reporter that renders one text file.
+class TextReporter : public Reporter {
+ public:
+  TextReporter(std::string file, std::string (*render)(const Json&)) : file_(std::move(file)), render_(render) {}
+  std::vector<std::string> files() const override { return {file_}; }
+  void write(const Json& results, const std::string& out_dir) const override {
+    write_text_atomic((fs::path(out_dir) / file_).string(), render_(results));
+  }
+
+ private:
+  std::string file_;
+  std::string (*render_)(const Json&);
+};
+
+std::string results_json(const Json& results) { return results.dump(1) + "\n"; }
+
+class HtmlReporter : public Reporter {
+ public:
+  std::vector<std::string> files() const override { return {"report.html", "montages/"}; }
+  void write(const Json& results, const std::string& out_dir) const override { write_html_and_montages(results, out_dir); }
+};
+
+}  // namespace
+
+const std::vector<std::unique_ptr<Reporter>>& standard_reporters() {
+  static const std::vector<std::unique_ptr<Reporter>> r = [] {
+    std::vector<std::unique_ptr<Reporter>> v;
+    v.push_back(std::make_unique<TextReporter>("results.json", results_json));
+    v.push_back(std::make_unique<TextReporter>("results.csv", results_csv));
+    v.push_back(std::make_unique<TextReporter>("summary.md", summary_md));
+    v.push_back(std::make_unique<TextReporter>("validation-record.md", validation_record_md));
+    v.push_back(std::make_unique<HtmlReporter>());
+    return v;
+  }();
+  return r;
+}
+
+std::string report_files_text() {
+  std::string out;
+  for (const auto& r : standard_reporters())
+    for (const auto& f : r->files()) out += (out.empty() ? "" : ", ") + f;
+  return out;
+}
+
+Json assemble_results(const std::string& out_dir) {
+  const fs::path dir(out_dir);
+  const Json rec = suite::read_json_file((dir / "suite.json").string());
+  std::vector<Json> cells;
+  for (const auto& e : fs::directory_iterator(dir / "cells"))
+    if (e.path().extension() == ".json") cells.push_back(suite::read_json_file(e.path().string()));
+  std::sort(cells.begin(), cells.end(), [](const Json& a, const Json& b) { return a["index"] < b["index"]; });
+  const auto criteria = suite::criteria_from_json(rec["criteria"]);
+  const auto sel = suite::select_cells(cells, rec["calibration"]["objective"], criteria);
+  Json results;
+  results["context"] = run_context();
+  for (auto it = rec.begin(); it != rec.end(); ++it) results[it.key()] = it.value();
+  Json js = Json::array();
+  bool all_passed = true;
+  for (const auto& s : sel) {
+    Json verdicts = Json::array();
+    for (const auto& [text, ok] : s.verdicts) verdicts.push_back({{"criterion", text}, {"passed", ok}});
+    js.push_back({{"dataset", s.dataset}, {"scan", s.scan}, {"method", s.method}, {"projections", s.projections},
+                  {"i0", s.i0}, {"tuned", s.tuned}, {"chosen_cell", cells[s.chosen]["id"]},
+                  {"chosen_params", cells[s.chosen]["params"]}, {"failed", s.failed}, {"verdicts", verdicts},
+                  {"passed", s.passed}});
+    all_passed = all_passed && s.passed;
+  }
+  results["selections"] = js;
+  results["advice"] = scan_recipe_advice(results);
+  results["criteria_met"] = all_passed;
+  results["cells"] = cells;
+  return results;
+}
+
+bool write_results(const std::string& out_dir) {
+  const Json results = assemble_results(out_dir);
+  for (const auto& r : standard_reporters()) r->write(results, out_dir);
+  return results["criteria_met"].get<bool>();
+}
+
+}  // namespace pb::report
