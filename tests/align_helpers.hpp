@@ -66,12 +66,14 @@ inline pb::SimilarityTransform pose_about(const Eigen::Vector3d& c, const Eigen:
   return T;
 }
 
-// Scan of the phantom placed by `pose` (phantom mm -> scan mm), Gaussian noise sigma.
+// Scan of the phantom placed by `pose` (phantom mm -> scan mm), Gaussian noise sigma; 2x2x2
+// supersampling, or one sample per voxel when !supersample (large benchmark volumes).
 inline pb::VolumeF render_scan(const AlignPhantom& ph, const pb::Geometry& g, const pb::SimilarityTransform& pose,
-                               double noise, unsigned seed) {
+                               double noise, unsigned seed, bool supersample = true) {
   pb::VolumeF v(g);
   const pb::SimilarityTransform inv = pose.inverse();
-  const double h[2] = {-0.25, 0.25};
+  const std::vector<double> h = supersample ? std::vector<double>{-0.25, 0.25} : std::vector<double>{0.0};
+  const float w = 1.0f / float(h.size() * h.size() * h.size());
 #pragma omp parallel for schedule(static)
   for (int64_t z = 0; z < g.dims[2]; ++z)
     for (int64_t y = 0; y < g.dims[1]; ++y)
@@ -85,7 +87,7 @@ inline pb::VolumeF render_scan(const AlignPhantom& ph, const pb::Geometry& g, co
                                       g.origin_mm[2] + (double(z) + dz) * g.spacing_mm[2]);
               s += ph.value(inv.apply(p));
             }
-        v(x, y, z) = s / 8.0f;
+        v(x, y, z) = s * w;
       }
   if (noise > 0) {
     std::mt19937_64 rng(seed);

@@ -4,6 +4,7 @@
 // scipy.ndimage.affine_transform (resampling), skimage.registration.phase_cross_correlation (shift).
 #include <catch2/catch.hpp>
 
+#include <cstring>
 #include <fstream>
 #include <nlohmann/json.hpp>
 #include <random>
@@ -374,4 +375,47 @@ TEST_CASE("porebench align writes the aligned scan and T.json; non-convergence i
                                 " --transform " + d / "t3.json");
   CHECK(tif.exit_code == 2);
   CHECK(tif.err.find("a.tif") != std::string::npos);
+}
+
+TEST_CASE("porebench convert keeps the geometry of raw and TIFF-folder scans or refuses", "[align][convert]") {
+  // Round trip: voxels and spacing identical after conversion (analytic case: the written values).
+  TempDir d;
+  Geometry g = grid(12, 0.0104);
+  Image<uint16_t> v(g);
+  for (int64_t i = 0; i < v.size(); ++i) v[i] = uint16_t((i * 37) % 60000);
+  write_raw(AnyVolume(v), d / "scan.raw", true, 64);
+  RunResult r = run_cli("convert " + d / "scan.raw" + " -o " + d / "scan.mha" +
+                        " --raw-dims 12,12,12 --raw-type uint16 --raw-endian big --raw-header 64 --spacing 0.0104,0.0104,0.0104");
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  AnyVolume got = read_volume(d / "scan.mha");
+  REQUIRE(got.type() == VoxelType::u16);
+  CHECK(got.geometry().spacing_mm[2] == Approx(0.0104));
+  CHECK(std::memcmp(got.raw(), v.data(), got.bytes()) == 0);
+
+  fs::create_directories(d.path / "slices");
+  Geometry g2 = g;
+  g2.dims[2] = 1;
+  for (int64_t z = 0; z < g.dims[2]; ++z) {
+    Image<uint16_t> s(g2);
+    std::memcpy(s.data(), v.slice(z), size_t(g2.voxels()) * sizeof(uint16_t));
+    write_volume(s, (d.path / "slices" / ("s" + std::to_string(100 + z) + ".tif")).string());
+  }
+  // A TIFF folder carries no z spacing: refused without --spacing, naming the input.
+  r = run_cli("convert " + d / "slices" + " -o " + d / "f.nrrd");
+  CHECK(r.exit_code == 2);
+  CHECK(r.err.find("slices") != std::string::npos);
+  CHECK(r.err.find("--spacing") != std::string::npos);
+  r = run_cli("convert " + d / "slices" + " -o " + d / "f.nrrd --spacing 0.0104,0.0104,0.0104");
+  REQUIRE(r.exit_code == 0);
+  got = read_volume(d / "f.nrrd");
+  CHECK(got.geometry().spacing_mm[2] == Approx(0.0104));
+  CHECK(std::memcmp(got.raw(), v.data(), got.bytes()) == 0);
+  // Writers that lose the spacing are refused.
+  for (const char* out : {"x.tif", "x.raw", "x.png"}) {
+    r = run_cli("convert " + d / "scan.mha" + " -o " + d / out);
+    CHECK(r.exit_code == 2);
+    CHECK(r.err.find(out) != std::string::npos);
+    CHECK(!fs::exists(d / out));
+  }
 }
