@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <stdexcept>
 
 namespace pb {
 
@@ -16,9 +17,9 @@ uint64_t Histogram::total() const {
 
 int Histogram::bin_of(double v) const {
   const double f = (v - lo) / (hi - lo) * double(counts.size());
-  if (!(f > 0)) return 0;
-  const int b = int(f);
-  return std::min(b, int(counts.size()) - 1);
+  if (!(f > 0)) return 0;                                         // below lo, -inf, NaN
+  if (!(f < double(counts.size()))) return int(counts.size()) - 1;  // at or above hi, +inf
+  return int(f);
 }
 
 Stats compute_stats(const float* d, int64_t n, const uint8_t* mask) {
@@ -36,8 +37,8 @@ Stats compute_stats(const float* d, int64_t n, const uint8_t* mask) {
     for (int64_t i = 0; i < n; ++i) {
       if (mask && !mask[i]) continue;
       const float v = d[i];
-      if (std::isnan(v)) {
-        ++nn;
+      if (!std::isfinite(v)) {  // NaN and +-inf: counted apart, never in min, max or mean
+        nn += std::isnan(v);
         continue;
       }
       lo = std::min(lo, v);
@@ -69,6 +70,8 @@ Stats compute_stats(const float* d, int64_t n, const uint8_t* mask) {
 }
 
 Histogram compute_histogram(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask) {
+  if (!std::isfinite(lo) || !std::isfinite(hi) || bins < 1)
+    throw std::invalid_argument("compute_histogram: the range must be finite and bins >= 1");
   Histogram h;
   h.lo = lo;
   h.hi = hi > lo ? hi : lo + 1.0;  // a constant volume still gets a valid bin width
@@ -86,8 +89,9 @@ Histogram compute_histogram(const float* d, int64_t n, double lo, double hi, int
       if (mask && !mask[i]) continue;
       const float v = d[i];
       if (std::isnan(v)) continue;
-      float f = (v - flo) * scale;
-      f = std::min(std::max(f, 0.0f), float(last));
+      float f = (v - flo) * scale;  // +-inf stay +-inf (scale is finite and > 0)
+      f = f > 0.0f ? f : 0.0f;       // below lo and -inf: the first bin
+      f = f < float(last) ? f : float(last);  // above hi and +inf: the last bin
       ++c[int(f)];
     }
   }

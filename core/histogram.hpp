@@ -1,7 +1,9 @@
 #pragma once
 // Grey-value histograms and simple statistics over a float volume, optionally inside a mask.
 // Bin i covers [lo + i*w, lo + (i+1)*w) with w = (hi - lo) / bins; the last bin includes hi.
-// NaN voxels are never counted. Parallel with per-thread histograms merged in thread order.
+// NaN voxels are never counted; +-inf voxels fall into the end bins, like any value outside
+// [lo, hi], and are left out of Stats (min, max, mean and count are over finite voxels); any
+// float, and any finite range, is safe. Parallel with per-thread histograms merged in thread order.
 #include <cstdint>
 #include <vector>
 
@@ -24,7 +26,7 @@ struct Histogram {
 struct Stats {
   double min = 0, max = 0, mean = 0;
   int64_t count = 0;      // finite voxels counted
-  int64_t nan_count = 0;
+  int64_t nan_count = 0;  // NaN voxels (+-inf are in neither count)
 };
 
 Stats compute_stats(const float* data, int64_t n, const uint8_t* mask = nullptr);
