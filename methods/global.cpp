@@ -13,10 +13,11 @@
 //     only warned about (a bright tail: no air);
 //   - a method that finds no split (no fixed point, no two modes after smoothing): the same;
 //   - everything outside air after the split (no part voxels): porosity undefined, warned.
-// Integer data (MethodInput::stored_type): when the histogram range spans more grey levels than
-// `bins`, a warning names the bin width in grey levels and the `bins` value that gives one bin per
-// level; when it spans fewer, it warns of the empty-bin comb. The default stays 256 bins (costs
-// and behaviour as before); every run reports chosen["bin_width"] in grey units.
+// Integer data (MethodInput::stored_type): the default bins=auto gives one bin per grey level up
+// to 4096 levels (threshold.hpp). When the user sets bins and the histogram range spans more grey
+// levels than that, a warning names the bin width in grey levels and the `bins` value that gives
+// one bin per level; when it spans fewer, it warns of the empty-bin comb. Every run reports
+// chosen["bin_width"] in grey units and chosen["bins"], the bin count used.
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -515,28 +516,28 @@ Choice percentile(const Histogram& h, const ParamValues& p) {
 
 // --- the shared run --------------------------------------------------------------------------
 
-bool integer_type(VoxelType t) { return t == VoxelType::u8 || t == VoxelType::u16 || t == VoxelType::i16; }
-
 std::string fmt(double v) {
   char b[32];
   std::snprintf(b, sizeof b, "%.6g", v);
   return b;
 }
 
-// Warnings on the resolution of a histogram of integer data (see the file header).
-std::vector<std::string> resolution_warnings(const MethodInput& in, const Histogram& h) {
-  if (!integer_type(in.stored_type)) return {};
-  const double levels = std::floor(h.hi) - std::ceil(h.lo) + 1;
+// Warnings on the resolution of a histogram of integer data with bins set by the user (see the
+// file header); bins=auto is one bin per level where it can be.
+std::vector<std::string> resolution_warnings(const MethodInput& in, const ParamValues& p, const Histogram& h) {
+  if (!integer_type(in.stored_type) || p.is_word("bins")) return {};
+  const double levels = grey_levels(h.lo, h.hi);
   const int bins = h.bins();
+  const std::string one_per_level = levels <= kAutoMaxLevels ? "bins=auto or bins=" + fmt(levels) : "bins=" + fmt(std::min(levels, 65536.0));
   if (levels > bins)
     return {std::string(voxel_type_name(in.stored_type)) + " data span " + fmt(levels) + " grey levels over the histogram range [" +
             fmt(h.lo) + ", " + fmt(h.hi) + "] but bins=" + std::to_string(bins) + ": some bins hold more than one level (bin width " +
-            fmt(h.width()) + " grey levels), so the threshold is resolved to that; set bins=" + fmt(std::min(levels, 65536.0)) +
+            fmt(h.width()) + " grey levels), so the threshold is resolved to that; set " + one_per_level +
             " for one bin per grey level"};
   if (levels >= 2 && levels < bins)
     return {std::string(voxel_type_name(in.stored_type)) + " data span only " + fmt(levels) + " grey levels but bins=" +
             std::to_string(bins) + ": bins are narrower than one grey level and some are empty by construction, which "
-            "misleads peak-based methods; set bins=" + fmt(levels)};
+            "misleads peak-based methods; set " + one_per_level};
   return {};
 }
 
@@ -564,7 +565,7 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
                                   std::move(extra));
   m.run = [calc, shape, name](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
-    std::vector<std::string> warnings = resolution_warnings(in, h);
+    std::vector<std::string> warnings = resolution_warnings(in, p, h);
     Choice c;
     auto no_air = [&](const std::string& why) {
       c = Choice{no_air_threshold(in, h, p), {}};
@@ -598,6 +599,7 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
     }
     MethodOutput out = apply_threshold(in, ThresholdChoice{c.threshold, {}});
     out.chosen.emplace_back("bin_width", h.width());
+    out.chosen.emplace_back("bins", h.bins());
     out.chosen.insert(out.chosen.end(), c.extra.begin(), c.extra.end());
     if (out.part_voxels == 0)
       warnings.push_back(name + ": every voxel is air connected to the outside at threshold " + fmt(c.threshold) +

@@ -107,7 +107,7 @@ MethodInfo region_grow_info() {
     const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
     out.pores = grow_air(in.volume, a.seed, a.limit, in.roi, 6);
     out.part_voxels = air_to_pores(out.pores, in.roi);
-    out.chosen = {{"seed_threshold", a.seed}, {"grow_limit", a.limit}, {"otsu", a.otsu}};
+    out.chosen = {{"seed_threshold", a.seed}, {"grow_limit", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
     return out;
   };
   return m;

@@ -91,7 +91,7 @@ MethodInfo confidence_info() {
         for (int64_t i = 0; i < out.pores.size(); ++i) out.pores[i] &= (*in.roi)[i] != 0;
       out.part_voxels = air_to_pores(out.pores, in.roi);
     }
-    out.chosen = {{"seed_threshold", a.seed}, {"otsu", a.otsu}, {"seeds", double((seeds.size() + step - 1) / step)}};
+    out.chosen = {{"seed_threshold", a.seed}, {"otsu", a.otsu}, {"seeds", double((seeds.size() + step - 1) / step)}, {"bins", h.bins()}};
     return out;
   };
   return m;
@@ -124,7 +124,7 @@ MethodInfo watershed_info() {
     out.pores = Mask(in.volume.geometry());
     for (int64_t i = 0; i < labels.size(); ++i) out.pores[i] = labels[i] == 1 && (!in.roi || (*in.roi)[i]);
     out.part_voxels = air_to_pores(out.pores, in.roi);
-    out.chosen = {{"air_marker_below", a.seed}, {"material_marker_above", a.limit}, {"otsu", a.otsu}};
+    out.chosen = {{"air_marker_below", a.seed}, {"material_marker_above", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
     return out;
   };
   return m;

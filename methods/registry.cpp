@@ -36,7 +36,11 @@ std::string fmt_num(double v) {
 std::string range_text(const ParamSpec& s) {
   switch (s.type) {
     case ParamType::Int:
-    case ParamType::Float: return "[" + fmt_num(s.min) + ", " + fmt_num(s.max) + "]";
+    case ParamType::Float: {
+      std::string out = "[" + fmt_num(s.min) + ", " + fmt_num(s.max) + "]";
+      for (const auto& c : s.choices) out += " or " + c;
+      return out;
+    }
     case ParamType::Bool: return "true or false";
     case ParamType::Enum: {
       std::string out;
@@ -57,6 +61,11 @@ void ParamValues::set(const ParamSpec& s, const std::string& value) {
   switch (s.type) {
     case ParamType::Int:
     case ParamType::Float: {
+      if (std::find(s.choices.begin(), s.choices.end(), value) != s.choices.end()) {
+        text_[s.name] = value;
+        num_.erase(s.name);
+        break;
+      }
       char* end = nullptr;
       const double v = std::strtod(value.c_str(), &end);
       if (value.empty() || end != value.c_str() + value.size() || !std::isfinite(v)) throw bad("not a number:");
@@ -83,9 +92,11 @@ void ParamValues::set(const ParamSpec& s, const std::string& value) {
 
 double ParamValues::num(const std::string& n) const {
   auto it = num_.find(n);
-  if (it == num_.end()) throw std::logic_error("parameter not in schema: " + n);
+  if (it == num_.end())
+    throw std::logic_error("parameter not in schema, or given as a word: " + n);
   return it->second;
 }
+bool ParamValues::is_word(const std::string& n) const { return text_.count(n) && !num_.count(n); }
 int64_t ParamValues::integer(const std::string& n) const { return int64_t(num(n)); }
 bool ParamValues::flag(const std::string& n) const { return num(n) != 0; }
 const std::string& ParamValues::choice(const std::string& n) const {
@@ -127,11 +138,19 @@ std::string join_names(const std::vector<std::string>& names) {
 const MethodInfo& Registry::get(const std::string& name) const {
   if (const auto* m = find(name)) return *m;
   if (name.find('+') != std::string::npos) return compose(name);
-  std::vector<std::string> names;
+  std::vector<std::string> names, filter_names;
   for (const auto& [n, _] : methods_) names.push_back(n);
-  const std::string near = closest_name(name, names);
+  for (const auto& [n, _] : filters_) filter_names.push_back(n);
+  if (find_filter(name))
+    throw InputError("'" + name + "' is a pre-filter, not a method: compose it with one, e.g. '" + name + "+otsu' (" +
+                     kCompositionDoc + ")");
+  std::vector<std::string> both = names;
+  both.insert(both.end(), filter_names.begin(), filter_names.end());
+  std::string near = closest_name(name, both);
+  if (find_filter(near)) near += "+METHOD";
   throw InputError("unknown method '" + name + "'" + (near.empty() ? "" : " (did you mean '" + near + "'?)") +
-                   "; known methods: " + join_names(names));
+                   "; known methods: " + join_names(names) + "; pre-filters: " + join_names(filter_names) + " (" +
+                   kCompositionDoc + ")");
 }
 
 bool Registry::add_filter(FilterInfo f) {

@@ -26,7 +26,7 @@ struct ParamSpec {
   std::string default_value;  // empty = required
   double min = -std::numeric_limits<double>::infinity();
   double max = std::numeric_limits<double>::infinity();
-  std::vector<std::string> choices;  // for Enum
+  std::vector<std::string> choices;  // Enum: the values; Int/Float: words accepted besides a number (e.g. "auto")
   std::string unit;                  // "grey", "voxels", "mm", "%", "" ...
   std::string doc;
 };
@@ -37,7 +37,8 @@ class ParamValues {
   double num(const std::string& name) const;       // Int or Float
   int64_t integer(const std::string& name) const;  // Int
   bool flag(const std::string& name) const;         // Bool
-  const std::string& choice(const std::string& name) const;  // Enum
+  const std::string& choice(const std::string& name) const;  // Enum, or the canonical text of any parameter
+  bool is_word(const std::string& name) const;               // Int/Float given as one of its words
   const std::map<std::string, std::string>& text() const { return text_; }  // canonical strings
   void set(const ParamSpec& spec, const std::string& value);  // validates; throws InputError
 

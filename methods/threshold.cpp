@@ -9,7 +9,10 @@ namespace pb {
 
 std::vector<ParamSpec> histogram_params() {
   return {
-      {"bins", ParamType::Int, "256", 2, 65536, {}, "bins", "number of histogram bins over the grey-value range"},
+      {"bins", ParamType::Int, "auto", 2, 65536, {"auto"}, "bins",
+       "number of histogram bins over the grey-value range; auto = one bin per grey level for integer volumes "
+       "(uint8/uint16/int16) spanning at most " + std::to_string(kAutoMaxLevels) + " levels, else " +
+           std::to_string(kAutoBins) + " (the value used is reported as chosen bins)"},
       {"clip_pct", ParamType::Float, "0", 0, 10, {}, "%",
        "robust range: ignore this percentage at each end of the grey-value distribution (0 = full min..max)"},
       {"histogram", ParamType::Enum, "volume", -1e300, 1e300, {"volume", "roi"}, "",
@@ -18,18 +21,30 @@ std::vector<ParamSpec> histogram_params() {
   };
 }
 
+bool integer_type(VoxelType t) { return t == VoxelType::u8 || t == VoxelType::u16 || t == VoxelType::i16; }
+
+double grey_levels(double lo, double hi) { return std::floor(hi) - std::ceil(lo) + 1; }
+
 Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
   const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
   const Stats s = compute_stats(in.volume.data(), in.volume.size(), roi);
   if (s.count == 0) throw InputError(roi ? "no finite voxels inside the region of interest" : "no finite voxels in the volume");
   double lo = s.min, hi = s.max;
   const double clip = p.num("clip_pct");
+  const bool automatic = p.is_word("bins");
   if (clip > 0 && hi > lo) {
     const Histogram fine = compute_histogram(in.volume.data(), in.volume.size(), lo, hi, 65536, roi);
     lo = histogram_quantile(fine, clip / 100.0);
     hi = histogram_quantile(fine, 1.0 - clip / 100.0);
+    if (automatic && integer_type(in.stored_type)) {  // whole levels at both ends, so that bins fall on levels
+      lo = std::floor(lo);
+      hi = std::ceil(hi);
+    }
   }
-  return compute_histogram(in.volume.data(), in.volume.size(), lo, hi, int(p.integer("bins")), roi);
+  int bins = automatic ? kAutoBins : int(p.integer("bins"));
+  if (automatic && integer_type(in.stored_type) && grey_levels(lo, hi) <= kAutoMaxLevels)
+    bins = std::max(2, int(grey_levels(lo, hi)));
+  return compute_histogram(in.volume.data(), in.volume.size(), lo, hi, bins, roi);
 }
 
 bool single_occupied_bin(const Histogram& h) {

@@ -11,12 +11,23 @@
 
 namespace pb {
 
-// Schema entries every histogram method takes: bins, clip_pct.
+// bins=auto: one bin per grey level for integer data spanning at most kAutoMaxLevels levels
+// (bins = levels over [min, max]: each level in a bin of its own), else kAutoBins.
+inline constexpr int kAutoMaxLevels = 4096;
+inline constexpr int kAutoBins = 256;
+
+// Schema entries every histogram method takes: bins (default auto), clip_pct, histogram.
 std::vector<ParamSpec> histogram_params();
 
-// Histogram of the voxels inside the ROI over [min, max] or, with clip_pct > 0, over the
-// [clip_pct, 100 - clip_pct] percentile range (values outside go to the end bins).
+// Histogram of the voxels of the volume (histogram=volume, the default) or of the ROI
+// (histogram=roi) over [min, max] or, with clip_pct > 0, over the [clip_pct, 100 - clip_pct]
+// percentile range (values outside go to the end bins; with bins=auto on integer data the range
+// is widened to whole grey levels). Its bins() is the resolved bin count.
 Histogram method_histogram(const MethodInput& in, const ParamValues& p);
+
+// Voxel types stored as whole numbers (uint8, uint16, int16), and the grey levels in [lo, hi].
+bool integer_type(VoxelType t);
+double grey_levels(double lo, double hi);
 
 struct ThresholdChoice {
   double threshold = 0;           // grey units: air is v < threshold

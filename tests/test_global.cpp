@@ -223,24 +223,46 @@ TEST_CASE("degenerate input gives a defined result and a warning", "[global][deg
   }
 }
 
-TEST_CASE("integer data spanning more grey levels than bins are warned about, naming bins", "[global][resolution]") {
-  // uint16-like grey values 1000..21000 (20001 levels) in two phases.
+TEST_CASE("integer data: bins=auto gives one bin per grey level up to 4096 levels, a user's bins that split levels are warned about",
+          "[global][resolution]") {
+  // uint16-like grey values 1000..21000 (20001 levels) in two phases: more than 4096 levels.
   VolumeF v(cube(24));
   for (int64_t i = 0; i < v.size(); ++i) v[i] = float((i % 3) == 0 ? 1000 + (i * 7) % 2000 : 15000 + (i * 13) % 6001);
-  const MethodOutput o = run_named("otsu", v, {}, VoxelType::u16);
+  const MethodOutput a = run_named("otsu", v, {}, VoxelType::u16);
+  CHECK(a.warnings.empty());  // auto: 256 bins, the documented choice, reported
+  CHECK(chosen(a, "bins") == 256);
+  CHECK(chosen(a, "bin_width") == Approx(20000.0 / 256));
+  const MethodOutput o = run_named("otsu", v, {"bins=256"}, VoxelType::u16);
   CHECK(has_warning(o, "uint16"));
   CHECK(has_warning(o, "20001 grey levels"));
   CHECK(has_warning(o, "bins=20001"));
-  CHECK(chosen(o, "bin_width") == Approx(20000.0 / 256));
   // One bin per grey level: no warning; stored float: no warning.
   CHECK(run_named("otsu", v, {"bins=20001"}, VoxelType::u16).warnings.empty());
-  CHECK(run_named("otsu", v, {}, VoxelType::f32).warnings.empty());
-  // Fewer levels than bins: the empty-bin comb is named.
+  CHECK(run_named("otsu", v, {"bins=256"}, VoxelType::f32).warnings.empty());
+  // Fewer levels than bins (levels 10..99): auto takes 90 bins, one per level (bin k holds level
+  // 10 + k: the width 89/90 < 1 puts each level in a bin of its own); a user's 256 bins are a comb.
   VolumeF b(cube(24));
   for (int64_t i = 0; i < b.size(); ++i) b[i] = float((i % 3) == 0 ? 10 + i % 20 : 80 + i % 20);
-  const MethodOutput c = run_named("minimum", b, {}, VoxelType::u8);
+  const MethodOutput m = run_named("minimum", b, {}, VoxelType::u8);
+  CHECK(m.warnings.empty());
+  CHECK(chosen(m, "bins") == 90);
+  const Histogram h = compute_histogram(b.data(), b.size(), 10, 99, 90);
+  for (int k = 0; k < 90; ++k) CHECK(h.counts[size_t(k)] == uint64_t(count_nonzero(air_below(b, 10.5 + k, nullptr)) -
+                                                                     count_nonzero(air_below(b, 9.5 + k, nullptr))));
+  const MethodOutput c = run_named("minimum", b, {"bins=256"}, VoxelType::u8);
   CHECK(has_warning(c, "narrower than one grey level"));
-  CHECK(has_warning(c, "bins=90"));  // levels 10..99
+  CHECK(has_warning(c, "bins=auto or bins=90"));
+  // Float data: auto is 256 bins.
+  CHECK(chosen(run_named("otsu", b, {}, VoxelType::f32), "bins") == 256);
+  // With clipping, auto widens the clipped range to whole levels: still one bin per level.
+  const MethodOutput k = run_named("otsu", b, {"clip_pct=1"}, VoxelType::u8);
+  const double range = chosen(k, "bin_width") * chosen(k, "bins");  // hi - lo
+  CHECK(range == Approx(std::round(range)).margin(1e-9));
+  CHECK(chosen(k, "bins") == std::round(range) + 1);
+  // The word is accepted only as documented.
+  const MethodInfo& otsu = Registry::instance().get("otsu");
+  CHECK(parse_params(otsu, {"bins=auto"}).text().at("bins") == "auto");
+  CHECK_THROWS_WITH(parse_params(otsu, {"bins=automatic"}), Catch::Contains("[2, 65536] or auto"));
 }
 
 TEST_CASE("clip_pct keeps the threshold in grey units and ignores outliers", "[global]") {
@@ -282,4 +304,49 @@ TEST_CASE("out-of-range global parameters are rejected before any work, naming t
   const MethodInfo& k = Registry::instance().get("kapur");
   CHECK_THROWS_WITH(parse_params(k, {"bins=1"}), Catch::Contains("bins") && Catch::Contains("[2, 65536]"));
   CHECK_THROWS_WITH(parse_params(k, {"clip_pct=20"}), Catch::Contains("clip_pct"));
+}
+
+TEST_CASE("non-finite voxels cannot crash the histogram path: +-inf go to the end bins, NaN nowhere", "[global][nonfinite]") {
+  // Issue 15: one +inf or -inf voxel made compute_histogram index out of range (SIGSEGV). Analytic
+  // expectation (IEEE 754 ordering): -inf is below every value, +inf above, NaN unordered.
+  VolumeF v = global_test_volumes()[0].volume;  // bimodal
+  const Stats before = compute_stats(v);
+  v[0] = -INFINITY;
+  v[1] = INFINITY;
+  v[2] = NAN;
+  const Stats s = compute_stats(v);
+  CHECK(std::isfinite(s.min));
+  CHECK(std::isfinite(s.max));
+  CHECK(std::isfinite(s.mean));
+  CHECK(s.count == v.size() - 3);
+  CHECK(s.nan_count == 1);
+  CHECK(s.min >= before.min);
+  CHECK(s.max <= before.max);
+  const Histogram h = compute_histogram(v.data(), v.size(), s.min, s.max, 256);
+  CHECK(h.total() == uint64_t(v.size() - 1));  // every voxel but the NaN
+  const Histogram f = compute_histogram(v.data(), v.size(), s.min, s.max, 256);
+  CHECK(h.counts == f.counts);
+  CHECK(h.bin_of(-INFINITY) == 0);
+  CHECK(h.bin_of(INFINITY) == 255);
+  CHECK(h.bin_of(NAN) == 0);
+  CHECK_THROWS(compute_histogram(v.data(), v.size(), -INFINITY, 1.0, 256));
+  // Extreme finite ranges: no overflow into an index out of range.
+  VolumeF w(cube(4));
+  for (int64_t i = 0; i < w.size(); ++i) w[i] = i % 2 ? 3.4e38f : -3.4e38f;
+  w[5] = INFINITY;
+  const Histogram e = compute_histogram(w.data(), w.size(), -3.4e38, 3.4e38, 65536);
+  CHECK(e.total() == uint64_t(w.size()));
+  CHECK(e.counts.front() + e.counts.back() == uint64_t(w.size()));
+  // Every histogram method runs and gives a finite threshold; -inf is air, +inf is not.
+  std::vector<std::string> all = kAutomatic;
+  all.push_back("percentile");
+  for (const auto& m : all) {
+    INFO(m);
+    const MethodOutput o = run_named(m, v);
+    CHECK(std::isfinite(chosen(o, "threshold")));
+    const Mask air = air_below(v, chosen(o, "threshold"), nullptr);
+    CHECK(air[0] == 1);
+    CHECK(air[1] == 0);
+    CHECK(air[2] == 0);
+  }
 }

@@ -2,8 +2,13 @@
 // validates types, ranges and names before any work.
 #include <catch2/catch.hpp>
 
+#include <nlohmann/json.hpp>
+
 #include "core/error.hpp"
 #include "methods/registry.hpp"
+#include "tests/helpers.hpp"
+
+using namespace pbtest;
 
 using namespace pb;
 
@@ -56,4 +61,66 @@ TEST_CASE("parameter parsing validates before any work", "[registry]") {
   CHECK_THROWS_WITH(parse_params(m, {"window"}), Catch::Contains("key=value"));
   CHECK_THROWS_WITH(parse_params(m, {"k=0.1", "k=0.3"}), Catch::Contains("twice"));
   CHECK_THROWS_AS(Registry::instance().get("no-such-method"), InputError);
+}
+
+// Pre-filters are discoverable (issue 10): listed as their own family with doc, citation and
+// schema in `methods` (text and JSON), shown by `describe`, and named with the FILTER+METHOD
+// syntax in an unknown-method error. The five filters (anisotropic diffusion is named "diffusion") are ours to list.
+TEST_CASE("the five pre-filters are listed, described and named in errors, with the composition syntax", "[registry][cli]") {
+  const std::vector<std::string> five = {"median", "gaussian", "nlm", "bilateral", "diffusion"};
+  std::vector<std::string> names;
+  for (const auto* f : Registry::instance().filters()) {
+    INFO(f->name);
+    CHECK_FALSE(f->doc.empty());
+    CHECK_FALSE(f->citation.empty());
+    CHECK(f->apply);
+    for (const auto& p : f->params) CHECK_FALSE(p.doc.empty());
+    names.push_back(f->name);
+  }
+  for (const auto& n : five) CHECK(std::find(names.begin(), names.end(), n) != names.end());
+
+  const auto json = run_cli("methods --json");
+  REQUIRE(json.exit_code == 0);
+  const auto j = nlohmann::json::parse(json.out);
+  REQUIRE(j["filters"].is_array());
+  CHECK(j["filters"].size() == names.size());
+  for (const auto& f : j["filters"]) {
+    INFO(f.dump());
+    CHECK(f["family"] == "pre-filter");
+    CHECK_FALSE(f["doc"].get<std::string>().empty());
+    CHECK_FALSE(f["citation"].get<std::string>().empty());
+    CHECK(f["params"].is_array());
+    CHECK(f["usage"].get<std::string>().find("+METHOD") != std::string::npos);
+  }
+  CHECK(j["composition"].get<std::string>().find("FILTER+METHOD") != std::string::npos);
+  // bins=auto is in the schema, with the word listed as a choice.
+  for (const auto& m : j["methods"])
+    if (m["name"] == "otsu")
+      for (const auto& p : m["params"])
+        if (p["name"] == "bins") {
+          CHECK(p["default"] == "auto");
+          CHECK(p["choices"] == nlohmann::json::array({"auto"}));
+          CHECK(p["doc"].get<std::string>().find("4096") != std::string::npos);
+        }
+
+  const auto text = run_cli("methods");
+  REQUIRE(text.exit_code == 0);
+  CHECK(text.out.find("FILTER+METHOD") != std::string::npos);
+  for (const auto& n : five) CHECK(text.out.find(n + "  [pre-filter]") != std::string::npos);
+
+  const auto median = run_cli("describe median");
+  INFO(median.err);
+  REQUIRE(median.exit_code == 0);
+  CHECK(median.out.find("median  [pre-filter]") != std::string::npos);
+  CHECK(median.out.find("--set median.radius=") != std::string::npos);
+  CHECK(median.out.find("FILTER+METHOD") != std::string::npos);
+  const auto composed = run_cli("describe median+otsu");
+  REQUIRE(composed.exit_code == 0);
+  CHECK(composed.out.find("FILTER+METHOD") != std::string::npos);
+
+  const auto unknown = run_cli("describe nosuch");
+  CHECK(unknown.exit_code == 2);
+  CHECK(unknown.err.find("pre-filters: ") != std::string::npos);
+  CHECK(unknown.err.find("FILTER+METHOD") != std::string::npos);
+  CHECK_THROWS_WITH(Registry::instance().get("median"), Catch::Contains("median+otsu"));
 }
