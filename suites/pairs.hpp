@@ -1,0 +1,57 @@
+#pragma once
+// Paired real scans in a suite: per-file geometry and bringing the reference onto each fast
+// scan's grid (the grid the decision is about). Called by the dataset preparation of the runner.
+// - parse_file_entry: a file of a paired dataset is a path, or a table
+//     { path = "...", spacing_mm = [x, y, z], raw = { dims = [..], type = "uint16",
+//       endian = "little", header_bytes = 0 } }
+//   A TIFF file or folder, or a raw file, without spacing_mm is an input error naming the file.
+// - align_reference: align = "auto" | "markers" | "intensity" registers the reference scan onto
+//   the fast scan (core/registration.hpp) and resamples the reference pores there (nearest
+//   neighbour); "none" keeps the pose, resamples only when the grids differ, and runs the
+//   misalignment alarm (phase correlation, warning above 0.5 voxel with the fix to use).
+//   A registration that does not converge throws RegistrationFailed: reported, never scored.
+#include <nlohmann/json.hpp>
+#include <string>
+#include <toml++/toml.h>
+#include <vector>
+
+#include "core/error.hpp"
+#include "core/io.hpp"
+#include "core/registration.hpp"
+#include "core/volume.hpp"
+
+namespace pb::suite {
+
+struct FileEntry {
+  std::string path;
+  ReadOptions read;
+};
+
+// `n` is a string or a table as above; relative paths resolve against base_dir. Throws InputError
+// naming `where`, the key and the value.
+FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where);
+
+// True for inputs whose voxel size cannot be trusted from the file: TIFF files and folders, raw.
+bool spacing_unknown(const std::string& path);
+
+struct RegistrationFailed : InputError {
+  using InputError::InputError;
+};
+
+enum class AlignMode { none, auto_select, markers, intensity };
+AlignMode parse_align_mode(const std::string& s, const std::string& where);  // InputError naming where
+const char* align_mode_name(AlignMode m);
+
+struct AlignedReference {
+  Mask pores;                      // reference pores on the fast scan's grid
+  nlohmann::ordered_json record;   // "alignment" block for results.json and the report
+  std::vector<std::string> warnings;
+};
+
+// ref_scan may be null when the reference is a mask only (then only align = "none" works and the
+// alarm cannot run). ref_pores lies on ref_scan's grid.
+AlignedReference align_reference(AlignMode mode, const VolumeF& fast, const std::string& fast_name,
+                                 const VolumeF* ref_scan, const std::string& ref_name, const Mask& ref_pores,
+                                 const RegistrationOptions& base = {});
+
+}  // namespace pb::suite
