@@ -6,7 +6,9 @@
 #include <benchmark/benchmark.h>
 
 #include "core/parallel.hpp"
-#include "synthetic/ct.hpp"
+#include "synthetic/ct_phantoms.hpp"
+#include "synthetic/fbp.hpp"
+#include "synthetic/projector.hpp"
 #include "synthetic/scan.hpp"
 
 namespace {

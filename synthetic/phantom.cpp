@@ -272,8 +272,10 @@ double Phantom::closed_pore_volume_mm3() const {
   return v;
 }
 
-Phantom build_phantom(const Recipe& r) {
-  validate(r);
+namespace {
+
+// The phantom without pores: grid (origin at the volume centre), material, shapes and markers.
+Phantom empty_phantom(const Recipe& r) {
   Phantom ph;
   const double s = r.voxel_mm();
   ph.grid.dims = r.dims;
@@ -282,8 +284,13 @@ Phantom build_phantom(const Recipe& r) {
   ph.mu_material = r.material_mu();
   ph.shapes = r.shapes;
   ph.markers = r.markers;
+  return ph;
+}
 
-  // The part must fit the volume with a voxel to spare, or the scan would cut it.
+// The part's bounding box; the part must fit the volume with a voxel to spare, or the scan would
+// cut it.
+std::array<Vec3, 2> part_box(const Recipe& r) {
+  const double s = r.voxel_mm();
   std::array<Vec3, 2> box{Vec3{1e30, 1e30, 1e30}, Vec3{-1e30, -1e30, -1e30}};
   const char* axis = "xyz";
   for (size_t k = 0; k < r.shapes.size(); ++k) {
@@ -298,135 +305,170 @@ Phantom build_phantom(const Recipe& r) {
       box[1][i] = std::max(box[1][i], b[1][i]);
     }
   }
-  // Part volume: analytic for one shape; for a union, counted on a grid of 4 samples per voxel edge.
-  if (r.shapes.size() == 1) {
-    ph.part_volume_mm3 = shape_volume(r.shapes[0]);
-  } else {
-    const int m = 4;
-    const double h = s / m;
-    int64_t count = 0;
-    const int64_t nz = int64_t(std::ceil((box[1][2] - box[0][2]) / h));
-#pragma omp parallel for schedule(static) reduction(+ : count)
-    for (int64_t k = 0; k < nz; ++k)
-      for (double y = box[0][1] + h / 2; y < box[1][1]; y += h)
-        for (double x = box[0][0] + h / 2; x < box[1][0]; x += h)
-          count += ph.part_sdf({x, y, box[0][2] + (k + 0.5) * h}) < 0;
-    ph.part_volume_mm3 = double(count) * h * h * h;
-  }
+  return box;
+}
 
-  Placer pl{ph, r, box, s};
-  for (size_t pi = 0; pi < r.pores.size(); ++pi) {
-    const PorePopulation& q = r.pores[pi];
-    Rng g(mix_seed(r.seed, pi));
-    const double target = q.porosity_pct / 100.0 * ph.part_volume_mm3, tol = 0.02 * target;
+// Part volume: analytic for one shape; for a union, counted on a grid of 4 samples per voxel edge.
+double part_volume(const Phantom& ph, const std::array<Vec3, 2>& box, double s) {
+  if (ph.shapes.size() == 1) return shape_volume(ph.shapes[0]);
+  const int m = 4;
+  const double h = s / m;
+  int64_t count = 0;
+  const int64_t nz = int64_t(std::ceil((box[1][2] - box[0][2]) / h));
+#pragma omp parallel for schedule(static) reduction(+ : count)
+  for (int64_t k = 0; k < nz; ++k)
+    for (double y = box[0][1] + h / 2; y < box[1][1]; y += h)
+      for (double x = box[0][0] + h / 2; x < box[1][0]; x += h)
+        count += ph.part_sdf({x, y, box[0][2] + (k + 0.5) * h}) < 0;
+  return double(count) * h * h * h;
+}
+
+// Draws the pores of population `pi` from its own random stream (sizes, yaw, lobes); the order of
+// the draws is part of the phantom's definition (same seed, same pores).
+struct PoreMaker {
+  const PorePopulation& q;
+  int pi;
+  const std::array<Vec3, 2>& box;
+  Rng& g;
+
+  double diameter_mm() {
     const double med = q.median_diameter_um * 1e-3;
-    auto draw_diameter = [&] {
-      double d;
-      do {
-        d = med * std::exp(q.spread * std::max(-3.0, std::min(3.0, g.normal())));
-      } while (d < q.min_diameter_um * 1e-3);
-      return d;
-    };
-    auto make = [&](const Vec3& c) {
-      Pore p;
-      p.population = int(pi);
-      p.type = q.type;
-      p.centre_mm = c;
-      const double d = draw_diameter();
-      if (q.type == "lack-of-fusion") {
-        p.semi_axes_mm = {d / 2, q.aspect * d / 2, q.thickness_um * 1e-3 / 2};
-        p.yaw_rad = M_PI * g.uniform();
-        // Centred on a layer boundary, counted from the bottom of the part.
-        const double layer = q.layer_um * 1e-3;
-        p.centre_mm[2] = box[0][2] + std::round((c[2] - box[0][2]) / layer) * layer;
-        if (q.shape == "irregular") {
-          // Further lobes (recipe.hpp): size lobe_scale x U(0.5, 1), yaw U(0, pi), centre at
-          // rho = U(0.5, 0.9) of the first lobe's semi-axes in direction psi = U(0, 2 pi), so it lies
-          // inside the first ellipse and the union is one void. Volume integrated on acceptance.
-          const double a = p.semi_axes_mm[0], b = p.semi_axes_mm[1];
-          const double cy = std::cos(p.yaw_rad), sy = std::sin(p.yaw_rad);
-          for (int j = 1; j < q.lobes; ++j) {
-            const double scale = q.lobe_scale * (0.5 + 0.5 * g.uniform());
-            const double yaw = M_PI * g.uniform();
-            const double rho = 0.5 + 0.4 * g.uniform();
-            const double psi = 2 * M_PI * g.uniform();
-            const double lx = rho * a * std::cos(psi), ly = rho * b * std::sin(psi);
-            p.lobes.push_back(Lobe{lx * cy - ly * sy, lx * sy + ly * cy, scale * a, scale * b, yaw});
-          }
-        }
-      } else {
-        p.semi_axes_mm = {d / 2, d / 2, d / 2};
-      }
-      return p;
-    };
-    double placed = 0;
-    int64_t attempts = 0;
-    int n_placed = 0;
-    Vec3 cluster_centre{0, 0, 0};
-    int left_in_cluster = 0;
-    const double sigma_cluster = q.cluster_radius_um * 1e-3 / 2;
-    while (placed < target - tol) {
-      if (++attempts > r.placement_budget) {
-        std::ostringstream os;
-        os << "recipe: pores." << pi << " (" << q.type << "): target porosity " << q.porosity_pct
-           << " % cannot be placed: reached " << std::setprecision(3) << 100.0 * placed / ph.part_volume_mm3
-           << " % with " << n_placed << " pores after " << r.placement_budget
-           << " attempts; lower porosity_pct or the pore size, or raise phantom.placement_budget";
-        throw InputError(os.str());
-      }
-      Vec3 c;
-      if (q.type == "cluster") {
-        if (left_in_cluster <= 0) {
-          cluster_centre = pl.random_point(g);
-          if (ph.part_sdf(cluster_centre) > -sigma_cluster) continue;
-          left_in_cluster = q.pores_per_cluster;
-        }
-        for (int i = 0; i < 3; ++i) c[i] = cluster_centre[i] + sigma_cluster * g.normal();
-      } else {
-        c = pl.random_point(g);
-      }
-      Pore p = make(c);
-      if (!p.lobes.empty()) {
-        // The union volume lies between the largest lobe's and the sum of the lobes' volumes:
-        // integrate it only when those bounds do not settle the porosity check (same decisions).
-        double largest = 0, sum = 0;
-        for (const Lobe& l : p.all_lobes()) {
-          const double vl = 4.0 / 3.0 * M_PI * l.a_mm * l.b_mm * p.semi_axes_mm[2];
-          largest = std::max(largest, vl);
-          sum += vl;
-        }
-        if (placed + largest > target + tol) continue;
-        if (placed + sum > target + tol) p.set_lobes(p.lobes);
-      }
-      if (placed + p.volume_mm3() > target + tol) continue;  // irregular and not integrated: <= sum
-      const double rad = p.bounding_radius_mm();
-      if (ph.part_sdf(p.centre_mm) > -(rad + s) || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p)) {
-        if (q.type == "cluster" && attempts % 50 == 0) left_in_cluster = 0;  // crowded cluster: start another
-        continue;
-      }
-      if (!p.lobes.empty() && p.lobed_volume_mm3 == 0) p.set_lobes(p.lobes);
-      const double v = p.volume_mm3();
-      p.id = int(ph.pores.size()) + 1;
-      ph.pores.push_back(p);
-      placed += v;
-      ++n_placed;
-      --left_in_cluster;
+    double d;
+    do {
+      d = med * std::exp(q.spread * std::max(-3.0, std::min(3.0, g.normal())));
+    } while (d < q.min_diameter_um * 1e-3);
+    return d;
+  }
+  Pore operator()(const Vec3& c) {
+    Pore p;
+    p.population = pi;
+    p.type = q.type;
+    p.centre_mm = c;
+    const double d = diameter_mm();
+    if (q.type == "lack-of-fusion") {
+      p.semi_axes_mm = {d / 2, q.aspect * d / 2, q.thickness_um * 1e-3 / 2};
+      p.yaw_rad = M_PI * g.uniform();
+      // Centred on a layer boundary, counted from the bottom of the part.
+      const double layer = q.layer_um * 1e-3;
+      p.centre_mm[2] = box[0][2] + std::round((c[2] - box[0][2]) / layer) * layer;
+      if (q.shape == "irregular") add_lobes(p);
+    } else {
+      p.semi_axes_mm = {d / 2, d / 2, d / 2};
     }
-    // Open pores: cut by the part surface (centre within half a radius of it).
-    for (int k = 0; k < q.open_count;) {
-      if (++attempts > 2 * r.placement_budget)
-        throw InputError("recipe: pores." + std::to_string(pi) + ".open_count = " + std::to_string(q.open_count) +
-                         ": only " + std::to_string(k) + " open pores could be placed");
-      Pore p = make(pl.random_point(g));
-      const double rad = p.bounding_radius_mm();
-      if (std::abs(ph.part_sdf(p.centre_mm)) > 0.5 * rad || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p))
-        continue;
-      if (!p.lobes.empty()) p.set_lobes(p.lobes);
-      p.open = true;
-      p.id = int(ph.pores.size()) + 1;
-      ph.pores.push_back(p);
-      ++k;
+    return p;
+  }
+  // Further lobes (recipe.hpp): size lobe_scale x U(0.5, 1), yaw U(0, pi), centre at rho =
+  // U(0.5, 0.9) of the first lobe's semi-axes in direction psi = U(0, 2 pi), so it lies inside the
+  // first ellipse and the union is one void. Volume integrated on acceptance.
+  void add_lobes(Pore& p) {
+    const double a = p.semi_axes_mm[0], b = p.semi_axes_mm[1];
+    const double cy = std::cos(p.yaw_rad), sy = std::sin(p.yaw_rad);
+    for (int j = 1; j < q.lobes; ++j) {
+      const double scale = q.lobe_scale * (0.5 + 0.5 * g.uniform());
+      const double yaw = M_PI * g.uniform();
+      const double rho = 0.5 + 0.4 * g.uniform();
+      const double psi = 2 * M_PI * g.uniform();
+      const double lx = rho * a * std::cos(psi), ly = rho * b * std::sin(psi);
+      p.lobes.push_back(Lobe{lx * cy - ly * sy, lx * sy + ly * cy, scale * a, scale * b, yaw});
     }
+  }
+};
+
+// Closed pores of one population until its target porosity is reached (within 2 %); returns the
+// attempts used (the open pores of the population share the budget count).
+int64_t place_closed_pores(Phantom& ph, const Recipe& r, const Placer& pl, int pi, PoreMaker& make, Rng& g) {
+  const PorePopulation& q = r.pores[size_t(pi)];
+  const double s = r.voxel_mm();
+  const double target = q.porosity_pct / 100.0 * ph.part_volume_mm3, tol = 0.02 * target;
+  double placed = 0;
+  int64_t attempts = 0;
+  int n_placed = 0;
+  Vec3 cluster_centre{0, 0, 0};
+  int left_in_cluster = 0;
+  const double sigma_cluster = q.cluster_radius_um * 1e-3 / 2;
+  while (placed < target - tol) {
+    if (++attempts > r.placement_budget) {
+      std::ostringstream os;
+      os << "recipe: pores." << pi << " (" << q.type << "): target porosity " << q.porosity_pct
+         << " % cannot be placed: reached " << std::setprecision(3) << 100.0 * placed / ph.part_volume_mm3
+         << " % with " << n_placed << " pores after " << r.placement_budget
+         << " attempts; lower porosity_pct or the pore size, or raise phantom.placement_budget";
+      throw InputError(os.str());
+    }
+    Vec3 c;
+    if (q.type == "cluster") {
+      if (left_in_cluster <= 0) {
+        cluster_centre = pl.random_point(g);
+        if (ph.part_sdf(cluster_centre) > -sigma_cluster) continue;
+        left_in_cluster = q.pores_per_cluster;
+      }
+      for (int i = 0; i < 3; ++i) c[i] = cluster_centre[i] + sigma_cluster * g.normal();
+    } else {
+      c = pl.random_point(g);
+    }
+    Pore p = make(c);
+    if (!p.lobes.empty()) {
+      // The union volume lies between the largest lobe's and the sum of the lobes' volumes:
+      // integrate it only when those bounds do not settle the porosity check (same decisions).
+      double largest = 0, sum = 0;
+      for (const Lobe& l : p.all_lobes()) {
+        const double vl = 4.0 / 3.0 * M_PI * l.a_mm * l.b_mm * p.semi_axes_mm[2];
+        largest = std::max(largest, vl);
+        sum += vl;
+      }
+      if (placed + largest > target + tol) continue;
+      if (placed + sum > target + tol) p.set_lobes(p.lobes);
+    }
+    if (placed + p.volume_mm3() > target + tol) continue;  // irregular and not integrated: <= sum
+    const double rad = p.bounding_radius_mm();
+    if (ph.part_sdf(p.centre_mm) > -(rad + s) || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p)) {
+      if (q.type == "cluster" && attempts % 50 == 0) left_in_cluster = 0;  // crowded cluster: start another
+      continue;
+    }
+    if (!p.lobes.empty() && p.lobed_volume_mm3 == 0) p.set_lobes(p.lobes);
+    const double v = p.volume_mm3();
+    p.id = int(ph.pores.size()) + 1;
+    ph.pores.push_back(p);
+    placed += v;
+    ++n_placed;
+    --left_in_cluster;
+  }
+  return attempts;
+}
+
+// Open pores of one population: cut by the part surface (centre within half a radius of it).
+void place_open_pores(Phantom& ph, const Recipe& r, const Placer& pl, int pi, PoreMaker& make, Rng& g,
+                      int64_t attempts) {
+  const PorePopulation& q = r.pores[size_t(pi)];
+  for (int k = 0; k < q.open_count;) {
+    if (++attempts > 2 * r.placement_budget)
+      throw InputError("recipe: pores." + std::to_string(pi) + ".open_count = " + std::to_string(q.open_count) +
+                       ": only " + std::to_string(k) + " open pores could be placed");
+    Pore p = make(pl.random_point(g));
+    const double rad = p.bounding_radius_mm();
+    if (std::abs(ph.part_sdf(p.centre_mm)) > 0.5 * rad || !pl.fits_volume(p.centre_mm, rad) || !pl.clear_of_others(p))
+      continue;
+    if (!p.lobes.empty()) p.set_lobes(p.lobes);
+    p.open = true;
+    p.id = int(ph.pores.size()) + 1;
+    ph.pores.push_back(p);
+    ++k;
+  }
+}
+
+}  // namespace
+
+Phantom build_phantom(const Recipe& r) {
+  validate(r);
+  Phantom ph = empty_phantom(r);
+  const std::array<Vec3, 2> box = part_box(r);
+  ph.part_volume_mm3 = part_volume(ph, box, r.voxel_mm());
+  const Placer pl{ph, r, box, r.voxel_mm()};
+  for (size_t pi = 0; pi < r.pores.size(); ++pi) {
+    Rng g(mix_seed(r.seed, pi));
+    PoreMaker make{r.pores[pi], int(pi), box, g};
+    const int64_t attempts = place_closed_pores(ph, r, pl, int(pi), make, g);
+    place_open_pores(ph, r, pl, int(pi), make, g, attempts);
   }
   return ph;
 }

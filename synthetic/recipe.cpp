@@ -12,8 +12,8 @@
 #include <toml++/toml.h>
 
 #include "core/error.hpp"
-#include "synthetic/ct.hpp"
 #include "core/names.hpp"
+#include "synthetic/fbp.hpp"
 
 namespace pb::synth {
 
@@ -550,7 +550,7 @@ void validate(const Recipe& r) {
   if (!(r.angular_blur >= 0 && r.angular_blur <= 1)) bad("scan.angular_blur", "= " + num(r.angular_blur) + " must be in [0, 1]");
   if (r.electronic_noise < 0) bad("scan.electronic_noise", "must be >= 0");
   try {
-    parse_window(r.filter);  // the one list of filters (synthetic/ct.cpp)
+    parse_window(r.filter);  // the one list of filters (synthetic/fbp.cpp)
   } catch (const InputError& e) {
     bad("scan.filter", "= '" + r.filter + "': " + e.what());
   }

@@ -1,8 +1,8 @@
 // Simulated acquisition: exact chords through z-extruded part shapes, ellipsoid cross-sections
 // (an irregular void: the union of its lobes' sections, chord = length of the merged intervals) and
 // marker spheres (Kak & Slaney 1988 ch. 3 for ellipse projections), photon counting noise
-// I = Poisson(I0 exp(-p)) (Beer-Lambert), -log with a noise-free flat field, FBP (ct.hpp).
-// Conventions: see ct.hpp; slices are independent, so everything is parallel over z.
+// I = Poisson(I0 exp(-p)) (Beer-Lambert), -log with a noise-free flat field, FBP (fbp.hpp).
+// Conventions: see ct_geometry.hpp; slices are independent, so everything is parallel over z.
 #include "synthetic/scan.hpp"
 
 #include <algorithm>
@@ -11,6 +11,8 @@
 #include <sstream>
 
 #include "core/error.hpp"
+#include "synthetic/ct_phantoms.hpp"
+#include "synthetic/fbp.hpp"
 
 namespace pb::synth {
 
@@ -160,7 +162,7 @@ int part_intervals(const Scene& sc, double ct, double st, double t, Interval* ou
 }
 
 // An ellipse seen at one angle: the ray origin in the ellipse's scaled frame is linear in t, so
-// each ray costs a quadratic and no trigonometry (same algebra as ellipse_interval in ct.cpp).
+// each ray costs a quadratic and no trigonometry (same algebra as ellipse_interval in ct_phantoms.cpp).
 struct EllipseAtAngle {
   double u0c, u0t, v0c, v0t, ud, vd, A, inv_A;
   int k0, k1;  // bins inside the shadow tc +- w

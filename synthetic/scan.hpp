@@ -9,7 +9,7 @@
 #include <string>
 #include <vector>
 
-#include "synthetic/ct.hpp"
+#include "synthetic/ct_geometry.hpp"
 #include "synthetic/phantom.hpp"
 
 namespace pb::synth {

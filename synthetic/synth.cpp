@@ -1,5 +1,5 @@
 // The synthetic-scan pipeline: recipe -> phantom -> truth -> scans, and the output folder with its
-// manifest. No new physics here (see phantom.cpp, scan.cpp, ct.cpp); conventions: truth labels 0
+// manifest. No new physics here (see phantom.cpp, scan.cpp, projector.cpp, fbp.cpp); conventions: truth labels 0
 // background, 1 material, 2 closed pore; scans in mu (1/mm) unless uint16 is asked for.
 #include "synthetic/synth.hpp"
 

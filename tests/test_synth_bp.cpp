@@ -11,7 +11,9 @@
 #include "core/cpu.hpp"
 #include "core/error.hpp"
 #include "core/parallel.hpp"
-#include "synthetic/ct.hpp"
+#include "synthetic/ct_phantoms.hpp"
+#include "synthetic/fbp.hpp"
+#include "synthetic/projector.hpp"
 
 using namespace pb;
 using namespace pb::synth;

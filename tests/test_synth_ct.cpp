@@ -6,7 +6,9 @@
 #include <numeric>
 
 #include "core/error.hpp"
-#include "synthetic/ct.hpp"
+#include "synthetic/ct_phantoms.hpp"
+#include "synthetic/fbp.hpp"
+#include "synthetic/projector.hpp"
 #include "synthetic/scan.hpp"
 #include "tests/helpers.hpp"
 
