@@ -1,5 +1,6 @@
-// porebench synth (--preset NAME | RECIPE.toml) -o DIR [--set key=value]...: a porous phantom with
-// exact truth and simulated CT scans of it at several projection counts (and doses).
+// porebench synth (--preset NAME | RECIPE.toml) (-o DIR | --print-recipe) [--set key=value]...: a
+// porous phantom with exact truth and simulated CT scans of it at several projection counts (and
+// doses).
 #include <iostream>
 #include <memory>
 
@@ -21,8 +22,12 @@ Action setup_synth(CLI::App& app) {
   };
   auto a = std::make_shared<Args>();
   app.add_option("RECIPE", a->recipe, "recipe TOML file (or use --preset)");
-  app.add_option("--preset", a->preset, "built-in recipe: demo-small (96^3, seconds) or gear-blank (256^3)");
-  app.add_option("-o,--output", a->out, "output folder")->required();
+  std::string names;
+  for (const std::string& n : synth::preset_names()) names += (names.empty() ? "" : ", ") + n;
+  app.add_option("--preset", a->preset,
+                 "built-in recipe (synthetic/presets/NAME.toml, built into the binary): " + names +
+                     "; demo-small takes seconds");
+  app.add_option("-o,--output", a->out, "output folder (not needed with --print-recipe)");
   app.add_option("--set", a->sets, "recipe override key=value, e.g. seed=3, scan.i0=1e4,4e4 (repeatable)");
   app.add_option("--projections", a->projections, "projection counts of the scans, e.g. 800,400,200")->delimiter(',');
   app.add_option("--i0", a->i0, "photons per detector bin and projection; several give a dose series")->delimiter(',');
@@ -44,6 +49,7 @@ Action setup_synth(CLI::App& app) {
       std::cout << synth::to_toml(r);
       return 0;
     }
+    if (a->out.empty()) throw InputError("synth: give the output folder with -o DIR (or --print-recipe)");
     synth::WriteSynthOptions o;
     o.compress = a->compress;
     o.progress = [](const std::string& m) { log("synth: " + m); };
@@ -56,6 +62,6 @@ Action setup_synth(CLI::App& app) {
 
 }  // namespace
 
-PB_REGISTER_COMMAND("synth", 30, setup_synth);
+PB_REGISTER_COMMAND("synth", 35, setup_synth);
 
 }  // namespace pb::cli

@@ -1,9 +1,10 @@
-// Recipe parsing, overrides, presets and validation for synthetic scans. TOML through toml++; every
-// key is checked (unknown keys are errors with the closest known key), and to_toml writes every
-// value so that recipe.toml reproduces a run. Material attenuation defaults are from memory of the
-// NIST XCOM mass attenuation tables, marked below.
+// Recipe parsing, overrides, presets (synthetic/presets/*.toml, embedded at build time) and
+// validation for synthetic scans. TOML through toml++; every key is checked (unknown keys are errors
+// with the closest known key), and to_toml writes every value so that recipe.toml reproduces a run.
+// Material attenuation defaults are from memory of the NIST XCOM mass attenuation tables, marked below.
 #include "synthetic/recipe.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <iomanip>
@@ -14,6 +15,7 @@
 #include "core/error.hpp"
 #include "core/names.hpp"
 #include "synthetic/fbp.hpp"
+#include "synthetic/presets.hpp"
 
 namespace pb::synth {
 
@@ -296,94 +298,22 @@ void insert_path(toml::table& root, const std::string& key, toml::node&& value, 
   t->insert_or_assign(parts.back(), std::move(value));
 }
 
-// Presets (invented scenario: a workshop qualifying a faster scan recipe for glass-filled polyamide
-// gear blanks).
-const char* kDemoSmall = R"(
-name = "demo-small"
-seed = 7
-[phantom]
-dims = [96, 96, 96]
-voxel_size_um = 10.0
-material = "pa-gf30"
-[[phantom.shape]]
-kind = "gear-blank"
-radius_mm = 0.40
-bore_radius_mm = 0.12
-height_mm = 0.80
-[[pores]]
-type = "gas"
-porosity_pct = 1.0
-median_diameter_um = 45.0
-spread = 0.35
-min_diameter_um = 15.0
-[[pores]]
-type = "lack-of-fusion"
-porosity_pct = 0.3
-median_diameter_um = 120.0
-spread = 0.25
-thickness_um = 25.0
-aspect = 0.6
-layer_um = 100.0
-[scan]
-projections = [200, 100, 50]
-reference_projections = 400
-i0 = [200000.0]
-)";
-
-const char* kGearBlank = R"(
-name = "gear-blank"
-seed = 11
-[phantom]
-dims = [256, 256, 256]
-voxel_size_um = 10.0
-material = "pa-gf30"
-[[phantom.shape]]
-kind = "gear-blank"
-radius_mm = 1.05
-bore_radius_mm = 0.35
-height_mm = 2.2
-[[phantom.marker]]
-centre_mm = [1.15, 0.75, 0.0]
-radius_mm = 0.06
-mu_per_mm = 0.47
-[[pores]]
-type = "gas"
-porosity_pct = 0.8
-median_diameter_um = 40.0
-spread = 0.4
-min_diameter_um = 12.0
-[[pores]]
-type = "lack-of-fusion"
-porosity_pct = 0.4
-median_diameter_um = 150.0
-spread = 0.3
-thickness_um = 25.0
-aspect = 0.5
-layer_um = 100.0
-[[pores]]
-type = "cluster"
-porosity_pct = 0.2
-median_diameter_um = 30.0
-spread = 0.3
-pores_per_cluster = 10
-cluster_radius_um = 120.0
-open_count = 6
-[scan]
-projections = [1500, 800, 400, 200, 100]
-reference_projections = 3000
-i0 = [200000.0]
-)";
-
 }  // namespace
 
-std::vector<std::string> preset_names() { return {"demo-small", "gear-blank"}; }
+std::vector<std::string> preset_names() {
+  std::vector<std::string> names;
+  for (const EmbeddedPreset& p : embedded_presets()) names.push_back(p.name);
+  return names;
+}
 
 Recipe preset(const std::string& name) {
-  if (name == "demo-small") return parse_recipe(kDemoSmall, "preset demo-small");
-  if (name == "gear-blank") return parse_recipe(kGearBlank, "preset gear-blank");
+  for (const EmbeddedPreset& p : embedded_presets())
+    if (name == p.name) return parse_recipe(p.toml, "preset " + name + " (synthetic/presets/" + name + ".toml)");
   const auto names = preset_names();
+  std::string list;
+  for (const std::string& n : names) list += (list.empty() ? "" : ", ") + n;
   const std::string near = closest_name(name, names);
-  throw InputError("--preset '" + name + "' is not known; presets: demo-small, gear-blank" +
+  throw InputError("--preset '" + name + "' is not known; presets: " + list +
                    (near.empty() ? "" : " (did you mean " + near + "?)"));
 }
 

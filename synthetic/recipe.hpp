@@ -94,7 +94,8 @@ struct Recipe {
   bool operator==(const Recipe& o) const;
 };
 
-// Built-in presets by name ("demo-small", "gear-blank"); throws InputError listing the names.
+// Built-in presets by name: the files synthetic/presets/NAME.toml (demo-small, gear-blank, ...),
+// embedded at build time (presets.hpp); throws InputError listing the names. Names sorted.
 Recipe preset(const std::string& name);
 std::vector<std::string> preset_names();
 

@@ -3,6 +3,7 @@
 #include <catch2/catch.hpp>
 #include <algorithm>
 #include <cmath>
+#include <fstream>
 #include <nlohmann/json.hpp>
 #include <sstream>
 
@@ -12,6 +13,7 @@
 #include "tests/helpers.hpp"
 
 using pbtest::run_cli;
+using pbtest::run_shell;
 using pbtest::TempDir;
 namespace fs = std::filesystem;
 
@@ -243,4 +245,32 @@ TEST_CASE("synth bad input exits 2 naming the field", "[synth][cli]") {
   CHECK(r.exit_code == 2);
   CHECK(r.err.find("demo-small") != std::string::npos);
   CHECK(run_cli("synth " + d / "missing.toml -o " + d / "x").exit_code == 2);
+}
+
+TEST_CASE("presets are the files synthetic/presets/*.toml, built in, found from any working folder", "[synth][cli]") {
+  // Issue 18: the presets moved from strings in recipe.cpp to files embedded at build time.
+  const fs::path dir = fs::path(PB_SOURCE_DIR) / "synthetic" / "presets";
+  std::vector<std::string> files;
+  for (const auto& e : fs::directory_iterator(dir))
+    if (e.path().extension() == ".toml") files.push_back(e.path().stem().string());
+  std::sort(files.begin(), files.end());
+  CHECK(pb::synth::preset_names() == files);
+  CHECK(std::find(files.begin(), files.end(), "demo-small") != files.end());
+  TempDir d;
+  for (const std::string& name : files) {
+    INFO(name);
+    std::ifstream f(dir / (name + ".toml"));
+    std::stringstream text;
+    text << f.rdbuf();
+    const pb::synth::Recipe from_file = pb::synth::parse_recipe(text.str(), name);
+    CHECK(pb::synth::preset(name) == from_file);
+    // From a folder that holds nothing, without -o: --print-recipe needs no output folder.
+    const auto r = run_shell("cd " + d.path.string() + " && " + PB_CLI_PATH + " synth --preset " + name + " --print-recipe");
+    INFO(r.err);
+    REQUIRE(r.exit_code == 0);
+    CHECK(pb::synth::parse_recipe(r.out, "printed") == from_file);
+  }
+  const auto r = run_cli("synth --preset demo-small");  // neither -o nor --print-recipe
+  CHECK(r.exit_code == 2);
+  CHECK(r.err.find("-o") != std::string::npos);
 }
