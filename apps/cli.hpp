@@ -38,6 +38,7 @@ struct ReadArgs {
   std::string raw_endian = "little";
   uint64_t raw_header = 0;
   std::vector<double> spacing;
+  bool allow_nonfinite = false;
   void add_to(CLI::App* cmd);
   ReadOptions options(const std::string& input) const;  // validates; throws InputError
 };

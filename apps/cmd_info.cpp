@@ -21,7 +21,10 @@ Action setup_info(CLI::App& app) {
   app.add_option("FILE", a->input, "volume file or folder of TIFF slices")->required();
   a->read.add_to(&app);
   return [a] {
-    const AnyVolume v = read_volume(a->input, a->read.options(a->input));
+    ReadOptions ro = a->read.options(a->input);
+    NonFinite nf;
+    ro.nonfinite_out = &nf;
+    const AnyVolume v = read_volume(a->input, ro);
     const Geometry& g = v.geometry();
     const VolumeF f = v.to_float();
     const Stats s = compute_stats(f);
@@ -34,7 +37,7 @@ Action setup_info(CLI::App& app) {
               << "size      " << g.dims[0] * g.spacing_mm[0] << " x " << g.dims[1] * g.spacing_mm[1] << " x "
               << g.dims[2] * g.spacing_mm[2] << " mm\n"
               << "values    min " << s.min << "  max " << s.max << "  mean " << s.mean << '\n';
-    if (s.nan_count) std::cout << "nan       " << s.nan_count << " voxels are NaN\n";
+    if (nf.total()) std::cout << "nonfinite " << nf.text() << ", all read as NaN (--allow-nonfinite)\n";
     // A compact histogram: 32 bins as a bar of eighth-blocks, log-scaled counts.
     const Histogram h = compute_histogram(f.data(), f.size(), s.min, s.max, 32);
     static const char* blocks[] = {" ", "\u2581", "\u2582", "\u2583", "\u2584", "\u2585", "\u2586", "\u2587", "\u2588"};

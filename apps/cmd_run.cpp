@@ -9,6 +9,7 @@
 #include "apps/cli.hpp"
 #include "core/error.hpp"
 #include "report/reporter.hpp"
+#include "suites/preflight.hpp"
 #include "suites/results.hpp"
 #include "suites/runner.hpp"
 
@@ -42,7 +43,8 @@ Action setup_run(CLI::App& app) {
       o.shard_index = k - 1;
       o.shard_count = n;
     }
-    const suite::Suite s = suite::load_suite(a->suite);
+    const suite::Suite s = suite::load_suite_checked(a->suite);
+    const FolderLock lock(a->out, "run " + a->suite);  // one run per folder
     const suite::RunSummary r = suite::run_suite(s, o);
     std::cout << "porebench run: " << r.cells_run << " cells run, " << r.cells_skipped << " already done, " << r.cells_failed
               << " failed, of " << r.cells_total << " (" << r.datasets_prepared << " of " << s.datasets.size()
@@ -69,6 +71,8 @@ Action setup_report(CLI::App& app) {
                  "also write the machine-independent record of the run (the committed regression reference)");
   return [a] {
     if (!a->record.empty()) check_writable(a->record);
+    suite::load_suite_record(a->dir);  // a missing folder or record is named before the lock
+    const FolderLock lock(a->dir, "report " + a->dir);
     const bool ok = report::write_results(a->dir);
     std::cout << "wrote " << a->dir << "/: " << report::report_files_text() << '\n';
     if (!a->record.empty()) {

@@ -1,14 +1,17 @@
 // porebench segment METHOD INPUT -o OUT: one method on one volume; writes the pore mask (uint8,
 // 1 = pore) and optionally a JSON record of what the method chose.
 #include <cmath>
+#include <filesystem>
 #include <iostream>
 #include <memory>
+#include <optional>
 #include <nlohmann/json.hpp>
 
 #include "apps/cli.hpp"
 #include "core/context.hpp"
 #include "core/error.hpp"
 #include "core/histogram.hpp"
+#include "core/io_atomic.hpp"
 #include "core/sha256.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"
@@ -31,16 +34,26 @@ Action setup_segment(CLI::App& app) {
   app.add_option("--set", a->sets, "method parameter key=value (repeatable)");
   app.add_option("--roi", a->roi, "part mask: only voxels inside (non-zero) are classified");
   app.add_option("--json", a->json, "write what the method chose, its runtime and counts as JSON");
-  app.add_flag("--allow-nan", a->allow_nan, "accept NaN voxels (they are never called air)");
+  app.add_flag("--allow-nan", a->allow_nan, "same as --allow-nonfinite (kept for old scripts)");
   app.add_flag("--compress", a->compress, "compress the output mask");
   a->read.add_to(&app);
   return [a] {
     // Validate everything that can be validated before any work.
     const MethodInfo& m = Registry::instance().get(a->method);
     const ParamValues params = parse_params(m, a->sets);
-    check_writable(a->output);
+    check_volume_output(a->output);
     if (!a->json.empty()) check_writable(a->json);
-    const ReadOptions ro = a->read.options(a->input);
+    if (!a->json.empty() && std::filesystem::absolute(a->json) == std::filesystem::absolute(a->output))
+      throw InputError("--json " + a->json + " is the same file as -o " + a->output);
+    ReadOptions ro = a->read.options(a->input);
+    ro.allow_nonfinite = ro.allow_nonfinite || a->allow_nan;
+    // The part mask first: it is small, and an empty or mismatched one is known before any work.
+    Mask roi;
+    if (!a->roi.empty()) {
+      roi = read_volume(a->roi).to_mask();
+      if (count_nonzero(roi) == 0)
+        throw InputError("ROI " + a->roi + " is empty: it has no non-zero voxel, so no voxel would be classified");
+    }
 
     AnyVolume raw = read_volume(a->input, ro);
     const Geometry geometry = raw.geometry();
@@ -48,16 +61,7 @@ Action setup_segment(CLI::App& app) {
     const std::string input_sha = a->json.empty() ? std::string() : sha256_hex(raw.raw(), raw.bytes());
     VolumeF vol = raw.to_float();
     raw = AnyVolume();  // the float copy is all that is needed from here on
-    const Stats st = compute_stats(vol);
-    if (st.nan_count > 0 && !a->allow_nan)
-      throw InputError("input " + a->input + " has " + std::to_string(st.nan_count) +
-                       " NaN voxels; pass --allow-nan to accept them (NaN is never air)");
-    Mask roi;
-    if (!a->roi.empty()) {
-      const AnyVolume r = read_volume(a->roi);
-      check_same_geometry(geometry, a->input, r.geometry(), a->roi);
-      roi = r.to_mask();
-    }
+    if (!a->roi.empty()) check_same_geometry(geometry, a->input, roi.geometry(), a->roi);
     MethodInput in{vol, a->roi.empty() ? nullptr : &roi, stored_type};
     MethodOutput out = run_method(m, params, in);
     for (const auto& w : out.warnings) log("porebench: warning: " + w);
@@ -87,8 +91,15 @@ Action setup_segment(CLI::App& app) {
       j["output"] = a->output;
       json_text = j.dump(2) + "\n";
     }
+    // Both or neither: the JSON goes to its temporary first, the mask is written (and committed),
+    // then the JSON is renamed; a failure before that removes the JSON temporary.
+    std::optional<AtomicOutput> json_out;
+    if (!json_text.empty()) {
+      json_out.emplace(a->json);
+      write_text_to(*json_out, json_text);
+    }
     write_volume(out.pores, a->output, wo);
-    if (!json_text.empty()) write_text_atomic(a->json, json_text);
+    if (json_out) json_out->commit(json_text.size());
     std::cout << m.name << ": ";
     for (const auto& [k, v] : out.chosen) std::cout << k << " " << v << "  ";
     std::cout << "pores " << pore_voxels << " voxels of " << out.part_voxels << " part voxels, porosity "

@@ -4,6 +4,8 @@
 #include <cstdio>
 #include <fstream>
 #include <iostream>
+#include <new>
+#include <stdexcept>
 
 #include "apps/cli.hpp"
 #include "build_info.hpp"
@@ -39,10 +41,14 @@ void ReadArgs::add_to(CLI::App* cmd) {
   cmd->add_option("--spacing", spacing, "voxel size x,y,z in mm (required for raw; overrides the file)")
       ->delimiter(',')
       ->expected(3);
+  cmd->add_flag("--allow-nonfinite", allow_nonfinite,
+                "accept NaN and +-Inf voxels in float input: they are set to NaN, never called air and left out "
+                "of statistics and histograms (refused with their count otherwise)");
 }
 
 ReadOptions ReadArgs::options(const std::string& input) const {
   ReadOptions o;
+  o.allow_nonfinite = allow_nonfinite;
   const bool raw = !raw_dims.empty() || !raw_type.empty();
   if (!spacing.empty()) o.spacing_mm = std::array<double, 3>{spacing[0], spacing[1], spacing[2]};
   if (raw) {
@@ -110,6 +116,14 @@ int main(int argc, char** argv) {
   } catch (const CriteriaFailed& e) {
     std::cerr << "porebench: " << e.what() << '\n';
     return kExitCriteria;
+  } catch (const std::bad_alloc&) {
+    // The size checks come first (core/memory.hpp); this is the last guard.
+    std::cerr << "porebench: error: out of memory: the request does not fit this machine (lower the sizes, or "
+                 "set PB_MEMORY_BUDGET_MB)\n";
+    return kExitBadInput;
+  } catch (const std::length_error& e) {
+    std::cerr << "porebench: error: a size is too large: " << e.what() << '\n';
+    return kExitBadInput;
   } catch (const std::exception& e) {
     std::cerr << "porebench: internal error: " << e.what() << '\n';
     return kExitInternal;

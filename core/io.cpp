@@ -1,16 +1,29 @@
 #include "core/io.hpp"
 
+#include "core/io_atomic.hpp"
+
+#include <fcntl.h>
+#include <signal.h>
+#include <sys/file.h>
+#include <sys/stat.h>
+#include <sys/statvfs.h>
 #include <unistd.h>
 
 #include <algorithm>
 #include <atomic>
 #include <cstdio>
+#include <cmath>
 #include <cstring>
+#include <ctime>
+#include <limits>
 #include <filesystem>
 #include <fstream>
+#include <regex>
 #include <sstream>
 
 #include "core/error.hpp"
+#include "core/io_header.hpp"
+#include "core/memory.hpp"
 
 namespace fs = std::filesystem;
 
@@ -74,7 +87,9 @@ AnyVolume read_raw(const std::string& path, const RawSpec& spec) {
   g.dims = spec.dims;
   g.spacing_mm = spec.spacing_mm;
   const int width = voxel_type_bytes(spec.type);
-  const uint64_t expected = spec.header_bytes + uint64_t(g.voxels()) * uint64_t(width);
+  const uint64_t data_bytes =
+      saturating_product({uint64_t(spec.dims[0]), uint64_t(spec.dims[1]), uint64_t(spec.dims[2]), uint64_t(width)});
+  const uint64_t expected = data_bytes > UINT64_MAX - spec.header_bytes ? UINT64_MAX : spec.header_bytes + data_bytes;
   if (actual != expected) {
     std::ostringstream s;
     s << "raw file " << path << (actual < expected ? " is truncated" : " is larger than its geometry") << ": expected "
@@ -83,8 +98,10 @@ AnyVolume read_raw(const std::string& path, const RawSpec& spec) {
       << actual << "; check the raw dims, voxel type and header bytes";
     throw InputError(s.str());
   }
-  AnyVolume v = allocate(spec.type, g);
+  check_memory(data_bytes, "raw file " + path);
   std::ifstream in(path, std::ios::binary);
+  if (!in) throw InputError("cannot read " + path + ": " + std::strerror(errno));
+  AnyVolume v = allocate(spec.type, g);
   in.seekg(std::streamoff(spec.header_bytes));
   in.read(static_cast<char*>(v.raw()), std::streamsize(v.bytes()));
   if (!in) throw InputError("cannot read " + path + ": short read");
@@ -96,8 +113,35 @@ std::atomic<unsigned> g_tmp_counter{0};
 
 }  // namespace
 
+std::string NonFinite::text() const {
+  std::ostringstream s;
+  s << total() << " non-finite voxel" << (total() == 1 ? "" : "s") << " (" << nan << " NaN, " << pos_inf << " +Inf, "
+    << neg_inf << " -Inf)";
+  return s.str();
+}
+
+NonFinite count_nonfinite(const AnyVolume& v) {
+  NonFinite r;
+  if (v.type() != VoxelType::f32) return r;
+  const float* d = static_cast<const float*>(v.raw());
+  const int64_t n = v.geometry().voxels();
+  int64_t nan = 0, pos = 0, neg = 0;
+#pragma omp parallel for schedule(static) reduction(+ : nan, pos, neg)
+  for (int64_t i = 0; i < n; ++i) {
+    const float x = d[i];
+    if (x != x) ++nan;
+    else if (x == std::numeric_limits<float>::infinity()) ++pos;
+    else if (x == -std::numeric_limits<float>::infinity()) ++neg;
+  }
+  r.nan = nan, r.pos_inf = pos, r.neg_inf = neg;
+  return r;
+}
+
 AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
-  if (!fs::exists(path)) throw InputError("input file not found: " + path);
+  std::error_code ec;
+  if (!fs::exists(path, ec)) throw InputError("input file not found: " + path);
+  if (::access(path.c_str(), R_OK) != 0)
+    throw InputError("cannot read " + path + ": " + std::strerror(errno));
   AnyVolume v;
   if (opt.raw) {
     v = read_raw(path, *opt.raw);
@@ -107,6 +151,7 @@ AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
     const std::string ext = lower_extension(path);
     if (ext == ".raw" || ext == ".bin" || ext == ".vol")
       throw InputError("input " + path + " is a raw file: give its geometry (--raw-dims, --raw-type, ...)");
+    if (has_checked_header(path)) check_volume_file(path);  // our header and size checks first
     v = detail::itk_read(path);
   }
   if (opt.spacing_mm) {
@@ -118,18 +163,61 @@ AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
     if (!(v.geometry().spacing_mm[i] > 0))
       throw InputError("input " + path + " has non-positive spacing " + std::to_string(v.geometry().spacing_mm[i]) +
                        " along " + "xyz"[i] + "; give the spacing explicitly");
+  const NonFinite nf = count_nonfinite(v);
+  if (opt.nonfinite_out) *opt.nonfinite_out = nf;
+  if (nf.total() > 0) {
+    if (!opt.allow_nonfinite)
+      throw InputError("input " + path + " has " + nf.text() + " of " + std::to_string(v.geometry().voxels()) +
+                       "; pass --allow-nonfinite to accept them (they are then treated as NaN: never air, left out of "
+                       "histograms and statistics)");
+    float* d = static_cast<float*>(v.raw());
+    const int64_t n = v.geometry().voxels();
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < n; ++i)
+      if (std::isinf(d[i])) d[i] = std::numeric_limits<float>::quiet_NaN();
+  }
   return v;
 }
 
-void write_volume(const void* data, VoxelType type, const Geometry& g, const std::string& path,
-                  const WriteOptions& opt) {
+void check_volume_output(const std::string& path) {
   const std::string ext = lower_extension(path);
   if (ext == ".mhd" || ext == ".nhdr")
     throw InputError("output " + path + ": detached-header formats are not written; use .mha or .nrrd");
   if (ext != ".mha" && ext != ".nrrd" && ext != ".nii" && ext != ".nii.gz" && ext != ".tif" && ext != ".tiff")
     throw InputError("output " + path + ": unsupported extension '" + ext + "' (use .mha or .nrrd)");
+  check_writable(path);
+}
+
+void write_volume(const void* data, VoxelType type, const Geometry& g, const std::string& path,
+                  const WriteOptions& opt) {
+  check_volume_output(path);
+  for (int i = 0; i < 3; ++i)
+    if (g.dims[i] < 1 || g.dims[i] > (int64_t(1) << 31) - 1)
+      throw InputError("output " + path + ": cannot write dims " + std::to_string(g.dims[i]) + " along " + "xyz"[i]);
   AtomicOutput out(path);
+  // Refuse up front when even the uncompressed voxels cannot fit.
+  const uint64_t raw_bytes = saturating_product({uint64_t(g.dims[0]), uint64_t(g.dims[1]), uint64_t(g.dims[2]),
+                                                 uint64_t(voxel_type_bytes(type))});
+  const uint64_t free_b = free_bytes_at(out.tmp_path());
+  if (!opt.compress && free_b < raw_bytes)
+    throw InputError("cannot write " + path + ": No space left on device (" + std::to_string(raw_bytes) +
+                     " bytes of voxels, " + std::to_string(free_b) + " bytes free)");
   detail::itk_write(data, type, g, out.tmp_path(), opt.compress);
+  // ITK does not report every failed write (a full disk leaves a short file): check what was
+  // written with our own header and size checks before it gets its final name.
+  if (has_checked_header(path)) {
+    try {
+      const VolumeHeader h = check_volume_file(out.tmp_path());
+      if (h.dims[0] != g.dims[0] || h.dims[1] != g.dims[1] || h.dims[2] != g.dims[2])
+        throw InputError("the written header has other dims");
+    } catch (const InputError& e) {
+      const std::string cause = free_bytes_at(out.tmp_path()) == 0 ? "No space left on device" : "the written file is incomplete";
+      throw InputError("cannot write " + path + ": " + cause + " (" + e.what() + ")");
+    }
+    std::error_code ec;
+    out.commit(fs::file_size(out.tmp_path(), ec));  // verified above
+    return;
+  }
   out.commit();
 }
 
@@ -142,9 +230,10 @@ void write_raw(const AnyVolume& v, const std::string& path, bool big_endian, uin
     std::vector<char> buf(static_cast<const char*>(v.raw()), static_cast<const char*>(v.raw()) + v.bytes());
     if (big_endian == host_is_little_endian()) swap_bytes(buf.data(), size_t(v.geometry().voxels()), voxel_type_bytes(v.type()));
     f.write(buf.data(), std::streamsize(buf.size()));
-    if (!f) throw InputError("cannot write " + path);
+    f.close();
+    if (!f) throw InputError("cannot write " + path + ": " + std::strerror(errno));
   }
-  out.commit();
+  out.commit(header_bytes + v.bytes());
 }
 
 void check_writable(const std::string& path) {
@@ -155,15 +244,103 @@ void check_writable(const std::string& path) {
   if (fs::is_directory(p)) throw InputError("output " + path + " is a folder, expected a file name");
 }
 
+void prepare_output_folder(const std::string& dir) {
+  std::error_code ec;
+  if (fs::exists(dir, ec) && !fs::is_directory(dir, ec))
+    throw InputError("output folder " + dir + " is an existing file; give a folder name (-o)");
+  fs::create_directories(dir, ec);
+  if (ec) throw InputError("cannot create output folder " + dir + ": " + ec.message());
+  if (::access(dir.c_str(), W_OK) != 0)
+    throw InputError("output folder " + dir + " is not writable: " + std::strerror(errno));
+}
+
 void write_text_atomic(const std::string& path, const std::string& text) {
   AtomicOutput out(path);
-  {
-    std::ofstream f(out.tmp_path(), std::ios::binary);
-    f << text;
-    f.flush();
-    if (!f) throw InputError("cannot write " + path);
+  write_text_to(out, text);
+  out.commit(text.size());
+}
+
+void write_text_to(const AtomicOutput& out, const std::string& text) {
+  const std::string& path = out.final_path();
+  const int fd = ::open(out.tmp_path().c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
+  if (fd < 0) throw InputError("cannot write " + path + ": " + std::strerror(errno));
+  size_t done = 0;
+  while (done < text.size()) {
+    const ssize_t w = ::write(fd, text.data() + done, text.size() - done);
+    if (w < 0 && errno == EINTR) continue;
+    if (w <= 0) {
+      const int err = w < 0 ? errno : ENOSPC;
+      ::close(fd);
+      throw InputError("cannot write " + path + ": " + std::strerror(err));
+    }
+    done += size_t(w);
   }
-  out.commit();
+  if (::close(fd) != 0) throw InputError("cannot write " + path + ": " + std::strerror(errno));
+}
+
+FolderLock::FolderLock(const std::string& dir, const std::string& command) {
+  prepare_output_folder(dir);
+  const std::string path = (fs::path(dir) / ".porebench.lock").string();
+  fd_ = ::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  if (fd_ < 0) throw InputError("cannot lock output folder " + dir + ": " + path + ": " + std::strerror(errno));
+  if (::flock(fd_, LOCK_EX | LOCK_NB) != 0) {
+    const int err = errno;
+    std::string holder(512, '\0');
+    const ssize_t n = ::pread(fd_, holder.data(), holder.size(), 0);
+    holder.resize(n > 0 ? size_t(n) : 0);
+    while (!holder.empty() && (holder.back() == '\n' || holder.back() == '\0')) holder.pop_back();
+    ::close(fd_);
+    fd_ = -1;
+    if (err == EWOULDBLOCK)
+      throw InputError("output folder " + dir + " is in use by another porebench process (" +
+                       (holder.empty() ? std::string("holder unknown") : holder) +
+                       "); wait for it to finish, or use another -o");
+    throw InputError("cannot lock output folder " + dir + ": " + std::strerror(err));
+  }
+  char host[256] = "?";
+  ::gethostname(host, sizeof(host) - 1);
+  const std::time_t now = std::time(nullptr);
+  char when[32];
+  std::strftime(when, sizeof(when), "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&now));
+  const std::string rec = "pid " + std::to_string(::getpid()) + " on " + host + ", '" + command + "', since " + when + "\n";
+  if (::ftruncate(fd_, 0) == 0) {
+    const ssize_t w = ::pwrite(fd_, rec.data(), rec.size(), 0);
+    (void)w;  // the record only helps messages; the lock is what counts
+  }
+}
+
+FolderLock::~FolderLock() {
+  if (fd_ >= 0) {
+    if (::ftruncate(fd_, 0) != 0) {}
+    ::close(fd_);  // releases the flock
+  }
+}
+
+uint64_t free_bytes_at(const std::string& path) {
+  struct statvfs s;
+  fs::path p(path);
+  fs::path dir = p.has_parent_path() ? p.parent_path() : fs::path(".");
+  if (::statvfs(dir.c_str(), &s) != 0) return UINT64_MAX;
+  return uint64_t(s.f_bavail) * uint64_t(s.f_frsize);
+}
+
+int remove_stale_partials(const std::string& dir) {
+  static const std::regex partial(R"(^\..*\.partial-(\d+)-\d+(\..*)?$)");
+  int removed = 0;
+  std::error_code ec;
+  if (!fs::is_directory(dir, ec)) return 0;
+  std::vector<fs::path> stale;
+  for (auto it = fs::recursive_directory_iterator(dir, fs::directory_options::skip_permission_denied, ec);
+       !ec && it != fs::recursive_directory_iterator(); it.increment(ec)) {
+    const std::string name = it->path().filename().string();
+    std::smatch m;
+    if (!std::regex_match(name, m, partial)) continue;
+    const long pid = std::atol(m[1].str().c_str());
+    const bool alive = pid > 0 && (::kill(pid_t(pid), 0) == 0 || errno == EPERM);
+    if (!alive) stale.push_back(it->path());
+  }
+  for (const auto& p : stale) removed += fs::remove(p, ec) ? 1 : 0;
+  return removed;
 }
 
 AtomicOutput::AtomicOutput(std::string final_path) : final_(std::move(final_path)) {
@@ -183,7 +360,26 @@ AtomicOutput::~AtomicOutput() {
   }
 }
 
-void AtomicOutput::commit() {
+void AtomicOutput::commit(uint64_t expected_bytes) {
+  const int fd = ::open(tmp_.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) throw InputError("cannot write " + final_ + ": " + std::strerror(errno));
+  struct stat st {};
+  const bool synced = ::fsync(fd) == 0;
+  const int sync_err = errno;
+  const bool stated = ::fstat(fd, &st) == 0;
+  ::close(fd);
+  if (!synced && sync_err != EINVAL && sync_err != EROFS)
+    throw InputError("cannot write " + final_ + ": " + std::strerror(sync_err));
+  if (!stated) throw InputError("cannot write " + final_ + ": " + std::strerror(errno));
+  const uint64_t size = uint64_t(st.st_size);
+  const bool known = expected_bytes != kUnknownSize;
+  // Without an expected size, a file system left full may have cut the file short: refused.
+  const bool full = free_bytes_at(tmp_) == 0;
+  if (known ? size != expected_bytes : (size == 0 || full)) {
+    const std::string why = full ? "No space left on device" : "short write";
+    throw InputError("cannot write " + final_ + ": " + why + " (" + std::to_string(size) + " bytes written" +
+                     (known ? " of " + std::to_string(expected_bytes) : std::string()) + ")");
+  }
   std::error_code ec;
   fs::rename(tmp_, final_, ec);
   if (ec) throw InputError("cannot write " + final_ + ": " + ec.message());

@@ -6,6 +6,7 @@
 // complete, so a failed command never leaves a file that looks finished.
 // Errors are InputError naming the file, the field and the value.
 #include <array>
+#include <cstdint>
 #include <optional>
 #include <string>
 
@@ -21,9 +22,22 @@ struct RawSpec {
   std::array<double, 3> spacing_mm{1, 1, 1};
 };
 
+// Non-finite float voxels found in a volume.
+struct NonFinite {
+  int64_t nan = 0, pos_inf = 0, neg_inf = 0;
+  int64_t total() const { return nan + pos_inf + neg_inf; }
+  std::string text() const;  // "3 non-finite voxels (1 NaN, 1 +Inf, 1 -Inf)"
+};
+NonFinite count_nonfinite(const AnyVolume& v);  // zero for integer volumes
+
 struct ReadOptions {
   std::optional<RawSpec> raw;                            // read as raw with this geometry
   std::optional<std::array<double, 3>> spacing_mm;       // override the file's spacing
+  // Float volumes with NaN or +-Inf voxels are refused (InputError with the counts) unless this is
+  // set; then every non-finite voxel is set to NaN, which no method calls air and no histogram or
+  // statistic counts (--allow-nonfinite).
+  bool allow_nonfinite = false;
+  NonFinite* nonfinite_out = nullptr;  // when given, receives the counts found
 };
 
 struct WriteOptions {
@@ -47,12 +61,21 @@ void write_raw(const AnyVolume& v, const std::string& path, bool big_endian = fa
 
 // Throws InputError unless `path` could be created: its folder exists and is writable.
 void check_writable(const std::string& path);
+// check_writable plus a volume format we write (by extension): call before any work.
+void check_volume_output(const std::string& path);
 
-// Writes `text` to `path` atomically (temporary name, then rename).
+// Throws InputError unless `dir` can be used as an output folder: it is created if missing (with
+// its parents); an existing file of that name, or a folder that cannot be written, is refused.
+void prepare_output_folder(const std::string& dir);
+
+// Writes `text` to `path` atomically (temporary name, write, fsync, size check, rename); any
+// failure removes the temporary and throws InputError with the cause ("No space left on device").
 void write_text_atomic(const std::string& path, const std::string& text);
 
-// A temporary file beside `final_path` (same extension, hidden name) that becomes `final_path`
-// on commit(); removed on destruction if never committed.
+// A temporary file beside `final_path` (same extension, hidden name ".STEM.partial-PID-N.EXT")
+// that becomes `final_path` on commit(); removed on destruction if never committed.
+// commit() flushes the file to disk (fsync), checks its size (the expected size when given, else
+// non-empty) and that the file system did not fill up while it was written, then renames it.
 class AtomicOutput {
  public:
   explicit AtomicOutput(std::string final_path);
@@ -60,12 +83,35 @@ class AtomicOutput {
   AtomicOutput(const AtomicOutput&) = delete;
   AtomicOutput& operator=(const AtomicOutput&) = delete;
   const std::string& tmp_path() const { return tmp_; }
-  void commit();
+  const std::string& final_path() const { return final_; }
+  static constexpr uint64_t kUnknownSize = ~uint64_t(0);
+  void commit(uint64_t expected_bytes = kUnknownSize);
 
  private:
   std::string final_, tmp_;
   bool done_ = false;
 };
+
+// Removes leftover temporaries of AtomicOutput (".*.partial-PID-N*") under `dir` (recursively)
+// whose process is no longer running; returns how many were removed. For --resume and report.
+int remove_stale_partials(const std::string& dir);
+
+// An exclusive lock on an output folder (flock on DIR/.porebench.lock, released when the process
+// ends, however it ends). The lock file records the holder (pid, host, command, start time); a
+// second process gets an InputError naming the holder. Folder created when missing.
+class FolderLock {
+ public:
+  FolderLock(const std::string& dir, const std::string& command);
+  ~FolderLock();
+  FolderLock(const FolderLock&) = delete;
+  FolderLock& operator=(const FolderLock&) = delete;
+
+ private:
+  int fd_ = -1;
+};
+
+// Free bytes for an unprivileged writer on the file system holding `path` (UINT64_MAX if unknown).
+uint64_t free_bytes_at(const std::string& path);
 
 std::string lower_extension(const std::string& path);  // ".mha", ".nii.gz", "" for none
 

@@ -15,6 +15,7 @@
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/memory.hpp"
 
 namespace fs = std::filesystem;
 
@@ -89,7 +90,13 @@ AnyVolume itk_read(const std::string& path) {
       g.spacing_mm[i] = i < nd ? io->GetSpacing(i) : (nd == 2 ? io->GetSpacing(0) : 1.0);
       g.origin_mm[i] = i < nd ? io->GetOrigin(i) : 0.0;
     }
-    AnyVolume v = allocate(from_itk(io->GetComponentType(), path), g);
+    const VoxelType type = from_itk(io->GetComponentType(), path);
+    for (int i = 0; i < 3; ++i)
+      if (g.dims[i] < 1) throw InputError("input " + path + " has dims " + std::to_string(g.dims[i]) + " along " + "xyz"[i]);
+    check_memory(saturating_product({uint64_t(g.dims[0]), uint64_t(g.dims[1]), uint64_t(g.dims[2]),
+                                     uint64_t(voxel_type_bytes(type))}),
+                 "input " + path + " (" + describe(g) + ", " + voxel_type_name(type) + ")");
+    AnyVolume v = allocate(type, g);
     itk::ImageIORegion region(nd);
     for (unsigned i = 0; i < nd; ++i) {
       region.SetIndex(i, 0);
@@ -130,6 +137,9 @@ AnyVolume itk_read_tiff_folder(const std::string& folder) {
       Geometry g = sg;
       g.dims[2] = int64_t(slices.size());
       g.spacing_mm[2] = sg.spacing_mm[0];
+      check_memory(saturating_product({uint64_t(g.dims[0]), uint64_t(g.dims[1]), uint64_t(g.dims[2]),
+                                       uint64_t(voxel_type_bytes(s.type()))}),
+                   "TIFF folder " + folder + " (" + describe(g) + ")");
       out = allocate(s.type(), g);
     } else {
       if (s.type() != out.type())

@@ -4,18 +4,97 @@
 
 #include <sys/mman.h>
 
+#include <atomic>
 #include <cstdint>
+#include <cstdlib>
+#include <fstream>
 #include <new>
+#include <sstream>
 
 namespace pb {
 
 namespace {
 constexpr size_t kHugePage = size_t(2) << 20;
 size_t rounded(size_t bytes) { return (bytes + kHugePage - 1) / kHugePage * kHugePage; }
+
+std::atomic<uint64_t> g_live{0};
+std::atomic<uint64_t> g_budget_override{0};
+
+uint64_t machine_memory_bytes() {
+  uint64_t total = 0;
+  std::ifstream mi("/proc/meminfo");
+  std::string key;
+  uint64_t kb = 0;
+  std::string unit;
+  while (mi >> key >> kb >> unit)
+    if (key == "MemTotal:") {
+      total = kb * 1024;
+      break;
+    }
+  // A container's limit (cgroup v2, then v1) when it is lower.
+  for (const char* f : {"/sys/fs/cgroup/memory.max", "/sys/fs/cgroup/memory/memory.limit_in_bytes"}) {
+    std::ifstream c(f);
+    uint64_t lim = 0;
+    if (c >> lim && lim > 0 && (total == 0 || lim < total)) total = lim;
+  }
+  return total > 0 ? total : uint64_t(8) << 30;  // unknown: 8 GiB (invented, conservative)
+}
+
+uint64_t default_budget() {
+  static const uint64_t b = [] {
+    if (const char* e = std::getenv("PB_MEMORY_BUDGET_MB")) {
+      char* end = nullptr;
+      const unsigned long long mb = std::strtoull(e, &end, 10);
+      if (end != e && *end == '\0' && mb > 0) return uint64_t(mb) << 20;
+    }
+    return machine_memory_bytes();
+  }();
+  return b;
+}
+
+std::string mib(uint64_t bytes) {
+  std::ostringstream s;
+  s.precision(bytes >= (uint64_t(10) << 20) ? 0 : 2);
+  s << std::fixed << double(bytes) / double(1 << 20) << " MiB";
+  return s.str();
+}
 }  // namespace
+
+uint64_t memory_budget_bytes() {
+  const uint64_t o = g_budget_override.load();
+  return o ? o : default_budget();
+}
+void set_memory_budget_bytes(uint64_t bytes) { g_budget_override = bytes; }
+uint64_t large_buffer_bytes_in_use() { return g_live.load(); }
+
+uint64_t saturating_product(std::initializer_list<uint64_t> factors) {
+  uint64_t p = 1;
+  for (uint64_t f : factors) {
+    if (f != 0 && p > UINT64_MAX / f) return UINT64_MAX;
+    p *= f;
+  }
+  return p;
+}
+
+void check_memory(uint64_t bytes, const std::string& what, bool with_live) {
+  const uint64_t budget = memory_budget_bytes();
+  const uint64_t live = with_live ? g_live.load() : 0;
+  if (bytes <= budget && live <= budget - bytes) return;
+  std::ostringstream s;
+  s << what << " needs ";
+  if (bytes == UINT64_MAX)
+    s << "more than 2^64 bytes";
+  else
+    s << bytes << " bytes (" << mib(bytes) << ")";
+  if (live) s << " on top of " << live << " bytes (" << mib(live) << ") in use";
+  s << " but the memory budget is " << budget << " bytes (" << mib(budget)
+    << "; the machine's memory, or PB_MEMORY_BUDGET_MB)";
+  throw MemoryBudgetError(s.str());
+}
 
 void* allocate_buffer(size_t bytes) {
   if (bytes < kLargeBufferBytes) return ::operator new(bytes);
+  check_memory(bytes, "a buffer", true);
   const size_t len = rounded(bytes);
   // Map one huge page more than needed, then unmap the misaligned head and the tail.
   void* raw = mmap(nullptr, len + kHugePage, PROT_READ | PROT_WRITE, MAP_PRIVATE | MAP_ANONYMOUS, -1, 0);
@@ -29,15 +108,18 @@ void* allocate_buffer(size_t bytes) {
 #ifdef MADV_HUGEPAGE
   madvise(p, len, MADV_HUGEPAGE);  // advice only: where refused, normal pages are used
 #endif
+  g_live += bytes;
   return p;
 }
 
 void free_buffer(void* p, size_t bytes) noexcept {
   if (!p) return;
-  if (bytes < kLargeBufferBytes)
+  if (bytes < kLargeBufferBytes) {
     ::operator delete(p);
-  else
+  } else {
     munmap(p, rounded(bytes));
+    g_live -= bytes;
+  }
 }
 
 }  // namespace pb

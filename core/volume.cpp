@@ -1,11 +1,27 @@
 #include "core/volume.hpp"
 
 #include <cmath>
+#include <cstdint>
 #include <sstream>
 
 #include "core/error.hpp"
 
 namespace pb {
+
+size_t checked_voxels(const Geometry& g, size_t elem_bytes) {
+  for (int i = 0; i < 3; ++i)
+    if (g.dims[i] < 0)
+      throw InputError("volume dims must not be negative, got " + std::to_string(g.dims[i]) + " along " + "xyz"[i]);
+  const uint64_t n = saturating_product({uint64_t(g.dims[0]), uint64_t(g.dims[1]), uint64_t(g.dims[2])});
+  const uint64_t bytes = saturating_product({n, uint64_t(elem_bytes)});
+  if (bytes > uint64_t(PTRDIFF_MAX) || bytes > memory_budget_bytes()) {
+    std::ostringstream s;
+    s << "a volume of " << g.dims[0] << " x " << g.dims[1] << " x " << g.dims[2] << " voxels x " << elem_bytes
+      << " bytes";
+    check_memory(bytes, s.str());
+  }
+  return size_t(n);
+}
 
 std::string describe(const Geometry& g) {
   std::ostringstream s;

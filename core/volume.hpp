@@ -28,6 +28,10 @@ struct Geometry {
   bool same_dims(const Geometry& o) const { return dims == o.dims; }
 };
 
+// Voxel count of g, checked: every dim >= 0, no overflow, and dims x elem_bytes within the memory
+// budget (core/memory.hpp); throws InputError (MemoryBudgetError) with the numbers otherwise.
+size_t checked_voxels(const Geometry& g, size_t elem_bytes);
+
 // Describes a geometry for messages: "96 x 96 x 96 voxels, spacing 0.01 x 0.01 x 0.01 mm".
 std::string describe(const Geometry& g);
 
@@ -89,10 +93,10 @@ class Image {
   using value_type = T;
   using Buffer = pb::Buffer<T>;
   Image() = default;
-  explicit Image(const Geometry& g, T fill = T{}) : geo_(g), data_(size_t(g.voxels()), fill) {}
+  explicit Image(const Geometry& g, T fill = T{}) : geo_(g), data_(checked_voxels(g, sizeof(T)), fill) {}
   // Every voxel must be written before it is read.
-  Image(const Geometry& g, Uninitialized) : geo_(g), data_(size_t(g.voxels())) {}
-  Image(const Geometry& g, Zeroed) : geo_(g), data_(zeroed_buffer<T>(size_t(g.voxels()))) {}
+  Image(const Geometry& g, Uninitialized) : geo_(g), data_(checked_voxels(g, sizeof(T))) {}
+  Image(const Geometry& g, Zeroed) : geo_(g), data_(zeroed_buffer<T>(checked_voxels(g, sizeof(T)))) {}
 
   const Geometry& geometry() const { return geo_; }
   void set_geometry_keep_dims(const Geometry& g) {  // spacing/origin only

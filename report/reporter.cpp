@@ -7,6 +7,7 @@
 #include "core/context.hpp"
 #include "core/io.hpp"
 #include "report/html.hpp"
+#include "suites/preflight.hpp"
 #include "suites/layout.hpp"
 #include "suites/results.hpp"
 
@@ -62,10 +63,11 @@ std::string report_files_text() {
 
 Json assemble_results(const std::string& out_dir) {
   const fs::path dir(out_dir);
-  const Json rec = suite::read_json_file((dir / "suite.json").string());
-  std::vector<Json> cells;
-  for (const auto& e : fs::directory_iterator(dir / "cells"))
-    if (e.path().extension() == ".json") cells.push_back(suite::read_json_file(e.path().string()));
+  // Checked (harden, suites/preflight): cells/ present, each cell parses, none of another run.
+  const Json rec = suite::load_suite_record(out_dir);
+  remove_stale_partials(out_dir);  // temporaries of a killed run or report
+  std::vector<Json> cells = suite::load_checked_cells(out_dir, rec.value("suite_sha256", ""));
+  for (auto& c : cells) c.erase("suite_sha256");  // results.json carries it once, at the top
   std::sort(cells.begin(), cells.end(), [](const Json& a, const Json& b) { return a["index"] < b["index"]; });
   const auto criteria = suite::criteria_from_json(rec["criteria"]);
   const auto sel = suite::select_cells(cells, rec["calibration"]["objective"], criteria);

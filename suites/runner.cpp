@@ -17,6 +17,7 @@
 #include "metrics/score.hpp"
 #include "suites/datasets.hpp"
 #include "suites/layout.hpp"
+#include "suites/preflight.hpp"
 #include "suites/results.hpp"
 
 namespace fs = std::filesystem;
@@ -62,6 +63,8 @@ struct Loaded {  // the volumes of the current dataset variant, kept between cel
 // the suite record of the earlier run (null if none).
 Json check_output_folder(const Suite& s, const RunOptions& o) {
   const fs::path dir(o.out_dir);
+  prepare_output_folder(o.out_dir);
+  if (o.resume) remove_stale_partials(o.out_dir);  // temporaries of a killed run (harden)
   fs::create_directories(dir / "cells");
   check_writable((dir / "results.json").string());
   const std::string suite_json = (dir / "suite.json").string();
@@ -141,6 +144,7 @@ void write_suite_record(const Suite& s, const std::vector<Dataset>& data, const 
 Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::string& out_dir) {
   Json cell;
   cell["id"] = c.id;
+  cell["suite_sha256"] = s.text_sha256;  // report refuses a folder that mixes runs (suites/preflight)
   cell["index"] = c.index;
   cell["dataset"] = c.data->name;
   cell["scan"] = c.variant->scan;
@@ -239,6 +243,7 @@ void run_cells(const std::vector<const CellPlan*>& todo, const Suite& s, const R
 
 RunSummary run_suite(const Suite& s, const RunOptions& o) {
   RunSummary sum;
+  preflight(s);  // every value, file and scan checked before any work (suites/preflight)
   const fs::path dir(o.out_dir);
   const Json prev = check_output_folder(s, o);
   std::vector<Dataset> data;

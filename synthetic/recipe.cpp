@@ -10,9 +10,11 @@
 #include <iomanip>
 #include <limits>
 #include <sstream>
+#include <thread>
 #include <toml++/toml.h>
 
 #include "core/error.hpp"
+#include "core/memory.hpp"
 #include "core/names.hpp"
 #include "synthetic/fbp.hpp"
 #include "synthetic/presets.hpp"
@@ -489,6 +491,28 @@ void validate(const Recipe& r) {
   if (r.uint16_full_scale_mu < 0)
     bad("scan.uint16_full_scale_mu", "= " + num(r.uint16_full_scale_mu) +
                                          " must be >= 0 (the mu in 1/mm stored as 65535; 0 = 2 x the material mu)");
+  // Sizes against the memory budget before anything is allocated (core/memory.hpp; harden stream):
+  // the phantom's float volume, labels and scans (12 bytes per voxel, an estimate), and one slice's
+  // sinogram and its filtered copy per thread (8 bytes per angle and bin).
+  const uint64_t vox = saturating_product({uint64_t(r.dims[0]), uint64_t(r.dims[1]), uint64_t(r.dims[2])});
+  check_memory(saturating_product({vox, 12}), "recipe: phantom.dims " + std::to_string(r.dims[0]) + " x " +
+                                                  std::to_string(r.dims[1]) + " x " + std::to_string(r.dims[2]));
+  const uint64_t bins = r.detector_bins ? uint64_t(r.detector_bins) : uint64_t(std::ceil(diag)) + 2;
+  const uint64_t threads = std::max(1u, std::thread::hardware_concurrency());
+  for (int n : r.projections)
+    check_memory(saturating_product({uint64_t(n), bins, 8, threads}),
+                 "recipe: scan.projections = " + std::to_string(n) + " x " + std::to_string(bins) + " detector bins");
+  check_memory(saturating_product({uint64_t(r.reference_projections), bins, 8, threads}),
+               "recipe: scan.reference_projections = " + std::to_string(r.reference_projections) + " x " +
+                   std::to_string(bins) + " detector bins");
+  // Diameters are drawn within +-3 spread of the median: a larger minimum could never be drawn.
+  for (size_t i = 0; i < r.pores.size(); ++i) {
+    const PorePopulation& q = r.pores[i];
+    const double largest = q.median_diameter_um * std::exp(3 * q.spread);
+    if (!(q.min_diameter_um <= largest))
+      bad("pores." + std::to_string(i) + ".min_diameter_um",
+          "= " + num(q.min_diameter_um) + " is above the largest diameter drawn (median x exp(3 spread) = " + num(largest) + ")");
+  }
 }
 
 }  // namespace pb::synth

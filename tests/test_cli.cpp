@@ -115,10 +115,36 @@ TEST_CASE("bad input: exit 2, a clear message, no output file", "[cli]") {
     n(1, 1, 1) = NAN;
     n(5, 5, 5) = NAN;
     write_volume(n, d / "nan.mha");
-    expect_bad_input("segment otsu " + (d / "nan.mha") + " -o " + out, {"2 NaN voxels", "nan.mha", "--allow-nan"}, out);
-    const auto r = run_cli("segment otsu " + (d / "nan.mha") + " -o " + out + " --allow-nan");
+    expect_bad_input("segment otsu " + (d / "nan.mha") + " -o " + out,
+                     {"2 non-finite voxels (2 NaN, 0 +Inf, 0 -Inf)", "nan.mha", "--allow-nonfinite"}, out);
+    for (const char* flag : {" --allow-nonfinite", " --allow-nan"}) {  // --allow-nan: the old name
+      const auto r = run_cli("segment otsu " + (d / "nan.mha") + " -o " + out + flag);
+      CHECK(r.exit_code == 0);
+      CHECK(fs::exists(out));
+      fs::remove(out);
+    }
+  }
+  SECTION("+Inf and -Inf voxels are refused too (they crashed the histogram), and read as NaN when allowed") {
+    VolumeF n = v;
+    n(1, 1, 1) = INFINITY;
+    n(2, 2, 2) = -INFINITY;
+    write_volume(n, d / "inf.mha");
+    expect_bad_input("segment otsu " + (d / "inf.mha") + " -o " + out, {"1 +Inf", "1 -Inf", "inf.mha"}, out);
+    expect_bad_input("info " + (d / "inf.mha"), {"2 non-finite voxels"}, out);
+    const auto r = run_cli("info " + (d / "inf.mha") + " --allow-nonfinite");
     CHECK(r.exit_code == 0);
-    CHECK(fs::exists(out));
+    CHECK_THAT(r.out, Catch::Contains("2 non-finite voxels (0 NaN, 1 +Inf, 1 -Inf), all read as NaN"));
+  }
+  SECTION("an empty part mask (ROI) is named as such") {
+    write_volume(Mask(v.geometry(), 0), d / "roi0.mha");
+    expect_bad_input("segment otsu " + scan + " -o " + out + " --roi " + (d / "roi0.mha"), {"roi0.mha", "is empty"}, out);
+  }
+  SECTION("a truncated MetaImage is refused with both sizes, and no mask is written") {
+    const auto size = fs::file_size(scan);
+    fs::resize_file(scan, size - 1000);
+    expect_bad_input("segment otsu " + scan + " -o " + out + " --json " + (d / "p.json"),
+                     {"scan.mha", "is truncated", "55296"}, out);
+    CHECK_FALSE(fs::exists(d / "p.json"));
   }
   SECTION("unknown method") { expect_bad_input("segment otsuu " + scan + " -o " + out, {"unknown method 'otsuu'", "otsu"}, out); }
   SECTION("unknown parameter") {

@@ -184,3 +184,149 @@ TEST_CASE("slice views are OpenCV headers over our buffer, no copy", "[io]") {
   s.at<uint16_t>(3, 4) = 999;  // row y = 3, column x = 4
   CHECK(v(4, 3, 2) == 999);
 }
+
+// ---- hardening: our own header and size checks, non-finite voxels, memory budget, atomic outputs,
+// folder lock (issue 15). Expected sizes are computed by hand from the format definitions
+// (MetaIO description, Kitware; NRRD0004 definition, teem; NIfTI-1 nifti1.h): voxels x bytes.
+
+#include <unistd.h>
+
+#include <fstream>
+
+#include "core/io_header.hpp"
+#include "core/memory.hpp"
+
+namespace {
+void append_bytes(const std::string& path, size_t n) {
+  std::ofstream f(path, std::ios::binary | std::ios::app);
+  f << std::string(n, 'x');
+}
+}  // namespace
+
+TEST_CASE("our header check agrees with what ITK writes, in every checked format, compressed or not", "[io][harden]") {
+  TempDir d;
+  const auto v = ramp<uint16_t>(test_geometry());
+  for (const char* name : {"v.mha", "v.nrrd", "v.nii", "v.nii.gz"})
+    for (bool compress : {false, true}) {
+      const std::string path = d / name;
+      write_volume(v, path, {compress});
+      const VolumeHeader h = check_volume_file(path);
+      CHECK(h.dims == v.geometry().dims);
+      CHECK(h.type == VoxelType::u16);
+      CHECK(h.expected_bytes == 7u * 5u * 4u * 2u);  // 280, by hand
+      fs::remove(path);
+    }
+}
+
+TEST_CASE("a MetaImage or NRRD shorter or longer than its header says is refused with both sizes", "[io][harden]") {
+  TempDir d;
+  const auto v = ramp<uint16_t>(test_geometry());
+  for (const char* name : {"v.mha", "v.nrrd"}) {
+    const std::string path = d / name;
+    write_volume(v, path);
+    const auto size = fs::file_size(path);
+    fs::resize_file(path, size - 80);  // 200 of 280 voxel bytes left
+    CHECK_THROWS_WITH(read_volume(path), Catch::Contains("truncated") && Catch::Contains("280") && Catch::Contains("200"));
+    fs::resize_file(path, size);
+    append_bytes(path, 9);
+    CHECK_THROWS_WITH(read_volume(path), Catch::Contains("longer than its header says") && Catch::Contains("289") &&
+                                             Catch::Contains("9 bytes too many"));
+    // Compressed: cut the stream short.
+    write_volume(v, path, {true});
+    fs::resize_file(path, fs::file_size(path) - 10);
+    CHECK_THROWS_AS(read_volume(path), InputError);
+  }
+}
+
+TEST_CASE("absurd header values are refused at once, naming the field", "[io][harden]") {
+  auto mha = [](const std::string& ndims, const std::string& dims, const std::string& spacing = "1 1 1") {
+    return "ObjectType = Image\nNDims = " + ndims + "\nDimSize = " + dims + "\nElementSpacing = " + spacing +
+           "\nElementType = MET_SHORT\nElementDataFile = LOCAL\n";
+  };
+  for (const char* nd : {"4294967296", "99999999999", "1e308", "4", "-3", ""})
+    CHECK_THROWS_WITH(parse_metaimage_header(mha(nd, "2 3 4"), "x.mha"), Catch::Contains("NDims"));
+  for (const char* dims : {"4294967296 1 1", "0 3 4", "-2 3 4", "2 3", "1e308 1 1"})
+    CHECK_THROWS_WITH(parse_metaimage_header(mha("3", dims), "x.mha"), Catch::Contains("DimSize"));
+  CHECK_THROWS_WITH(parse_metaimage_header(mha("3", "2 3 4", "nan 1 1"), "x.mha"), Catch::Contains("ElementSpacing"));
+  // DimSize 2 x 3 x 4 of MET_SHORT: 24 voxels x 2 bytes = 48 bytes after the header, by hand.
+  const std::string ok = mha("3", "2 3 4");
+  CHECK(check_volume_bytes(ok + std::string(48, '\0'), "x.mha").expected_bytes == 48);
+  CHECK_THROWS_WITH(check_volume_bytes(ok + std::string(47, '\0'), "x.mha"), Catch::Contains("truncated"));
+  CHECK_THROWS_WITH(check_volume_bytes(ok + std::string(49, '\0'), "x.mha"), Catch::Contains("1 bytes too many"));
+  const std::string nrrd = "NRRD0004\ntype: short\ndimension: 3\nsizes: 2 3 4\nencoding: raw\n\n";
+  CHECK(check_volume_bytes(nrrd + std::string(48, '\0'), "x.nrrd").expected_bytes == 48);
+  CHECK_THROWS_WITH(check_volume_bytes("NRRD0004\ntype: short\ndimension: 4294967296\n\n", "x.nrrd"),
+                    Catch::Contains("dimension"));
+}
+
+TEST_CASE("non-finite voxels are counted and refused unless allowed; allowed ones read as NaN", "[io][harden]") {
+  TempDir d;
+  auto v = ramp<float>(test_geometry());
+  v[3] = std::numeric_limits<float>::infinity();
+  v[4] = -std::numeric_limits<float>::infinity();
+  v[5] = std::numeric_limits<float>::quiet_NaN();
+  write_volume(v, d / "v.mha");
+  CHECK_THROWS_WITH(read_volume(d / "v.mha"), Catch::Contains("3 non-finite voxels (1 NaN, 1 +Inf, 1 -Inf)") &&
+                                                  Catch::Contains("--allow-nonfinite"));
+  ReadOptions o;
+  o.allow_nonfinite = true;
+  NonFinite nf;
+  o.nonfinite_out = &nf;
+  const AnyVolume r = read_volume(d / "v.mha", o);
+  CHECK(nf.nan == 1);
+  CHECK(nf.pos_inf == 1);
+  CHECK(nf.neg_inf == 1);
+  const float* p = static_cast<const float*>(r.raw());
+  CHECK(std::isnan(p[3]));
+  CHECK(std::isnan(p[4]));
+  CHECK(p[6] == v[6]);
+}
+
+TEST_CASE("sizes beyond the memory budget are refused with the numbers before allocation", "[io][harden]") {
+  set_memory_budget_bytes(uint64_t(64) << 20);
+  CHECK_THROWS_AS(VolumeF(pbtest::cube(512)), MemoryBudgetError);  // 512^3 x 4 bytes = 512 MiB > 64 MiB
+  CHECK_THROWS_WITH(VolumeF(pbtest::cube(512)), Catch::Contains("536870912 bytes") && Catch::Contains("67108864 bytes"));
+  Geometry g;
+  g.dims = {int64_t(1) << 40, int64_t(1) << 40, 4};  // the product overflows 64 bits
+  CHECK_THROWS_AS(Mask(g), MemoryBudgetError);
+  g.dims = {-5, 10, 10};
+  CHECK_THROWS_WITH(Mask(g), Catch::Contains("negative"));
+  const uint64_t live = large_buffer_bytes_in_use();
+  {
+    VolumeF a(pbtest::cube(220));  // 42.6 MB
+    CHECK(large_buffer_bytes_in_use() == live + 220u * 220u * 220u * 4u);
+    CHECK_THROWS_AS(VolumeF(pbtest::cube(220)), MemoryBudgetError);  // together 85 MB > 64 MiB
+  }
+  CHECK(large_buffer_bytes_in_use() == live);
+  set_memory_budget_bytes(0);
+}
+
+TEST_CASE("atomic outputs: stale temporaries are removed, live ones kept; output folders checked", "[io][harden]") {
+  TempDir d;
+  fs::create_directories(d / "cells");
+  const std::string stale = d / "cells/.c.partial-999999999-0.json";  // no such pid (pid_max <= 2^22)
+  const std::string live = d / ("cells/.c.partial-" + std::to_string(::getpid()) + "-0.json");
+  std::ofstream(stale) << "x";
+  std::ofstream(live) << "x";
+  CHECK(remove_stale_partials(d.path) == 1);
+  CHECK_FALSE(fs::exists(stale));
+  CHECK(fs::exists(live));
+  write_text_atomic(d / "t.txt", "");
+  CHECK(fs::file_size(d / "t.txt") == 0);
+  std::ofstream(d / "file") << "x";
+  CHECK_THROWS_WITH(prepare_output_folder(d / "file"), Catch::Contains("existing file"));
+  prepare_output_folder(d / "new/nested");
+  CHECK(fs::is_directory(d / "new/nested"));
+}
+
+TEST_CASE("one run per folder: a second lock names the holder", "[io][harden]") {
+  TempDir d;
+  {
+    FolderLock first(d / "run", "run suites/quick.toml");
+    // flock locks belong to open file descriptions: a second open conflicts even in one process.
+    CHECK_THROWS_WITH(FolderLock(d / "run", "run other.toml"),
+                      Catch::Contains("in use") && Catch::Contains("pid " + std::to_string(::getpid())) &&
+                          Catch::Contains("run suites/quick.toml"));
+  }
+  FolderLock again(d / "run", "report");  // released with the first
+}

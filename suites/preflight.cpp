@@ -1,0 +1,138 @@
+// Checks before any work (see preflight.hpp).
+#include "suites/preflight.hpp"
+
+#include <unistd.h>
+
+#include <cerrno>
+#include <cmath>
+#include <cstring>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+#include "core/error.hpp"
+#include "core/io.hpp"
+#include "core/io_header.hpp"
+#include "metrics/score.hpp"
+#include "synthetic/recipe.hpp"
+
+namespace fs = std::filesystem;
+
+namespace pb::suite {
+
+namespace {
+
+void check_readable_file(const std::string& path, const std::string& what) {
+  std::error_code ec;
+  if (!fs::exists(path, ec)) throw InputError(what + " not found: " + path);
+  if (fs::is_directory(path, ec)) throw InputError(what + " " + path + " is a folder; give a file");
+  if (::access(path.c_str(), R_OK) != 0) throw InputError("cannot read " + what + " " + path + ": " + std::strerror(errno));
+}
+
+std::string num(double v) {
+  std::ostringstream s;
+  s << v;
+  return s.str();
+}
+
+Json read_json_named(const std::string& path, const std::string& what) {
+  std::error_code ec;
+  if (!fs::exists(path, ec)) throw InputError(what + " " + path + " is missing");
+  std::ifstream f(path);
+  if (!f) throw InputError("cannot read " + what + " " + path + ": " + std::strerror(errno));
+  try {
+    return Json::parse(f);
+  } catch (const std::exception& e) {
+    throw InputError(what + " " + path + " is not valid JSON (damaged or cut short?): " + e.what());
+  }
+}
+
+}  // namespace
+
+Suite load_suite_checked(const std::string& path) {
+  std::error_code ec;
+  if (fs::is_directory(path, ec))
+    throw InputError("suite " + path + " is a folder; give a suite file (.toml), e.g. suites/quick.toml");
+  check_readable_file(path, "suite file");
+  return load_suite(path);
+}
+
+void preflight(const Suite& s) {
+  const std::string where = "suite " + s.path + ": ";
+  for (const auto& c : s.criteria)
+    if (!std::isfinite(c.value))
+      throw InputError(where + "[criteria] " + c.key + " = " + num(c.value) + " is not a finite number");
+  try {
+    const MatchRule m = parse_match_rule(s.scoring.match);
+    if (m.kind != MatchRule::any && !(m.threshold > 0 && m.threshold <= 1))
+      throw InputError("'" + s.scoring.match + "': the fraction must be in (0, 1]");
+  } catch (const InputError& e) {
+    throw InputError(where + "[scoring] match = '" + s.scoring.match + "': " + e.what());
+  }
+  if (!(s.calibration.fraction > 0 && s.calibration.fraction < 1))
+    throw InputError(where + "[calibration] fraction = " + num(s.calibration.fraction) + " must be in (0, 1)");
+  for (const auto& d : s.datasets) {
+    const std::string dw = where + "dataset '" + d.name + "': ";
+    try {
+      if (d.kind == DatasetSpec::synthetic) {
+        if (!d.recipe.empty()) check_readable_file(d.recipe, "recipe");
+        synth::Recipe r = d.preset.empty() ? synth::load_recipe(d.recipe) : synth::preset(d.preset);
+        r = synth::apply_overrides(r, d.overrides);
+        synth::validate(r);
+        continue;
+      }
+      // Paired: every file readable and sound; the scans finite (float scans are read and counted).
+      const std::pair<const std::string*, const char*> files[] = {
+          {&d.scan, "scan"}, {&d.reference_scan, "reference_scan"}, {&d.reference_mask, "reference_mask"}, {&d.part_mask, "part_mask"}};
+      for (const auto& [f, key] : files) {
+        if (f->empty()) continue;
+        check_readable_file(*f, key);
+        const bool raw_read = d.read.raw.has_value() && (f == &d.scan || f == &d.reference_scan);
+        if (!raw_read && has_checked_header(*f)) {
+          const VolumeHeader h = check_volume_file(*f);
+          if (h.type != VoxelType::f32) continue;  // integer voxels are always finite
+        }
+        if (f == &d.scan || f == &d.reference_scan) read_volume(*f, d.read);  // refuses non-finite voxels
+      }
+    } catch (const InputError& e) {
+      throw InputError(dw + e.what());
+    }
+  }
+}
+
+Json load_suite_record(const std::string& dir) {
+  std::error_code ec;
+  if (!fs::is_directory(dir, ec)) throw InputError("run folder " + dir + " not found");
+  return read_json_named((fs::path(dir) / "suite.json").string(), "run record");
+}
+
+std::vector<Json> load_checked_cells(const std::string& dir, const std::string& suite_sha256) {
+  const fs::path cells_dir = fs::path(dir) / "cells";
+  std::error_code ec;
+  if (!fs::is_directory(cells_dir, ec))
+    throw InputError("run folder " + dir + " has no cells/ folder (deleted?): run the suite again with -o " + dir +
+                     " --resume");
+  std::vector<fs::path> files;
+  for (const auto& e : fs::directory_iterator(cells_dir, ec))
+    if (e.path().extension() == ".json" && e.path().filename().string()[0] != '.') files.push_back(e.path());
+  if (ec) throw InputError("cannot read " + cells_dir.string() + ": " + ec.message());
+  std::sort(files.begin(), files.end());
+  std::vector<Json> cells;
+  for (const auto& p : files) {
+    Json c = read_json_named(p.string(), "cell");
+    if (!c.is_object() || !c.contains("index") || !c["index"].is_number_unsigned() || !c.contains("id"))
+      throw InputError("cell " + p.string() + " is not a cell record (no id or index)");
+    if (!c.contains("suite_sha256") || !c["suite_sha256"].is_string())
+      throw InputError("cell " + p.string() + " carries no suite_sha256 (written by an older porebench or another "
+                       "tool): the run folder cannot be checked; run the suite again into a fresh folder");
+    if (c["suite_sha256"].get<std::string>() != suite_sha256)
+      throw InputError("cell " + p.string() + " belongs to another run (suite_sha256 " +
+                       c["suite_sha256"].get<std::string>().substr(0, 12) + "..., this folder's suite.json " +
+                       suite_sha256.substr(0, 12) + "...): the folder mixes runs; remove the foreign cells or use "
+                       "another folder");
+    cells.push_back(std::move(c));
+  }
+  return cells;
+}
+
+}  // namespace pb::suite
