@@ -8,7 +8,7 @@ BENCH=${1:-build/porebench_bench}
 N=${2:-512}
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
-PB_ALIGN_BENCH_DUMP="$tmp" OMP_NUM_THREADS=2 "$BENCH" --benchmark_filter="^BM_Align.*/$N\$" \
+PB_ALIGN_BENCH_DUMP="$tmp" OMP_NUM_THREADS=2 "$BENCH" --benchmark_filter="^BM_Align.*/$N/" \
   --benchmark_format=json >"$tmp/out.json"
 /usr/bin/python3 - "$tmp" "$N" <<'PY'
 import json, sys, time
