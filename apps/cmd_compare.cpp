@@ -5,6 +5,7 @@
 
 #include "apps/cli.hpp"
 #include "core/error.hpp"
+#include "metrics/metric_table.hpp"
 #include "report/compare.hpp"
 #include "suites/suite.hpp"
 
@@ -20,11 +21,12 @@ Action setup_compare(CLI::App& app) {
   auto a = std::make_shared<Args>();
   app.add_option("BASE_DIR", a->base, "run folder of the base (e.g. the released model)")->required();
   app.add_option("CAND_DIR", a->cand, "run folder of the candidate")->required();
-  app.add_option("--metric", a->metrics, "metric to track (repeatable; default jaccard, slice_jaccard_mean, porosity_bias_pp, a90_95_um)");
+  app.add_option("--metric", a->metrics, "metric to track (repeatable; names and defaults: metrics/METRICS.md)");
   app.add_option("--tolerance", a->tolerances, "METRIC=VALUE: how much worse is still no regression (repeatable)");
   app.add_option("-o,--output", a->out, "also write the Markdown to this file");
   return [a] {
     report::CompareOptions o;
+    for (const auto& m : a->metrics) metric_info(m, "--metric");
     if (!a->metrics.empty()) o.metrics = a->metrics;
     for (const auto& t : a->tolerances) {
       const auto eq = t.find('=');
@@ -33,7 +35,7 @@ Action setup_compare(CLI::App& app) {
       if (eq == std::string::npos || end == t.c_str() + eq + 1 || *end || !(v >= 0))
         throw InputError("--tolerance must be METRIC=VALUE with VALUE >= 0, got '" + t + "'");
       const std::string m = t.substr(0, eq);
-      if (!suite::criterion_metrics().count(m)) throw InputError("--tolerance: unknown metric '" + m + "'");
+      metric_info(m, "--tolerance");
       o.tolerance[m] = v;
     }
     if (!a->out.empty()) check_writable(a->out);

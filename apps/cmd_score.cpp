@@ -11,6 +11,7 @@
 #include "core/context.hpp"
 #include "core/error.hpp"
 #include "core/sha256.hpp"
+#include "metrics/mask_input.hpp"
 #include "metrics/score.hpp"
 
 namespace pb::cli {
@@ -27,18 +28,26 @@ Action setup_score(CLI::App& app) {
   app.description("score a predicted pore mask against a reference mask");
   struct Args {
     std::string pred, ref, roi, json, csv, match = "coverage:0.5", link = "logit", z_range;
+    std::string pore_label, ref_label, pred_label;
+    double pred_threshold = 0.5, max_volume_ratio = ScoreOptions{}.max_volume_ratio;
     int connectivity = 26, bootstrap = 2000;
-    int64_t pore_label = -1;
     uint64_t seed = ScoreOptions{}.seed;
     bool no_surface = false;
   };
   auto a = std::make_shared<Args>();
-  app.add_option("--pred", a->pred, "predicted pore mask (non-zero = pore, or see --pore-label)")->required();
-  app.add_option("--ref", a->ref, "reference pore mask")->required();
+  app.add_option("--pred", a->pred, "predicted pore mask: 0/1 mask, label volume (--pred-label) or float probability map (--pred-threshold)")->required();
+  app.add_option("--ref", a->ref, "reference pore mask (0/1 mask, label volume with --ref-label, or synth's 0/1/2 truth labels: pores = 2)")->required();
   app.add_option("--roi", a->roi, "part mask: everything is computed inside it (default: whole volume)");
   app.add_option("--match", a->match, "pore matching rule: coverage:F, any or iou:F")->capture_default_str();
+  app.add_option("--max-volume-ratio", a->max_volume_ratio,
+                 "hit rule: a pore is missed when the predicted pores covering it hold more than R times its voxels (0: no cap)")
+      ->capture_default_str();
   app.add_option("--connectivity", a->connectivity, "pore connectivity: 6, 18 or 26")->capture_default_str();
-  app.add_option("--pore-label", a->pore_label, "masks are label volumes: pores are voxels equal to N");
+  app.add_option("--ref-label", a->ref_label, "the reference is a label volume: pores are voxels equal to N ('nonzero': every non-zero voxel)");
+  app.add_option("--pred-label", a->pred_label, "the prediction is a label volume: pores are voxels equal to N ('nonzero': every non-zero voxel)");
+  app.add_option("--pore-label", a->pore_label, "both masks are label volumes with pores = N (sets --ref-label and --pred-label)");
+  auto* thr = app.add_option("--pred-threshold", a->pred_threshold,
+                             "float prediction (probability map in [0, 1]): pore = value >= T (default 0.5, common practice)");
   app.add_option("--z-range", a->z_range, "score slices Z0:Z1 only (Z1 exclusive)");
   app.add_option("--pod-link", a->link, "POD link function: logit or probit")->capture_default_str();
   app.add_option("--bootstrap", a->bootstrap, "bootstrap samples for the per-slice Jaccard CI")->capture_default_str();
@@ -46,10 +55,11 @@ Action setup_score(CLI::App& app) {
   app.add_flag("--no-surface", a->no_surface, "skip the surface distances (hd95, assd)");
   app.add_option("--json", a->json, "write the full result record as JSON");
   app.add_option("--csv", a->csv, "write one row per pore (ref and pred) as CSV");
-  return [a] {
+  return [a, thr] {
     ScoreOptions o;
     o.match = parse_match_rule(a->match);
     o.connectivity = a->connectivity;
+    o.max_volume_ratio = a->max_volume_ratio;
     o.pod_link = parse_pod_link(a->link);
     o.bootstrap_samples = a->bootstrap;
     o.seed = a->seed;
@@ -67,7 +77,14 @@ Action setup_score(CLI::App& app) {
       }
     }
     o.validate();
-    if (a->pore_label < -1) throw InputError("--pore-label must be >= 0, got " + std::to_string(a->pore_label));
+    if (!a->pore_label.empty() && (!a->ref_label.empty() || !a->pred_label.empty()))
+      throw InputError("--pore-label sets both --ref-label and --pred-label: give either it or them");
+    MaskSpec ref_spec = parse_mask_label(a->pore_label.empty() ? a->ref_label : a->pore_label,
+                                         a->pore_label.empty() ? "--ref-label" : "--pore-label");
+    MaskSpec pred_spec = parse_mask_label(a->pore_label.empty() ? a->pred_label : a->pore_label,
+                                          a->pore_label.empty() ? "--pred-label" : "--pore-label");
+    pred_spec.threshold = a->pred_threshold;
+    pred_spec.threshold_given = thr->count() > 0;
     if (!a->json.empty()) check_writable(a->json);
     if (!a->csv.empty()) check_writable(a->csv);
 
@@ -78,7 +95,14 @@ Action setup_score(CLI::App& app) {
       ov = read_volume(a->roi);
       check_same_geometry(ov.geometry(), a->roi, rv.geometry(), a->ref);
     }
-    const Mask pred = pv.to_mask(a->pore_label), ref = rv.to_mask(a->pore_label);
+    const std::string ref_opt = a->pore_label.empty() ? "--ref-label" : "--pore-label";
+    const std::string pred_opt = a->pore_label.empty() ? "--pred-label" : "--pore-label";
+    const MaskReading pred_read = read_mask_volume(pv, pred_spec, a->pred, pred_opt, "--pred-threshold");
+    const MaskReading ref_read = read_mask_volume(rv, ref_spec, a->ref, ref_opt, "the reference threshold (fixed at 0.5)");
+    log("porebench: --pred " + a->pred + ": " + pred_read.how);
+    log("porebench: --ref " + a->ref + ": " + ref_read.how);
+    const Mask& pred = pred_read.mask;
+    const Mask& ref = ref_read.mask;
     Mask roi;
     if (!a->roi.empty()) roi = ov.to_mask();
     const ScoreResult r = score(pred, ref, a->roi.empty() ? nullptr : &roi, o);
@@ -95,7 +119,8 @@ Action setup_score(CLI::App& app) {
       };
       j["inputs"] = {{"pred", input(a->pred, pv)}, {"ref", input(a->ref, rv)}};
       j["inputs"]["roi"] = a->roi.empty() ? nlohmann::ordered_json() : input(a->roi, ov);
-      j["inputs"]["pore_label"] = a->pore_label >= 0 ? nlohmann::ordered_json(a->pore_label) : nlohmann::ordered_json();
+      j["inputs"]["pred"]["read_as"] = pred_read.how;
+      j["inputs"]["ref"]["read_as"] = ref_read.how;
       const nlohmann::ordered_json body = to_json(r);
       for (auto it = body.begin(); it != body.end(); ++it) j[it.key()] = *it;
       json_text = j.dump(2) + "\n";
@@ -112,11 +137,15 @@ Action setup_score(CLI::App& app) {
               << " %  bias " << fmt(r.porosity_bias_pp) << " pp\n"
               << "pores: ref " << r.pores_ref.size() << "  pred " << r.pores_pred.size() << "  hits " << r.hits
               << "  misses " << r.misses << "  false calls " << r.false_calls << " (" << fmt(r.false_calls_per_cm3)
-              << " per cm3)  split " << r.split << "  merged " << r.merged << "  [" << o.match.text() << "]\n";
-    if (r.pod.estimable)
+              << " per cm3, " << fmt(r.false_calls_per_target) << " per target)  split " << r.split << "  merged " << r.merged << "  [" << o.match.text() << "]\n";
+    if (r.pod.a90_95_is_bound)
+      std::cout << "pod (" << r.pod.n_targets << " targets, every one hit): a90/95 <= " << fmt(r.pod.a90_95_um)
+                << " um (bound: the smallest target size; no data below it)\n";
+    else if (r.pod.estimable)
       std::cout << "pod (" << pod_link_name(r.pod.link) << ", " << r.pod.n_targets << " targets): a50 "
-                << fmt(r.pod.a50_um) << " um  a90 " << fmt(r.pod.a90_um) << " um  a90/95 " << fmt(r.pod.a90_95_um)
-                << " um (profile likelihood)\n";
+                << fmt(r.pod.a50_um) << " um  a90 " << fmt(r.pod.a90_um) << " um" << (r.pod.a90_extrapolated ? " (extrapolated)" : "")
+                << "  a90/95 " << fmt(r.pod.a90_95_um) << " um (profile likelihood)"
+                << (r.pod.a90_95_extrapolated ? " (extrapolated below the smallest target)" : "") << "\n";
     else
       std::cout << "pod: not estimable: " << r.pod.reason << '\n';
     std::cout << "sizes: ks " << fmt(r.sizes.ks) << "  wasserstein1 " << fmt(r.sizes.wasserstein1_um) << " um\n";

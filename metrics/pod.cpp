@@ -157,15 +157,17 @@ double pod_size_at(const PodFit& f, double p) {
   return std::exp((link_quantile(f.link, p) - f.b0) / f.b1);
 }
 
-PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit, PodLink link) {
+namespace {
+
+const double kChi2_90 = boost::math::quantile(boost::math::chi_squared(1.0), 0.90);  // 2.7055
+
+// Phase 1: check the targets, take logs, count hits, note the size range.
+void prepare_targets(const std::vector<double>& sizes_um, const std::vector<int>& hit, PodFit& f, std::vector<double>& x,
+                     std::vector<int>& y) {
   if (sizes_um.size() != hit.size())
     throw InputError("pod: " + std::to_string(sizes_um.size()) + " sizes but " + std::to_string(hit.size()) +
                      " hit/miss values");
-  PodFit f;
-  f.link = link;
   f.n_targets = int64_t(sizes_um.size());
-  std::vector<double> x;
-  std::vector<int> y;
   for (size_t i = 0; i < sizes_um.size(); ++i) {
     if (!(sizes_um[i] > 0) || !std::isfinite(sizes_um[i]))
       throw InputError("pod: target " + std::to_string(i) + " has size " + std::to_string(sizes_um[i]) +
@@ -174,12 +176,20 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
     y.push_back(hit[i] ? 1 : 0);
     f.n_hits += y.back();
   }
+  if (!sizes_um.empty()) {
+    f.smallest_target_um = *std::min_element(sizes_um.begin(), sizes_um.end());
+    f.largest_target_um = *std::max_element(sizes_um.begin(), sizes_um.end());
+  }
   if (f.n_targets < 60)
     f.warnings.push_back(std::to_string(f.n_targets) +
                          " targets: MIL-HDBK-1823A recommends at least 60 for a hit/miss POD");
-  if (f.n_targets == 0) return f.reason = "no targets", f;
-  if (f.n_hits == 0) return f.reason = "all targets missed", f;
-  if (f.n_hits == f.n_targets) return f.reason = "all targets hit", f;
+}
+
+// Phase 2: the cases without a maximum-likelihood estimate; empty when a fit exists.
+std::string degenerate_reason(const PodFit& f, const std::vector<double>& x, const std::vector<int>& y) {
+  if (f.n_targets == 0) return "no targets";
+  if (f.n_hits == 0) return "all targets missed";
+  if (f.n_hits == f.n_targets) return "all targets hit";
   double min_hit = INFINITY, max_hit = -INFINITY, min_miss = INFINITY, max_miss = -INFINITY;
   for (size_t i = 0; i < x.size(); ++i) {
     if (y[i])
@@ -188,14 +198,16 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
       min_miss = std::min(min_miss, x[i]), max_miss = std::max(max_miss, x[i]);
   }
   if (std::min(min_hit, min_miss) == std::max(max_hit, max_miss))
-    return f.reason = "all targets have the same size: no size dependence can be fitted", f;
+    return "all targets have the same size: no size dependence can be fitted";
   if (max_miss <= min_hit || max_hit <= min_miss)
-    return f.reason = "hits and misses are separated by size (complete or quasi-complete separation): "
-                      "no maximum-likelihood estimate exists",
-           f;
+    return "hits and misses are separated by size (complete or quasi-complete separation): "
+           "no maximum-likelihood estimate exists";
+  return "";
+}
 
-  const Groups groups = group_targets(x, y);
-  // Newton with step halving from b = (logit of the hit rate, 0).
+// Phase 3: Newton with step halving from b = (link quantile of the hit rate, 0). Fills b0, b1,
+// covariance, deviance; returns the maximum log-likelihood (NaN with `reason` set on failure).
+double newton_fit(PodLink link, const Groups& groups, PodFit& f) {
   const double rate = double(f.n_hits) / double(f.n_targets);
   Eigen::Vector2d b(link_quantile(link, rate), 0);
   Eval e = evaluate(link, groups, b[0], b[1]);
@@ -213,30 +225,26 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
       break;
     }
   }
-  if (!f.converged) return f.reason = "Newton iterations did not converge in 100 steps", f;
+  if (!f.converged) return f.reason = "Newton iterations did not converge in 100 steps", kMetricNaN;
   const Eigen::Matrix2d cov = (-e.hess).inverse();
   if (!cov.allFinite() || cov(0, 0) <= 0 || cov(1, 1) <= 0)
-    return f.converged = false, f.reason = "information matrix is singular", f;
+    return f.converged = false, f.reason = "information matrix is singular", kMetricNaN;
   f.estimable = true;
   f.b0 = b[0], f.b1 = b[1];
   f.cov00 = cov(0, 0), f.cov01 = cov(0, 1), f.cov11 = cov(1, 1);
   f.deviance = -2 * e.ll;
-  if (!(f.b1 > 0)) {
-    f.a90_95_reason = "POD does not increase with size (b1 <= 0): a50, a90 and a90/95 are undefined";
-    f.warnings.push_back(f.a90_95_reason);
-    return f;
-  }
+  return e.ll;
+}
+
+// Phase 4: a90/95, the largest theta = ln a > ln a90 whose profile deviance rise stays within
+// chi2_1(0.90), by bracketing and bisection; the Wald bound beside it.
+void a90_95_bound(PodLink link, const Groups& groups, const std::vector<double>& x, double llmax, PodFit& f) {
   const double g90 = link_quantile(link, 0.9);
-  f.a50_um = pod_size_at(f, 0.5);
-  f.a90_um = pod_size_at(f, 0.9);
   const double theta = (g90 - f.b0) / f.b1;
-  // Wald: delta method on theta = ln a90, one-sided 95 %.
+  const Eigen::Matrix2d cov{{f.cov00, f.cov01}, {f.cov01, f.cov11}};
   const Eigen::Vector2d grad(-1 / f.b1, -theta / f.b1);
   const double var = grad.dot(cov * grad);
   f.a90_95_wald_um = std::exp(theta + boost::math::quantile(boost::math::normal(), 0.95) * std::sqrt(var));
-  // Profile likelihood: largest theta > theta_hat with deviance rise = chi2_1(0.90).
-  const double crit = boost::math::quantile(boost::math::chi_squared(1.0), 0.90);  // 2.7055
-  const double llmax = e.ll;
   double b1 = f.b1;
   auto rise = [&](double t) { return 2 * (llmax - profile_ll(link, groups, g90, t, b1)); };
   const double xmax = *std::max_element(x.begin(), x.end()), xmin = *std::min_element(x.begin(), x.end());
@@ -247,7 +255,7 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
   while (hi < limit) {
     lo = hi;
     hi = std::min(hi + step, limit);
-    if (rise(hi) > crit) {
+    if (rise(hi) > kChi2_90) {
       bracketed = true;
       break;
     }
@@ -256,15 +264,107 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
   if (!bracketed) {
     f.a90_95_reason = "the profile likelihood does not reach the chi-square bound: a90/95 is unbounded";
     f.warnings.push_back(f.a90_95_reason);
-    return f;
+    return;
   }
   b1 = f.b1;
   for (int it = 0; it < 60 && hi - lo > 1e-10 * (1 + std::fabs(hi)); ++it) {
     const double mid = 0.5 * (lo + hi);
-    (rise(mid) > crit ? hi : lo) = mid;
+    (rise(mid) > kChi2_90 ? hi : lo) = mid;
   }
   f.a90_95_um = std::exp(0.5 * (lo + hi));
+}
+
+double inverse_link(PodLink link, double eta) {
+  return link == PodLink::probit ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta));
+}
+
+// Lower end of the profile-likelihood interval of eta at x0 = ln a: eta = e + b1 (x - x0), e from
+// the fitted value downwards until the deviance rise passes chi2_1(0.90).
+double lower_eta_lr(PodLink link, const Groups& groups, double llmax, const PodFit& f, double x0) {
+  const double eta_hat = f.b0 + f.b1 * x0;
+  const double se = std::sqrt(std::max(f.cov00 + 2 * x0 * f.cov01 + x0 * x0 * f.cov11, 1e-12));
+  double b1 = f.b1;
+  auto rise = [&](double e) { return 2 * (llmax - profile_ll(link, groups, e, x0, b1)); };
+  double hi = eta_hat, lo = eta_hat, step = 0.5 * se;
+  const double limit = eta_hat - 100 * se - 50;
+  bool bracketed = false;
+  while (lo > limit) {
+    hi = lo;
+    lo = std::max(lo - step, limit);
+    if (rise(lo) > kChi2_90) {
+      bracketed = true;
+      break;
+    }
+    step *= 1.5;
+  }
+  if (!bracketed) return -INFINITY;
+  b1 = f.b1;
+  for (int it = 0; it < 60 && hi - lo > 1e-10 * (1 + std::fabs(lo)); ++it) {
+    const double mid = 0.5 * (lo + hi);
+    (rise(mid) > kChi2_90 ? lo : hi) = mid;
+  }
+  return 0.5 * (lo + hi);
+}
+
+// The band on 41 log-spaced sizes from half the smallest target to the larger of the largest
+// target and 1.2 a90/95.
+void lr_band(PodLink link, const Groups& groups, double llmax, PodFit& f) {
+  const double a0 = 0.5 * f.smallest_target_um;
+  const double a1 = std::max(f.largest_target_um, std::isfinite(f.a90_95_um) ? 1.2 * f.a90_95_um : 0.0);
+  const int n = 41;
+  for (int k = 0; k < n; ++k) {
+    const double a = a0 * std::pow(a1 / a0, double(k) / (n - 1)), x0 = std::log(a);
+    f.band.push_back({a, inverse_link(link, f.b0 + f.b1 * x0), inverse_link(link, lower_eta_lr(link, groups, llmax, f, x0))});
+  }
+}
+
+}  // namespace
+
+PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit, PodLink link) {
+  PodFit f;
+  f.link = link;
+  std::vector<double> x;
+  std::vector<int> y;
+  prepare_targets(sizes_um, hit, f, x, y);
+  f.reason = degenerate_reason(f, x, y);
+  if (f.n_targets > 0 && f.n_hits == f.n_targets) {
+    // No fit exists, but the data say something: every target down to the smallest was hit.
+    f.a90_95_um = f.smallest_target_um;
+    f.a90_95_is_bound = true;
+    f.a90_95_reason = "every target hit: a90/95 is reported as the bound <= the smallest target size (" +
+                      std::to_string(f.smallest_target_um) + " um); there are no data below it";
+    return f;
+  }
+  if (!f.reason.empty()) return f;
+  const Groups groups = group_targets(x, y);
+  const double llmax = newton_fit(link, groups, f);
+  if (!f.estimable) return f;
+  if (!(f.b1 > 0)) {
+    f.a90_95_reason = "POD does not increase with size (b1 <= 0): a50, a90 and a90/95 are undefined";
+    f.warnings.push_back(f.a90_95_reason);
+    return f;
+  }
+  f.a50_um = pod_size_at(f, 0.5);
+  f.a90_um = pod_size_at(f, 0.9);
+  a90_95_bound(link, groups, x, llmax, f);
+  f.a90_extrapolated = f.a90_um < f.smallest_target_um;
+  f.a90_95_extrapolated = f.a90_95_um < f.smallest_target_um;
+  if (f.a90_extrapolated)
+    f.warnings.push_back("a90 lies below the smallest target (" + std::to_string(f.smallest_target_um) +
+                         " um): extrapolated beyond the data");
+  lr_band(link, groups, llmax, f);
   return f;
+}
+
+double pod_lower_bound_at(const PodFit& f, const std::vector<double>& sizes_um, const std::vector<int>& hit, double size_um) {
+  if (!f.estimable || !(size_um > 0)) return kMetricNaN;
+  PodFit g;
+  std::vector<double> x;
+  std::vector<int> y;
+  prepare_targets(sizes_um, hit, g, x, y);
+  const Groups groups = group_targets(x, y);
+  const double llmax = -0.5 * f.deviance;
+  return inverse_link(f.link, lower_eta_lr(f.link, groups, llmax, f, std::log(size_um)));
 }
 
 std::pair<double, double> clopper_pearson(int64_t k, int64_t n, double conf) {

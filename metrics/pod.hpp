@@ -33,6 +33,18 @@ struct PodFit {
   double a90_95_um = kMetricNaN;       // profile likelihood; NaN with `a90_95_reason` if unbounded
   std::string a90_95_reason;
   double a90_95_wald_um = kMetricNaN;  // delta method on ln a90
+  // Every target hit: no fit exists, and a90/95 is reported as a bound, a90_95_um <= the smallest
+  // target size (a90_95_is_bound, a90_95_reason says so); there are no data below that size.
+  bool a90_95_is_bound = false;
+  double smallest_target_um = kMetricNaN, largest_target_um = kMetricNaN;
+  // a90 / a90/95 below the smallest target: the fit is extrapolated there.
+  bool a90_extrapolated = false, a90_95_extrapolated = false;
+  // The one POD band: the fit and its one-sided 95 % lower likelihood-ratio bound at log-spaced
+  // sizes (same construction as a90/95: its crossing of 0.9 is a90/95). Empty when not estimable.
+  struct BandPoint {
+    double size_um, pod, lo;
+  };
+  std::vector<BandPoint> band;
   std::vector<std::string> warnings;   // e.g. fewer than 60 targets
 };
 
@@ -42,9 +54,15 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
 // Size with POD p under a fit (NaN when not estimable).
 double pod_size_at(const PodFit& f, double p);
 
-// The fitted POD at a size and its pointwise 95 % band: the interval of the linear predictor
-// eta = b0 + b1 ln a, var(eta) = c00 + 2 ln(a) c01 + ln(a)^2 c11 (delta method), mapped through the
-// inverse link. NaN where the variance is negative or the size is not positive.
+// The one-sided 95 % lower likelihood-ratio bound of POD at size_um: the smallest POD over the
+// parameters whose deviance exceeds the minimum by at most chi2_1(0.90) = 2.706 (profile
+// likelihood of eta = b0 + b1 ln a at that size; Venzon & Moolgavkar 1988). Needs the data the fit
+// was made from; NaN when the fit is not estimable. fit_pod fills PodFit::band with it.
+double pod_lower_bound_at(const PodFit& f, const std::vector<double>& sizes_um, const std::vector<int>& hit, double size_um);
+
+// Deprecated (issue 11: one POD band): the two-sided 95 % delta-method band, kept until the report
+// draws PodFit::band. Interval of eta = b0 + b1 ln a, var(eta) = c00 + 2 ln(a) c01 + ln(a)^2 c11,
+// mapped through the inverse link. NaN where the variance is negative or the size is not positive.
 struct PodBandPoint {
   double pod, lo, hi;
 };

@@ -13,11 +13,12 @@
 
 #include <algorithm>
 #include <cmath>
-#include <iomanip>
 #include <map>
 #include <random>
 #include <sstream>
 #include <unordered_map>
+
+#include <boost/math/distributions/chi_squared.hpp>
 
 #include "core/error.hpp"
 #include "core/components.hpp"
@@ -34,10 +35,10 @@ std::string MatchRule::text() const {
   return s.str();
 }
 
-MatchRule parse_match_rule(const std::string& s) {
+MatchRule parse_match_rule(const std::string& s, const std::string& what) {
   MatchRule r;
   auto bad = [&] {
-    return InputError("--match: '" + s + "' is not a rule; use coverage:F (0 < F <= 1), iou:F (0 < F <= 1) or any");
+    return InputError(what + ": '" + s + "' is not a rule; use coverage:F (0 < F <= 1), iou:F (0 < F <= 1) or any");
   };
   if (s == "any") {
     r.kind = MatchRule::any;
@@ -70,6 +71,8 @@ void ScoreOptions::validate() const {
   if (z_end >= 0 && z_end <= z_begin)
     throw InputError("z range: end " + std::to_string(z_end) + " must be greater than begin " + std::to_string(z_begin));
   if (bootstrap_samples < 0) throw InputError("bootstrap_samples must be >= 0, got " + std::to_string(bootstrap_samples));
+  if (!(max_volume_ratio == 0 || (max_volume_ratio >= 1 && max_volume_ratio <= 1e9)))
+    throw InputError("max_volume_ratio must be 0 (no cap) or in [1, 1e9], got " + std::to_string(max_volume_ratio));
   if (bins_per_decade < 1 || bins_per_decade > 100)
     throw InputError("bins_per_decade must be in 1..100, got " + std::to_string(bins_per_decade));
 }
@@ -284,11 +287,17 @@ Mask crop_z(const Mask& m, int64_t z0, int64_t z1) {
   return out;
 }
 
-}  // namespace
+// The inputs restricted to the z-range: copies of slices [z0, z1) when a range is asked for,
+// otherwise the inputs themselves.
+struct ScoredInputs {
+  Mask pc, rc, oc;  // crops (empty when the whole volume is scored)
+  const Mask* pred = nullptr;
+  const Mask* ref = nullptr;
+  const Mask* roi = nullptr;
+  int64_t z0 = 0;
+};
 
-// ---------------------------------------------------------------------------------------------
-ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, const ScoreOptions& opt) {
-  opt.validate();
+void restrict_z(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, const ScoreOptions& opt, ScoredInputs& in) {
   check_same_geometry(pred_in.geometry(), "pred", ref_in.geometry(), "ref");
   if (roi_in) check_same_geometry(roi_in->geometry(), "roi", ref_in.geometry(), "ref");
   const int64_t nz_in = ref_in.nz();
@@ -296,28 +305,20 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   if (z1 > nz_in || (nz_in > 0 && z0 >= nz_in))
     throw InputError("z range [" + std::to_string(z0) + ", " + std::to_string(z1) + ") is outside the " +
                      std::to_string(nz_in) + " slices");
-  // Crop only when a z-range is asked for; otherwise work on the inputs in place.
-  Mask pc, rc, oc;
-  const bool crop = z0 != 0 || z1 != nz_in;
-  if (crop) {
-    pc = crop_z(pred_in, z0, z1);
-    rc = crop_z(ref_in, z0, z1);
-    if (roi_in) oc = crop_z(*roi_in, z0, z1);
-  }
-  const Mask& pred = crop ? pc : pred_in;
-  const Mask& ref = crop ? rc : ref_in;
-  const Mask* roi = roi_in ? (crop ? &oc : roi_in) : nullptr;
+  in.z0 = z0;
+  in.pred = &pred_in, in.ref = &ref_in, in.roi = roi_in;
+  if (z0 == 0 && z1 == nz_in) return;
+  in.pc = crop_z(pred_in, z0, z1);
+  in.rc = crop_z(ref_in, z0, z1);
+  in.pred = &in.pc, in.ref = &in.rc;
+  if (roi_in) in.oc = crop_z(*roi_in, z0, z1), in.roi = &in.oc;
+}
 
-  ScoreResult r;
-  r.options = opt;
-  r.geometry = ref.geometry();
+// The overlap pass: per row, a sweep over the ref and pred runs gives the per-slice tp/fp/fn, the
+// ROI voxels per slice and the overlap of every (ref pore, pred pore) pair.
+void overlap_pass(const LabelRuns& cp, const LabelRuns& cr, const Mask* roi, ScoreResult& r) {
   const Geometry& g = r.geometry;
-  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2], sxy = nx * ny;
-
-  const LabelRuns cp = label_runs(pred, roi, opt.connectivity);
-  const LabelRuns cr = label_runs(ref, roi, opt.connectivity);
-
-  // --- the overlap pass: per row, a sweep over the ref and pred runs ------------------------
+  const int64_t ny = g.dims[1], nz = g.dims[2], sxy = g.dims[0] * ny;
   r.slice_tp.assign(size_t(nz), 0);
   r.slice_fp.assign(size_t(nz), 0);
   r.slice_fn.assign(size_t(nz), 0);
@@ -363,6 +364,7 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
       slice_in[size_t(z)] = in;
     }
   }
+  r.slice_roi = slice_in;
   int64_t tp = 0, fp = 0, fn = 0;
   for (int64_t z = 0; z < nz; ++z) {
     tp += r.slice_tp[size_t(z)], fp += r.slice_fp[size_t(z)], fn += r.slice_fn[size_t(z)];
@@ -370,46 +372,99 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   }
   r.roi_volume_mm3 = double(r.roi_voxels) * g.voxel_volume_mm3();
   r.overlap = overlap_from_counts(tp, fp, fn, r.roi_voxels - tp - fp - fn);
-  {
-    std::map<uint64_t, int64_t> merged_pairs;
-    for (auto& pm : pair_maps)
-      for (auto& [k, v] : pm) merged_pairs[k] += v;
-    for (auto& [k, v] : merged_pairs) r.pairs.push_back({uint32_t(k >> 32), uint32_t(k & 0xffffffffu), v});
-  }
+  std::map<uint64_t, int64_t> merged_pairs;
+  for (auto& pm : pair_maps)
+    for (auto& [k, v] : pm) merged_pairs[k] += v;
+  for (auto& [k, v] : merged_pairs) r.pairs.push_back({uint32_t(k >> 32), uint32_t(k & 0xffffffffu), v});
+}
 
-  // --- per-slice Jaccard --------------------------------------------------------------------
-  r.slice_jaccard.resize(size_t(nz));
-  for (int64_t z = 0; z < nz; ++z) {
-    const int64_t u = r.slice_tp[size_t(z)] + r.slice_fp[size_t(z)] + r.slice_fn[size_t(z)];
-    r.slice_jaccard[size_t(z)] = u > 0 ? double(r.slice_tp[size_t(z)]) / double(u) : kMetricNaN;
+// Per-slice Jaccard, its mean over defined slices and the bootstrap CI.
+void slice_jaccards(const ScoreOptions& opt, ScoreResult& r) {
+  const size_t nz = r.slice_tp.size();
+  r.slice_jaccard.resize(nz);
+  for (size_t z = 0; z < nz; ++z) {
+    const int64_t u = r.slice_tp[z] + r.slice_fp[z] + r.slice_fn[z];
+    r.slice_jaccard[z] = u > 0 ? double(r.slice_tp[z]) / double(u) : kMetricNaN;
     r.slices_defined += u > 0;
   }
   const auto ci = bootstrap_mean_ci(r.slice_jaccard, opt.bootstrap_samples, opt.seed);
   r.slice_jaccard_mean = ci[0], r.slice_jaccard_ci_lo = ci[1], r.slice_jaccard_ci_hi = ci[2];
+}
 
-  // --- porosity -----------------------------------------------------------------------------
-  if (r.roi_voxels > 0) {
-    r.porosity_ref_pct = 100.0 * double(tp + fn) / double(r.roi_voxels);
-    r.porosity_pred_pct = 100.0 * double(tp + fp) / double(r.roi_voxels);
-    r.porosity_bias_pp = r.porosity_pred_pct - r.porosity_ref_pct;
-    if (tp + fn > 0) r.porosity_rel_bias = r.porosity_bias_pp / r.porosity_ref_pct;
+// Percentile bootstrap over slices (Efron & Tibshirani 1993, ch. 13) of the pooled overlap ratios
+// and the porosity bias: each resample draws the slices that hold ROI voxels with replacement and
+// pools their counts. Slices are not independent (pores span several), so the interval is
+// indicative, like the slice-Jaccard one. Seeded apart from the slice-Jaccard bootstrap.
+void pooled_cis(const ScoreOptions& opt, ScoreResult& r) {
+  const char* names[5] = {"jaccard", "dice", "precision", "recall", "porosity_bias_pp"};
+  for (const char* n : names) r.ci95[n] = {kMetricNaN, kMetricNaN};
+  std::vector<size_t> slices;
+  for (size_t z = 0; z < r.slice_roi.size(); ++z)
+    if (r.slice_roi[z] > 0) slices.push_back(z);
+  if (slices.size() < 2 || opt.bootstrap_samples < 1) return;
+  std::mt19937_64 rng(opt.seed + 1);
+  std::uniform_int_distribution<size_t> pick(0, slices.size() - 1);
+  std::vector<std::vector<double>> v(5);
+  for (int b = 0; b < opt.bootstrap_samples; ++b) {
+    double tp = 0, fp = 0, fn = 0, in = 0;
+    for (size_t k = 0; k < slices.size(); ++k) {
+      const size_t z = slices[pick(rng)];
+      tp += double(r.slice_tp[z]), fp += double(r.slice_fp[z]), fn += double(r.slice_fn[z]), in += double(r.slice_roi[z]);
+    }
+    if (tp + fp + fn > 0) v[0].push_back(tp / (tp + fp + fn)), v[1].push_back(2 * tp / (2 * tp + fp + fn));
+    if (tp + fp > 0) v[2].push_back(tp / (tp + fp));
+    if (tp + fn > 0) v[3].push_back(tp / (tp + fn));
+    v[4].push_back(100.0 * (fp - fn) / in);
   }
+  // A ratio undefined in some resamples gets no interval (its value is not defined everywhere).
+  for (int m = 0; m < 5; ++m)
+    if (v[size_t(m)].size() == size_t(opt.bootstrap_samples))
+      r.ci95[names[m]] = {percentile_linear(v[size_t(m)], 2.5), percentile_linear(v[size_t(m)], 97.5)};
+}
 
-  // --- pores and matching -------------------------------------------------------------------
-  const Directions D = lattice_directions(g.spacing_mm);
-  r.pores_ref = pore_geometry(cr, roi, D, z0);
-  r.pores_pred = pore_geometry(cp, roi, D, z0);
+// Exact two-sided 95 % Poisson interval of the false-call rate (Garwood 1936, Biometrika 28:437):
+// [chi2(0.025; 2k) / 2, chi2(0.975; 2k + 2) / 2] per ROI volume.
+void false_call_ci(ScoreResult& r) {
+  r.ci95["false_calls_per_cm3"] = {kMetricNaN, kMetricNaN};
+  if (!(r.roi_volume_mm3 > 0)) return;
+  const double k = double(r.false_calls), cm3 = r.roi_volume_mm3 / 1000.0;
+  const double lo = k == 0 ? 0.0 : boost::math::quantile(boost::math::chi_squared(2 * k), 0.025) / 2;
+  const double hi = boost::math::quantile(boost::math::chi_squared(2 * k + 2), 0.975) / 2;
+  r.ci95["false_calls_per_cm3"] = {lo / cm3, hi / cm3};
+}
+
+// Porosities divide by the ROI voxels of the scored slices: the part mask when one is given,
+// otherwise every voxel of the scored slices (metrics/README.md, "Porosity").
+void porosity(ScoreResult& r) {
+  if (r.roi_voxels == 0) return;
+  const Overlap& o = r.overlap;
+  r.porosity_ref_pct = 100.0 * double(o.tp + o.fn) / double(r.roi_voxels);
+  r.porosity_pred_pct = 100.0 * double(o.tp + o.fp) / double(r.roi_voxels);
+  r.porosity_bias_pp = r.porosity_pred_pct - r.porosity_ref_pct;
+  if (o.tp + o.fn > 0) r.porosity_rel_bias = r.porosity_bias_pp / r.porosity_ref_pct;
+}
+
+// Partners and best IoU of every pore from the pair overlaps, the volume-ratio cap, then hits
+// under the rule and the counts that derive from them.
+void match_pores(const MatchRule& m, double max_ratio, ScoreResult& r) {
+  std::vector<int64_t> cover(r.pores_ref.size(), 0), covered(r.pores_pred.size(), 0);
   for (const auto& pr : r.pairs) {
     Pore& a = r.pores_ref[pr.ref - 1];
     Pore& b = r.pores_pred[pr.pred - 1];
     const double iou = double(pr.voxels) / double(a.voxels + b.voxels - pr.voxels);
     a.overlap_voxels += pr.voxels, b.overlap_voxels += pr.voxels;
     ++a.partners, ++b.partners;
+    cover[pr.ref - 1] += b.voxels, covered[pr.pred - 1] += a.voxels;
     // Ties in IoU go to the smaller label (pairs are visited in label order).
     if (iou > a.best_iou) a.best_iou = iou, a.best_partner = pr.pred;
     if (iou > b.best_iou) b.best_iou = iou, b.best_partner = pr.ref;
   }
-  const MatchRule& m = opt.match;
+  if (max_ratio > 0) {
+    for (size_t k = 0; k < r.pores_ref.size(); ++k)
+      r.pores_ref[k].oversized = double(cover[k]) > max_ratio * double(r.pores_ref[k].voxels);
+    for (size_t k = 0; k < r.pores_pred.size(); ++k)
+      r.pores_pred[k].oversized = covered[k] > 0 && double(r.pores_pred[k].voxels) > max_ratio * double(covered[k]);
+  }
   if (m.kind == MatchRule::iou) {
     // One-to-one, greedy by IoU (descending; ties by ref label, then pred label).
     std::vector<std::pair<double, size_t>> order;
@@ -423,14 +478,14 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
     for (auto& [iou, k] : order) {
       Pore& a = r.pores_ref[r.pairs[k].ref - 1];
       Pore& b = r.pores_pred[r.pairs[k].pred - 1];
-      if (a.matched || b.matched) continue;
+      if (a.matched || b.matched || a.oversized || b.oversized) continue;
       a.matched = b.matched = true;
     }
   } else {
     for (auto& a : r.pores_ref)
-      a.matched = m.kind == MatchRule::any ? a.overlap_voxels > 0
-                                           : double(a.overlap_voxels) >= m.threshold * double(a.voxels);
-    for (auto& b : r.pores_pred) b.matched = b.overlap_voxels > 0;
+      a.matched = !a.oversized && (m.kind == MatchRule::any ? a.overlap_voxels > 0
+                                                            : double(a.overlap_voxels) >= m.threshold * double(a.voxels));
+    for (auto& b : r.pores_pred) b.matched = b.overlap_voxels > 0 && !b.oversized;
   }
   for (const auto& a : r.pores_ref) {
     r.hits += a.matched;
@@ -438,12 +493,16 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   }
   r.misses = int64_t(r.pores_ref.size()) - r.hits;
   for (const auto& b : r.pores_pred) {
-    r.false_calls += b.overlap_voxels == 0;
+    r.false_calls += b.overlap_voxels == 0 || b.oversized;
+    r.oversized_false_calls += b.overlap_voxels > 0 && b.oversized;
     r.merged += b.partners >= 2;
   }
   if (r.roi_volume_mm3 > 0) r.false_calls_per_cm3 = double(r.false_calls) / (r.roi_volume_mm3 / 1000.0);
+  if (!r.pores_ref.empty()) r.false_calls_per_target = double(r.false_calls) / double(r.pores_ref.size());
+}
 
-  // --- POD, size distributions, surface distances -------------------------------------------
+// POD from the hits, ESD distributions of both sides, binned POD, surface distances.
+void detection_and_sizes(const ScoreOptions& opt, const LabelRuns& cp, const LabelRuns& cr, ScoreResult& r) {
   std::vector<double> esd_ref, esd_pred;
   std::vector<int> hit;
   for (const auto& a : r.pores_ref) esd_ref.push_back(a.esd_um), hit.push_back(a.matched ? 1 : 0);
@@ -455,110 +514,32 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   for (const auto& w : r.pod.warnings) r.warnings.push_back("pod: " + w);
   if (!r.pod.estimable) r.warnings.push_back("pod: not estimable: " + r.pod.reason);
   if (opt.surface_distances) r.surface = surface_distances(cp, cr);
-  if (r.roi_voxels == 0) r.warnings.push_back("the ROI holds no voxels: every metric is undefined");
-  return r;
 }
+
+}  // namespace
 
 // ---------------------------------------------------------------------------------------------
-ojson json_number(double v) { return std::isfinite(v) ? ojson(v) : ojson(); }
-
-nlohmann::ordered_json to_json(const ScoreResult& r) {
-  const auto N = [](double v) { return json_number(v); };
-  ojson j;
-  j["options"] = {{"connectivity", r.options.connectivity},
-                  {"match", r.options.match.text()},
-                  {"z_begin", r.options.z_begin},
-                  {"z_end", r.options.z_begin + r.geometry.dims[2]},
-                  {"bootstrap_samples", r.options.bootstrap_samples},
-                  {"seed", r.options.seed},
-                  {"bins_per_decade", r.options.bins_per_decade}};
-  j["dims"] = r.geometry.dims;
-  j["spacing_mm"] = r.geometry.spacing_mm;
-  j["roi_voxels"] = r.roi_voxels;
-  j["roi_volume_mm3"] = N(r.roi_volume_mm3);
-  const Overlap& o = r.overlap;
-  j["overlap"] = {{"tp", o.tp},           {"fp", o.fp},
-                  {"fn", o.fn},           {"tn", o.tn},
-                  {"jaccard", N(o.jaccard)}, {"dice", N(o.dice)},
-                  {"precision", N(o.precision)}, {"recall", N(o.recall)},
-                  {"volume_similarity", N(o.volume_similarity)}};
-  ojson sj = ojson::array();
-  for (double v : r.slice_jaccard) sj.push_back(N(v));
-  j["slices"] = {{"jaccard_mean", N(r.slice_jaccard_mean)},
-                 {"jaccard_ci95", {N(r.slice_jaccard_ci_lo), N(r.slice_jaccard_ci_hi)}},
-                 {"defined", r.slices_defined},
-                 {"jaccard", sj}};
-  j["porosity"] = {{"porosity_ref_pct", N(r.porosity_ref_pct)},
-                   {"porosity_pred_pct", N(r.porosity_pred_pct)},
-                   {"porosity_bias_pp", N(r.porosity_bias_pp)},
-                   {"porosity_rel_bias", N(r.porosity_rel_bias)}};
-  j["pores"] = {{"pores_ref", r.pores_ref.size()}, {"pores_pred", r.pores_pred.size()},
-                {"hits", r.hits},                 {"misses", r.misses},
-                {"false_calls", r.false_calls},   {"false_calls_per_cm3", N(r.false_calls_per_cm3)},
-                {"split", r.split},               {"merged", r.merged}};
-  const PodFit& p = r.pod;
-  ojson pj;
-  pj["link"] = pod_link_name(p.link);
-  pj["n_targets"] = p.n_targets;
-  pj["n_hits"] = p.n_hits;
-  pj["estimable"] = p.estimable;
-  pj["reason"] = p.estimable ? ojson() : ojson(p.reason);
-  pj["converged"] = p.converged;
-  pj["iterations"] = p.iterations;
-  pj["b0"] = N(p.b0);
-  pj["b1"] = N(p.b1);
-  pj["covariance"] = {{N(p.cov00), N(p.cov01)}, {N(p.cov01), N(p.cov11)}};
-  pj["deviance"] = N(p.deviance);
-  pj["a50_um"] = N(p.a50_um);
-  pj["a90_um"] = N(p.a90_um);
-  pj["a90_95_um"] = N(p.a90_95_um);
-  if (!p.a90_95_reason.empty()) pj["a90_95_reason"] = p.a90_95_reason;
-  pj["a90_95_wald_um"] = N(p.a90_95_wald_um);
-  pj["a90_95_wald_note"] = "delta method on ln a90, one-sided 95 %";
-  ojson bins = ojson::array();
-  for (const auto& b : r.pod_bins)
-    bins.push_back({{"lo_um", b.lo_um}, {"hi_um", b.hi_um}, {"n", b.n}, {"hits", b.hits}, {"pod", N(b.pod)},
-                    {"ci95", {N(b.ci_lo), N(b.ci_hi)}}});
-  pj["bins"] = bins;
-  pj["warnings"] = p.warnings;
-  j["pod"] = pj;
-  j["sizes"] = {{"edges_um", r.sizes.edges_um},     {"count_ref", r.sizes.count_ref},
-                {"count_pred", r.sizes.count_pred}, {"count_bias", r.sizes.count_bias},
-                {"ks", N(r.sizes.ks)},              {"wasserstein1_um", N(r.sizes.wasserstein1_um)}};
-  j["surface"] = {{"hd95_mm", N(r.surface.hd95_mm)},
-                  {"assd_mm", N(r.surface.assd_mm)},
-                  {"surface_voxels_ref", r.surface.surface_voxels_ref},
-                  {"surface_voxels_pred", r.surface.surface_voxels_pred}};
-  j["warnings"] = r.warnings;
-  return j;
-}
-
-std::string pores_csv(const ScoreResult& r) {
-  std::ostringstream s;
-  s << std::setprecision(10);
-  s << "side,label,voxels,volume_mm3,esd_um,centroid_x_mm,centroid_y_mm,centroid_z_mm,bbox_x0,bbox_y0,bbox_z0,"
-       "bbox_x1,bbox_y1,bbox_z1,surface_mm2,sphericity,touches_border,overlap_voxels,partners,best_partner,"
-       "best_iou,matched\n";
-  auto num = [&](double v) {
-    if (std::isfinite(v))
-      s << v;
-    else
-      s << "NaN";
-  };
-  for (int side = 0; side < 2; ++side)
-    for (const auto& p : side == 0 ? r.pores_ref : r.pores_pred) {
-      s << (side == 0 ? "ref" : "pred") << ',' << p.label << ',' << p.voxels << ',';
-      num(p.volume_mm3), s << ',';
-      num(p.esd_um), s << ',';
-      for (double c : p.centroid_mm) num(c), s << ',';
-      for (int64_t b : p.bbox) s << b << ',';
-      num(p.surface_mm2), s << ',';
-      num(p.sphericity), s << ',';
-      s << int(p.touches_border) << ',' << p.overlap_voxels << ',' << p.partners << ',' << p.best_partner << ',';
-      num(p.best_iou), s << ',';
-      s << int(p.matched) << '\n';
-    }
-  return s.str();
+ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, const ScoreOptions& opt) {
+  opt.validate();
+  ScoredInputs in;
+  restrict_z(pred_in, ref_in, roi_in, opt, in);
+  ScoreResult r;
+  r.options = opt;
+  r.geometry = in.ref->geometry();
+  const LabelRuns cp = label_runs(*in.pred, in.roi, opt.connectivity);
+  const LabelRuns cr = label_runs(*in.ref, in.roi, opt.connectivity);
+  overlap_pass(cp, cr, in.roi, r);
+  slice_jaccards(opt, r);
+  porosity(r);
+  pooled_cis(opt, r);
+  const Directions D = lattice_directions(r.geometry.spacing_mm);
+  r.pores_ref = pore_geometry(cr, in.roi, D, in.z0);
+  r.pores_pred = pore_geometry(cp, in.roi, D, in.z0);
+  match_pores(opt.match, opt.max_volume_ratio, r);
+  false_call_ci(r);
+  detection_and_sizes(opt, cp, cr, r);
+  if (r.roi_voxels == 0) r.warnings.push_back("the ROI holds no voxels: every metric is undefined");
+  return r;
 }
 
 }  // namespace pb

@@ -8,6 +8,7 @@
 // (empty ref / empty pred / both) are written down in metrics/README.md.
 #include <array>
 #include <cstdint>
+#include <map>
 #include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
@@ -24,7 +25,8 @@ struct MatchRule {
   double threshold = 0.5;  // coverage fraction or IoU; unused for `any`
   std::string text() const;  // "coverage:0.5", "any", "iou:0.5"
 };
-MatchRule parse_match_rule(const std::string& s);  // InputError naming the value and the forms
+// InputError naming `what` (the option or key, e.g. "--match"), the value and the valid forms.
+MatchRule parse_match_rule(const std::string& s, const std::string& what = "--match");
 
 struct ScoreOptions {
   int connectivity = 26;
@@ -35,6 +37,10 @@ struct ScoreOptions {
   PodLink pod_link = PodLink::logit;
   int bins_per_decade = 10;         // ESD histograms and binned POD (log-spaced, in um)
   bool surface_distances = true;
+  // Robust hit rule: a ref pore is a hit only when the pred pores covering it hold at most this many
+  // times its voxels, and a pred pore larger than this many times the ref pores it overlaps is a
+  // false call (noise merged into one component cannot buy hits). 0 = no cap. Our default, no source.
+  double max_volume_ratio = 10;
   void validate() const;            // InputError naming the field and value
 };
 
@@ -63,6 +69,9 @@ struct Pore {
   uint32_t best_partner = 0;   // label of the partner with the largest IoU (0 = none)
   double best_iou = 0;
   bool matched = false;        // ref: hit under the rule; pred: matched (iou) or overlaps a ref pore
+  // ref: the pred pores covering it hold > max_volume_ratio times its voxels (never a hit);
+  // pred: > max_volume_ratio times the voxels of the ref pores it overlaps (a false call).
+  bool oversized = false;
 };
 
 struct PairOverlap {
@@ -77,7 +86,7 @@ struct ScoreResult {
   double roi_volume_mm3 = 0;
   Overlap overlap;
   // Per slice z (input index z_begin + k): tp, fp, fn and Jaccard (NaN where tp + fp + fn = 0).
-  std::vector<int64_t> slice_tp, slice_fp, slice_fn;
+  std::vector<int64_t> slice_tp, slice_fp, slice_fn, slice_roi;
   std::vector<double> slice_jaccard;
   double slice_jaccard_mean = kMetricNaN, slice_jaccard_ci_lo = kMetricNaN, slice_jaccard_ci_hi = kMetricNaN;
   int64_t slices_defined = 0;
@@ -86,7 +95,12 @@ struct ScoreResult {
   std::vector<Pore> pores_ref, pores_pred;  // index k = label k + 1
   std::vector<PairOverlap> pairs;           // sorted by (ref, pred)
   int64_t hits = 0, misses = 0, false_calls = 0, split = 0, merged = 0;
-  double false_calls_per_cm3 = kMetricNaN;
+  int64_t oversized_false_calls = 0;  // of false_calls: pred pores overlapping ref pores but oversized
+  double false_calls_per_cm3 = kMetricNaN, false_calls_per_target = kMetricNaN;
+  // 95 % intervals [lo, hi] by metric name (the table's ci_key is "<name>_ci95"): jaccard, dice,
+  // precision, recall, porosity_bias_pp from a percentile bootstrap over slices of the pooled
+  // counts; false_calls_per_cm3 from the exact Poisson interval (Garwood 1936). NaN when undefined.
+  std::map<std::string, std::array<double, 2>> ci95;
   PodFit pod;
   std::vector<PodBin> pod_bins;
   SizeComparison sizes;

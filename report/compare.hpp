@@ -10,12 +10,14 @@
 #include <string>
 #include <vector>
 
+#include "metrics/metric_table.hpp"
+
 namespace pb::report {
 
 struct CompareOptions {
-  std::vector<std::string> metrics{"jaccard", "slice_jaccard_mean", "porosity_bias_pp", "a90_95_um"};
-  std::map<std::string, double> tolerance{{"jaccard", 0.01}, {"slice_jaccard_mean", 0.01}, {"dice", 0.01},
-                                          {"porosity_bias_pp", 0.05}, {"a90_95_um", 5.0}};
+  // Defaults from the metric table (metrics/metric_table.cpp): tracked metrics and tolerances.
+  std::vector<std::string> metrics = compare_default_metrics();
+  std::map<std::string, double> tolerance = compare_default_tolerances();
   int bootstrap_samples = 2000;
   uint64_t seed = 7;
 };

@@ -201,7 +201,7 @@ std::string summary_tables(Page& p, const Json& d) {
         continue;
       }
       const Json& t = (*c)["test"];
-      h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(t["slices"]["jaccard_mean"]) << " ("
+      h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(t["slices"]["slice_jaccard_mean"]) << " ("
         << fmt(t["slices"]["jaccard_ci95"][0]) << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ")</td><td class=\"n\">"
         << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_um"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_95_um"])
         << "</td><td class=\"n\">" << fmt(t["pores"]["false_calls_per_cm3"]) << "</td><td class=\"n\">" << fmt((*c)["runtime_s"]) << "</td>";

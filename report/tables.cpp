@@ -5,6 +5,7 @@
 #include <sstream>
 
 #include "core/format.hpp"
+#include "metrics/metric_table.hpp"
 #include "report/report.hpp"
 #include "suites/results.hpp"
 #include "suites/suite.hpp"
@@ -45,7 +46,8 @@ std::string results_csv(const Json& results) {
     out << head << ",run,runtime_s," << num_text(suite::metric_value(c, "test", "runtime_s")) << '\n';
     out << head << ",run,peak_rss_mib," << (c.contains("peak_rss_mib") ? num_text(c["peak_rss_mib"].get<double>()) : "") << '\n';
     for (const char* part : {"calibration", "test"})
-      for (const auto& [metric, _] : suite::criterion_metrics()) {
+      for (const auto& m : metric_table()) {
+        const std::string metric = m.name;
         if (metric == "runtime_s") continue;
         out << head << "," << part << "," << metric << "," << num_text(suite::metric_value(c, part, metric)) << '\n';
       }
@@ -154,7 +156,7 @@ std::string summary_md(const Json& results) {
         continue;
       }
       const Json& t = c["test"];
-      md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(t["slices"]["jaccard_mean"]) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
+      md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(t["slices"]["slice_jaccard_mean"]) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
          << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ") | " << fmt(t["porosity"]["porosity_bias_pp"]) << " | "
          << fmt(t["pod"]["a90_um"]) << " | " << fmt(t["pod"]["a90_95_um"]) << " | " << fmt(t["pores"]["false_calls_per_cm3"])
          << " | " << fmt(c["runtime_s"]) << " | ";

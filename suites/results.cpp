@@ -1,8 +1,13 @@
+// Reading results (suites/results.hpp): metric values by their name in the metric table
+// (metrics/metric_table.hpp), the choice of tuned parameter sets on the calibration slices, criteria
+// verdicts on the test slices, and the machine-independent regression record.
 #include "suites/results.hpp"
 
 #include <cmath>
 #include <map>
 #include <tuple>
+
+#include "metrics/metric_table.hpp"
 
 namespace pb::suite {
 
@@ -12,17 +17,27 @@ double num(const Json& j) { return j.is_number() ? j.get<double>() : NAN; }
 
 double metric_value(const Json& cell, const std::string& part, const std::string& m) {
   if (cell.value("status", "") != "ok") return NAN;
-  if (m == "runtime_s") return num(cell["runtime_s"]);
-  if (!cell.contains(part)) return NAN;
-  const Json& s = cell[part];
-  if (m == "jaccard" || m == "dice" || m == "precision" || m == "recall") return num(s["overlap"][m]);
-  if (m == "porosity_bias_pp" || m == "porosity_rel_bias") return num(s["porosity"][m]);
-  if (m == "a50_um" || m == "a90_um" || m == "a90_95_um") return num(s["pod"][m]);
-  if (m == "false_calls_per_cm3" || m == "misses" || m == "hits" || m == "merged" || m == "split") return num(s["pores"][m]);
-  if (m == "ks_distance") return num(s["sizes"]["ks"]);
-  if (m == "wasserstein_um") return num(s["sizes"]["wasserstein1_um"]);
-  if (m == "hd95_mm" || m == "assd_mm") return num(s["surface"][m]);
-  if (m == "slice_jaccard_mean") return num(s["slices"]["jaccard_mean"]);
+  const MetricInfo* info = find_metric(m);
+  if (!info) return NAN;
+  if (std::string(info->block) == "cell") return cell.contains(m) ? num(cell[m]) : NAN;
+  if (!cell.contains(part) || !cell[part].contains(info->block)) return NAN;
+  const Json& b = cell[part][info->block];
+  return b.contains(m) ? num(b[m]) : NAN;
+}
+
+double judged_value(const Json& cell, const std::string& part, const Criterion& c) {
+  if (c.on == Criterion::on_value) return metric_value(cell, part, c.metric);
+  if (cell.value("status", "") != "ok") return NAN;
+  const MetricInfo* info = find_metric(c.metric);
+  if (!info || !info->has_ci() || !cell.contains(part) || !cell[part].contains(info->block)) return NAN;
+  const Json& b = cell[part][info->block];
+  if (!b.contains(info->ci_key) || !b[info->ci_key].is_array() || b[info->ci_key].size() != 2) return NAN;
+  const double lo = num(b[info->ci_key][0]), hi = num(b[info->ci_key][1]);
+  switch (c.op) {
+    case Criterion::at_least: return lo;
+    case Criterion::at_most: return hi;
+    case Criterion::abs_at_most: return std::max(std::abs(lo), std::abs(hi));
+  }
   return NAN;
 }
 
@@ -62,8 +77,10 @@ std::vector<Selection> select_cells(const std::vector<Json>& cells, const std::s
     }
     s.failed = cells[s.chosen].value("status", "") != "ok";
     for (const auto& c : criteria) {
-      const bool ok = c.passes(metric_value(cells[s.chosen], "test", c.metric));
+      const double judged = judged_value(cells[s.chosen], "test", c);
+      const bool ok = c.passes(judged);
       s.verdicts.emplace_back(c.text(), ok);
+      s.judged.push_back(judged);
       s.passed = s.passed && ok;
     }
     if (s.failed) s.passed = false;
@@ -73,7 +90,13 @@ std::vector<Selection> select_cells(const std::vector<Json>& cells, const std::s
 
 Json criteria_to_json(const std::vector<Criterion>& cs) {
   Json a = Json::array();
-  for (const auto& c : cs) a.push_back({{"key", c.key}, {"metric", c.metric}, {"op", int(c.op)}, {"value", c.value}, {"text", c.text()}});
+  for (const auto& c : cs) {
+    Json e = {{"key", c.key}, {"metric", c.metric}, {"op", int(c.op)}, {"value", c.value}, {"text", c.text()}};
+    // Only when judged on the interval, so that records of value criteria stay as they were.
+    if (c.on == Criterion::on_ci) e["on"] = "ci";
+    if (!c.on_note.empty()) e["on_note"] = c.on_note;
+    a.push_back(e);
+  }
   return a;
 }
 
@@ -85,6 +108,8 @@ std::vector<Criterion> criteria_from_json(const Json& j) {
     c.metric = e["metric"];
     c.op = Criterion::Op(e["op"].get<int>());
     c.value = e["value"];
+    c.on = e.value("on", "value") == "ci" ? Criterion::on_ci : Criterion::on_value;
+    c.on_note = e.value("on_note", "");
     out.push_back(c);
   }
   return out;

@@ -11,8 +11,9 @@ namespace pb::suite {
 
 using Json = nlohmann::ordered_json;
 
-// Value of `metric` (a key of criterion_metrics()) in a cell's score block ("test" or
-// "calibration"); NaN when the cell failed or the metric is undefined (null).
+// Value of `metric` (a name in metric_table(), metrics/metric_table.hpp) in a cell's score block
+// ("test" or "calibration"), or in the cell itself for block "cell"; NaN when the cell failed, the
+// name is not in the table, or the metric is undefined (null).
 double metric_value(const Json& cell, const std::string& part, const std::string& metric);
 
 // A (dataset, scan, method label) group of cells and the one chosen for it.
@@ -24,7 +25,8 @@ struct Selection {
   std::vector<size_t> cells;  // indices into the cell list, grid order
   bool tuned = false;
   bool failed = false;      // the chosen cell failed
-  std::vector<std::pair<std::string, bool>> verdicts;  // criterion text, passed
+  std::vector<std::pair<std::string, bool>> verdicts;  // criterion text (says "95 % CI bound" when on it), passed
+  std::vector<double> judged;                          // per criterion: the value judged (point or CI bound)
   bool passed = true;
 };
 
@@ -32,6 +34,9 @@ struct Selection {
 // objective (NaN ranks last; ties go to the first grid point); judges criteria on the test part.
 std::vector<Selection> select_cells(const std::vector<Json>& cells, const std::string& objective,
                                     const std::vector<Criterion>& criteria);
+
+// The value a criterion judges in a cell's part: the metric, or its CI bound (Criterion::on).
+double judged_value(const Json& cell, const std::string& part, const Criterion& c);
 
 std::vector<Criterion> criteria_from_json(const Json& j);
 Json criteria_to_json(const std::vector<Criterion>& c);

@@ -187,11 +187,7 @@ Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::strin
     cell["warnings"] = out.warnings;
     cell["runtime_s"] = out.runtime_s;
     cell["peak_rss_mib"] = peak_rss_mib();
-    ScoreOptions so;
-    so.connectivity = s.scoring.connectivity;
-    so.match = parse_match_rule(s.scoring.match);
-    so.bins_per_decade = s.scoring.bins_per_decade;
-    so.bootstrap_samples = s.scoring.bootstrap_samples;
+    ScoreOptions so = s.scoring.options();
     so.z_begin = c.data->cal_begin;
     so.z_end = c.data->cal_end;
     cell["calibration"] = to_json(score(out.pores, cache.ref, roi, so));

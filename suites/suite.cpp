@@ -11,6 +11,7 @@
 #include "core/error.hpp"
 #include "core/names.hpp"
 #include "core/sha256.hpp"
+#include "metrics/metric_table.hpp"
 #include "methods/registry.hpp"
 
 namespace fs = std::filesystem;
@@ -34,6 +35,16 @@ std::vector<std::string> ParamGrid::point(size_t i) const {
   return out;
 }
 
+ScoreOptions Scoring::options() const {
+  ScoreOptions o;
+  o.connectivity = connectivity;
+  o.match = parse_match_rule(match, "[scoring] match");
+  o.bins_per_decade = bins_per_decade;
+  o.bootstrap_samples = bootstrap_samples;
+  o.max_volume_ratio = max_volume_ratio;
+  return o;
+}
+
 bool Criterion::passes(double x) const {
   if (!std::isfinite(x)) return false;
   switch (op) {
@@ -47,20 +58,8 @@ bool Criterion::passes(double x) const {
 std::string Criterion::text() const {
   std::ostringstream s;
   s << (op == abs_at_most ? "|" + metric + "|" : metric) << (op == at_least ? " >= " : " <= ") << value;
+  if (on == on_ci) s << " (95 % CI bound)";
   return s.str();
-}
-
-const std::map<std::string, bool>& criterion_metrics() {
-  static const std::map<std::string, bool> m = {
-      {"jaccard", true},           {"dice", true},          {"precision", true},
-      {"recall", true},            {"porosity_bias_pp", false}, {"porosity_rel_bias", false},
-      {"a50_um", false},           {"a90_um", false},       {"a90_95_um", false},
-      {"false_calls_per_cm3", false}, {"misses", false},    {"hits", true},
-      {"merged", false},           {"split", false},        {"ks_distance", false},
-      {"wasserstein_um", false},   {"hd95_mm", false},      {"assd_mm", false},
-      {"slice_jaccard_mean", true}, {"runtime_s", false},
-  };
-  return m;
 }
 
 namespace {
@@ -291,7 +290,11 @@ Suite parse_suite(const std::string& text, const std::string& path) {
   s.path = path;
   s.text_sha256 = sha256_hex(text.data(), text.size());
   if (const toml::table* t = root["suite"].as_table()) {
-    rd.check_keys(*t, {"name", "description"}, "[suite]");
+    rd.check_keys(*t, {"name", "description", "validation"}, "[suite]");
+    if (const toml::node* v = t->get("validation")) {
+      if (!v->is_boolean()) rd.fail(v->source(), "key 'validation' in [suite] must be true or false");
+      s.validation = *v->value<bool>();
+    }
     s.name = rd.str(*t, "name", "[suite]");
     s.description = rd.str(*t, "description", "[suite]");
   }
@@ -326,18 +329,26 @@ Suite parse_suite(const std::string& text, const std::string& path) {
     s.calibration.gap_slices = int(rd.num(*t, "gap_slices", "[calibration]", 4, 0, 1000));
   }
   if (const toml::table* t = root["scoring"].as_table()) {
-    rd.check_keys(*t, {"match", "connectivity", "bins_per_decade", "bootstrap_samples"}, "[scoring]");
+    rd.check_keys(*t, {"match", "connectivity", "bins_per_decade", "bootstrap_samples", "max_volume_ratio"}, "[scoring]");
     s.scoring.match = rd.str(*t, "match", "[scoring]", "coverage:0.5");
+    try {
+      parse_match_rule(s.scoring.match, "[scoring] match");
+    } catch (const InputError& e) {
+      rd.fail(t->get("match")->source(), e.what());
+    }
     s.scoring.connectivity = int(rd.num(*t, "connectivity", "[scoring]", 26, 6, 26));
     if (s.scoring.connectivity != 6 && s.scoring.connectivity != 18 && s.scoring.connectivity != 26)
       rd.fail(t->get("connectivity")->source(), "[scoring] connectivity must be 6, 18 or 26");
     s.scoring.bins_per_decade = int(rd.num(*t, "bins_per_decade", "[scoring]", 10, 1, 100));
     s.scoring.bootstrap_samples = int(rd.num(*t, "bootstrap_samples", "[scoring]", 1000, 100, 100000));
+    s.scoring.max_volume_ratio = rd.num(*t, "max_volume_ratio", "[scoring]", s.scoring.max_volume_ratio, 0, 1e9);
+    if (s.scoring.max_volume_ratio > 0 && s.scoring.max_volume_ratio < 1)
+      rd.fail(t->get("max_volume_ratio")->source(), "[scoring] max_volume_ratio must be 0 (no cap) or >= 1");
   }
   if (const toml::table* t = root["criteria"].as_table()) {
     std::vector<std::string> valid;
-    for (const auto& [m, _] : criterion_metrics())
-      for (const char* p : {"min_", "max_", "max_abs_"}) valid.push_back(p + m);
+    for (const auto& m : metric_table())
+      for (const char* p : {"min_", "max_", "max_abs_"}) valid.push_back(p + std::string(m.name));
     for (auto&& [k, v] : *t) {
       const std::string key(k.str());
       Criterion c;
@@ -346,14 +357,42 @@ Suite parse_suite(const std::string& text, const std::string& path) {
       if (key.rfind("max_abs_", 0) == 0) c.op = Criterion::abs_at_most, metric = key.substr(8);
       else if (key.rfind("min_", 0) == 0) c.op = Criterion::at_least, metric = key.substr(4);
       else if (key.rfind("max_", 0) == 0) c.op = Criterion::at_most, metric = key.substr(4);
-      if (!criterion_metrics().count(metric)) {
+      if (!find_metric(metric)) {
         const std::string near = closest_name(key, valid);
         rd.fail(k.source(), "criterion '" + key + "' names no known metric" + (near.empty() ? "" : " (did you mean '" + near + "'?)") +
-                                "; criteria are min_<metric>, max_<metric> or max_abs_<metric>");
+                                "; criteria are min_<metric>, max_<metric> or max_abs_<metric> with <metric> one of: " +
+                                metric_names_text() + " (metrics/METRICS.md)");
       }
       c.metric = metric;
-      if (!v.is_number()) rd.fail(v.source(), "criterion '" + key + "' must be a number");
-      c.value = *v.value<double>();
+      // A number, or { value = N, on = "value" | "ci" }.
+      const toml::node* val = &v;
+      std::string on = s.validation ? "ci" : "value";
+      bool asked = false;
+      if (const toml::table* ct = v.as_table()) {
+        rd.check_keys(*ct, {"value", "on"}, "criterion '" + key + "'");
+        val = ct->get("value");
+        if (!val) rd.fail(ct->source(), "criterion '" + key + "' needs 'value'");
+        if (ct->get("on")) {
+          on = rd.str(*ct, "on", "criterion '" + key + "'");
+          asked = true;
+          if (on != "value" && on != "ci")
+            rd.fail(ct->get("on")->source(), "criterion '" + key + "': on = '" + on + "' must be \"value\" or \"ci\"");
+        }
+      }
+      if (!val->is_number()) rd.fail(val->source(), "criterion '" + key + "' must be a number (or { value = N, on = \"ci\" })");
+      c.value = *val->value<double>();
+      if (!std::isfinite(c.value)) rd.fail(val->source(), "criterion '" + key + "' must be a finite number");
+      if (on == "ci" && !find_metric(metric)->has_ci()) {
+        std::string with_ci;
+        for (const auto& m : metric_table())
+          if (m.has_ci()) with_ci += (with_ci.empty() ? "" : ", ") + std::string(m.name);
+        if (asked)
+          rd.fail(k.source(), "criterion '" + key + "': on = \"ci\" but the record has no interval for '" + metric +
+                                  "' (metrics with one: " + with_ci + ")");
+        on = "value";
+        c.on_note = "judged on the value: no interval for this metric";
+      }
+      c.on = on == "ci" ? Criterion::on_ci : Criterion::on_value;
       s.criteria.push_back(c);
     }
   }

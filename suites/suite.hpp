@@ -10,6 +10,7 @@
 #include <vector>
 
 #include "core/io.hpp"
+#include "metrics/score.hpp"
 
 namespace pb::suite {
 
@@ -48,10 +49,13 @@ struct Calibration {
 };
 
 struct Scoring {
-  std::string match = "coverage:0.5";
+  std::string match = "coverage:0.5";  // validated by parse_suite (parse_match_rule)
   int connectivity = 26;
   int bins_per_decade = 10;
   int bootstrap_samples = 1000;
+  double max_volume_ratio = ScoreOptions{}.max_volume_ratio;  // hit-rule cap (metrics/README.md, Matching)
+  // The scoring options of a cell (z-range left to the caller).
+  ScoreOptions options() const;
 };
 
 // One acceptance criterion: metric op value, op one of >= (min_), <= (max_), |x| <= (max_abs_).
@@ -60,12 +64,18 @@ struct Criterion {
   std::string metric;  // e.g. "porosity_bias_pp"
   enum Op { at_least, at_most, abs_at_most } op = at_least;
   double value = 0;
+  // What is judged: the point value, or its 95 % CI bound (the lower bound for min_, the upper for
+  // max_, the larger |bound| for max_abs_) from the record's interval (MetricInfo::ci_key).
+  enum On { on_value, on_ci } on = on_value;
+  std::string on_note;          // why `on` is what it is when it differs from what was asked, else ""
   bool passes(double x) const;  // NaN never passes
-  std::string text() const;     // "jaccard >= 0.7"
+  std::string text() const;     // "jaccard >= 0.7", "jaccard >= 0.7 (95 % CI bound)"
 };
 
 struct Suite {
   std::string path, name, description;
+  // [suite] validation = true: criteria are judged on their CI bound unless they say on = "value".
+  bool validation = false;
   std::string text_sha256;  // of the suite file as read
   std::vector<DatasetSpec> datasets;
   std::vector<MethodSpec> methods;
@@ -73,9 +83,6 @@ struct Suite {
   Scoring scoring;
   std::vector<Criterion> criteria;
 };
-
-// The metrics that criteria and `compare` may name, with their direction (true = higher is better).
-const std::map<std::string, bool>& criterion_metrics();
 
 Suite parse_suite(const std::string& toml_text, const std::string& path);
 Suite load_suite(const std::string& path);  // relative file paths resolve against the suite's folder

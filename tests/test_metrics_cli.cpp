@@ -89,3 +89,77 @@ TEST_CASE("score rejects mismatched geometry and bad options with exit 2, writin
   CHECK_THAT(r.err, Catch::Contains("--z-range"));
   CHECK_FALSE(fs::exists(f.d / "bad.json"));
 }
+
+TEST_CASE("score knows what a mask is: every input kind", "[metrics][cli][mask-input]") {
+  // Issue 11: synth's 0/1/2 truth labels, label volumes with separate labels per side, float
+  // probability maps, grey scans and impossible labels. The 0.5 default threshold for
+  // probabilities is common practice, no source.
+  pbtest::TempDir d;
+  Geometry g = pbtest::cube(12, 0.05);
+  Image<uint8_t> truth(g, 1), mask(g, 0);
+  Image<float> prob(g, 0.1f), grey(g, 0);
+  Image<uint16_t> scan(g, 0);
+  for (int z = 2; z < 5; ++z)
+    for (int y = 2; y < 5; ++y)
+      for (int x = 2; x < 5; ++x) truth(x, y, z) = 2, mask(x, y, z) = 1, prob(x, y, z) = 0.8f;
+  for (int64_t i = 0; i < grey.size(); ++i) grey[i] = 100.0f + float(i % 37), scan[i] = uint16_t(1000 + i % 501);
+  truth(0, 0, 0) = 0;  // background present, so all three labels occur
+  write_volume(truth, d / "truth-labels.mha");
+  write_volume(mask, d / "mask.mha");
+  write_volume(prob, d / "prob.mha");
+  write_volume(grey, d / "grey.mha");
+  write_volume(scan, d / "scan.mha");
+  auto run = [&](const std::string& args) { return pbtest::run_cli("score " + args + " --json " + d / "s.json"); };
+  auto porosity = [&] {
+    std::ifstream js(d / "s.json");
+    return nlohmann::ordered_json::parse(js);
+  };
+
+  SECTION("synth 0/1/2 labels detected: pores = 2, said on stderr and in the JSON") {
+    const auto r = run("--ref " + d / "truth-labels.mha" + " --pred " + d / "mask.mha");
+    INFO(r.err);
+    REQUIRE(r.exit_code == 0);
+    CHECK_THAT(r.err, Catch::Contains("0/1/2"));
+    const auto j = porosity();
+    CHECK(j["porosity"]["porosity_ref_pct"].get<double>() == Approx(100.0 * 27 / 1728));  // not 100 %
+    CHECK(j["overlap"]["jaccard"].get<double>() == 1);
+    CHECK_THAT(j["inputs"]["ref"]["read_as"].get<std::string>(), Catch::Contains("pores = label 2"));
+  }
+  SECTION("separate labels: a label volume against a 0/1 mask") {
+    const auto r = run("--ref " + d / "truth-labels.mha" + " --ref-label 2 --pred " + d / "mask.mha");
+    REQUIRE(r.exit_code == 0);
+    CHECK(porosity()["overlap"]["jaccard"].get<double>() == 1);
+  }
+  SECTION("float probability map: threshold 0.5 by default, --pred-threshold otherwise") {
+    auto r = run("--ref " + d / "mask.mha" + " --pred " + d / "prob.mha");
+    INFO(r.err);
+    REQUIRE(r.exit_code == 0);
+    CHECK(porosity()["overlap"]["jaccard"].get<double>() == 1);
+    r = run("--ref " + d / "mask.mha" + " --pred " + d / "prob.mha" + " --pred-threshold 0.05");
+    REQUIRE(r.exit_code == 0);
+    CHECK(porosity()["porosity"]["porosity_pred_pct"].get<double>() == Approx(100));
+  }
+  SECTION("a grey scan given as a mask is refused with exit 2, float or integer") {
+    auto r = run("--ref " + d / "mask.mha" + " --pred " + d / "grey.mha");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains("grey scan"));
+    CHECK_THAT(r.err, Catch::Contains("grey.mha"));
+    r = run("--ref " + d / "scan.mha" + " --pred " + d / "mask.mha");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains("grey scan"));
+    CHECK_FALSE(fs::exists(d / "s.json"));
+  }
+  SECTION("a label outside the voxel type's range is refused") {
+    const auto r = run("--ref " + d / "mask.mha" + " --pred " + d / "mask.mha" + " --pore-label 300");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains("300"));
+    CHECK_THAT(r.err, Catch::Contains("uint8"));
+  }
+  SECTION("a label on a float map, a threshold on an integer mask: refused") {
+    auto r = run("--ref " + d / "mask.mha" + " --pred " + d / "prob.mha" + " --pred-label 1");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains("--pred-threshold"));
+    r = run("--ref " + d / "mask.mha" + " --pred " + d / "mask.mha" + " --pred-threshold 0.3");
+    CHECK(r.exit_code == 2);
+  }
+}

@@ -3,6 +3,7 @@
 // coverage of the profile-likelihood a90/95 over simulated hit/miss experiments.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <nlohmann/json.hpp>
@@ -75,12 +76,16 @@ TEST_CASE("POD fit and covariance agree with statsmodels Logit and Probit", "[me
 
 TEST_CASE("POD is not estimable without a made-up number", "[metrics][pod]") {
   const std::vector<double> a{20, 30, 40, 50, 60, 70};
-  SECTION("all hit") {
+  SECTION("all hit: no fit, a90/95 reported as the bound <= the smallest target (issue 11)") {
     const PodFit f = fit_pod(a, {1, 1, 1, 1, 1, 1});
     CHECK_FALSE(f.estimable);
     CHECK(f.reason == "all targets hit");
     CHECK(std::isnan(f.a90_um));
     CHECK(std::isnan(f.b0));
+    CHECK(f.a90_95_is_bound);
+    CHECK(f.a90_95_um == 20);
+    CHECK_THAT(f.a90_95_reason, Catch::Contains("smallest target"));
+    CHECK(f.band.empty());
   }
   SECTION("all missed") { CHECK(fit_pod(a, {0, 0, 0, 0, 0, 0}).reason == "all targets missed"); }
   SECTION("complete separation: every miss smaller than every hit") {
@@ -140,4 +145,55 @@ TEST_CASE("profile-likelihood a90/95 covers the true a90 in 92-98 % of simulated
   CHECK(estimable >= experiments * 0.99);
   CHECK(cov >= 0.92);
   CHECK(cov <= 0.98);
+}
+
+TEST_CASE("the one POD band: its crossing of 0.9 is a90/95 (likelihood-ratio construction)", "[metrics][pod]") {
+  // The lower band at size a is the lower end of the profile-likelihood interval of
+  // eta(a) = b0 + b1 ln a at deviance rise chi2_1(0.90) = 2.706; it equals F^-1(0.9) exactly where
+  // the profile interval of ln a90 ends, so the crossing must equal a90/95 (Venzon & Moolgavkar
+  // 1988, Appl. Stat. 37:87; MIL-HDBK-1823A ch. 4 for a90/95, from memory). Asked: 0.5 %.
+  const PodLink link = GENERATE(PodLink::logit, PodLink::probit);
+  std::mt19937_64 rng(7);
+  std::vector<double> a;
+  std::vector<int> y;
+  simulate(rng, 120, -12.3, 3.0, 15, 500, a, y);
+  const PodFit f = fit_pod(a, y, link);
+  REQUIRE(f.estimable);
+  REQUIRE(std::isfinite(f.a90_95_um));
+  double lo = f.a90_um, hi = 10 * f.a90_95_um;  // lower band < 0.9 at a90 (it is below the fit)
+  REQUIRE(pod_lower_bound_at(f, a, y, lo) < 0.9);
+  REQUIRE(pod_lower_bound_at(f, a, y, hi) > 0.9);
+  for (int i = 0; i < 60; ++i) {
+    const double mid = std::sqrt(lo * hi);
+    (pod_lower_bound_at(f, a, y, mid) < 0.9 ? lo : hi) = mid;
+  }
+  INFO("crossing " << lo << " um, a90/95 " << f.a90_95_um << " um, link " << pod_link_name(link));
+  CHECK(lo == Approx(f.a90_95_um).epsilon(0.005));
+  // The band in the fit: the lower bound below the fit everywhere, non-decreasing with size.
+  REQUIRE(f.band.size() == 41);
+  for (size_t k = 0; k < f.band.size(); ++k) {
+    CHECK(f.band[k].lo <= f.band[k].pod);
+    if (k) CHECK(f.band[k].lo >= f.band[k - 1].lo - 1e-12);
+  }
+  CHECK(f.band.back().size_um >= f.a90_95_um);
+}
+
+TEST_CASE("a90 below the smallest target is flagged as extrapolated", "[metrics][pod]") {
+  // Hit/miss data drawn from a logit POD with a90 = 5 um (b1 = 2, b0 = ln 9 - 2 ln 5) on targets of
+  // 10-100 um: the fitted a90 lies below every target, where the fit is read outside its data
+  // (MIL-HDBK-1823A warns against reading POD outside the data range, from memory).
+  std::mt19937_64 rng(3);
+  std::vector<double> a;
+  std::vector<int> y;
+  simulate(rng, 400, std::log(9.0) - 2 * std::log(5.0), 2.0, 10, 100, a, y);
+  const PodFit f = fit_pod(a, y);
+  REQUIRE(f.estimable);
+  INFO("a90 " << f.a90_um << " um, a90/95 " << f.a90_95_um << " um, smallest " << f.smallest_target_um << " um");
+  REQUIRE(f.a90_um < f.smallest_target_um);
+  CHECK(f.a90_extrapolated);
+  CHECK(f.smallest_target_um == *std::min_element(a.begin(), a.end()));
+  CHECK(f.a90_95_extrapolated == (f.a90_95_um < f.smallest_target_um));
+  bool warned = false;
+  for (const auto& w : f.warnings) warned = warned || w.find("extrapolated") != std::string::npos;
+  CHECK(warned);
 }

@@ -179,9 +179,11 @@ TEST_CASE("digital spheres: ESD within the discretisation bound, surface and sph
   INFO("r " << r << " esd_um " << p.esd_um << " surface_mm2 " << p.surface_mm2 << " sphericity " << p.sphericity);
   CHECK(p.esd_um >= 2 * (r - std::sqrt(3.0) / 2) * sp * 1000);
   CHECK(p.esd_um <= 2 * (r + std::sqrt(3.0) / 2) * sp * 1000);
-  // Surface from the 13-direction Crofton estimate: within 6 % of 4 pi r^2 (a face count is ~50 % high).
-  CHECK(p.surface_mm2 == Approx(4 * M_PI * r * r * sp * sp).epsilon(0.06));
-  CHECK(p.sphericity == Approx(1.0).epsilon(0.06));
+  // Surface from the 13-direction Crofton estimate: within 2 % of 4 pi r^2 (a face count is ~50 % high).
+  // Measured (this test, r = 4.3 / 7 / 11.6): -1.3 %, -0.19 %, -0.003 %; sphericity 1.015, 1.003,
+  // 1.001. Held to the 2 % that metrics/score.cpp claims.
+  CHECK(p.surface_mm2 == Approx(4 * M_PI * r * r * sp * sp).epsilon(0.02));
+  CHECK(p.sphericity == Approx(1.0).epsilon(0.02));
   CHECK_FALSE(p.touches_border);
   for (int i = 0; i < 3; ++i) CHECK(p.centroid_mm[i] == Approx((i == 0 ? c : i == 1 ? c - 0.13 : c + 0.07) * sp).epsilon(0.01));
   CHECK(s.overlap.jaccard == 1);
@@ -350,6 +352,7 @@ TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "
       const bool ok = p.voxels == a.n && p.crossings == a.cross && p.touches_border == a.touch &&
                       p.bbox == a.bbox &&
                       p.centroid_mm[0] == Approx(g.spacing_mm[0] * double(a.sx) / double(a.n)) &&
+                      p.centroid_mm[1] == Approx(g.spacing_mm[1] * double(a.sy) / double(a.n)) &&
                       p.centroid_mm[2] == Approx(g.spacing_mm[2] * double(a.sz) / double(a.n));
       CHECK(ok);
       bad += !ok;
@@ -380,4 +383,57 @@ TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "
   CHECK(r.slice_tp == tp);
   CHECK(r.slice_fp == fp);
   CHECK(r.slice_fn == fn);
+}
+
+TEST_CASE("noise cannot buy hits: the volume-ratio cap of the hit rule", "[metrics][score][hit-rule]") {
+  // Eight balls of radius 3 voxels; the prediction is the reference plus dense Bernoulli noise
+  // (p = 0.3, above the 26-neighbour site-percolation threshold of about 0.1 on the cubic lattice:
+  // Stauffer & Aharony, Introduction to Percolation Theory, table 2, from memory), so one predicted
+  // component spans the volume and overlaps every ball. Without the cap every ball is a hit; with
+  // the default cap (10x) none is, and the spanning component is a false call.
+  const Geometry g = pbtest::cube(48, 0.01);
+  Mask ref(g);
+  for (int k = 0; k < 8; ++k) {
+    const Mask b = ball(g, 10 + 24 * (k & 1), 10 + 24 * ((k >> 1) & 1), 10 + 24 * ((k >> 2) & 1), 3);
+    for (int64_t i = 0; i < ref.size(); ++i) ref[i] |= b[i];
+  }
+  Mask pred = random_mask(g, 0.3, 11);
+  for (int64_t i = 0; i < ref.size(); ++i) pred[i] |= ref[i];
+  ScoreOptions o;
+  o.bootstrap_samples = 0;
+  o.surface_distances = false;
+  o.max_volume_ratio = 0;  // the old rule
+  const ScoreResult old_rule = score(pred, ref, nullptr, o);
+  CHECK(old_rule.hits == 8);
+  o.max_volume_ratio = ScoreOptions{}.max_volume_ratio;
+  REQUIRE(o.max_volume_ratio == 10);
+  const ScoreResult capped = score(pred, ref, nullptr, o);
+  CHECK(capped.hits == 0);
+  CHECK(capped.misses == 8);
+  CHECK(capped.oversized_false_calls >= 1);
+  CHECK(capped.false_calls >= old_rule.false_calls + 1);
+  CHECK(capped.false_calls_per_target == Approx(double(capped.false_calls) / 8));
+
+  // A faithful but generous prediction (every ball dilated by one voxel: (4/3)^3 = 2.4x the volume)
+  // keeps every hit and makes no false call.
+  Mask dil(g);
+  for (int k = 0; k < 8; ++k) {
+    const Mask b = ball(g, 10 + 24 * (k & 1), 10 + 24 * ((k >> 1) & 1), 10 + 24 * ((k >> 2) & 1), 4);
+    for (int64_t i = 0; i < dil.size(); ++i) dil[i] |= b[i];
+  }
+  const ScoreResult generous = score(dil, ref, nullptr, o);
+  CHECK(generous.hits == 8);
+  CHECK(generous.false_calls == 0);
+  CHECK(std::isfinite(generous.false_calls_per_cm3));
+}
+
+TEST_CASE("a bad volume-ratio cap is an input error naming the field", "[metrics][score][hit-rule]") {
+  ScoreOptions o;
+  o.max_volume_ratio = 0.5;
+  try {
+    o.validate();
+    FAIL("accepted max_volume_ratio 0.5");
+  } catch (const InputError& e) {
+    CHECK_THAT(std::string(e.what()), Catch::Contains("max_volume_ratio"));
+  }
 }

@@ -1,0 +1,154 @@
+// Reading a volume as a pore mask (metrics/mask_input.hpp): value counts decide what the volume is.
+#include "metrics/mask_input.hpp"
+
+#include <cmath>
+#include <limits>
+#include <sstream>
+#include <type_traits>
+#include <vector>
+
+#include "core/error.hpp"
+
+namespace pb {
+
+MaskSpec parse_mask_label(const std::string& text, const std::string& option) {
+  MaskSpec s;
+  if (text.empty()) return s;
+  if (text == "nonzero") return s.kind = MaskSpec::nonzero, s;
+  try {
+    size_t used = 0;
+    const long long v = std::stoll(text, &used);
+    if (used != text.size() || v < 0) throw std::invalid_argument("bad");
+    s.kind = MaskSpec::label;
+    s.value = v;
+  } catch (const std::logic_error&) {
+    throw InputError(option + ": '" + text + "' is not a pore label; give an integer >= 0 or 'nonzero'");
+  }
+  return s;
+}
+
+namespace {
+
+std::string num(double v) {
+  std::ostringstream s;
+  s << v;
+  return s.str();
+}
+
+template <class T>
+MaskReading read_integer(const Image<T>& img, const MaskSpec& spec, const std::string& file, const std::string& label_option,
+                         const std::string& threshold_option) {
+  if (spec.threshold_given)
+    throw InputError(threshold_option + " applies to float probability maps; " + file + " holds " +
+                     voxel_type_name(VoxelTraits<T>::type) + " voxels (give " + label_option + " for a label volume)");
+  MaskReading r;
+  r.mask = Mask(img.geometry());
+  const T* s = img.data();
+  uint8_t* d = r.mask.data();
+  const int64_t n = img.size();
+  if (spec.kind == MaskSpec::label) {
+    const int64_t lo = std::numeric_limits<T>::min(), hi = std::numeric_limits<T>::max();
+    if (spec.value < lo || spec.value > hi)
+      throw InputError(label_option + " " + std::to_string(spec.value) + " is outside the range of " +
+                       voxel_type_name(VoxelTraits<T>::type) + " voxels of " + file + " (" + std::to_string(lo) + ".." +
+                       std::to_string(hi) + "): no voxel can hold it");
+    const T want = T(spec.value);
+    int64_t count = 0;
+#pragma omp parallel for schedule(static) reduction(+ : count)
+    for (int64_t i = 0; i < n; ++i) count += (d[i] = s[i] == want);
+    r.how = "label volume: pores = voxels equal to " + std::to_string(spec.value) + " (" + label_option + "), " +
+            std::to_string(count) + " voxels";
+    return r;
+  }
+  // Value counts (values are at most 16 bits wide).
+  std::vector<int64_t> hist(size_t(1) << (8 * sizeof(T)), 0);
+  const int64_t shift = std::is_signed<T>::value ? int64_t(1) << (8 * sizeof(T) - 1) : 0;
+  for (int64_t i = 0; i < n; ++i) ++hist[size_t(int64_t(s[i]) + shift)];
+  std::vector<int64_t> values;
+  for (size_t k = 0; k < hist.size(); ++k)
+    if (hist[k]) values.push_back(int64_t(k) - shift);
+  const int64_t zeros = hist[size_t(shift)];
+  std::vector<int64_t> nonzero;
+  for (int64_t v : values)
+    if (v != 0) nonzero.push_back(v);
+  auto set_where = [&](auto pred) {
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < n; ++i) d[i] = pred(s[i]);
+  };
+  if (spec.kind == MaskSpec::nonzero || nonzero.size() <= 1) {
+    set_where([](T v) { return v != 0; });
+    r.how = spec.kind == MaskSpec::nonzero ? "every non-zero voxel is pore (" + label_option + " nonzero)"
+            : nonzero.empty()              ? "empty mask (every voxel 0)"
+                                           : "binary mask 0/" + std::to_string(nonzero[0]) + ": non-zero = pore";
+    return r;
+  }
+  if (nonzero == std::vector<int64_t>{1, 2}) {
+    set_where([](T v) { return v == 2; });
+    r.how = "synthetic truth labels 0/1/2 detected (0 background, 1 material, 2 closed pore): pores = label 2; give " +
+            label_option + " to choose otherwise";
+    return r;
+  }
+  const double zero_share = n ? double(zeros) / double(n) : 1.0;
+  std::ostringstream msg;
+  if (values.size() > 256 || zero_share < 0.5) {
+    msg << file << " looks like a grey scan, not a mask: " << values.size() << " distinct values from " << values.front()
+        << " to " << values.back() << ", " << num(std::round(1000 * zero_share) / 10)
+        << " % of voxels 0 (a pore mask is mostly 0 and has few values); give the segmented mask";
+  } else {
+    msg << file << " is a label volume with " << nonzero.size() << " non-zero values (" << nonzero[0] << ", " << nonzero[1]
+        << (nonzero.size() > 2 ? ", ..." : "") << "): give " << label_option << " N (pores = voxels equal to N) or "
+        << label_option << " nonzero (every non-zero voxel is pore)";
+  }
+  throw InputError(msg.str());
+}
+
+MaskReading read_float(const Image<float>& img, const MaskSpec& spec, const std::string& file, const std::string& label_option,
+                       const std::string& threshold_option) {
+  if (spec.kind != MaskSpec::automatic)
+    throw InputError(label_option + " applies to integer label volumes; " + file +
+                     " holds float32 voxels (a probability map: use " + threshold_option + ")");
+  if (!(spec.threshold > 0 && spec.threshold <= 1))
+    throw InputError(threshold_option + " must be in (0, 1], got " + num(spec.threshold));
+  const float* s = img.data();
+  const int64_t n = img.size();
+  int64_t nan = 0, outside = 0;
+  float lo = INFINITY, hi = -INFINITY;
+#pragma omp parallel for schedule(static) reduction(+ : nan, outside) reduction(min : lo) reduction(max : hi)
+  for (int64_t i = 0; i < n; ++i) {
+    const float v = s[i];
+    if (!std::isfinite(v)) {
+      ++nan;
+      continue;
+    }
+    lo = std::min(lo, v), hi = std::max(hi, v);
+    outside += v < 0 || v > 1;
+  }
+  if (nan) throw InputError(file + " has " + std::to_string(nan) + " non-finite voxels; a probability map has values in [0, 1]");
+  if (outside)
+    throw InputError(file + " looks like a grey scan, not a mask or probability map: float values from " + num(lo) + " to " +
+                     num(hi) + " (" + std::to_string(outside) + " voxels outside [0, 1]); give the segmented mask");
+  MaskReading r;
+  r.mask = Mask(img.geometry());
+  uint8_t* d = r.mask.data();
+  const float t = float(spec.threshold);
+#pragma omp parallel for schedule(static)
+  for (int64_t i = 0; i < n; ++i) d[i] = s[i] >= t;
+  r.how = "probability map: pore = value >= " + num(spec.threshold) + " (" + threshold_option +
+          (spec.threshold_given ? ")" : ", default: common practice for probabilities)");
+  return r;
+}
+
+}  // namespace
+
+MaskReading read_mask_volume(const AnyVolume& v, const MaskSpec& spec, const std::string& file, const std::string& label_option,
+                             const std::string& threshold_option) {
+  return v.visit([&](const auto& img) -> MaskReading {
+    using T = typename std::decay_t<decltype(img)>::value_type;
+    if constexpr (std::is_same_v<T, float>)
+      return read_float(img, spec, file, label_option, threshold_option);
+    else
+      return read_integer(img, spec, file, label_option, threshold_option);
+  });
+}
+
+}  // namespace pb
