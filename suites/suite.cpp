@@ -10,6 +10,7 @@
 
 #include "core/error.hpp"
 #include "core/names.hpp"
+#include "core/toml_keys.hpp"
 #include "core/sha256.hpp"
 #include "metrics/metric_table.hpp"
 #include "methods/registry.hpp"
@@ -77,13 +78,8 @@ class Reader {
   }
 
   void check_keys(const toml::table& t, const std::vector<std::string>& allowed, const std::string& where) const {
-    for (auto&& [k, v] : t) {
-      const std::string key(k.str());
-      if (std::find(allowed.begin(), allowed.end(), key) == allowed.end()) {
-        const std::string near = closest_name(key, allowed);
-        fail(k.source(), "unknown key '" + key + "' in " + where + (near.empty() ? "" : " (did you mean '" + near + "'?)"));
-      }
-    }
+    if (const auto u = first_unknown_key(t, allowed))  // core/toml_keys.hpp, shared with the recipe reader
+      fail(u->where, "unknown key '" + u->key + "' in " + where + (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
   }
 
   std::string str(const toml::table& t, const std::string& key, const std::string& where, const std::string& def = "",

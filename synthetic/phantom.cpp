@@ -147,18 +147,22 @@ double Pore::bounding_radius_mm() const {
   return r;
 }
 
+namespace {
+// (ex, ey) from an ellipse's centre, inside its flat ellipsoid at the relative height w^2 = ww:
+// rotated by (c, s) = (cos, sin) of its yaw into its own frame, semi-axes a, b.
+inline bool in_section(double ex, double ey, double ww, double c, double s, double a, double b) {
+  const double u = (ex * c + ey * s) / a, v = (-ex * s + ey * c) / b;
+  return u * u + v * v + ww <= 1.0;
+}
+}  // namespace
+
 bool Pore::contains(const Vec3& p) const {
   const double dx = p[0] - centre_mm[0], dy = p[1] - centre_mm[1], dz = p[2] - centre_mm[2];
   const double w = dz / semi_axes_mm[2], ww = w * w;
   if (ww > 1.0) return false;
-  const double c = std::cos(yaw_rad), s = std::sin(yaw_rad);
-  const double u = (dx * c + dy * s) / semi_axes_mm[0], v = (-dx * s + dy * c) / semi_axes_mm[1];
-  if (u * u + v * v + ww <= 1.0) return true;
-  for (const Lobe& l : lobes) {
-    const double ex = dx - l.dx_mm, ey = dy - l.dy_mm, lc = std::cos(l.yaw_rad), ls = std::sin(l.yaw_rad);
-    const double lu = (ex * lc + ey * ls) / l.a_mm, lv = (-ex * ls + ey * lc) / l.b_mm;
-    if (lu * lu + lv * lv + ww <= 1.0) return true;
-  }
+  if (in_section(dx, dy, ww, std::cos(yaw_rad), std::sin(yaw_rad), semi_axes_mm[0], semi_axes_mm[1])) return true;
+  for (const Lobe& l : lobes)
+    if (in_section(dx - l.dx_mm, dy - l.dy_mm, ww, std::cos(l.yaw_rad), std::sin(l.yaw_rad), l.a_mm, l.b_mm)) return true;
   return false;
 }
 
@@ -174,21 +178,78 @@ Vec3 Pore::half_extent_mm() const {
 
 namespace {
 
-double shape_sdf(const Shape& s, const Vec3& p) {
-  const double x = p[0] - s.centre_mm[0], y = p[1] - s.centre_mm[1], z = p[2] - s.centre_mm[2];
-  if (s.kind == "box") {
-    const double a = s.angle_deg * M_PI / 180, c = std::cos(a), sn = std::sin(a);
-    const double q[3] = {std::abs(x * c + y * sn) - s.size_mm[0] / 2, std::abs(-x * sn + y * c) - s.size_mm[1] / 2,
-                         std::abs(z) - s.size_mm[2] / 2};
-    const double ox = std::max(q[0], 0.0), oy = std::max(q[1], 0.0), oz = std::max(q[2], 0.0);
-    return std::sqrt(ox * ox + oy * oy + oz * oz) + std::min(std::max({q[0], q[1], q[2]}), 0.0);
+// A part shape ready for many evaluations: its kind as a number and its rotation's cos and sin
+// taken once (the truth rasteriser evaluates millions of samples). Signed distance as in the
+// header comment: box, cylinder, cylinder minus its coaxial bore.
+struct ShapeSdf {
+  enum Kind { Box, Cylinder, GearBlank } kind = Cylinder;
+  double cx = 0, cy = 0, cz = 0, c = 1, sn = 0, hx = 0, hy = 0, hz = 0, radius = 0, bore = 0;
+  explicit ShapeSdf(const Shape& s)
+      : kind(s.kind == "box" ? Box : s.kind == "gear-blank" ? GearBlank : Cylinder),
+        cx(s.centre_mm[0]), cy(s.centre_mm[1]), cz(s.centre_mm[2]), radius(s.radius_mm), bore(s.bore_radius_mm) {
+    if (kind == Box) {
+      const double a = s.angle_deg * M_PI / 180;
+      c = std::cos(a);
+      sn = std::sin(a);
+      hx = s.size_mm[0] / 2, hy = s.size_mm[1] / 2, hz = s.size_mm[2] / 2;
+    } else {
+      hz = s.height_mm / 2;
+    }
   }
-  const double r = std::hypot(x, y);
-  const double d2 = r - s.radius_mm, dz = std::abs(z) - s.height_mm / 2;
-  double d = std::min(std::max(d2, dz), 0.0) + std::hypot(std::max(d2, 0.0), std::max(dz, 0.0));
-  if (s.kind == "gear-blank") d = std::max(d, s.bore_radius_mm - r);
-  return d;
-}
+  double operator()(const Vec3& p) const {
+    const double x = p[0] - cx, y = p[1] - cy, z = p[2] - cz;
+    if (kind == Box) {
+      const double q[3] = {std::abs(x * c + y * sn) - hx, std::abs(-x * sn + y * c) - hy, std::abs(z) - hz};
+      const double ox = std::max(q[0], 0.0), oy = std::max(q[1], 0.0), oz = std::max(q[2], 0.0);
+      return std::sqrt(ox * ox + oy * oy + oz * oz) + std::min(std::max({q[0], q[1], q[2]}), 0.0);
+    }
+    const double r = std::hypot(x, y);
+    const double d2 = r - radius, dz = std::abs(z) - hz;
+    double d = std::min(std::max(d2, dz), 0.0) + std::hypot(std::max(d2, 0.0), std::max(dz, 0.0));
+    if (kind == GearBlank) d = std::max(d, bore - r);
+    return d;
+  }
+};
+
+// The part (union of its shapes) ready for many evaluations; same values as Phantom::part_sdf.
+struct PartSdf {
+  std::vector<ShapeSdf> shapes;
+  explicit PartSdf(const std::vector<Shape>& s) : shapes(s.begin(), s.end()) {}
+  double operator()(const Vec3& p) const {
+    double d = std::numeric_limits<double>::infinity();
+    for (const ShapeSdf& s : shapes) d = std::min(d, s(p));
+    return d;
+  }
+};
+
+// A pore ready for many evaluations: the cos and sin of its yaw and of every lobe's taken once;
+// contains() is Pore::contains.
+struct PoreTest {
+  struct Section {
+    double dx, dy, a, b, c, s;
+  };
+  const Pore* pore;
+  Vec3 centre;
+  double c_mm;
+  std::vector<Section> sections;  // the ellipsoid, then the lobes
+  explicit PoreTest(const Pore& p) : pore(&p), centre(p.centre_mm), c_mm(p.semi_axes_mm[2]) {
+    sections.push_back({0, 0, p.semi_axes_mm[0], p.semi_axes_mm[1], std::cos(p.yaw_rad), std::sin(p.yaw_rad)});
+    for (const Lobe& l : p.lobes) sections.push_back({l.dx_mm, l.dy_mm, l.a_mm, l.b_mm, std::cos(l.yaw_rad), std::sin(l.yaw_rad)});
+  }
+  bool contains(const Vec3& q) const {
+    const double dx = q[0] - centre[0], dy = q[1] - centre[1], dz = q[2] - centre[2];
+    const double w = dz / c_mm, ww = w * w;
+    if (ww > 1.0) return false;
+    if (in_section(dx, dy, ww, sections[0].c, sections[0].s, sections[0].a, sections[0].b)) return true;
+    for (size_t i = 1; i < sections.size(); ++i) {
+      const Section& e = sections[i];
+      if (in_section(dx - e.dx, dy - e.dy, ww, e.c, e.s, e.a, e.b)) return true;
+    }
+    return false;
+  }
+};
+
+double shape_sdf(const Shape& s, const Vec3& p) { return ShapeSdf(s)(p); }
 
 // Axis-aligned bounding box of a shape: {min, max} in mm.
 std::array<Vec3, 2> shape_box(const Shape& s) {
@@ -473,6 +534,45 @@ Phantom build_phantom(const Recipe& r) {
   return ph;
 }
 
+Phantom posed_phantom(const Phantom& ph, const ScanPose& pose, double voxel_mm, const std::string& key) {
+  Phantom out = ph;
+  const double th = pose.rotation_deg[2] * M_PI / 180, c = std::cos(th), sn = std::sin(th);
+  const auto& t = pose.translation_mm;
+  const auto move = [&](const auto& p) {  // x' = Rz x + t
+    return std::array<double, 3>{c * p[0] - sn * p[1] + t[0], sn * p[0] + c * p[1] + t[1], p[2] + t[2]};
+  };
+  for (int i = 0; i < 3; ++i) {
+    out.grid.spacing_mm[i] = voxel_mm;
+    out.grid.origin_mm[i] = -(ph.grid.dims[i] - 1) / 2.0 * voxel_mm;
+  }
+  const char* axis = "xyz";
+  for (size_t k = 0; k < out.shapes.size(); ++k) {
+    Shape& s = out.shapes[k];
+    s.centre_mm = move(s.centre_mm);
+    s.angle_deg += pose.rotation_deg[2];
+    const auto b = shape_box(s);
+    for (int i = 0; i < 3; ++i) {
+      const double half = (ph.grid.dims[i] - 1) / 2.0 * voxel_mm - voxel_mm;
+      if (b[0][i] < -half || b[1][i] > half)
+        throw InputError("recipe: " + key + " moves phantom.shape." + std::to_string(k) + " to " + mm(b[0][i]) + " .. " +
+                         mm(b[1][i]) + " along " + axis[i] + ", outside the scan's volume (+-" + mm(half) +
+                         "); lower the translation or raise the voxel size");
+    }
+  }
+  for (Marker& m : out.markers) m.centre_mm = move(m.centre_mm);
+  for (Pore& p : out.pores) {
+    p.centre_mm = move(p.centre_mm);
+    p.yaw_rad += th;
+    for (Lobe& l : p.lobes) {  // offsets turn with the part; the union's volume is unchanged
+      const double dx = l.dx_mm, dy = l.dy_mm;
+      l.dx_mm = c * dx - sn * dy;
+      l.dy_mm = sn * dx + c * dy;
+      l.yaw_rad += th;
+    }
+  }
+  return out;
+}
+
 Truth rasterize_truth(const Phantom& ph, int ss) {
   if (ss < 1) throw InputError("supersampling must be >= 1");
   const Geometry& g = ph.grid;
@@ -483,6 +583,10 @@ Truth rasterize_truth(const Phantom& ph, int ss) {
   for (int j = 0; j < ss; ++j) off[size_t(j)] = ((j + 0.5) / ss - 0.5) * s;
   const double boundary = 0.5 * std::sqrt(3.0) * s;  // half the voxel diagonal
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
+  const PartSdf part_sdf(ph.shapes);
+  std::vector<PoreTest> pores;
+  pores.reserve(ph.pores.size());
+  for (const Pore& p : ph.pores) pores.emplace_back(p);
 
 #pragma omp parallel for schedule(static)
   for (int64_t z = 0; z < nz; ++z) {
@@ -491,25 +595,26 @@ Truth rasterize_truth(const Phantom& ph, int ss) {
     for (int64_t y = 0; y < ny; ++y)
       for (int64_t x = 0; x < nx; ++x) {
         const Vec3 c{g.origin_mm[0] + x * s, g.origin_mm[1] + y * s, zc};
-        const double d = ph.part_sdf(c);
+        const double d = part_sdf(c);
         int cnt = 0;
         if (d <= -boundary) cnt = n_sub;
         else if (d < boundary)
           for (int k = 0; k < ss; ++k)
             for (int j = 0; j < ss; ++j)
               for (int i = 0; i < ss; ++i)
-                cnt += ph.part_sdf({c[0] + off[size_t(i)], c[1] + off[size_t(j)], c[2] + off[size_t(k)]}) < 0;
+                cnt += part_sdf({c[0] + off[size_t(i)], c[1] + off[size_t(j)], c[2] + off[size_t(k)]}) < 0;
         part[size_t(y * nx + x)] = uint16_t(cnt);
       }
     // Pores stamped over their bounding boxes; they never overlap, so counts simply add.
-    std::vector<const Pore*> here;
-    for (const Pore& p : ph.pores) {
+    std::vector<const PoreTest*> here;
+    for (const PoreTest& pt : pores) {
+      const Pore& p = *pt.pore;
       const Vec3 h = p.half_extent_mm();
       if (p.centre_mm[2] + h[2] < zc - s / 2 || p.centre_mm[2] - h[2] > zc + s / 2) continue;
-      here.push_back(&p);
+      here.push_back(&pt);
     }
-    for (const Pore* pp : here) {
-      const Pore& p = *pp;
+    for (const PoreTest* pt : here) {
+      const Pore& p = *pt->pore;
       const Vec3 h = p.half_extent_mm();
       const int64_t x0 = std::max<int64_t>(0, int64_t(std::floor((p.centre_mm[0] - h[0] - g.origin_mm[0]) / s))),
                     x1 = std::min<int64_t>(nx - 1, int64_t(std::ceil((p.centre_mm[0] + h[0] - g.origin_mm[0]) / s))),
@@ -523,9 +628,9 @@ Truth rasterize_truth(const Phantom& ph, int ss) {
             for (int j = 0; j < ss; ++j)
               for (int i = 0; i < ss; ++i) {
                 const Vec3 q{c[0] + off[size_t(i)], c[1] + off[size_t(j)], c[2] + off[size_t(k)]};
-                if (!p.contains(q)) continue;
+                if (!pt->contains(q)) continue;
                 if (!p.open) ++in;
-                else if (ph.part_sdf(q) < 0) ++carved;  // open pore: air that was part
+                else if (part_sdf(q) < 0) ++carved;  // open pore: air that was part
               }
           pore[size_t(y * nx + x)] = uint16_t(pore[size_t(y * nx + x)] + in);
           part[size_t(y * nx + x)] = uint16_t(part[size_t(y * nx + x)] - carved);
@@ -543,8 +648,8 @@ Truth rasterize_truth(const Phantom& ph, int ss) {
         const Vec3 c{g.origin_mm[0] + double(i % nx) * s, g.origin_mm[1] + double(i / nx) * s, zc};
         uint8_t cc = ph.in_part(c) ? 1 : 0;
         if (cc == 1)
-          for (const Pore* p : here)
-            if (!p->open && p->contains(c)) cc = 2;
+          for (const PoreTest* p : here)
+            if (!p->pore->open && p->contains(c)) cc = 2;
         if (n[cc] == best) l = cc;
       }
       lab[i] = l;

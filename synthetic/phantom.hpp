@@ -76,6 +76,11 @@ struct Phantom {
 // be placed, or when the part does not fit the volume.
 Phantom build_phantom(const Recipe& r);
 
+// The phantom as mounted for a posed scan (recipe.hpp ScanPose): shapes, markers and pores moved by
+// x' = Rz x + t (yaws turn with the part), on a grid of the same dims with voxels of voxel_mm,
+// centred. Throws InputError naming `key` when the moved part leaves that grid (a voxel to spare).
+Phantom posed_phantom(const Phantom& ph, const ScanPose& pose, double voxel_mm, const std::string& key);
+
 struct Truth {
   Image<uint8_t> labels;  // 0 background, 1 material, 2 closed pore
   Mask part;              // labels != 0

@@ -16,6 +16,7 @@
 #include "core/error.hpp"
 #include "core/memory.hpp"
 #include "core/names.hpp"
+#include "core/toml_keys.hpp"
 #include "synthetic/fbp.hpp"
 #include "synthetic/presets.hpp"
 
@@ -34,6 +35,15 @@ bool PorePopulation::operator==(const PorePopulation& o) const {
          aspect == o.aspect && layer_um == o.layer_um && pores_per_cluster == o.pores_per_cluster &&
          cluster_radius_um == o.cluster_radius_um && open_count == o.open_count && shape == o.shape &&
          lobes == o.lobes && lobe_scale == o.lobe_scale;
+}
+bool ScanPose::operator==(const ScanPose& o) const {
+  return projections == o.projections && translation_mm == o.translation_mm && rotation_deg == o.rotation_deg &&
+         voxel_size_um == o.voxel_size_um;
+}
+const ScanPose* Recipe::pose_for(int n) const {
+  for (const ScanPose& p : poses)
+    if (p.projections == n || p.projections == 0) return &p;
+  return nullptr;
 }
 bool Recipe::operator==(const Recipe& o) const { return to_toml(*this) == to_toml(o); }
 
@@ -129,13 +139,8 @@ class Reader {
     return n->as_table();
   }
   void finish() const {
-    for (auto&& [key, value] : t_) {
-      const std::string k(key.str());
-      if (std::find(known_.begin(), known_.end(), k) == known_.end()) {
-        const std::string near = closest_name(k, known_);
-        fail(k, "is not known" + (near.empty() ? std::string() : " (did you mean " + key_name(near) + "?)"));
-      }
-    }
+    if (const auto u = first_unknown_key(t_, known_))
+      fail(u->key, "is not known" + (u->near.empty() ? std::string() : " (did you mean " + key_name(u->near) + "?)"));
   }
 
  private:
@@ -200,6 +205,11 @@ template <class F> void scan_fields(Recipe& r, F&& f) {
   f("filter", r.filter), f("output_type", r.output_type), f("uint16_full_scale_mu", r.uint16_full_scale_mu);
 }
 
+template <class F> void pose_fields(ScanPose& p, F&& f) {
+  f("projections", p.projections), f("translation_mm", p.translation_mm), f("rotation_deg", p.rotation_deg);
+  f("voxel_size_um", p.voxel_size_um);
+}
+
 // Reads an array of tables [[key]] into items, each through its field list.
 template <class T, class Fields>
 void read_list(Reader& parent, const std::string& key, const std::string& prefix, const std::string& source,
@@ -235,6 +245,7 @@ Recipe from_table(const toml::table& t, const std::string& source) {
   if (const toml::table* sc = top.table("scan")) {
     Reader s(*sc, "scan", source);
     scan_fields(r, [&s](const char* k, auto& v) { s.get(k, v); });
+    read_list(s, "pose", "scan.pose", source, r.poses, [](ScanPose& p, auto&& f) { pose_fields(p, f); });
     s.finish();
   }
   top.finish();
@@ -393,6 +404,15 @@ std::string to_toml(const Recipe& recipe) {
   t.insert("phantom", ph);
   t.insert("pores", pores);
   scan_fields(r, Writer{sc});
+  if (!r.poses.empty()) {  // written only when present: recipe.toml of unposed recipes is as before
+    toml::array poses;
+    for (ScanPose& p : r.poses) {
+      toml::table e;
+      pose_fields(p, Writer{e});
+      poses.push_back(e);
+    }
+    sc.insert("pose", poses);
+  }
   t.insert("scan", sc);
   std::ostringstream os;
   os << "# porebench synthetic-scan recipe: reproduces the phantom, its truth and its scans\n" << t << '\n';
@@ -485,6 +505,22 @@ void validate(const Recipe& r) {
     parse_window(r.filter);  // the one list of filters (synthetic/fbp.cpp)
   } catch (const InputError& e) {
     bad("scan.filter", "= '" + r.filter + "': " + e.what());
+  }
+  for (size_t i = 0; i < r.poses.size(); ++i) {
+    const ScanPose& p = r.poses[i];
+    const std::string k = "scan.pose." + std::to_string(i);
+    if (p.projections != 0 && std::find(r.projections.begin(), r.projections.end(), p.projections) == r.projections.end())
+      bad(k + ".projections", "= " + std::to_string(p.projections) + " names no fast scan (scan.projections; 0 = all)");
+    for (size_t j = 0; j < i; ++j)
+      if (r.poses[j].projections == p.projections || r.poses[j].projections == 0 || p.projections == 0)
+        bad(k + ".projections", "= " + std::to_string(p.projections) + ": scan.pose." + std::to_string(j) +
+                                    " already poses these scans (one pose per projection count)");
+    if (p.rotation_deg[0] != 0 || p.rotation_deg[1] != 0)
+      bad(k + ".rotation_deg", "= [" + num(p.rotation_deg[0]) + ", " + num(p.rotation_deg[1]) + ", " +
+                                   num(p.rotation_deg[2]) +
+                                   "]: tilts about x and y are not simulated; give [0, 0, angle about z]");
+    if (!(std::abs(p.rotation_deg[2]) <= 360)) bad(k + ".rotation_deg", "angle about z must be in [-360, 360]");
+    if (!(p.voxel_size_um >= 0)) bad(k + ".voxel_size_um", "= " + num(p.voxel_size_um) + " must be > 0 (or 0 = the phantom's)");
   }
   if (r.output_type != "float32" && r.output_type != "uint16")
     bad("scan.output_type", "= '" + r.output_type + "' must be float32 or uint16");

@@ -59,6 +59,20 @@ struct PorePopulation {
   bool operator==(const PorePopulation& o) const;
 };
 
+// The pose of the fast scans with one projection count (issue 12: re-mounted parts, another
+// magnification): the part as it sits in that scan, x_scan_mm = Rz(rotation_deg[2]) x_phantom_mm +
+// translation_mm (rotation about z, the scan's rotation axis, counter-clockwise seen from +z; both
+// frames in mm with the origin at the volume centre), scanned on a grid of the phantom's dims with
+// voxels of voxel_size_um. rotation_deg[0] and [1] (tilts about x and y) must be 0: a tilted part is
+// not simulated. The truth in the scan's frame and the transform go to the output (synth.hpp).
+struct ScanPose {
+  int projections = 0;                          // the fast scans with this count; 0 = every fast scan
+  std::array<double, 3> translation_mm{0, 0, 0};
+  std::array<double, 3> rotation_deg{0, 0, 0};  // about x, y, z; only z may be non-zero
+  double voxel_size_um = 0;                     // 0 = the phantom's voxel size
+  bool operator==(const ScanPose& o) const;
+};
+
 struct Recipe {
   std::string name = "custom";
   uint64_t seed = 1;
@@ -87,6 +101,10 @@ struct Recipe {
   std::string filter = "ram-lak";    // ram-lak, shepp-logan, cosine, hamming, hann
   std::string output_type = "float32";  // float32 (mu in 1/mm) or uint16
   double uint16_full_scale_mu = 0;   // mu mapped to 65535 (0 = 2 x the material mu); 0 maps to 0
+  std::vector<ScanPose> poses;       // [[scan.pose]]: none = every scan in the phantom's frame
+
+  // The pose of the fast scans with `projections` angles, or nullptr (the reference scan is never posed).
+  const ScanPose* pose_for(int projections) const;
 
   double voxel_mm() const { return voxel_size_um * 1e-3; }
   double material_mu() const;  // mu_per_mm or the material default

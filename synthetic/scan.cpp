@@ -196,13 +196,30 @@ struct EllipseAtAngle {
 
 void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, int n, double* out) {
   const double ct = std::cos(theta), st = std::sin(theta);
+  // The part's intervals along every ray, kept (flat, from first[k]) when open pores need them
+  // again: computed once per ray.
+  const bool keep = !sc.open.empty() || !sc.open_unions.empty();
+  thread_local std::vector<Interval> kept;
+  thread_local std::vector<size_t> first;
+  if (keep) {
+    kept.clear();
+    first.assign(size_t(n) + 1, 0);
+  }
   Interval iv[32];
   for (int k = 0; k < n; ++k) {
     const int m = part_intervals(sc, ct, st, t0 + k * dt, iv, 32);
     double len = 0;
     for (int i = 0; i < m; ++i) len += iv[i].b - iv[i].a;
     out[k] = len;
+    if (keep) {
+      first[size_t(k)] = kept.size();
+      kept.insert(kept.end(), iv, iv + m);
+    }
   }
+  if (keep) first[size_t(n)] = kept.size();
+  // The part's intervals of ray k: [part_at(k), part_at(k) + part_count(k)).
+  const auto part_at = [&](int k) { return kept.data() + first[size_t(k)]; };
+  const auto part_count = [&](int k) { return int(first[size_t(k) + 1] - first[size_t(k)]); };
   for (const Ellipse2D& e : sc.closed) {  // closed pores lie inside the part: subtract their chords
     const EllipseAtAngle ea(e, ct, st, t0, dt, n);
     for (int k = ea.k0; k <= ea.k1; ++k) out[k] -= ea.chord(t0 + k * dt);
@@ -212,8 +229,9 @@ void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, i
     for (int k = ea.k0; k <= ea.k1; ++k) {
       double s0, s1;
       if (!ea.interval(t0 + k * dt, s0, s1)) continue;
-      const int m = part_intervals(sc, ct, st, t0 + k * dt, iv, 32);
-      for (int i = 0; i < m; ++i) out[k] -= std::max(0.0, std::min(s1, iv[i].b) - std::max(s0, iv[i].a));
+      const Interval* pv = part_at(k);
+      const int m = part_count(k);
+      for (int i = 0; i < m; ++i) out[k] -= std::max(0.0, std::min(s1, pv[i].b) - std::max(s0, pv[i].a));
     }
   }
   // Irregular voids: the merged intervals of the lobes along each ray; closed ones lie inside the
@@ -247,9 +265,10 @@ void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, i
           for (int i = 0; i < nm; ++i) out[k] -= li[i].b - li[i].a;
           continue;
         }
-        const int mp = part_intervals(sc, ct, st, t, iv, 32);
+        const Interval* pv = part_at(k);
+        const int mp = part_count(k);
         for (int i = 0; i < nm; ++i)
-          for (int j = 0; j < mp; ++j) out[k] -= std::max(0.0, std::min(li[i].b, iv[j].b) - std::max(li[i].a, iv[j].a));
+          for (int j = 0; j < mp; ++j) out[k] -= std::max(0.0, std::min(li[i].b, pv[j].b) - std::max(li[i].a, pv[j].a));
       }
     }
   };

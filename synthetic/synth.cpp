@@ -27,6 +27,9 @@ double seconds_since(std::chrono::steady_clock::time_point t0) {
 
 SynthResult synthesize(const Recipe& r, const std::function<void(const std::string&)>& progress) {
   validate(r);
+  if (!r.poses.empty())
+    throw InputError("recipe: scan.pose is written by porebench synth only (the in-memory scans of a suite are "
+                     "scored on the phantom's grid); remove [[scan.pose]] here");
   SynthResult out{r, build_phantom(r), {}, {}};
   say(progress, "phantom: " + std::to_string(out.phantom.pores.size()) + " pores");
   out.truth = rasterize_truth(out.phantom, r.supersampling);
@@ -57,6 +60,44 @@ AnyVolume stored_scan(const VolumeF& mu, const Recipe& r) {
   return AnyVolume(std::move(u));
 }
 
+namespace {
+
+// A posed scan's phantom and recipe (voxel size), its truth written in the scan's frame
+// (truth-labels-<N>p.mha, part-mask-<N>p.mha) and the manifest's pose block.
+template <class Path, class Record>
+std::pair<std::pair<Phantom, Recipe>, nlohmann::ordered_json> write_posed_truth(
+    const Phantom& ph, const Recipe& r, const ScanPose& pose, int n, const Path& path, const WriteOptions& wo,
+    const Record& record) {
+  size_t index = 0;
+  while (&r.poses[index] != &pose) ++index;
+  Recipe rp = r;
+  if (pose.voxel_size_um > 0) rp.voxel_size_um = pose.voxel_size_um;
+  Phantom posed = posed_phantom(ph, pose, rp.voxel_mm(), "scan.pose." + std::to_string(index));
+  const std::string suffix = "-" + std::to_string(n) + "p.mha";
+  {
+    const Truth truth = rasterize_truth(posed, r.supersampling);
+    write_volume(truth.labels, path("truth-labels" + suffix), wo);
+    write_volume(truth.part, path("part-mask" + suffix), wo);
+  }
+  record("truth-labels" + suffix, "truth-labels-posed", {{"projections", n}});
+  record("part-mask" + suffix, "part-mask-posed", {{"projections", n}});
+  const double th = pose.rotation_deg[2] * M_PI / 180, c = std::cos(th), s = std::sin(th);
+  nlohmann::ordered_json block{
+      {"rotation_deg", pose.rotation_deg},
+      {"translation_mm", pose.translation_mm},
+      {"voxel_size_um", rp.voxel_size_um},
+      {"phantom_to_scan",
+       {{"rotation", {{c, -s, 0.0}, {s, c, 0.0}, {0.0, 0.0, 1.0}}},
+        {"translation_mm", pose.translation_mm},
+        {"convention", "x_scan_mm = rotation * x_phantom_mm + translation_mm; x_mm = origin_mm + index * spacing_mm "
+                       "in each file's header (truth-labels.mha: phantom frame; this scan: scan frame)"}}},
+      {"truth_labels", "truth-labels" + suffix},
+      {"part_mask", "part-mask" + suffix}};
+  return {{std::move(posed), std::move(rp)}, std::move(block)};
+}
+
+}  // namespace
+
 nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, const WriteSynthOptions& opt) {
   validate(r);
   namespace fs = std::filesystem;
@@ -77,6 +118,9 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
   };
 
   const Phantom ph = build_phantom(r);
+  for (size_t i = 0; i < r.poses.size(); ++i)  // every posed part fits its scan, before any file is written
+    posed_phantom(ph, r.poses[i], r.poses[i].voxel_size_um > 0 ? r.poses[i].voxel_size_um * 1e-3 : r.voxel_mm(),
+                  "scan.pose." + std::to_string(i));
   say(opt.progress, "phantom: " + std::to_string(ph.pores.size()) + " pores, porosity " +
                         std::to_string(ph.porosity_pct()) + " % (analytic)");
   auto t0 = std::chrono::steady_clock::now();
@@ -104,15 +148,26 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
 
   const auto specs = scan_list(r);
   const bool dose_series = r.i0.size() > 1;
-  std::map<int, std::vector<size_t>> by_count;
-  for (size_t i = 0; i < specs.size(); ++i) by_count[specs[i].projections].push_back(i);
+  // Groups of one projection count and one pose (the reference scan is never posed).
+  std::map<std::pair<int, const ScanPose*>, std::vector<size_t>> by_count;
+  for (size_t i = 0; i < specs.size(); ++i)
+    by_count[{specs[i].projections, specs[i].reference ? nullptr : r.pose_for(specs[i].projections)}].push_back(i);
   // Largest count first: the reference scan is usually the slowest and the most wanted.
   for (auto it = by_count.rbegin(); it != by_count.rend(); ++it) {
-    const int n = it->first;
+    const int n = it->first.first;
+    const ScanPose* pose = it->first.second;
     std::vector<ScanSpec> group;
     for (size_t i : it->second) group.push_back(specs[i]);
     t0 = std::chrono::steady_clock::now();
-    auto vols = simulate_scans(ph, r, group);
+    nlohmann::ordered_json pose_json;
+    std::vector<VolumeF> vols;
+    if (pose) {
+      const auto [posed, block] = write_posed_truth(ph, r, *pose, n, path, wo, record);
+      pose_json = block;
+      vols = simulate_scans(posed.first, posed.second, group);
+    } else {
+      vols = simulate_scans(ph, r, group);
+    }
     for (size_t j = 0; j < it->second.size(); ++j) {
       const ScanSpec& sp = specs[it->second[j]];
       const std::string name = sp.file_name(dose_series);
@@ -123,6 +178,7 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
         extra["uint16_full_scale_mu_per_mm"] = uint16_full_scale(r);
         extra["uint16_to_mu"] = "mu_per_mm = value * uint16_full_scale_mu_per_mm / 65535";
       }
+      if (pose) extra["pose"] = pose_json;
       record(name, sp.reference ? "reference-scan" : "scan", extra);
     }
     say(opt.progress, "scan: " + std::to_string(n) + " projections x " + std::to_string(group.size()) + " scan(s), " +
