@@ -28,6 +28,29 @@
 
 namespace pb {
 
+namespace {
+
+constexpr double kSkip = -std::numeric_limits<double>::infinity();  // a split best_split skips
+
+// The split {0..k} | {k+1..}, k in [0, bins - 2], with the highest score, the first on ties; -1
+// when no score beats -inf (skipped splits score kSkip). `score` is called once per k, in
+// increasing order, so that it may keep running sums.
+template <class Score>
+int best_split(int bins, Score score) {
+  double best = -INFINITY;
+  int best_k = -1;
+  for (int k = 0; k + 1 < bins; ++k) {
+    const double s = score(k);
+    if (s > best) {
+      best = s;
+      best_k = k;
+    }
+  }
+  return best_k;
+}
+
+}  // namespace
+
 // Index k maximising the between-class variance w0*w1*(m0-m1)^2 of the split {0..k} | {k+1..}.
 // Bin centres stand for the grey values, as in scikit-image's threshold_otsu.
 int otsu_split(const Histogram& h) {
@@ -37,21 +60,16 @@ int otsu_split(const Histogram& h) {
     total += double(h.counts[size_t(i)]);
     total_sum += double(h.counts[size_t(i)]) * h.centre(i);
   }
-  double w0 = 0, s0 = 0, best = -1;
-  int best_k = 0;
-  for (int k = 0; k < n - 1; ++k) {
+  double w0 = 0, s0 = 0;
+  const int k = best_split(n, [&](int k) {
     w0 += double(h.counts[size_t(k)]);
     s0 += double(h.counts[size_t(k)]) * h.centre(k);
     const double w1 = total - w0;
-    if (w0 <= 0 || w1 <= 0) continue;
+    if (w0 <= 0 || w1 <= 0) return kSkip;
     const double d = s0 / w0 - (total_sum - s0) / w1;
-    const double between = w0 * w1 * d * d;
-    if (between > best) {
-      best = between;
-      best_k = k;
-    }
-  }
-  return best_k;
+    return w0 * w1 * d * d;
+  });
+  return std::max(k, 0);
 }
 
 namespace {
@@ -237,18 +255,13 @@ Choice yen(const Histogram& h, const ParamValues&) {
   std::vector<double> p(size_t(n), 0.0), sq_above(size_t(n) + 1, 0.0);
   for (int i = 0; i < n; ++i) p[size_t(i)] = double(h.counts[size_t(i)]) / tot;
   for (int i = n - 1; i >= 0; --i) sq_above[size_t(i)] = sq_above[size_t(i) + 1] + p[size_t(i)] * p[size_t(i)];
-  double P = 0, sq = 0, best = -INFINITY;
-  int best_k = -1;
-  for (int k = 0; k + 1 < n; ++k) {
+  double P = 0, sq = 0;
+  const int best_k = best_split(n, [&](int k) {
     P += p[size_t(k)];
     sq += p[size_t(k)] * p[size_t(k)];
-    if (sq <= 0 || sq_above[size_t(k) + 1] <= 0) continue;
-    const double crit = 2 * std::log(P * (1 - P)) - std::log(sq * sq_above[size_t(k) + 1]);
-    if (crit > best) {
-      best = crit;
-      best_k = k;
-    }
-  }
+    if (sq <= 0 || sq_above[size_t(k) + 1] <= 0) return kSkip;
+    return 2 * std::log(P * (1 - P)) - std::log(sq * sq_above[size_t(k) + 1]);
+  });
   if (best_k < 0) throw NoSplit("yen: no split leaves both classes occupied");
   return split_at(h, best_k);
 }
@@ -295,20 +308,15 @@ Choice kapur(const Histogram& h, const ParamValues&) {
   double plogp_all = 0;
   for (auto c : h.counts)
     if (c > 0) plogp_all += double(c) / tot * std::log(double(c) / tot);
-  double P = 0, plogp = 0, best = -INFINITY;
-  int best_k = -1;
-  for (int k = 0; k + 1 < n; ++k) {
+  double P = 0, plogp = 0;
+  const int best_k = best_split(n, [&](int k) {
     const double p = double(h.counts[size_t(k)]) / tot;
     P += p;
     if (p > 0) plogp += p * std::log(p);
     const double Q = 1 - P;
-    if (P <= 0 || Q <= 1e-15) continue;
-    const double H = std::log(P) - plogp / P + std::log(Q) - (plogp_all - plogp) / Q;
-    if (H > best) {
-      best = H;
-      best_k = k;
-    }
-  }
+    if (P <= 0 || Q <= 1e-15) return kSkip;
+    return std::log(P) - plogp / P + std::log(Q) - (plogp_all - plogp) / Q;
+  });
   if (best_k < 0) throw NoSplit("kapur: no split leaves both classes occupied");
   return split_at(h, best_k);
 }
@@ -320,21 +328,15 @@ Choice kapur(const Histogram& h, const ParamValues&) {
 Choice kittler_illingworth(const Histogram& h, const ParamValues&) {
   const Prefix S(h);
   const double N = S.total();
-  double best = INFINITY;
-  int best_k = -1;
-  for (int k = 0; k + 1 < h.bins(); ++k) {
+  const int best_k = best_split(h.bins(), [&](int k) {  // the minimum of J: the maximum of -J
     const double n0 = S.n[size_t(k)], n1 = N - n0;
-    if (n0 <= 0 || n1 <= 0) continue;
+    if (n0 <= 0 || n1 <= 0) return kSkip;
     const double m0 = S.s[size_t(k)] / n0, m1 = (S.s.back() - S.s[size_t(k)]) / n1;
     const double v0 = std::max(S.q[size_t(k)] / n0 - m0 * m0, 1.0 / 12);
     const double v1 = std::max((S.q.back() - S.q[size_t(k)]) / n1 - m1 * m1, 1.0 / 12);
     const double P0 = n0 / N, P1 = n1 / N;
-    const double J = 1 + P0 * std::log(v0) + P1 * std::log(v1) - 2 * (P0 * std::log(P0) + P1 * std::log(P1));
-    if (J < best) {
-      best = J;
-      best_k = k;
-    }
-  }
+    return -(1 + P0 * std::log(v0) + P1 * std::log(v1) - 2 * (P0 * std::log(P0) + P1 * std::log(P1)));
+  });
   if (best_k < 0) throw NoSplit("kittler-illingworth: no split leaves both classes occupied");
   return split_at(h, best_k);
 }
@@ -597,14 +599,10 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
         no_air(e.what());
       }
     }
-    MethodOutput out = apply_threshold(in, ThresholdChoice{c.threshold, {}});
+    MethodOutput out = apply_threshold(in, ThresholdChoice{c.threshold, std::move(warnings)}, name);
     out.chosen.emplace_back("bin_width", h.width());
     out.chosen.emplace_back("bins", h.bins());
     out.chosen.insert(out.chosen.end(), c.extra.begin(), c.extra.end());
-    if (out.part_voxels == 0)
-      warnings.push_back(name + ": every voxel is air connected to the outside at threshold " + fmt(c.threshold) +
-                         ": no part voxels, porosity undefined (all air?)");
-    out.warnings = std::move(warnings);
     return out;
   };
   return m;
@@ -618,11 +616,7 @@ MethodInfo manual_info() {
   m.citation = "none (user-chosen threshold)";
   m.params = {{"threshold", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "the threshold in grey-value units"}};
   m.run = [](const MethodInput& in, const ParamValues& p) {
-    MethodOutput out = apply_threshold(in, ThresholdChoice{p.num("threshold"), {}});
-    if (out.part_voxels == 0)
-      out.warnings.push_back("manual: every voxel is air connected to the outside at threshold " + p.text().at("threshold") +
-                             ": no part voxels, porosity undefined (all air?)");
-    return out;
+    return apply_threshold(in, ThresholdChoice{p.num("threshold"), {}}, "manual");
   };
   return m;
 }

@@ -99,7 +99,7 @@ bool constant_volume(const MethodInput& in, const Context& c, LocalAir& out) {
 template <class Thr>
 Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr thr) {
   const VolumeF& v = in.volume;
-  Mask air(v.geometry());
+  Mask air(v.geometry(), Uninitialized{});  // every slice written below
   const int64_t nxy = v.geometry().slice_voxels();
   SliceMoments mom(v, window, centre);
   std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(mean.size());
@@ -315,7 +315,7 @@ MethodInfo bernsen_info() {
             vmin[i] = dark && !std::isnan(v[i]) && (!roi || roi[i]) ? 1.0f : 0.0f;
           }
           vmax = VolumeF();
-          Mask air(in.volume.geometry());
+          Mask air(in.volume.geometry(), Uninitialized{});
 #pragma omp parallel for schedule(static)
           for (int64_t i = 0; i < n; ++i) air[i] = vmin[i] != 0;
           out = finish(std::move(air), c);
@@ -370,7 +370,7 @@ MethodInfo local_gaussian_info() {
             throw InputError("method local-gaussian: the volume has " + std::to_string(c.all.nan_count) +
                              " NaN voxels, which a Gaussian mean cannot skip; use local-mean or fill them");
           const VolumeF g = gaussian_mean(in.volume, w, sigma);
-          Mask air(in.volume.geometry());
+          Mask air(in.volume.geometry(), Uninitialized{});
           const float* v = in.volume.data();
           const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
           const int64_t n = in.volume.size();

@@ -7,7 +7,7 @@
 namespace pb {
 
 Mask air_below(const VolumeF& v, double threshold, const Mask* roi) {
-  Mask air(v.geometry());
+  Mask air(v.geometry(), Uninitialized{});  // every voxel written below
   const float t = float(threshold);
   const float* d = v.data();
   uint8_t* a = air.data();

@@ -83,9 +83,8 @@ MethodInfo hysteresis_info() {
     if (!(lo <= hi))
       throw InputError("hysteresis: parameter 'low' (" + p.text().at("low") + ") must not exceed 'high' (" +
                        p.text().at("high") + ")");
-    MethodOutput out;
-    out.pores = grow_air(in.volume, lo, hi, in.roi, connectivity_of(p));
-    out.part_voxels = air_to_pores(out.pores, in.roi);
+    MethodOutput out = pores_from_air(grow_air(in.volume, lo, hi, in.roi, connectivity_of(p)), in, "hysteresis",
+                                      "low " + p.text().at("low") + ", high " + p.text().at("high"));
     out.chosen = {{"low", lo}, {"high", hi}};
     return out;
   };
@@ -103,10 +102,9 @@ MethodInfo region_grow_info() {
   m.run = [](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
     if (single_occupied_bin(h)) return constant_volume_output(in);
-    MethodOutput out;
     const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
-    out.pores = grow_air(in.volume, a.seed, a.limit, in.roi, 6);
-    out.part_voxels = air_to_pores(out.pores, in.roi);
+    MethodOutput out = pores_from_air(grow_air(in.volume, a.seed, a.limit, in.roi, 6), in, "region-grow",
+                                      "seed threshold " + std::to_string(a.seed) + ", grow limit " + std::to_string(a.limit));
     out.chosen = {{"seed_threshold", a.seed}, {"grow_limit", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
     return out;
   };

@@ -86,10 +86,10 @@ MethodInfo confidence_info() {
       out.warnings = {"no voxel lies below the seed threshold: no seeds, no pores"};
     } else {
       f->Update();
-      out.pores = from_itk<uint8_t>(f->GetOutput(), in.volume.geometry());
+      Mask air = from_itk<uint8_t>(f->GetOutput(), in.volume.geometry());
       if (in.roi)
-        for (int64_t i = 0; i < out.pores.size(); ++i) out.pores[i] &= (*in.roi)[i] != 0;
-      out.part_voxels = air_to_pores(out.pores, in.roi);
+        for (int64_t i = 0; i < air.size(); ++i) air[i] &= (*in.roi)[i] != 0;
+      out = pores_from_air(std::move(air), in, "confidence-connected", "seed threshold " + std::to_string(a.seed));
     }
     out.chosen = {{"seed_threshold", a.seed}, {"otsu", a.otsu}, {"seeds", double((seeds.size() + step - 1) / step)}, {"bins", h.bins()}};
     return out;
@@ -113,17 +113,18 @@ MethodInfo watershed_info() {
     if (single_occupied_bin(h)) return constant_volume_output(in);
     const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
     const VolumeF grad = gradient_magnitude(in.volume, p.num("sigma_vox") * in.volume.geometry().spacing_mm[0]);
-    Mask markers(in.volume.geometry());
+    Mask markers(in.volume.geometry(), Uninitialized{});
     const float s = float(a.seed), mat = float(a.limit);
     for (int64_t i = 0; i < markers.size(); ++i) {
       const float v = in.volume[i];
       markers[i] = (in.roi && !(*in.roi)[i]) ? 2 : v < s ? 1 : v > mat ? 2 : 0;
     }
     Mask labels = watershed_from_markers(grad, markers);
-    MethodOutput out;
-    out.pores = Mask(in.volume.geometry());
-    for (int64_t i = 0; i < labels.size(); ++i) out.pores[i] = labels[i] == 1 && (!in.roi || (*in.roi)[i]);
-    out.part_voxels = air_to_pores(out.pores, in.roi);
+    Mask air(in.volume.geometry(), Uninitialized{});
+    for (int64_t i = 0; i < labels.size(); ++i) air[i] = labels[i] == 1 && (!in.roi || (*in.roi)[i]);
+    MethodOutput out = pores_from_air(std::move(air), in, "watershed",
+                                      "air markers below " + std::to_string(a.seed) + ", material markers above " +
+                                          std::to_string(a.limit));
     out.chosen = {{"air_marker_below", a.seed}, {"material_marker_above", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
     return out;
   };

@@ -1,3 +1,7 @@
+// The method registry (registry.hpp): parameter parsing and validation against each schema (typed
+// values, ranges, the words an Int/Float may be given as, "did you mean"), registration of methods
+// and pre-filters, FILTER+METHOD composition (filter parameters prefixed "FILTER."), and the timed
+// run with the shared pore-extraction parameter min_pore_voxels.
 #include "methods/registry.hpp"
 
 #include <algorithm>

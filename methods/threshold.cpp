@@ -1,6 +1,11 @@
+// What threshold methods share (threshold.hpp): the histogram schema (bins with its auto rule,
+// clip_pct, histogram = volume | roi), the method histogram over the (robust) grey range, the
+// applier (air below the threshold, then pore extraction) and the registration of a histogram
+// calculator. Global calculators and their degenerate-input policy: methods/global.cpp.
 #include "methods/threshold.hpp"
 
 #include <cmath>
+#include <cstdio>
 
 #include "core/error.hpp"
 #include "methods/pores.hpp"
@@ -53,12 +58,22 @@ bool single_occupied_bin(const Histogram& h) {
   return occupied < 2;
 }
 
-MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c) {
+MethodOutput pores_from_air(Mask air, const MethodInput& in, const std::string& method, const std::string& setting) {
   MethodOutput out;
-  out.pores = air_below(in.volume, c.threshold, in.roi);
+  out.pores = std::move(air);
   out.part_voxels = air_to_pores(out.pores, in.roi);
+  if (out.part_voxels == 0)
+    out.warnings.push_back(method + ": every voxel is air connected to the outside at " + setting +
+                           ": no part voxels, porosity undefined (all air?)");
+  return out;
+}
+
+MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, const std::string& method) {
+  char t[32];
+  std::snprintf(t, sizeof t, "%.6g", c.threshold);
+  MethodOutput out = pores_from_air(air_below(in.volume, c.threshold, in.roi), in, method, std::string("threshold ") + t);
   out.chosen.emplace_back("threshold", c.threshold);
-  out.warnings = c.warnings;
+  out.warnings.insert(out.warnings.begin(), c.warnings.begin(), c.warnings.end());
   return out;
 }
 
@@ -71,14 +86,14 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
   m.citation = std::move(citation);
   m.params = histogram_params();
   m.params.insert(m.params.end(), extra.begin(), extra.end());
-  m.run = [calc = std::move(calc)](const MethodInput& in, const ParamValues& p) {
+  m.run = [calc = std::move(calc), name = m.name](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
     if (single_occupied_bin(h)) {
       // A constant volume has nothing to split: no voxel is called air.
       ThresholdChoice c{h.lo, {"the grey-value histogram has a single occupied bin (constant volume): no pores"}};
-      return apply_threshold(in, c);
+      return apply_threshold(in, c, name);
     }
-    return apply_threshold(in, calc(h, p));
+    return apply_threshold(in, calc(h, p), name);
   };
   return m;
 }

@@ -34,8 +34,13 @@ struct ThresholdChoice {
   std::vector<std::string> warnings;
 };
 
-// Pore mask from a threshold, recording it as chosen["threshold"].
-MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c);
+// The one applier of every method that calls air: pore extraction (methods/pores.hpp) and the one
+// degenerate-input policy: when no part voxel remains (all air connected to the outside),
+// porosity is undefined and a warning says so, naming `method` and its `setting`.
+MethodOutput pores_from_air(Mask air, const MethodInput& in, const std::string& method, const std::string& setting);
+
+// Pore mask from a threshold (pores_from_air of air below it), recording it as chosen["threshold"].
+MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, const std::string& method);
 
 // Registers a histogram method: `calc` sees the method's histogram and parameters.
 using ThresholdCalculator = std::function<ThresholdChoice(const Histogram&, const ParamValues&)>;

@@ -156,3 +156,21 @@ TEST_CASE("region methods: constant volume warns, bad parameters are named", "[r
                     Catch::Contains("'low'") && Catch::Contains("'high'"));
   CHECK_THROWS_WITH(parse_params(h, {"low=0.1", "high=0.3", "connectivity=8"}), Catch::Contains("6, 18, 26"));
 }
+
+TEST_CASE("region methods share the applier's degenerate-input policy: no part voxels is warned", "[region][degenerate]") {
+  // Analytic: with both thresholds above every grey value, every voxel is air connected to the
+  // border, so no part voxel remains and porosity is undefined (the same words as global methods).
+  VolumeF v(pbtest::cube(12));
+  for (int64_t i = 0; i < v.size(); ++i) v[i] = float(i % 7) * 0.1f;
+  const MethodInfo& h = Registry::instance().get("hysteresis");
+  const MethodOutput o = run_method(h, parse_params(h, {"low=5", "high=6"}), MethodInput{v});
+  CHECK(o.part_voxels == 0);
+  bool warned = false;
+  for (const auto& w : o.warnings) warned |= w.find("hysteresis: every voxel is air") != std::string::npos &&
+                                            w.find("no part voxels, porosity undefined") != std::string::npos;
+  CHECK(warned);
+  // A part that is not all air: no such warning.
+  const MethodOutput p = run_method(h, parse_params(h, {"low=0.05", "high=0.15"}), MethodInput{v});
+  CHECK(p.part_voxels > 0);
+  for (const auto& w : p.warnings) CHECK(w.find("no part voxels") == std::string::npos);
+}
