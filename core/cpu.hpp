@@ -1,7 +1,8 @@
 #pragma once
 // Instruction sets for hand-written kernels, detected once at run time (builds stay portable: no
-// -march=native). Kernels with an AVX2 or AVX-512 path keep a generic path that gives the same
-// result; tests cap the level to run both (set_simd_cap).
+// -march=native). Kernels with an AVX2 or AVX-512 path keep a generic path that agrees with them to
+// float rounding (integer kernels: identical), so bit-identical files across machines need the same
+// level (README, `--simd`); tests cap the level to run both (set_simd_cap).
 namespace pb {
 
 enum class Simd { generic = 0, avx2 = 1, avx512 = 2 };

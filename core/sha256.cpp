@@ -1,80 +1,60 @@
+// SHA-256 through OpenSSL's libcrypto (EVP). The algorithm is fetched once per process (OpenSSL 3
+// otherwise looks it up in its provider tables at every init).
 #include "core/sha256.hpp"
 
+#include <fcntl.h>
+#include <openssl/evp.h>
+#include <unistd.h>
+
+#include <cerrno>
 #include <cstring>
-#include <fstream>
+#include <stdexcept>
 #include <vector>
 
 #include "core/error.hpp"
 
 namespace pb {
 namespace {
-constexpr uint32_t K[64] = {
-    0x428a2f98, 0x71374491, 0xb5c0fbcf, 0xe9b5dba5, 0x3956c25b, 0x59f111f1, 0x923f82a4, 0xab1c5ed5,
-    0xd807aa98, 0x12835b01, 0x243185be, 0x550c7dc3, 0x72be5d74, 0x80deb1fe, 0x9bdc06a7, 0xc19bf174,
-    0xe49b69c1, 0xefbe4786, 0x0fc19dc6, 0x240ca1cc, 0x2de92c6f, 0x4a7484aa, 0x5cb0a9dc, 0x76f988da,
-    0x983e5152, 0xa831c66d, 0xb00327c8, 0xbf597fc7, 0xc6e00bf3, 0xd5a79147, 0x06ca6351, 0x14292967,
-    0x27b70a85, 0x2e1b2138, 0x4d2c6dfc, 0x53380d13, 0x650a7354, 0x766a0abb, 0x81c2c92e, 0x92722c85,
-    0xa2bfe8a1, 0xa81a664b, 0xc24b8b70, 0xc76c51a3, 0xd192e819, 0xd6990624, 0xf40e3585, 0x106aa070,
-    0x19a4c116, 0x1e376c08, 0x2748774c, 0x34b0bcb5, 0x391c0cb3, 0x4ed8aa4a, 0x5b9cca4f, 0x682e6ff3,
-    0x748f82ee, 0x78a5636f, 0x84c87814, 0x8cc70208, 0x90befffa, 0xa4506ceb, 0xbef9a3f7, 0xc67178f2};
-inline uint32_t rotr(uint32_t x, int n) { return (x >> n) | (x << (32 - n)); }
+
+const EVP_MD* sha256_md() {
+  static EVP_MD* md = [] {
+    EVP_MD* m = EVP_MD_fetch(nullptr, "SHA256", nullptr);
+    if (!m) throw std::runtime_error("OpenSSL: SHA256 is not available");
+    return m;
+  }();
+  return md;
+}
+
 }  // namespace
 
-Sha256::Sha256() {
-  const uint32_t init[8] = {0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a, 0x510e527f, 0x9b05688c, 0x1f83d9ab, 0x5be0cd19};
-  std::memcpy(h_, init, sizeof(h_));
-}
+struct Sha256::Ctx {
+  EVP_MD_CTX* c = EVP_MD_CTX_new();
+  Ctx() {
+    if (!c || EVP_DigestInit_ex(c, sha256_md(), nullptr) != 1) throw std::runtime_error("OpenSSL: SHA256 init failed");
+  }
+  ~Ctx() { EVP_MD_CTX_free(c); }
+};
 
-void Sha256::block(const uint8_t* p) {
-  uint32_t w[64];
-  for (int i = 0; i < 16; ++i) w[i] = uint32_t(p[4 * i]) << 24 | uint32_t(p[4 * i + 1]) << 16 | uint32_t(p[4 * i + 2]) << 8 | p[4 * i + 3];
-  for (int i = 16; i < 64; ++i) {
-    const uint32_t s0 = rotr(w[i - 15], 7) ^ rotr(w[i - 15], 18) ^ (w[i - 15] >> 3);
-    const uint32_t s1 = rotr(w[i - 2], 17) ^ rotr(w[i - 2], 19) ^ (w[i - 2] >> 10);
-    w[i] = w[i - 16] + s0 + w[i - 7] + s1;
-  }
-  uint32_t a = h_[0], b = h_[1], c = h_[2], d = h_[3], e = h_[4], f = h_[5], g = h_[6], h = h_[7];
-  for (int i = 0; i < 64; ++i) {
-    const uint32_t S1 = rotr(e, 6) ^ rotr(e, 11) ^ rotr(e, 25);
-    const uint32_t ch = (e & f) ^ (~e & g);
-    const uint32_t t1 = h + S1 + ch + K[i] + w[i];
-    const uint32_t S0 = rotr(a, 2) ^ rotr(a, 13) ^ rotr(a, 22);
-    const uint32_t maj = (a & b) ^ (a & c) ^ (b & c);
-    const uint32_t t2 = S0 + maj;
-    h = g; g = f; f = e; e = d + t1; d = c; c = b; b = a; a = t1 + t2;
-  }
-  h_[0] += a; h_[1] += b; h_[2] += c; h_[3] += d; h_[4] += e; h_[5] += f; h_[6] += g; h_[7] += h;
-}
+Sha256::Sha256() : ctx_(std::make_unique<Ctx>()) {}
+Sha256::~Sha256() = default;
+Sha256::Sha256(Sha256&&) noexcept = default;
+Sha256& Sha256::operator=(Sha256&&) noexcept = default;
 
 void Sha256::update(const void* data, size_t n) {
-  const auto* p = static_cast<const uint8_t*>(data);
-  length_ += n;
-  if (fill_) {
-    const size_t take = std::min(n, 64 - fill_);
-    std::memcpy(buf_ + fill_, p, take);
-    fill_ += take; p += take; n -= take;
-    if (fill_ < 64) return;
-    block(buf_);
-    fill_ = 0;
-  }
-  for (; n >= 64; n -= 64, p += 64) block(p);
-  std::memcpy(buf_, p, n);
-  fill_ = n;
+  if (n && EVP_DigestUpdate(ctx_->c, data, n) != 1) throw std::runtime_error("OpenSSL: SHA256 update failed");
 }
 
 std::string Sha256::hex() {
-  const uint64_t bits = length_ * 8;
-  const uint8_t pad = 0x80;
-  update(&pad, 1);
-  const uint8_t zero = 0;
-  while (fill_ != 56) update(&zero, 1);
-  uint8_t len[8];
-  for (int i = 0; i < 8; ++i) len[i] = uint8_t(bits >> (56 - 8 * i));
-  update(len, 8);
+  unsigned char md[EVP_MAX_MD_SIZE];
+  unsigned int len = 0;
+  if (EVP_DigestFinal_ex(ctx_->c, md, &len) != 1 || EVP_DigestInit_ex(ctx_->c, sha256_md(), nullptr) != 1)
+    throw std::runtime_error("OpenSSL: SHA256 final failed");
   static const char* digits = "0123456789abcdef";
-  std::string out;
-  for (uint32_t v : h_)
-    for (int s = 28; s >= 0; s -= 4) out += digits[(v >> s) & 15];
+  std::string out(2 * len, '0');
+  for (unsigned i = 0; i < len; ++i) {
+    out[2 * i] = digits[md[i] >> 4];
+    out[2 * i + 1] = digits[md[i] & 15];
+  }
   return out;
 }
 
@@ -85,14 +65,23 @@ std::string sha256_hex(const void* data, size_t n) {
 }
 
 std::string sha256_file(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  if (!f) throw InputError("cannot read " + path);
+  const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) throw InputError("cannot read " + path + ": " + std::strerror(errno));
+  ::posix_fadvise(fd, 0, 0, POSIX_FADV_SEQUENTIAL);
   Sha256 s;
-  std::vector<char> buf(1 << 20);
-  while (f) {
-    f.read(buf.data(), std::streamsize(buf.size()));
-    s.update(buf.data(), size_t(f.gcount()));
+  std::vector<char> buf(size_t(1) << 20);  // 1 MiB: stays in L2, large enough for few syscalls
+  for (;;) {
+    const ssize_t got = ::read(fd, buf.data(), buf.size());
+    if (got < 0) {
+      if (errno == EINTR) continue;
+      const int e = errno;
+      ::close(fd);
+      throw InputError("cannot read " + path + ": " + std::strerror(e));
+    }
+    if (got == 0) break;
+    s.update(buf.data(), size_t(got));
   }
+  ::close(fd);
   return s.hex();
 }
 

@@ -1,7 +1,8 @@
 #pragma once
 // SHA-256 (FIPS 180-4) of byte buffers and files, as lowercase hex, for input/output fingerprints.
+// Computed by OpenSSL's libcrypto (EVP interface: it uses the CPU's SHA extensions where present).
 #include <cstddef>
-#include <cstdint>
+#include <memory>
 #include <string>
 
 namespace pb {
@@ -9,15 +10,15 @@ namespace pb {
 class Sha256 {
  public:
   Sha256();
+  ~Sha256();
+  Sha256(Sha256&&) noexcept;
+  Sha256& operator=(Sha256&&) noexcept;
   void update(const void* data, size_t n);
-  std::string hex();  // finishes the digest
+  std::string hex();  // finishes the digest; the object then starts a new one
 
  private:
-  void block(const uint8_t* p);
-  uint32_t h_[8];
-  uint8_t buf_[64];
-  size_t fill_ = 0;
-  uint64_t length_ = 0;
+  struct Ctx;
+  std::unique_ptr<Ctx> ctx_;
 };
 
 std::string sha256_hex(const void* data, size_t n);
