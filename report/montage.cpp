@@ -4,10 +4,11 @@
 
 #include <algorithm>
 #include <cmath>
-#include <opencv2/imgcodecs.hpp>
+#include <opencv2/imgcodecs.hpp>  // flags only; files go through core/image_files
 #include <opencv2/imgproc.hpp>
 
 #include "core/error.hpp"
+#include "core/image_files.hpp"
 #include "core/io.hpp"
 
 namespace pb::report {
@@ -17,7 +18,7 @@ namespace {
 constexpr int kMinTile = 160, kMaxTile = 384, kPerRow = 5, kGap = 6, kLabelH = 24;
 
 cv::Mat read_grey(const std::string& path, const std::string& what) {
-  cv::Mat m = cv::imread(path, cv::IMREAD_GRAYSCALE);
+  cv::Mat m = image_read(path, cv::IMREAD_GRAYSCALE);
   if (m.empty()) throw InputError("montage: cannot read the " + what + " slice " + path);
   return m;
 }
@@ -100,7 +101,7 @@ void write_montage(const std::string& scan_png, const std::string& reference_png
     cv::Mat pred;
     std::string note = m.note;
     if (!m.mask_png.empty()) {
-      pred = cv::imread(m.mask_png, cv::IMREAD_GRAYSCALE);
+      pred = image_read(m.mask_png, cv::IMREAD_GRAYSCALE);
       if (pred.empty()) note = "mask file missing";
       else if (pred.size() != grey.size()) note = "mask size differs", pred.release();
     }
@@ -117,7 +118,7 @@ void write_montage(const std::string& scan_png, const std::string& reference_png
   }
   AtomicOutput a(out_png);
   // Highest zlib level: upscaled tiles repeat each pixel and shrink tenfold (quick suite: 500 -> 55 kB).
-  if (!cv::imwrite(a.tmp_path(), sheet, {cv::IMWRITE_PNG_COMPRESSION, 9})) throw InputError("montage: cannot write " + out_png);
+  if (!image_write(a.tmp_path(), sheet, {cv::IMWRITE_PNG_COMPRESSION, 9})) throw InputError("montage: cannot write " + out_png);
   a.commit();
 }
 

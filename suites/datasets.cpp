@@ -4,11 +4,11 @@
 #include <filesystem>
 #include <fstream>
 #include <opencv2/core.hpp>
-#include <opencv2/imgcodecs.hpp>
 #include <sstream>
 
 #include "core/error.hpp"
 #include "core/histogram.hpp"
+#include "core/image_files.hpp"
 #include "core/io.hpp"
 #include "core/sha256.hpp"
 #include "methods/registry.hpp"
@@ -25,7 +25,7 @@ void write_slice_png(const VolumeF& v, int64_t z, double lo, double hi, const st
   const double scale = hi > lo ? 255.0 / (hi - lo) : 1.0;
   src.convertTo(out, CV_8U, scale, -lo * scale);
   AtomicOutput a(path);
-  if (!cv::imwrite(a.tmp_path(), out)) throw InputError("cannot write " + path);
+  if (!image_write(a.tmp_path(), out)) throw InputError("cannot write " + path);
   a.commit();
 }
 
@@ -33,7 +33,7 @@ void write_mask_png(const Mask& m, int64_t z, const std::string& path) {
   cv::Mat src(int(m.ny()), int(m.nx()), CV_8U, const_cast<uint8_t*>(m.slice(z)));
   cv::Mat out = src * 255;
   AtomicOutput a(path);
-  if (!cv::imwrite(a.tmp_path(), out)) throw InputError("cannot write " + path);
+  if (!image_write(a.tmp_path(), out)) throw InputError("cannot write " + path);
   a.commit();
 }
 
