@@ -1,5 +1,6 @@
 // porebench: trials of CT pore-segmentation methods against paired references.
-// Exit codes: 0 success, 1 acceptance criteria not met, 2 bad usage or input, 3 internal error.
+// Exit codes: 0 success, 1 acceptance criteria not met (run, compare), 2 bad usage or input, 3 internal
+// error. `report` exits 0 once it has rendered: it prints the verdict but does not judge.
 #include <algorithm>
 #include <cstdio>
 #include <fstream>
@@ -11,6 +12,7 @@
 #include "build_info.hpp"
 #include "core/cpu.hpp"
 #include "core/error.hpp"
+#include "core/names.hpp"
 #include "core/parallel.hpp"
 
 namespace pb::cli {
@@ -97,6 +99,25 @@ int main(int argc, char** argv) {
   for (auto& d : defs) {
     CLI::App* sub = app.add_subcommand(d.name);
     actions.emplace_back(sub, d.setup(*sub));
+  }
+  // An unknown command word is named, with the closest command (CLI11 would only say that a
+  // subcommand is required). Global options before it are skipped with their values.
+  for (int i = 1; i < argc; ++i) {
+    const std::string w = argv[i];
+    if (w == "--threads" || w == "--simd") {
+      ++i;
+      continue;
+    }
+    if (w.empty() || w[0] == '-') continue;
+    std::vector<std::string> names;
+    for (const auto& d : defs) names.push_back(d.name);
+    if (std::find(names.begin(), names.end(), w) != names.end()) break;
+    const std::string close = closest_name(w, names);
+    std::string list;
+    for (const auto& n : names) list += (list.empty() ? "" : ", ") + n;
+    std::cerr << "porebench: error: unknown command '" << w << "'" << (close.empty() ? "" : "; did you mean '" + close + "'?")
+              << "\ncommands: " << list << " (porebench --help)\n";
+    return kExitBadInput;
   }
   try {
     app.parse(argc, argv);

@@ -11,6 +11,59 @@ const char* const kCaution =
 
 std::string fmt(const Json& v, int digits) { return v.is_number() ? format_number(v.get<double>(), digits) : "n/a"; }
 
+std::string md_cell(const std::string& s) {
+  std::string out;
+  for (char c : s) {
+    if (c == '|') out += "\\|";
+    else if (c == '\n' || c == '\r') out += ' ';
+    else out += c;
+  }
+  return out;
+}
+
+std::string md_row(const std::vector<std::string>& cells) {
+  std::string out = "|";
+  for (const auto& c : cells) out += " " + md_cell(c) + " |";
+  return out + "\n";
+}
+
+std::string a9095_text(const Json& t) {
+  const Json& pod = t["pod"];
+  if (pod.value("a90_95_relation", "") == "<=") return "≤ " + fmt(pod["a90_95_um"]) + " (every target hit)";
+  std::string s = fmt(pod["a90_95_um"]);
+  if (pod.value("a90_95_extrapolated", false)) s += " (extrapolated)";
+  return s;
+}
+
+std::string false_calls_text(const Json& t) {
+  const Json& p = t["pores"];
+  Json per_target = p.contains("false_calls_per_target") ? p["false_calls_per_target"] : Json();
+  if (per_target.is_null() && p["false_calls"].is_number() && p["pores_ref"].is_number() && p["pores_ref"].get<double>() > 0)
+    per_target = p["false_calls"].get<double>() / p["pores_ref"].get<double>();
+  return fmt(p["false_calls"]) + " / " + fmt(p["false_calls_per_cm3"]) + " / " + fmt(per_target);
+}
+
+const Json& slice_jaccard_mean(const Json& t) {
+  const Json& s = t["slices"];
+  return s.contains("slice_jaccard_mean") ? s["slice_jaccard_mean"] : s["jaccard_mean"];
+}
+
+std::string a9095_reason(const Json& t) {
+  const Json& pod = t["pod"];
+  if (pod["a90_95_um"].is_number()) return "";
+  if (!pod.value("estimable", false)) return pod["reason"].is_string() ? pod["reason"].get<std::string>() : "no POD fit";
+  return pod.contains("a90_95_reason") && pod["a90_95_reason"].is_string() ? pod["a90_95_reason"].get<std::string>() : "not defined";
+}
+
+bool is_reference_method(const Json& results, const Json& selection) {
+  const Json* m = method_entry(results, selection["method"].get<std::string>());
+  if (!m) return false;
+  for (const auto& d : results["datasets"])
+    if (d["name"] == selection["dataset"] && d["reference"].is_object() && d["reference"].contains("method"))
+      return d["reference"]["method"] == (*m)["name"];
+  return false;
+}
+
 std::map<std::string, const Json*> cells_by_id(const Json& results) {
   std::map<std::string, const Json*> m;
   for (const auto& c : results["cells"]) m[c["id"].get<std::string>()] = &c;

@@ -1,5 +1,6 @@
 // validation-record.md of a suite run.
 #include <map>
+#include <vector>
 #include <sstream>
 
 #include "report/report.hpp"
@@ -12,6 +13,14 @@ std::string validation_record_md(const Json& r) {
   const Json& ctx = r["context"];
   md << "# Validation record — " << r["suite"]["name"].get<std::string>() << "\n\n";
   md << "> **Caution.** " << kCaution << "\n\n";
+  md << decision_md(r);
+  md << "**Overall:** " << verdict_headline(r) << "\n\n";
+  md << "**Intended use.** This record documents a trial of CT pore-segmentation methods on the datasets in section 2, "
+        "scored against their references on held-out test slices, to support the choice of a segmentation method and a "
+        "scan recipe";
+  if (!r["suite"]["description"].get<std::string>().empty()) md << " for: " << r["suite"]["description"].get<std::string>();
+  md << ". It is evidence for a qualification by qualified personnel; it is not itself a qualification of an inspection, "
+        "a part or a machine.\n\n";
   md << "## 1. Identification\n\n";
   md << "| field | value |\n|---|---|\n";
   md << "| tool | porebench " << ctx["version"].get<std::string>() << " |\n";
@@ -19,8 +28,8 @@ std::string validation_record_md(const Json& r) {
   md << "| run at (UTC) | " << ctx["time_utc"].get<std::string>() << " |\n";
   md << "| host | " << ctx["host"].get<std::string>() << ", " << ctx["threads"].get<int>() << " threads |\n";
   for (auto it = ctx["dependencies"].begin(); it != ctx["dependencies"].end(); ++it)
-    md << "| dependency " << it.key() << " | " << it.value().get<std::string>() << " |\n";
-  md << "| suite file | " << r["suite"]["path"].get<std::string>() << " |\n";
+    md << "| dependency " << it.key() << " | " << md_cell(it.value().get<std::string>()) << " |\n";
+  md << "| suite file | " << md_cell(r["suite"]["path"].get<std::string>()) << " |\n";
   md << "| suite sha256 | " << r["suite_sha256"].get<std::string>() << " |\n\n";
   md << "## 2. Inputs\n\n";
   for (const auto& d : r["datasets"]) {
@@ -31,14 +40,14 @@ std::string validation_record_md(const Json& r) {
       const Json& files = d["manifest"].contains("files") ? d["manifest"]["files"] : Json::object();
       for (auto it = files.begin(); it != files.end(); ++it) {
         const Json& f = it.value();
-        md << "| " << (f.is_object() && f.contains("file") ? f["file"].get<std::string>() : it.key()) << " | "
+        md << "| " << md_cell(f.is_object() && f.contains("file") ? f["file"].get<std::string>() : it.key()) << " | "
            << (f.is_object() && f.contains("sha256") ? f["sha256"].get<std::string>() : f.is_string() ? f.get<std::string>() : "") << " |\n";
       }
     } else {
-      md << "| file | sha256 |\n|---|---|\n| " << d["scan"].get<std::string>() << " | " << d["scan_sha256"].get<std::string>() << " |\n";
+      md << "| file | sha256 |\n|---|---|\n| " << md_cell(d["scan"].get<std::string>()) << " | " << d["scan_sha256"].get<std::string>() << " |\n";
       const Json& ref = d["reference"];
-      if (ref.contains("mask")) md << "| " << ref["mask"].get<std::string>() << " (reference mask) | " << ref["sha256"].get<std::string>() << " |\n";
-      else md << "| " << ref["scan"].get<std::string>() << " (reference scan, segmented by " << ref["method"].get<std::string>()
+      if (ref.contains("mask")) md << "| " << md_cell(ref["mask"].get<std::string>()) << " (reference mask) | " << ref["sha256"].get<std::string>() << " |\n";
+      else md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, segmented by " << md_cell(ref["method"].get<std::string>())
               << ") | " << ref["sha256"].get<std::string>() << " |\n";
     }
     md << "\nSlices: calibration " << d["slices"]["calibration"][0] << "–" << d["slices"]["calibration"][1].get<int>() - 1
@@ -53,8 +62,8 @@ std::string validation_record_md(const Json& r) {
       for (const auto& v : it.value()) vals += (vals.empty() ? "" : ", ") + v.get<std::string>();
       grid += (grid.empty() ? "" : "; ") + it.key() + " ∈ {" + vals + "}";
     }
-    md << "| " << m["label"].get<std::string>() << " | " << m["name"].get<std::string>() << " | " << m["family"].get<std::string>()
-       << " | " << m["citation"].get<std::string>() << " | " << (grid.empty() ? "defaults" : grid) << " |\n";
+    md << md_row({m["label"].get<std::string>(), m["name"].get<std::string>(), m["family"].get<std::string>(),
+                  m["citation"].get<std::string>(), grid.empty() ? "defaults" : grid});
   }
   md << "\n## 4. Metric definitions\n\n"
         "- Jaccard = TP/(TP+FP+FN) (Jaccard 1901); Dice = 2TP/(2TP+FP+FN) (Dice 1945); computed over voxels inside "
@@ -76,20 +85,66 @@ std::string validation_record_md(const Json& r) {
   for (const auto& s : r["selections"]) {
     const Json& c = *cells.at(s["chosen_cell"]);
     const std::string p = params_text(c["params"]);
-    md << "| " << s["dataset"].get<std::string>() << " | " << s["scan"].get<std::string>() << " | " << s["method"].get<std::string>()
-       << " | " << p << " | ";
+    std::vector<std::string> row = {s["dataset"].get<std::string>(), s["scan"].get<std::string>(), s["method"].get<std::string>(), p};
     if (c["status"] != "ok") {
-      md << "failed | | | | FAIL: " << c["error"].get<std::string>() << " |\n";
+      for (const char* v : {"failed", "", "", ""}) row.push_back(v);
+      row.push_back("FAIL: " + c["error"].get<std::string>());
+      md << md_row(row);
       continue;
     }
     const Json& t = c["test"];
-    md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(t["slices"]["jaccard_ci95"][0]) << "–" << fmt(t["slices"]["jaccard_ci95"][1])
-       << " | " << fmt(t["porosity"]["porosity_bias_pp"]) << " | " << fmt(t["pod"]["a90_95_um"]) << " | ";
+    for (const std::string& v : {fmt(t["overlap"]["jaccard"]), fmt(t["slices"]["jaccard_ci95"][0]) + "–" + fmt(t["slices"]["jaccard_ci95"][1]),
+                                 fmt(t["porosity"]["porosity_bias_pp"]), fmt(t["pod"]["a90_95_um"])})
+      row.push_back(v);
     std::string v;
     for (const auto& e : s["verdicts"]) v += (v.empty() ? "" : "; ") + e["criterion"].get<std::string>() + (e["passed"].get<bool>() ? " pass" : " FAIL");
-    md << (v.empty() ? "no criteria" : v) << " |\n";
+    row.push_back(v.empty() ? "no criteria" : v);
+    md << md_row(row);
   }
-  md << "\nOverall: " << (r["criteria_met"].get<bool>() ? "every declared criterion is met" : "at least one declared criterion is NOT met") << ".\n\n";
+  md << "\nOverall: " << verdict_headline(r) << "\n\n";
+  // POD with a90/95 and the false-call rate per method: read together (a detection bought with
+  // false calls is not a detection).
+  md << "### POD and false calls per method (test slices)\n\n";
+  md << "| dataset | scan | method | hits / targets | a90 (µm) | a90/95 (µm) | false calls (part / per cm³ / per target) | why n/a |\n";
+  md << "|---|---|---|---:|---:|---:|---:|---|\n";
+  std::vector<std::string> warnings;
+  for (const auto& s : r["selections"]) {
+    const Json& c = *cells.at(s["chosen_cell"]);
+    std::vector<std::string> row = {s["dataset"].get<std::string>(), s["scan"].get<std::string>(), s["method"].get<std::string>()};
+    if (c["status"] != "ok") {
+      for (const char* v : {"", "", "", ""}) row.push_back(v);
+      row.push_back("cell failed: " + c["error"].get<std::string>());
+      md << md_row(row);
+      continue;
+    }
+    const Json& t = c["test"];
+    row.push_back(fmt(t["pod"]["n_hits"]) + " / " + fmt(t["pod"]["n_targets"]));
+    row.push_back(fmt(t["pod"]["a90_um"]));
+    row.push_back(a9095_text(t));
+    row.push_back(false_calls_text(t));
+    row.push_back(a9095_reason(t));
+    md << md_row(row);
+    if (c.contains("warnings"))
+      for (const auto& w : c["warnings"])
+        warnings.push_back(s["dataset"].get<std::string>() + " / " + s["scan"].get<std::string>() + " / " + s["method"].get<std::string>() +
+                           ": " + w.get<std::string>());
+  }
+  md << "\nA value is n/a when it is not defined for the cell: the reason is given (e.g. no POD fit when every or no "
+        "target is hit, or too few targets); it is never replaced by a number.\n\n";
+  md << "### Method warnings\n\n";
+  if (warnings.empty()) md << "None of the selected cells reported a warning.\n\n";
+  for (const auto& w : warnings) md << "- " << w << "\n";
+  if (!warnings.empty()) md << "\n";
+  md << "### Where the criteria come from\n\n";
+  if (r["criteria"].empty()) md << "The suite declares no acceptance criteria.\n\n";
+  else {
+    md << "Declared in the `[criteria]` section of the suite file " << r["suite"]["path"].get<std::string>() << " (sha256 "
+       << r["suite_sha256"].get<std::string>() << "), judged on the held-out test slices of each selected cell:";
+    for (const auto& c : r["criteria"]) md << " `" << c["text"].get<std::string>() << "`" << (c.contains("on_note") ? " (" + c["on_note"].get<std::string>() + ")" : "");
+    md << ". A criterion marked \"95 % CI bound\" is judged on the bound of its confidence interval, the others on the value. "
+          "The limits of porebench's built-in demo suites are invented for the demo scenario; for a real qualification "
+          "they come from the part specification, the applicable standards and local codes, set by qualified personnel.\n\n";
+  }
   md << "## 6. Review and sign-off\n\n"
         "| role | name | signature | date |\n|---|---|---|---|\n"
         "| prepared by | | | |\n| reviewed by (qualified person) | | | |\n| approved by | | | |\n\n"

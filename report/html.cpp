@@ -11,6 +11,7 @@
 
 #include "core/format.hpp"
 #include "core/io.hpp"
+#include "methods/registry.hpp"
 #include "metrics/pod.hpp"
 #include "report/html.hpp"
 #include "report/montage.hpp"
@@ -33,6 +34,50 @@ const char* const kMethodColours[] = {"#332288", "#CC6677", "#117733", "#DDAA33"
                                       "#882255", "#44AA99", "#999933", "#AA4499", "#555555"};
 // Scans in the size-distribution panels: black for the reference recipe, then Okabe & Ito colours.
 const char* const kScanColours[] = {"#000000", "#0072B2", "#E69F00", "#CC79A7", "#009E73", "#D55E00", "#56B4E9"};
+
+// A method keeps its colour from report to report: its place in the registry (Registry::all(),
+// by family then name) picks the colour; a composition "F+M" is M's place shifted by its filters'
+// places. When two methods of one report land on one colour, the later takes the next free one
+// (the first 9 colours; the grey is for unknown methods). The marker shape follows the colour.
+std::map<std::string, size_t> method_colour_slots(const Json& results) {
+  const auto all = Registry::instance().all();
+  const auto filters = Registry::instance().filters();
+  auto place = [&](const std::string& part) -> size_t {
+    for (size_t i = 0; i < all.size(); ++i)
+      if (all[i]->name == part) return i;
+    for (size_t i = 0; i < filters.size(); ++i)
+      if (filters[i]->name == part) return 3 * (i + 1);
+    return 0;
+  };
+  constexpr size_t kSlots = 9;
+  std::map<std::string, size_t> slots;
+  std::vector<bool> used(kSlots, false);
+  for (const auto& m : results["methods"]) {
+    const std::string name = m.value("name", m.value("label", ""));
+    size_t want = 0;
+    for (size_t a = 0, b; a <= name.size(); a = b + 1) {
+      b = name.find('+', a);
+      if (b == std::string::npos) b = name.size();
+      want += place(name.substr(a, b - a));
+    }
+    want %= kSlots;
+    for (size_t k = 0; k < kSlots && used[want]; ++k) want = (want + 1) % kSlots;
+    used[want] = true;
+    if (std::all_of(used.begin(), used.end(), [](bool u) { return u; })) used.assign(kSlots, false);
+    slots.emplace(m["label"].get<std::string>(), want);
+  }
+  return slots;
+}
+
+}  // namespace
+
+std::map<std::string, std::string> method_colours(const Json& results) {
+  std::map<std::string, std::string> out;
+  for (const auto& [label, slot] : method_colour_slots(results)) out[label] = kMethodColours[slot];
+  return out;
+}
+
+namespace {
 
 std::string join(const std::vector<std::string>& v, const std::string& sep) {
   std::string out;
@@ -137,18 +182,47 @@ std::string pod_reason(const Json& cell, const std::string& metric) {
 
 // ---- sections ---------------------------------------------------------------------------------
 
+// The decision box: the recommended method and scan recipe with the reasons, or that no
+// combination meets the criteria with the nearest miss (report/decision.cpp decides).
+std::string decision_box(const Json& r) {
+  std::ostringstream h;
+  bool any = false;
+  for (const auto& d : r["decision"]) any = any || d["status"] == "recommended";
+  h << "<div class=\"decision " << (any ? "pass" : "fail") << "\" id=\"decision\"><strong>Decision.</strong>";
+  for (const auto& d : r["decision"]) {
+    h << "<p>" << (r["decision"].size() > 1 ? "<em>" + escape(str(d["dataset"])) + ":</em> " : "") << escape(str(d["text"]));
+    if (d["status"] == "recommended") {
+      h << "<br>Method <strong>" << escape(str(d["method"])) << "</strong>, scan recipe <strong>" << escape(str(d["scan"]))
+        << "</strong> (" << str(d["projections"]) << " projections";
+      if (d.contains("time_saving_factor")) h << ", " << f3(num(d["time_saving_factor"])) << "× faster than the reference recipe";
+      h << ").</p><ul>";
+      for (const auto& e : d["reasons"]) h << "<li>" << escape(str(e)) << "</li>";
+      h << "</ul>";
+    } else if (d.contains("nearest_miss")) {
+      const Json& n = d["nearest_miss"];
+      h << "<br>Nearest miss: " << escape(str(n["method"])) << " on " << escape(str(n["scan"])) << ", failing:</p><ul>";
+      for (const auto& e : n["failed"]) h << "<li>" << escape(str(e)) << "</li>";
+      h << "</ul>";
+    } else {
+      h << "</p>";
+    }
+  }
+  h << "</div>\n";
+  return h.str();
+}
+
 std::string header(const Page& p) {
   const Json& r = p.r;
   const Json& ctx = r["context"];
   std::ostringstream h;
-  h << "<header><h1>porebench report: " << escape(str(r["suite"]["name"])) << "</h1>\n";
+  h << "<header><h1>porebench report: " << escape(str(r["suite"]["name"])) << "</h1>\n" << decision_box(r);
   if (!str(r["suite"]["description"]).empty()) h << "<p class=\"lead\">" << escape(str(r["suite"]["description"])) << "</p>\n";
   h << "<div class=\"caution\" role=\"note\"><strong>Caution.</strong> " << escape(kCaution) << "</div>\n";
-  const bool met = r.value("criteria_met", false);
-  h << "<div class=\"verdict " << (met ? "pass" : "fail") << "\">";
-  if (r["criteria"].empty()) h << "No acceptance criteria declared: nothing is judged pass or fail.";
-  else {
-    h << (met ? "Every declared acceptance criterion is met." : "At least one declared acceptance criterion is NOT met.");
+  size_t n_pass = 0;
+  for (const auto& s : r["selections"]) n_pass += s.value("passed", false);
+  const char* tone = r["criteria"].empty() ? "none" : r.value("criteria_met", false) ? "pass" : n_pass > 0 ? "some" : "fail";
+  h << "<div class=\"verdict " << tone << "\">" << escape(verdict_headline(r));
+  if (!r["criteria"].empty()) {
     h << " Criteria (on the held-out test slices):";
     for (const auto& c : r["criteria"]) h << " <code>" << escape(str(c["text"])) << "</code>";
   }
@@ -189,22 +263,24 @@ std::string summary_tables(Page& p, const Json& d) {
     std::stable_sort(sels.begin(), sels.end(), [&](const Json* a, const Json* b) { return jac(a) > jac(b); });
     h << "<h4>" << escape(scan) << "</h4>\n<table class=\"data\"><thead><tr><th>rank</th><th>method</th><th>parameters</th>"
          "<th>Jaccard</th><th>slice Jaccard (95 % CI)</th><th>porosity bias (pp)</th><th>a90 (µm)</th><th>a90/95 (µm)</th>"
-         "<th>false calls/cm³</th><th>runtime (s)</th><th>criteria</th></tr></thead><tbody>\n";
+         "<th>false calls (part / per cm³ / per target)</th><th>runtime (s)</th><th>criteria</th></tr></thead><tbody>\n";
     int rank = 0;
     for (const Json* s : sels) {
       const Json* c = p.cell(*s);
       h << "<tr><td class=\"n\">" << ++rank << "</td><td><span class=\"sw\" style=\"background:" << p.colour(str((*s)["method"])) << "\"></span>"
-        << escape(str((*s)["method"])) << "</td><td>" << (c ? escape(params_text((*c)["params"], ", ", method_entry(p.r, str((*s)["method"])))) : "") << ((*s).value("tuned", false) ? " (tuned)" : "")
-        << "</td>";
+        << escape(str((*s)["method"])) << (is_reference_method(p.r, *s) ? " <small>(the reference's own method)</small>" : "") << "</td><td>" << (c ? escape(params_text((*c)["params"], ", ", method_entry(p.r, str((*s)["method"])))) : "") << ((*s).value("tuned", false) ? " (tuned)" : "");
+      if (c && c->contains("warnings"))
+        for (const auto& w : (*c)["warnings"]) h << "<br><small class=\"warn\">method warning: " << escape(str(w)) << "</small>";
+      h << "</td>";
       if (!c || c->value("status", "") != "ok") {
         h << "<td colspan=\"7\" class=\"na\">failed: " << escape(c ? str((*c)["error"]) : "cell missing") << "</td><td class=\"fail\">FAIL</td></tr>\n";
         continue;
       }
       const Json& t = (*c)["test"];
-      h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(t["slices"]["slice_jaccard_mean"]) << " ("
+      h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(slice_jaccard_mean(t)) << " ("
         << fmt(t["slices"]["jaccard_ci95"][0]) << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ")</td><td class=\"n\">"
-        << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_um"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_95_um"])
-        << "</td><td class=\"n\">" << fmt(t["pores"]["false_calls_per_cm3"]) << "</td><td class=\"n\">" << fmt((*c)["runtime_s"]) << "</td>";
+        << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_um"]) << "</td><td class=\"n\">" << escape(a9095_text(t))
+        << "</td><td class=\"n\">" << escape(false_calls_text(t)) << "</td><td class=\"n\">" << fmt((*c)["runtime_s"]) << "</td>";
       if ((*s)["verdicts"].empty()) h << "<td>none set</td>";
       else {
         h << "<td class=\"" << ((*s).value("passed", false) ? "pass" : "fail") << "\">" << ((*s).value("passed", false) ? "pass" : "FAIL");
@@ -257,6 +333,9 @@ std::string metric_series(Page& p, const Json& d) {
     ref_style.width = 1;
     pl.vline(ax.reference, ref_style, ax.by_dose ? "reference dose" : "reference recipe");
     if (!off_axis.empty()) pl.note("not on this axis, see the tables: " + join(off_axis, ", "));
+    if (std::string(mp.metric) == "a90_95_um" &&
+        std::none_of(p.r["criteria"].begin(), p.r["criteria"].end(), [](const Json& c) { return c["metric"] == "false_calls_per_cm3"; }))
+      pl.note("no false-call criterion declared: read a90/95 together with the false calls (noise buys detections)");
     std::map<std::string, std::vector<std::string>> missing;  // reason -> "method at x"
     for (const auto& m : method_labels(p)) {
       std::vector<std::pair<double, double>> pts;
@@ -265,7 +344,23 @@ std::string metric_series(Page& p, const Json& d) {
         if (it == by_scan[scan].end() || !ax.on_axis(*it->second)) continue;
         const Json* c = p.cell(*it->second);
         const double xv = ax.of(*it->second);
-        const double yv = c ? suite::metric_value(*c, "test", mp.metric) : NAN;
+        double yv = c ? suite::metric_value(*c, "test", mp.metric) : NAN;
+        // Noise buys detections: an a90/95 of a cell whose false calls exceed a false-call
+        // criterion is not drawn, so that a noisy method cannot look best in this panel.
+        if (std::string(mp.metric) == "a90_95_um" && c && std::isfinite(yv)) {
+          const double fc = suite::metric_value(*c, "test", "false_calls_per_cm3");
+          for (const auto& cr : p.r["criteria"])
+            if (cr["metric"] == "false_calls_per_cm3" && !(fc <= num(cr["value"]))) {
+              yv = NAN;
+              missing["false calls above the criterion " + str(cr["text"]) + ": detections bought with noise"].push_back(
+                  m + " at " + format_number(xv));
+              break;
+            }
+          if (!std::isfinite(yv)) {
+            pts.push_back({xv, yv});
+            continue;
+          }
+        }
         if (!std::isfinite(yv)) {
           const bool pod_metric = std::string(mp.metric).rfind("a9", 0) == 0;
           const std::string why = !c ? "cell missing" : c->value("status", "") != "ok" ? "cell failed"
@@ -539,6 +634,13 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
   for (const OverlayColour* c : {&kOverlayFound, &kOverlayExtra, &kOverlayMissed})
     h << " <span class=\"sw\" style=\"background:" << c->hex << "\"></span>" << escape(c->role) << ";";
   h << " other voxels: the grey scan slice, dimmed in the method tiles.</p>\n";
+  // The pixel size of the slice (x spacing of a scored cell of this dataset) for the scale bar.
+  double pixel_um = NAN;
+  for (const auto& c : p.r["cells"])
+    if (c["dataset"] == d["name"] && c.value("status", "") == "ok" && c["test"].contains("spacing_mm")) {
+      pixel_um = 1000 * num(c["test"]["spacing_mm"][0]);
+      break;
+    }
   for (const auto& v : d["variants"]) {
     const std::string scan = str(v["scan"]);
     std::vector<MontageTile> tiles;
@@ -556,10 +658,12 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
     }
     const std::string rel = "montages/" + suite::file_token(str(d["name"])) + "__" + suite::file_token(scan) + ".png";
     write_montage((dir / str(v["montage_png"])).string(), (dir / str(d["montage_reference_png"])).string(),
-                  scan, tiles, (dir / rel).string());
+                  scan, tiles, (dir / rel).string(), pixel_um);
     h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)
       << "\"><figcaption>" << escape(scan) << ", slice z = " << str(d["slices"]["montage_z"])
-      << " (the test slice with the most reference pore voxels): scan, reference, then each method's selected cell.</figcaption></figure>\n";
+      << " (the test slice with the most reference pore voxels): scan (scale bar in µm"
+      << (std::isfinite(pixel_um) ? ", pixel " + format_number(pixel_um, 3) + " µm" : std::string(", pixel size unknown: no bar"))
+      << "), reference, then each method's selected cell.</figcaption></figure>\n";
   }
   return h.str();
 }
@@ -641,10 +745,13 @@ h4{font-size:14px;margin:14px 0 6px}
 .lead{font-size:15px;color:#333}
 .caution{border:3px solid #B00000;background:#fff3f0;padding:10px 14px;margin:10px 0;font-size:15px}
 .verdict{padding:8px 14px;margin:8px 0;font-weight:bold}.verdict.pass{background:#e6f4ea;border-left:6px solid #117733}
-.verdict.fail{background:#fdecea;border-left:6px solid #B00000}
+.verdict.fail{background:#fdecea;border-left:6px solid #B00000}.verdict.some{background:#fff8e1;border-left:6px solid #DDAA33}
+.verdict.none{background:#f4f4f4;border-left:6px solid #777}
+.decision{border:2px solid #333;padding:8px 14px;margin:10px 0;font-size:15px}.decision.pass{background:#eef7f0}
+.decision.fail{background:#fdf0ee}.decision ul{margin:4px 0}
 table{border-collapse:collapse;margin:6px 0;font-size:12.5px}th,td{border:1px solid #ccc;padding:3px 7px;text-align:left;vertical-align:top}
 td.n{text-align:right}table.meta th{background:#f4f4f4}thead th{background:#f0f0f0}
-td.pass{color:#0b5d1e;font-weight:bold}td.fail{color:#a00000;font-weight:bold}td.na{color:#666}
+td.pass{color:#0b5d1e;font-weight:bold}small.warn{color:#8a4b00}td.fail{color:#a00000;font-weight:bold}td.na{color:#666}
 .sw{display:inline-block;width:12px;height:12px;margin:0 5px 0 2px;vertical-align:-1px;border:1px solid #666}
 .grid{display:flex;flex-wrap:wrap;gap:8px}figure{margin:4px}figcaption,.caption{font-size:12px;color:#444;max-width:1200px}
 figure.montage img{max-width:100%;border:1px solid #ccc;image-rendering:pixelated}
@@ -671,7 +778,7 @@ std::vector<size_t> pareto_front(const std::vector<std::pair<double, double>>& r
 
 void write_html_and_montages(const Json& results, const std::string& out_dir) {
   Page p{results, cells_by_id(results), {}, 0};
-  for (const auto& m : results["methods"]) p.method_index.emplace(m["label"].get<std::string>(), p.method_index.size());
+  p.method_index = method_colour_slots(results);
   std::ostringstream h;
   h << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>porebench report: "
     << escape(str(results["suite"]["name"])) << "</title>\n<style>" << kStyle << "</style></head>\n<body>\n";

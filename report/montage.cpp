@@ -8,6 +8,7 @@
 #include <opencv2/imgproc.hpp>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "core/image_files.hpp"
 #include "core/io.hpp"
 
@@ -81,8 +82,32 @@ cv::Mat overlay_slice(const cv::Mat& grey, const cv::Mat& ref, const cv::Mat& pr
   return out;
 }
 
+double scale_bar_um(double max_um) {
+  if (!(max_um > 0) || !std::isfinite(max_um)) return 0;
+  const double p = std::pow(10.0, std::floor(std::log10(max_um)));
+  for (double k : {5.0, 2.0, 1.0})
+    if (k * p <= max_um * (1 + 1e-12)) return k * p;
+  return p;
+}
+
+namespace {
+
+// A white bar with a dark outline at the bottom left of a tile, its length in µm written above.
+void draw_scale_bar(cv::Mat& tile, double tile_px_per_um, double bar_um) {
+  const int len = int(std::lround(bar_um * tile_px_per_um));
+  if (len < 4 || len > tile.cols - 8) return;
+  const int x0 = 6, y1 = tile.rows - 8, y0 = y1 - 4;
+  cv::rectangle(tile, cv::Point(x0 - 1, y0 - 1), cv::Point(x0 + len, y1 + 1), cv::Scalar(0, 0, 0), cv::FILLED);
+  cv::rectangle(tile, cv::Point(x0, y0), cv::Point(x0 + len - 1, y1), cv::Scalar(255, 255, 255), cv::FILLED);
+  const std::string text = format_number(bar_um, 3) + " um";  // the Hershey fonts have no µ
+  cv::putText(tile, text, cv::Point(x0, y0 - 5), cv::FONT_HERSHEY_SIMPLEX, 0.4, cv::Scalar(0, 0, 0), 3, cv::LINE_AA);
+  cv::putText(tile, text, cv::Point(x0, y0 - 5), cv::FONT_HERSHEY_SIMPLEX, 0.4, cv::Scalar(255, 255, 255), 1, cv::LINE_AA);
+}
+
+}  // namespace
+
 void write_montage(const std::string& scan_png, const std::string& reference_png, const std::string& scan_label,
-                   const std::vector<MontageTile>& methods, const std::string& out_png) {
+                   const std::vector<MontageTile>& methods, const std::string& out_png, double pixel_um) {
   const cv::Mat grey = read_grey(scan_png, "scan");
   const cv::Mat ref = read_grey(reference_png, "reference");
   if (ref.size() != grey.size())
@@ -92,7 +117,12 @@ void write_montage(const std::string& scan_png, const std::string& reference_png
   std::vector<cv::Mat> tiles;
   cv::Mat g3, r3;
   cv::cvtColor(grey, g3, cv::COLOR_GRAY2BGR);
-  tiles.push_back(labelled(scaled(g3), scan_label));
+  cv::Mat scan_tile = scaled(g3);
+  if (pixel_um > 0 && std::isfinite(pixel_um)) {
+    const double px_per_um = double(scan_tile.cols) / (double(grey.cols) * pixel_um);
+    draw_scale_bar(scan_tile, px_per_um, scale_bar_um(double(grey.cols) * pixel_um / 4));
+  }
+  tiles.push_back(labelled(scan_tile, scan_label));
   cv::cvtColor(ref, r3, cv::COLOR_GRAY2BGR);
   cv::threshold(r3, r3, 0, 255, cv::THRESH_BINARY);
   tiles.push_back(labelled(scaled(r3), "reference pores (white)"));

@@ -35,7 +35,12 @@ cv::Mat overlay_slice(const cv::Mat& grey, const cv::Mat& ref, const cv::Mat& pr
 // Reads the PNGs (paths absolute or relative to the working folder) and writes the montage PNG
 // atomically. InputError naming the file when the scan or reference PNG is missing or the sizes
 // differ; an unreadable method mask becomes a tile that says so.
+// `pixel_um` (the slice's pixel size in µm; not finite or <= 0: unknown) adds a scale bar to the
+// scan tile: the longest 1-2-5 length in µm not above a quarter of the tile, labelled "N um".
 void write_montage(const std::string& scan_png, const std::string& reference_png, const std::string& scan_label,
-                   const std::vector<MontageTile>& methods, const std::string& out_png);
+                   const std::vector<MontageTile>& methods, const std::string& out_png, double pixel_um = 0);
+
+// The scale bar's length: the longest 1, 2 or 5 x 10^k µm not above `max_um` (0 when max_um <= 0).
+double scale_bar_um(double max_um);
 
 }  // namespace pb::report

@@ -31,8 +31,44 @@ std::string validation_record_md(const Json& results);
 // the reference recipe.
 Json scan_recipe_advice(const Json& results);
 
+// The decision of a run, one entry per dataset: "status" "recommended" (method, scan, projections,
+// i0, reasons = each criterion with its test value, time_saving_factor, also_passing_on_this_scan):
+// the fastest scan recipe (fewest projections, then lowest dose) on which a method meets every
+// criterion on the held-out test slices, and of the methods that do there the best by test
+// Jaccard; "none" with the nearest miss (fewest failed criteria, then the smallest relative
+// shortfall); "no_criteria". "text" says it in one sentence.
+Json decide(const Json& results);
+
+// The decision box (Markdown) that opens summary.md and the validation record.
+std::string decision_md(const Json& results);
+
+// The headline verdict: every combination of method and scan meets every criterion / N of M do /
+// none does / no criteria declared.
+std::string verdict_headline(const Json& results);
+
 // Formats a metric value for tables: "0.873", "n/a" for null (core/format.hpp).
 std::string fmt(const Json& v, int digits = 3);
+
+// Text made safe for one cell of a Markdown table: '|' escaped as "\|", line breaks as spaces
+// (GitHub Flavored Markdown spec 0.29, section 4.10 "Tables": a pipe in a cell is escaped with '\').
+std::string md_cell(const std::string& s);
+
+// One Markdown table row "| a | b |\n", every cell through md_cell.
+std::string md_row(const std::vector<std::string>& cells);
+
+// Score-record readers shared by the tables (t = a cell's "test" block):
+// a90/95 as shown: "61.2", "≤ 30.5 (every target hit)" for a bound, "(extrapolated)" flagged;
+std::string a9095_text(const Json& t);
+// false calls "N / X per cm³ / Y per target" (per target = false calls / reference pores);
+std::string false_calls_text(const Json& t);
+// the mean slice Jaccard (either key name of the score record).
+const Json& slice_jaccard_mean(const Json& t);
+// why a90/95 is n/a ("" when defined).
+std::string a9095_reason(const Json& t);
+
+// Whether the selection's method is the one that segmented its dataset's paired reference (a
+// reference scan segmented by method X favours X: it is scored against its own output).
+bool is_reference_method(const Json& results, const Json& selection);
 
 // The cells of a results record by id.
 std::map<std::string, const Json*> cells_by_id(const Json& results);

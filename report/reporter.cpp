@@ -88,7 +88,9 @@ Json assemble_results(const std::string& out_dir) {
   results["selections"] = js;
   results["advice"] = scan_recipe_advice(results);
   results["criteria_met"] = all_passed;
+  results["decision"] = nullptr;  // its place in the record, before the cells it reads
   results["cells"] = cells;
+  results["decision"] = decide(results);
   return results;
 }
 

@@ -122,6 +122,7 @@ std::string summary_md(const Json& results) {
   md << "# porebench summary: " << results["suite"]["name"].get<std::string>() << "\n\n";
   if (!results["suite"]["description"].get<std::string>().empty())
     md << results["suite"]["description"].get<std::string>() << "\n\n";
+  md << decision_md(results);
   md << "> " << kCaution << "\n\n";
   md << "Tool " << results["context"]["version"].get<std::string>() << " (" << results["context"]["git_hash"].get<std::string>()
      << "), suite sha256 " << results["suite_sha256"].get<std::string>().substr(0, 16) << "…, "
@@ -143,33 +144,44 @@ std::string summary_md(const Json& results) {
       return (std::isfinite(ja) ? ja : -1) > (std::isfinite(jb) ? jb : -1);
     });
     md << "## " << k << "\n\n";
-    md << "| rank | method | parameters | Jaccard | slice Jaccard (95 % CI) | porosity bias (pp) | a90 (µm) | a90/95 (µm) | false calls/cm³ | runtime (s) | criteria |\n";
+    md << "| rank | method | parameters | Jaccard | slice Jaccard (95 % CI) | porosity bias (pp) | a90 (µm) | a90/95 (µm) | false calls (part / per cm³ / per target) | runtime (s) | criteria |\n";
     md << "|---:|---|---|---:|---|---:|---:|---:|---:|---:|---|\n";
     int rank = 0;
+    std::vector<std::string> warnings;
     for (const Json* s : v) {
       const Json& c = *cell_by_id.at((*s)["chosen_cell"]);
-      md << "| " << ++rank << " | " << (*s)["method"].get<std::string>() << " | ";
-      md << params_text(c["params"], ", ", method_entry(results, (*s)["method"])) << ((*s)["tuned"].get<bool>() ? " (tuned)" : "")
-         << " | ";
+      md << "| " << ++rank << " | " << md_cell((*s)["method"].get<std::string>()) << (is_reference_method(results, *s) ? " (the reference's own method)" : "") << " | ";
+      md << md_cell(params_text(c["params"], ", ", method_entry(results, (*s)["method"]))) << ((*s)["tuned"].get<bool>() ? " (tuned)" : "");
+      if (c.contains("warnings"))
+        for (const auto& w : c["warnings"]) {
+          warnings.push_back((*s)["method"].get<std::string>() + ": " + w.get<std::string>());
+          md << " (warning W" << warnings.size() << ")";
+        }
+      md << " | ";
       if (c["status"] != "ok") {
-        md << "failed: " << c["error"].get<std::string>() << " | | | | | | | FAIL |\n";
+        md << "failed: " << md_cell(c["error"].get<std::string>()) << " | | | | | | | FAIL |\n";
         continue;
       }
       const Json& t = c["test"];
-      md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(t["slices"]["slice_jaccard_mean"]) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
+      md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(slice_jaccard_mean(t)) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
          << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ") | " << fmt(t["porosity"]["porosity_bias_pp"]) << " | "
-         << fmt(t["pod"]["a90_um"]) << " | " << fmt(t["pod"]["a90_95_um"]) << " | " << fmt(t["pores"]["false_calls_per_cm3"])
+         << fmt(t["pod"]["a90_um"]) << " | " << md_cell(a9095_text(t)) << " | " << false_calls_text(t)
          << " | " << fmt(c["runtime_s"]) << " | ";
       if ((*s)["verdicts"].empty()) md << "none set";
       else md << ((*s)["passed"].get<bool>() ? "pass" : "FAIL");
       md << " |\n";
     }
     md << "\n";
+    if (!warnings.empty()) {
+      md << "Method warnings:\n\n";
+      for (size_t i = 0; i < warnings.size(); ++i) md << "- W" << i + 1 << " " << warnings[i] << "\n";
+      md << "\n";
+    }
   }
   if (!results["advice"].empty()) {
     md << "## Scan-recipe advice\n\n| dataset | method | cheapest scan meeting the criteria | saving vs reference |\n|---|---|---|---:|\n";
     for (const auto& a : results["advice"]) {
-      md << "| " << a["dataset"].get<std::string>() << " | " << a["method"].get<std::string>() << " | ";
+      md << "| " << md_cell(a["dataset"].get<std::string>()) << " | " << md_cell(a["method"].get<std::string>()) << " | ";
       if (a["scan"].is_null()) {
         md << a["note"].get<std::string>() << " | |\n";
         continue;
@@ -183,8 +195,8 @@ std::string summary_md(const Json& results) {
   }
   md << "Criteria: ";
   if (results["criteria"].empty()) md << "none declared.\n";
-  for (const auto& c : results["criteria"]) md << c["text"].get<std::string>() << "; ";
-  md << "\n\nOverall: " << (results["criteria_met"].get<bool>() ? "every criterion met." : "at least one criterion NOT met.") << "\n";
+  for (const auto& c : results["criteria"]) md << "`" << c["text"].get<std::string>() << "`; ";
+  md << "\n\nOverall: " << verdict_headline(results) << "\n";
   return md.str();
 }
 

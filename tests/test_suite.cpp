@@ -151,6 +151,11 @@ TEST_CASE("a run: cells, calibration on held-out slices, criteria and exit codes
   r = run_cli("--quiet run " + (d / "strict.toml") + " -o " + (d / "strict"));
   CHECK(r.exit_code == 1);
   CHECK(read_json(d / "strict/results.json")["criteria_met"] == false);
+  // `report` renders and exits 0 whatever the verdict (judging is run's and compare's exit code);
+  // it prints the verdict.
+  r = run_cli("--quiet report " + (d / "strict"));
+  CHECK(r.exit_code == 0);
+  CHECK_THAT(r.out, Catch::Contains("NOT met"));
   // A second run into a used folder without --resume is refused.
   r = run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "out"));
   CHECK(r.exit_code == 2);
@@ -247,6 +252,16 @@ TEST_CASE("quick suite: a fresh run shows no regression against the committed re
   CHECK(fresh["selections"].dump() == ref["selections"].dump());
 }
 
+TEST_CASE("an unknown command is named, with the closest one", "[suite][cli]") {
+  const auto r = run_cli("frobnicate");
+  CHECK(r.exit_code == 2);
+  CHECK_THAT(r.err, Catch::Contains("unknown command 'frobnicate'"));
+  const auto t = run_cli("--threads 2 reprot x");
+  CHECK(t.exit_code == 2);
+  CHECK_THAT(t.err, Catch::Contains("did you mean 'report'"));
+  CHECK(run_cli("--threads 2 --quiet methods").exit_code == 0);  // a known command after global options
+}
+
 TEST_CASE("every built-in suite parses", "[suite]") {
   const fs::path dir = fs::path(PB_TEST_SCRIPTS) / "../../suites";
   int n = 0;
@@ -265,8 +280,11 @@ TEST_CASE("shards run apart into one folder and merge into the whole run", "[sui
   TempDir d;
   write_file(d / "tiny.toml", tiny_suite(0.0));
   REQUIRE(run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "whole")).exit_code == 0);
-  auto s1 = run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "sharded") + " --shard 1/2");
+  auto s1 = run_cli("run " + (d / "tiny.toml") + " -o " + (d / "sharded") + " --shard 1/2");
   CHECK(s1.exit_code == 0);
+  // Synthesis inside a run shows the steps `synth` shows (issue 10).
+  CHECK_THAT(s1.err, Catch::Contains("synthesising dataset 'blank'"));
+  CHECK_THAT(s1.err, Catch::Contains("synth 'blank': "));
   CHECK_THAT(s1.out, Catch::Contains("not all cells are present yet"));
   CHECK_FALSE(fs::exists(d.path / "sharded/results.json"));
   CHECK(run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "sharded") + " --shard 2/2 --resume").exit_code == 0);
