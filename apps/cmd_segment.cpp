@@ -22,7 +22,7 @@ namespace {
 Action setup_segment(CLI::App& app) {
   app.description("segment the pores of one volume with one method");
   struct Args {
-    std::string method, input, output, roi, json;
+    std::string method, input, output, roi, json, probability;
     std::vector<std::string> sets;
     bool allow_nan = false, compress = false;
     ReadArgs read;
@@ -34,6 +34,7 @@ Action setup_segment(CLI::App& app) {
   app.add_option("--set", a->sets, "method parameter key=value (repeatable)");
   app.add_option("--roi", a->roi, "part mask: only voxels inside (non-zero) are classified");
   app.add_option("--json", a->json, "write what the method chose, its runtime and counts as JSON");
+  app.add_option("--save-probability", a->probability, "write the pore-probability map (float32; neural methods)");
   app.add_flag("--allow-nan", a->allow_nan, "same as --allow-nonfinite (kept for old scripts)");
   app.add_flag("--compress", a->compress, "compress the output mask");
   a->read.add_to(&app);
@@ -43,6 +44,12 @@ Action setup_segment(CLI::App& app) {
     const ParamValues params = parse_params(m, a->sets);
     check_volume_output(a->output);
     if (!a->json.empty()) check_writable(a->json);
+    if (!a->probability.empty()) {
+      if (m.family != "neural")
+        throw InputError("--save-probability " + a->probability + ": method " + m.name + " (family " + m.family +
+                         ") makes no probability map; neural methods do");
+      check_volume_output(a->probability);
+    }
     if (!a->json.empty() && std::filesystem::absolute(a->json) == std::filesystem::absolute(a->output))
       throw InputError("--json " + a->json + " is the same file as -o " + a->output);
     ReadOptions ro = a->read.options(a->input);
@@ -98,6 +105,7 @@ Action setup_segment(CLI::App& app) {
       json_out.emplace(a->json);
       write_text_to(*json_out, json_text);
     }
+    if (!a->probability.empty()) write_volume(out.probability, a->probability, wo);
     write_volume(out.pores, a->output, wo);
     if (json_out) json_out->commit(json_text.size());
     std::cout << m.name << ": ";

@@ -23,6 +23,7 @@ const char* param_type_name(ParamType t) {
     case ParamType::Float: return "float";
     case ParamType::Enum: return "enum";
     case ParamType::Bool: return "bool";
+    case ParamType::Text: return "text";
   }
   return "?";
 }
@@ -46,6 +47,7 @@ std::string range_text(const ParamSpec& s) {
       return out;
     }
     case ParamType::Bool: return "true or false";
+    case ParamType::Text: return "any text";
     case ParamType::Enum: {
       std::string out;
       for (const auto& c : s.choices) out += (out.empty() ? "" : ", ") + c;
@@ -84,6 +86,11 @@ void ParamValues::set(const ParamSpec& s, const std::string& value) {
       else if (value == "false" || value == "0" || value == "no") text_[s.name] = "false";
       else throw bad("not a boolean:");
       num_[s.name] = text_[s.name] == "true";
+      break;
+    }
+    case ParamType::Text: {
+      if (value.empty()) throw bad("empty text:");
+      text_[s.name] = value;
       break;
     }
     case ParamType::Enum: {

@@ -17,7 +17,7 @@
 
 namespace pb {
 
-enum class ParamType { Int, Float, Enum, Bool };
+enum class ParamType { Int, Float, Enum, Bool, Text };  // Text: a free string (e.g. a model card path)
 const char* param_type_name(ParamType t);
 
 struct ParamSpec {
@@ -58,6 +58,7 @@ struct MethodOutput {
   int64_t part_voxels = 0;                            // material + pores inside the ROI (porosity denominator)
   std::vector<std::pair<std::string, double>> chosen;  // what the method decided, e.g. threshold (grey)
   std::vector<std::string> warnings;                  // degenerate input and the like
+  VolumeF probability;                                // pore probability map, when the method makes one (neural)
   double runtime_s = 0;                               // wall time of the run, set by run_method
 };
 
