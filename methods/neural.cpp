@@ -205,6 +205,13 @@ Model::Model(ModelCard card, int threads) : card_(std::move(card)) {
                      " but model " + card_.model_path + " has " + std::to_string(got[1]) + " output channel(s)");
 }
 
+int64_t Model::forward(const float* input, int64_t batch) {
+  std::vector<int64_t> shape = {batch, card_.channels()};
+  shape.insert(shape.end(), card_.tile.begin(), card_.tile.end());
+  engine_->run(input, shape, out_);
+  return int64_t(out_.size());
+}
+
 void Model::predict(const float* input, int64_t batch, float* prob) {
   std::vector<int64_t> shape = {batch, card_.channels()};
   shape.insert(shape.end(), card_.tile.begin(), card_.tile.end());

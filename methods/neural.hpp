@@ -68,6 +68,8 @@ class Model {
   // InputError on NaN/Inf output.
   void predict(const float* input, int64_t batch, float* prob);
   int64_t tile_voxels() const;  // per channel
+  // The bare engine call (no channel pick, check or sigmoid), for benchmarks: returns the output size.
+  int64_t forward(const float* input, int64_t batch);
 
  private:
   ModelCard card_;

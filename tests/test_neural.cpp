@@ -8,6 +8,7 @@
 #include <cstring>
 #include <fstream>
 #include <random>
+#include <sstream>
 
 #include "core/error.hpp"
 #include "core/parallel.hpp"
@@ -264,4 +265,53 @@ TEST_CASE("segment with a model card: mask and probability map; cards in the mod
   CHECK(r.exit_code == 0);
   CHECK_THAT(r.out, Contains("tiny2d  [neural]"));
   CHECK_THAT(r.out, Contains("tiny3d  [neural]"));
+}
+
+TEST_CASE("export-patches writes calibration slices only; train.py trains one epoch and its card loads", "[neural][cli]") {
+  pbtest::TempDir d;
+  {
+    std::ofstream f(d / "tiny.toml");
+    f << "[suite]\nname = \"tiny\"\n[[dataset]]\nname = \"blank\"\nkind = \"synthetic\"\npreset = \"demo-small\"\n"
+         "set = { scan = { projections = [50], reference_projections = 100 } }\n[[method]]\nname = \"otsu\"\n"
+         "[calibration]\nfraction = 0.4\ngap_slices = 2\n";
+  }
+  auto r = pbtest::run_cli("export-patches " + d / "tiny.toml" + " -o " + d / "patches --tile 32 --slices 3 --every 4");
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  std::ifstream rec(d / "patches/export.json");
+  const nlohmann::json j = nlohmann::json::parse(rec);
+  const int64_t cal_end = j["datasets"][0]["calibration_slices"][1];
+  std::ifstream idx(d / "patches/index.csv");
+  std::string line;
+  std::getline(idx, line);
+  CHECK(line == "dataset,scan,projections,scan_file,mask_file,row,z,y,x,pore_voxels");
+  int rows = 0;
+  while (std::getline(idx, line)) {
+    std::vector<std::string> f;
+    std::stringstream ss(line);
+    for (std::string t; std::getline(ss, t, ',');) f.push_back(t);
+    REQUIRE(f.size() == 10);
+    CHECK(f[1] == "scan-50p");        // the sparse scan only, not the reference scan
+    CHECK(std::stoll(f[6]) < cal_end);  // calibration slices only
+    ++rows;
+  }
+  CHECK(rows > 0);
+  const NpyArray x = read_npy_f32(d / "patches/blank-scan-50p-scans.npy");
+  CHECK(x.shape == std::vector<int64_t>{rows, 3, 32, 32});
+  // The stack's context must not reach the test slices: 3 slices need a gap of at least 1.
+  r = pbtest::run_cli("export-patches " + d / "tiny.toml" + " -o " + d / "p2 --slices 7");
+  CHECK(r.exit_code == 2);
+  CHECK_THAT(r.err, Contains("gap_slices"));
+
+  // One epoch of models/train.py on these patches (the smoke run; real training is not run in CI).
+  r = pbtest::run_shell(std::string(PB_PYTHON) + " " + PB_TEST_SCRIPTS + "/../../models/train.py --data " + d / "patches" +
+                        " --out " + d / "model --name smoke --epochs 1 --steps 2 --batch 2 --base 4 --levels 2 --tile 32 --slices 3");
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  Model m(read_model_card(d / "model/card.json"), 1);
+  CHECK(m.card().kind == "stack");
+  CHECK(m.card().slices == 3);
+  const VolumeF v = smooth_volume(40, 40, 5, 2);
+  const VolumeF p = predict_volume(m, v, nullptr, {});
+  CHECK(p.size() == v.size());
 }
