@@ -20,7 +20,7 @@ Action setup_run(CLI::App& app) {
   app.description("run a suite: every method on every dataset, scored, with reports and a validation record");
   struct Args {
     std::string suite, out;
-    bool resume = false;
+    bool resume = false, check = false;
     std::string shard;
   };
   auto a = std::make_shared<Args>();
@@ -28,6 +28,7 @@ Action setup_run(CLI::App& app) {
   app.add_option("-o,--output", a->out, "output folder, e.g. results/quick")->required();
   app.add_flag("--resume", a->resume, "skip cells already finished in the output folder");
   app.add_option("--shard", a->shard, "run only shard K of N (K/N, 1-based), e.g. one per cluster job");
+  app.add_flag("--check", a->check, "check the suite (every value, file and scan) and exit: 0 if it would run, 2 if not");
   return [a] {
     suite::RunOptions o;
     o.out_dir = a->out;
@@ -44,13 +45,26 @@ Action setup_run(CLI::App& app) {
       o.shard_count = n;
     }
     const suite::Suite s = suite::load_suite_checked(a->suite);
-    const FolderLock lock(a->out, "run " + a->suite);  // one run per folder
+    if (a->check) {
+      suite::preflight(s);
+      std::cout << "suite " << a->suite << " checked: " << s.datasets.size() << " datasets, " << s.methods.size()
+                << " methods; nothing run\n";
+      return 0;
+    }
+    // One run per folder; declared shards of one run share it (core/io.hpp FolderLock).
+    FolderLock lock(a->out, "run " + a->suite + (a->shard.empty() ? "" : " --shard " + a->shard), o.shard_index, o.shard_count);
     const suite::RunSummary r = suite::run_suite(s, o);
     std::cout << "porebench run: " << r.cells_run << " cells run, " << r.cells_skipped << " already done, " << r.cells_failed
               << " failed, of " << r.cells_total << " (" << r.datasets_prepared << " of " << s.datasets.size()
               << " datasets prepared)\n";
     if (!r.complete) {
       std::cout << "not all cells are present yet: after every shard, run again with --resume to write the reports\n";
+      return 0;
+    }
+    if (!lock.try_exclusive()) {
+      std::cout << "every cell is present, but another shard still holds " << a->out
+                << ": the reports are written by the last shard to end, or by `porebench run " << a->suite << " -o " << a->out
+                << " --resume` after all shards\n";
       return 0;
     }
     const bool met = report::write_results(a->out);

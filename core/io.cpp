@@ -278,42 +278,103 @@ void write_text_to(const AtomicOutput& out, const std::string& text) {
   if (::close(fd) != 0) throw InputError("cannot write " + path + ": " + std::strerror(errno));
 }
 
-FolderLock::FolderLock(const std::string& dir, const std::string& command) {
-  prepare_output_folder(dir);
-  const std::string path = (fs::path(dir) / ".porebench.lock").string();
-  fd_ = ::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
-  if (fd_ < 0) throw InputError("cannot lock output folder " + dir + ": " + path + ": " + std::strerror(errno));
-  if (::flock(fd_, LOCK_EX | LOCK_NB) != 0) {
-    const int err = errno;
-    std::string holder(512, '\0');
-    const ssize_t n = ::pread(fd_, holder.data(), holder.size(), 0);
-    holder.resize(n > 0 ? size_t(n) : 0);
-    while (!holder.empty() && (holder.back() == '\n' || holder.back() == '\0')) holder.pop_back();
-    ::close(fd_);
-    fd_ = -1;
-    if (err == EWOULDBLOCK)
-      throw InputError("output folder " + dir + " is in use by another porebench process (" +
-                       (holder.empty() ? std::string("holder unknown") : holder) +
-                       "); wait for it to finish, or use another -o");
-    throw InputError("cannot lock output folder " + dir + ": " + std::strerror(err));
-  }
+namespace {
+
+std::string lock_holder(int fd) {
+  std::string holder(512, '\0');
+  const ssize_t n = ::pread(fd, holder.data(), holder.size(), 0);
+  holder.resize(n > 0 ? size_t(n) : 0);
+  while (!holder.empty() && (holder.back() == '\n' || holder.back() == '\0')) holder.pop_back();
+  return holder.empty() ? std::string("holder unknown") : holder;
+}
+
+void write_lock_holder(int fd, const std::string& command) {
   char host[256] = "?";
   ::gethostname(host, sizeof(host) - 1);
   const std::time_t now = std::time(nullptr);
   char when[32];
   std::strftime(when, sizeof(when), "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&now));
   const std::string rec = "pid " + std::to_string(::getpid()) + " on " + host + ", '" + command + "', since " + when + "\n";
-  if (::ftruncate(fd_, 0) == 0) {
-    const ssize_t w = ::pwrite(fd_, rec.data(), rec.size(), 0);
+  if (::ftruncate(fd, 0) == 0) {
+    const ssize_t w = ::pwrite(fd, rec.data(), rec.size(), 0);
     (void)w;  // the record only helps messages; the lock is what counts
   }
 }
 
+// Opens DIR/NAME and takes flock OP|LOCK_NB; returns the fd, or throws naming the holder.
+int take_lock(const std::string& dir, const std::string& name, int op, const std::string& busy, const std::string& advice) {
+  const std::string path = (fs::path(dir) / name).string();
+  const int fd = ::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  if (fd < 0) throw InputError("cannot lock output folder " + dir + ": " + path + ": " + std::strerror(errno));
+  if (::flock(fd, op | LOCK_NB) != 0) {
+    const int err = errno;
+    const std::string holder = lock_holder(fd);
+    ::close(fd);
+    if (err == EWOULDBLOCK) throw InputError(busy + " (" + holder + ")" + advice);
+    throw InputError("cannot lock output folder " + dir + ": " + std::strerror(err));
+  }
+  return fd;
+}
+
+}  // namespace
+
+FolderLock::FolderLock(const std::string& dir, const std::string& command) : FolderLock(dir, command, 0, 1) {}
+
+FolderLock::FolderLock(const std::string& dir, const std::string& command, int shard_index, int shard_count) {
+  prepare_output_folder(dir);
+  if (shard_count <= 1) {
+    fd_ = take_lock(dir, ".porebench.lock", LOCK_EX,
+                    "output folder " + dir + " is in use by another porebench process", "; wait for it to finish, or use another -o");
+    write_lock_holder(fd_, command);
+    return;
+  }
+  fd_ = take_lock(dir, ".porebench.lock", LOCK_SH,
+                  "output folder " + dir + " is in use by a porebench process that is not a shard of this run",
+                  "; wait for it to finish, or use another -o");
+  const std::string shard = std::to_string(shard_index + 1) + "-of-" + std::to_string(shard_count);
+  try {
+    shard_fd_ = take_lock(dir, ".porebench-shard-" + shard + ".lock", LOCK_EX,
+                          "shard " + std::to_string(shard_index + 1) + "/" + std::to_string(shard_count) +
+                              " of the run in " + dir + " is already running", "");
+  } catch (...) {
+    ::close(fd_);
+    fd_ = -1;
+    throw;
+  }
+  write_lock_holder(shard_fd_, command);
+}
+
+bool FolderLock::try_exclusive() {
+  if (shard_fd_ < 0) return fd_ >= 0;
+  // flock converts a shared lock by dropping it first; if that fails, this shard is about to end.
+  if (::flock(fd_, LOCK_EX | LOCK_NB) != 0) return false;
+  return true;
+}
+
 FolderLock::~FolderLock() {
+  if (shard_fd_ >= 0) {
+    if (::ftruncate(shard_fd_, 0) != 0) {}
+    ::close(shard_fd_);
+  }
   if (fd_ >= 0) {
-    if (::ftruncate(fd_, 0) != 0) {}
+    if (shard_fd_ < 0 && ::ftruncate(fd_, 0) != 0) {}
     ::close(fd_);  // releases the flock
   }
+}
+
+WaitLock::WaitLock(const std::string& path) {
+  fd_ = ::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  if (fd_ < 0) throw InputError("cannot lock " + path + ": " + std::strerror(errno));
+  while (::flock(fd_, LOCK_EX) != 0) {
+    if (errno == EINTR) continue;
+    const int err = errno;
+    ::close(fd_);
+    throw InputError("cannot lock " + path + ": " + std::strerror(err));
+  }
+}
+
+WaitLock::~WaitLock() {
+  if (fd_ >= 0) ::close(fd_);
 }
 
 uint64_t free_bytes_at(const std::string& path) {

@@ -96,15 +96,38 @@ class AtomicOutput {
 // whose process is no longer running; returns how many were removed. For --resume and report.
 int remove_stale_partials(const std::string& dir);
 
-// An exclusive lock on an output folder (flock on DIR/.porebench.lock, released when the process
-// ends, however it ends). The lock file records the holder (pid, host, command, start time); a
-// second process gets an InputError naming the holder. Folder created when missing.
+// A lock on an output folder (flock on DIR/.porebench.lock, released when the process ends, however
+// it ends). The lock file records the holder (pid, host, command, start time); a second process
+// gets an InputError naming the holder. Folder created when missing.
+// Declared shards of one run (--shard K/N, e.g. the tasks of a cluster job array) share the folder:
+// each holds the folder lock shared and its own DIR/.porebench-shard-K-of-N.lock exclusively, so
+// shards run side by side, the same shard twice is refused, and an unsharded run or a report waits
+// for none of them but is refused while any runs. flock works across machines on NFSv4 and most
+// cluster file systems (Lustre with flock enabled, GPFS/Spectrum Scale, BeeGFS).
 class FolderLock {
  public:
   FolderLock(const std::string& dir, const std::string& command);
+  // shard: 0-based index of count; count 1 is the exclusive lock above.
+  FolderLock(const std::string& dir, const std::string& command, int shard_index, int shard_count);
   ~FolderLock();
   FolderLock(const FolderLock&) = delete;
   FolderLock& operator=(const FolderLock&) = delete;
+  // A shard that finds every cell present tries to become the only holder (to write the reports);
+  // false when another shard still holds the folder (that one, or a final --resume run, writes them).
+  bool try_exclusive();
+
+ private:
+  int fd_ = -1, shard_fd_ = -1;
+};
+
+// Holds an exclusive lock on PATH (created when missing) until destroyed, waiting for it: used to
+// let one of several processes prepare a shared resource (a dataset) while the others wait.
+class WaitLock {
+ public:
+  explicit WaitLock(const std::string& path);
+  ~WaitLock();
+  WaitLock(const WaitLock&) = delete;
+  WaitLock& operator=(const WaitLock&) = delete;
 
  private:
   int fd_ = -1;

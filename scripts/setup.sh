@@ -8,7 +8,8 @@ build=(cmake g++ make pkg-config zlib1g-dev
        libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev libboost-dev
        libssl-dev libtorch-dev)
 tests=(python3-skimage python3-scipy python3-sklearn python3-statsmodels python3-pandas python3-numpy python3-markdown chromium
-       python3-torch clang libfuzzer-14-dev libomp-dev)  # clang, libFuzzer, OpenMP for clang: fuzz/ci.sh (sanitizers, fuzzing)
+       python3-torch clang libfuzzer-14-dev libomp-dev  # clang, libFuzzer, OpenMP for clang: fuzz/ci.sh
+       slurm-wlm munge)  # a single-node Slurm for tests/slurm (shards as a job array)
 want=("${build[@]}")
 if [ "${1:-}" = "--list" ]; then echo "${build[*]} ${tests[*]}"; exit 0; fi
 [ "${1:-}" = "--tests" ] && want+=("${tests[@]}")

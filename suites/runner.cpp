@@ -64,7 +64,9 @@ struct Loaded {  // the volumes of the current dataset variant, kept between cel
 Json check_output_folder(const Suite& s, const RunOptions& o) {
   const fs::path dir(o.out_dir);
   prepare_output_folder(o.out_dir);
-  if (o.resume) remove_stale_partials(o.out_dir);  // temporaries of a killed run (harden)
+  // Temporaries of a killed run (harden) — not by a shard: another shard, perhaps on another
+  // machine whose processes this one cannot see, may be writing them.
+  if (o.resume && o.shard_count <= 1) remove_stale_partials(o.out_dir);
   fs::create_directories(dir / "cells");
   check_writable((dir / "results.json").string());
   const std::string suite_json = (dir / "suite.json").string();
@@ -96,6 +98,9 @@ std::vector<CellPlan> plan_cells(const Suite& s, const std::vector<Dataset>& dat
 int prepare_needed(std::vector<Dataset>& data, const std::vector<const CellPlan*>& todo, const Json& prev, const Suite& s,
                    const RunOptions& o) {
   int n = 0;
+  // Shards of one run (cluster array tasks) start together: one prepares a dataset, the others wait
+  // and then find it prepared (synthesis is skipped when the recipe and manifest match).
+  const WaitLock prepare_lock((fs::path(o.out_dir) / ".porebench-prepare.lock").string());
   for (auto& p : data) {
     bool needed = std::any_of(todo.begin(), todo.end(), [&](const CellPlan* c) { return c->data == &p; });
     if (!needed && prev.is_object() && prev.contains("datasets")) {

@@ -3,6 +3,9 @@
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <cstring>
+#include <atomic>
+#include <chrono>
+#include <thread>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
@@ -329,4 +332,44 @@ TEST_CASE("one run per folder: a second lock names the holder", "[io][harden]") 
                           Catch::Contains("run suites/quick.toml"));
   }
   FolderLock again(d / "run", "report");  // released with the first
+}
+
+TEST_CASE("declared shards share a folder; the same shard twice, or a whole run beside them, is refused", "[io][harden]") {
+  TempDir d;
+  const std::string dir = d / "run";
+  {
+    FolderLock one(dir, "run q.toml --shard 1/3", 0, 3);
+    FolderLock two(dir, "run q.toml --shard 2/3", 1, 3);  // side by side
+    CHECK_THROWS_WITH(FolderLock(dir, "run q.toml --shard 2/3", 1, 3),
+                      Catch::Contains("shard 2/3") && Catch::Contains("already running") && Catch::Contains("--shard 2/3"));
+    CHECK_THROWS_WITH(FolderLock(dir, "report"), Catch::Contains("in use by another porebench process"));
+    CHECK_FALSE(two.try_exclusive());  // shard 1 still holds the folder
+  }
+  {
+    FolderLock whole(dir, "run q.toml");
+    CHECK_THROWS_WITH(FolderLock(dir, "run q.toml --shard 1/3", 0, 3), Catch::Contains("not a shard of this run"));
+  }
+  FolderLock last(dir, "run q.toml --shard 3/3", 2, 3);
+  CHECK(last.try_exclusive());  // alone: it may write the reports
+  CHECK_THROWS(FolderLock(dir, "run q.toml --shard 1/3", 0, 3));
+}
+
+TEST_CASE("a wait lock makes a second holder wait until the first lets go", "[io][harden]") {
+  TempDir d;
+  const std::string path = d / "prepare.lock";
+  std::atomic<int> order{0};
+  int first_done = -1, second_got = -1;
+  std::thread t;
+  {
+    WaitLock first(path);
+    t = std::thread([&] {
+      WaitLock second(path);
+      second_got = order++;
+    });
+    std::this_thread::sleep_for(std::chrono::milliseconds(100));
+    first_done = order++;
+  }
+  t.join();
+  CHECK(first_done == 0);
+  CHECK(second_got == 1);
 }
