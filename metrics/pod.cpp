@@ -133,6 +133,10 @@ double profile_ll(PodLink link, const Groups& g, double g90, double theta, doubl
   return ll;
 }
 
+double inverse_link(PodLink link, double eta) {
+  return link == PodLink::probit ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta));
+}
+
 double link_quantile(PodLink link, double p) {
   if (link == PodLink::logit) return std::log(p / (1 - p));
   return boost::math::quantile(boost::math::normal(), p);
@@ -140,16 +144,9 @@ double link_quantile(PodLink link, double p) {
 
 }  // namespace
 
-PodBandPoint pod_band_at(PodLink link, double b0, double b1, double c00, double c01, double c11, double size_um) {
-  auto inv = [&](double eta) {  // logistic, or the standard normal CDF
-    return link == PodLink::probit ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta));
-  };
-  if (!(size_um > 0)) return {kMetricNaN, kMetricNaN, kMetricNaN};
-  const double la = std::log(size_um), eta = b0 + b1 * la;
-  const double var = c00 + 2 * la * c01 + la * la * c11;
-  const double se = var >= 0 ? std::sqrt(var) : kMetricNaN;
-  const double z = boost::math::quantile(boost::math::normal(), 0.975);
-  return {inv(eta), inv(eta - z * se), inv(eta + z * se)};
+double pod_curve(PodLink link, double b0, double b1, double size_um) {
+  if (!(size_um > 0)) return kMetricNaN;
+  return inverse_link(link, b0 + b1 * std::log(size_um));
 }
 
 double pod_size_at(const PodFit& f, double p) {
@@ -274,9 +271,6 @@ void a90_95_bound(PodLink link, const Groups& groups, const std::vector<double>&
   f.a90_95_um = std::exp(0.5 * (lo + hi));
 }
 
-double inverse_link(PodLink link, double eta) {
-  return link == PodLink::probit ? 0.5 * std::erfc(-eta / std::sqrt(2.0)) : 1.0 / (1.0 + std::exp(-eta));
-}
 
 // Lower end of the profile-likelihood interval of eta at x0 = ln a: eta = e + b1 (x - x0), e from
 // the fitted value downwards until the deviance rise passes chi2_1(0.90).
@@ -306,14 +300,20 @@ double lower_eta_lr(PodLink link, const Groups& groups, double llmax, const PodF
   return 0.5 * (lo + hi);
 }
 
-// The band on 41 log-spaced sizes from half the smallest target to the larger of the largest
-// target and 1.2 a90/95.
+// The band on 41 log-spaced sizes from the smaller of half the smallest target and a90/95 / 1.2 to
+// the larger of the largest target and 1.2 a90/95, and at a90/95 itself (where the lower bound is
+// 0.9 by construction).
 void lr_band(PodLink link, const Groups& groups, double llmax, PodFit& f) {
-  const double a0 = 0.5 * f.smallest_target_um;
-  const double a1 = std::max(f.largest_target_um, std::isfinite(f.a90_95_um) ? 1.2 * f.a90_95_um : 0.0);
+  const bool bounded = std::isfinite(f.a90_95_um);
+  const double a0 = std::min(0.5 * f.smallest_target_um, bounded ? f.a90_95_um / 1.2 : INFINITY);
+  const double a1 = std::max(f.largest_target_um, bounded ? 1.2 * f.a90_95_um : 0.0);
   const int n = 41;
-  for (int k = 0; k < n; ++k) {
-    const double a = a0 * std::pow(a1 / a0, double(k) / (n - 1)), x0 = std::log(a);
+  std::vector<double> sizes;
+  for (int k = 0; k < n; ++k) sizes.push_back(a0 * std::pow(a1 / a0, double(k) / (n - 1)));
+  if (bounded && std::find(sizes.begin(), sizes.end(), f.a90_95_um) == sizes.end())
+    sizes.insert(std::upper_bound(sizes.begin(), sizes.end(), f.a90_95_um), f.a90_95_um);
+  for (double a : sizes) {
+    const double x0 = std::log(a);
     f.band.push_back({a, inverse_link(link, f.b0 + f.b1 * x0), inverse_link(link, lower_eta_lr(link, groups, llmax, f, x0))});
   }
 }

@@ -40,7 +40,9 @@ struct PodFit {
   // a90 / a90/95 below the smallest target: the fit is extrapolated there.
   bool a90_extrapolated = false, a90_95_extrapolated = false;
   // The one POD band: the fit and its one-sided 95 % lower likelihood-ratio bound at log-spaced
-  // sizes (same construction as a90/95: its crossing of 0.9 is a90/95). Empty when not estimable.
+  // sizes (same construction as a90/95: its crossing of 0.9 is a90/95), ascending in size, with
+  // a90/95 itself among the sizes when it is finite (so that a polyline through the band crosses
+  // 0.9 exactly there, not at an interpolation between neighbours). Empty when not estimable.
   struct BandPoint {
     double size_um, pod, lo;
   };
@@ -60,13 +62,9 @@ double pod_size_at(const PodFit& f, double p);
 // was made from; NaN when the fit is not estimable. fit_pod fills PodFit::band with it.
 double pod_lower_bound_at(const PodFit& f, const std::vector<double>& sizes_um, const std::vector<int>& hit, double size_um);
 
-// Deprecated (issue 11: one POD band): the two-sided 95 % delta-method band, kept until the report
-// draws PodFit::band. Interval of eta = b0 + b1 ln a, var(eta) = c00 + 2 ln(a) c01 + ln(a)^2 c11,
-// mapped through the inverse link. NaN where the variance is negative or the size is not positive.
-struct PodBandPoint {
-  double pod, lo, hi;
-};
-PodBandPoint pod_band_at(PodLink link, double b0, double b1, double c00, double c01, double c11, double size_um);
+// POD(a) = F(b0 + b1 ln a) of a fit's coefficients (F = logistic or the standard normal CDF); NaN
+// for a size that is not positive.
+double pod_curve(PodLink link, double b0, double b1, double size_um);
 
 struct PodBin {
   double lo_um = 0, hi_um = 0;  // [lo, hi)

@@ -1,6 +1,9 @@
 // What every report shares: the caution, number and parameter text, the cells by id.
+#include <cmath>
+
 #include "core/format.hpp"
 #include "report/report.hpp"
+#include "suites/results.hpp"
 
 namespace pb::report {
 
@@ -27,11 +30,18 @@ std::string md_row(const std::vector<std::string>& cells) {
   return out + "\n";
 }
 
+std::string a90_text(const Json& t) {
+  const Json& pod = t["pod"];
+  std::string s = fmt(pod["a90_um"]);
+  if (pod["a90_um"].is_number() && pod.value("a90_extrapolated", false)) s += " (extrapolated)";
+  return s;
+}
+
 std::string a9095_text(const Json& t) {
   const Json& pod = t["pod"];
   if (pod.value("a90_95_relation", "") == "<=") return "≤ " + fmt(pod["a90_95_um"]) + " (every target hit)";
   std::string s = fmt(pod["a90_95_um"]);
-  if (pod.value("a90_95_extrapolated", false)) s += " (extrapolated)";
+  if (pod["a90_95_um"].is_number() && pod.value("a90_95_extrapolated", false)) s += " (extrapolated)";
   return s;
 }
 
@@ -53,6 +63,39 @@ std::string a9095_reason(const Json& t) {
   if (pod["a90_95_um"].is_number()) return "";
   if (!pod.value("estimable", false)) return pod["reason"].is_string() ? pod["reason"].get<std::string>() : "no POD fit";
   return pod.contains("a90_95_reason") && pod["a90_95_reason"].is_string() ? pod["a90_95_reason"].get<std::string>() : "not defined";
+}
+
+std::string hit_cap_text(const Json& scoring) {
+  if (!scoring.contains("max_volume_ratio") || !scoring["max_volume_ratio"].is_number())
+    return "hit-rule volume cap not recorded (a run of an older porebench)";
+  const double cap = scoring["max_volume_ratio"].get<double>();
+  if (cap <= 0) return "no hit-rule volume cap";
+  return "hit rule capped at " + format_number(cap) + "x the reference pore's volume (max_volume_ratio)";
+}
+
+std::vector<JudgedVerdict> judged_verdicts(const Json& results, const Json& selection, const Json* cell) {
+  const auto criteria = suite::criteria_from_json(results["criteria"]);
+  const Json& verdicts = selection["verdicts"];
+  std::vector<JudgedVerdict> out;
+  for (size_t i = 0; i < criteria.size() && i < verdicts.size(); ++i) {
+    const suite::Criterion& c = criteria[i];
+    JudgedVerdict v;
+    v.criterion = verdicts[i].value("criterion", c.text());
+    v.passed = verdicts[i].value("passed", false);
+    v.on_ci = c.on == suite::Criterion::on_ci;
+    if (v.on_ci)
+      v.bound = c.op == suite::Criterion::at_least ? "lower" : c.op == suite::Criterion::at_most ? "upper" : "larger |bound|";
+    v.judged = cell ? suite::judged_value(*cell, "test", c) : NAN;
+    v.value = cell ? suite::metric_value(*cell, "test", c.metric) : NAN;
+    out.push_back(v);
+  }
+  return out;
+}
+
+std::string judged_text(const JudgedVerdict& v) {
+  if (!v.on_ci) return v.criterion + ": " + format_number(v.value, 3);
+  const std::string bound = v.bound == "larger |bound|" ? "CI bound of larger magnitude" : "CI " + v.bound + " bound";
+  return v.criterion + ": " + bound + " " + format_number(v.judged, 3) + " (value " + format_number(v.value, 3) + ")";
 }
 
 bool is_reference_method(const Json& results, const Json& selection) {

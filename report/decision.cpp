@@ -13,8 +13,20 @@ namespace pb::report {
 
 namespace {
 
-// A criterion with its test-slice value for one selection: "jaccard >= 0.6: 0.713".
-std::string verdict_text(const Json& crit, double v) { return crit["text"].get<std::string>() + ": " + format_number(v, 3); }
+// A criterion with the test-slice value it was judged on for one cell: "jaccard >= 0.6: 0.713", or
+// on a CI bound "jaccard >= 0.6 (95 % CI bound): CI lower bound 0.42 (value 0.632)".
+std::string verdict_text(const Json& crit, const suite::Criterion& c, const Json* cell) {
+  JudgedVerdict v;
+  v.criterion = crit["text"].get<std::string>();
+  v.on_ci = c.on == suite::Criterion::on_ci;
+  v.bound = c.op == suite::Criterion::at_least ? "lower" : c.op == suite::Criterion::at_most ? "upper" : "larger |bound|";
+  v.judged = cell ? suite::judged_value(*cell, "test", c) : NAN;
+  v.value = cell ? suite::metric_value(*cell, "test", c.metric) : NAN;
+  return judged_text(v);
+}
+
+// The value a criterion judges for a cell (the point value or its CI bound; NaN without a cell).
+double judged(const suite::Criterion& c, const Json* cell) { return cell ? suite::judged_value(*cell, "test", c) : NAN; }
 
 // How far a value is from passing, relative to the limit (0 when it passes; 1 when undefined).
 double shortfall(const Json& crit, double v) {
@@ -31,6 +43,7 @@ double shortfall(const Json& crit, double v) {
 Json decide(const Json& results) {
   const auto cells = cells_by_id(results);
   const Json& criteria = results["criteria"];
+  const auto parsed = suite::criteria_from_json(criteria);  // same order as `criteria`
   Json out = Json::array();
   for (const auto& d : results["datasets"]) {
     const std::string name = d["name"];
@@ -66,10 +79,9 @@ Json decide(const Json& results) {
     std::stable_sort(all.begin(), all.end(), cheaper);
     auto values = [&](const Candidate& c, bool failed_only) {
       Json list = Json::array();
-      for (const auto& cr : criteria) {
-        const double v = c.cell ? suite::metric_value(*c.cell, "test", cr["metric"]) : NAN;
-        if (!failed_only || shortfall(cr, v) > 0) list.push_back(verdict_text(cr, v));
-      }
+      for (size_t i = 0; i < parsed.size(); ++i)
+        if (!failed_only || shortfall(criteria[i], judged(parsed[i], c.cell)) > 0)
+          list.push_back(verdict_text(criteria[i], parsed[i], c.cell));
       return list;
     };
     const Candidate* best = nullptr;
@@ -103,8 +115,8 @@ Json decide(const Json& results) {
       for (const auto& c : all) {
         int n = 0;
         double sum = 0;
-        for (const auto& cr : criteria) {
-          const double f = shortfall(cr, c.cell ? suite::metric_value(*c.cell, "test", cr["metric"]) : NAN);
+        for (size_t i = 0; i < parsed.size(); ++i) {
+          const double f = shortfall(criteria[i], judged(parsed[i], c.cell));
           n += f > 0;
           sum += f;
         }

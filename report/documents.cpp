@@ -71,7 +71,7 @@ std::string validation_record_md(const Json& r) {
         "(Efron & Tibshirani 1993).\n"
         "- Porosity = pore voxels / part voxels; bias = predicted − reference, in percentage points (pp).\n"
         "- Pores: 3D connected components (connectivity " << r["scoring"]["connectivity"] << "); matching rule "
-     << r["scoring"]["match"].get<std::string>() << "; ESD = (6V/π)^(1/3).\n"
+     << r["scoring"]["match"].get<std::string>() << ", " << hit_cap_text(r["scoring"]) << "; ESD = (6V/π)^(1/3).\n"
         "- Probability of detection: hit/miss logit model on ln(ESD) fitted by maximum likelihood; a90 and the upper "
         "one-sided 95 % profile-likelihood bound a90/95 (MIL-HDBK-1823A; ASTM E2862).\n"
         "- Size distributions: Kolmogorov–Smirnov distance and Wasserstein-1 distance of ESD; surface distances "
@@ -94,10 +94,10 @@ std::string validation_record_md(const Json& r) {
     }
     const Json& t = c["test"];
     for (const std::string& v : {fmt(t["overlap"]["jaccard"]), fmt(t["slices"]["jaccard_ci95"][0]) + "–" + fmt(t["slices"]["jaccard_ci95"][1]),
-                                 fmt(t["porosity"]["porosity_bias_pp"]), fmt(t["pod"]["a90_95_um"])})
+                                 fmt(t["porosity"]["porosity_bias_pp"]), a9095_text(t)})
       row.push_back(v);
-    std::string v;
-    for (const auto& e : s["verdicts"]) v += (v.empty() ? "" : "; ") + e["criterion"].get<std::string>() + (e["passed"].get<bool>() ? " pass" : " FAIL");
+    std::string v;  // each criterion with the value judged: the point value, or the CI bound named
+    for (const auto& e : judged_verdicts(r, s, &c)) v += (v.empty() ? "" : "; ") + judged_text(e) + (e.passed ? " pass" : " FAIL");
     row.push_back(v.empty() ? "no criteria" : v);
     md << md_row(row);
   }
@@ -119,7 +119,7 @@ std::string validation_record_md(const Json& r) {
     }
     const Json& t = c["test"];
     row.push_back(fmt(t["pod"]["n_hits"]) + " / " + fmt(t["pod"]["n_targets"]));
-    row.push_back(fmt(t["pod"]["a90_um"]));
+    row.push_back(a90_text(t));
     row.push_back(a9095_text(t));
     row.push_back(false_calls_text(t));
     row.push_back(a9095_reason(t));
@@ -141,7 +141,9 @@ std::string validation_record_md(const Json& r) {
     md << "Declared in the `[criteria]` section of the suite file " << r["suite"]["path"].get<std::string>() << " (sha256 "
        << r["suite_sha256"].get<std::string>() << "), judged on the held-out test slices of each selected cell:";
     for (const auto& c : r["criteria"]) md << " `" << c["text"].get<std::string>() << "`" << (c.contains("on_note") ? " (" + c["on_note"].get<std::string>() + ")" : "");
-    md << ". A criterion marked \"95 % CI bound\" is judged on the bound of its confidence interval, the others on the value. "
+    md << ". A criterion marked \"95 % CI bound\" is judged on the bound of its 95 % confidence interval (the lower "
+          "bound for a minimum, the upper for a maximum, the bound of larger magnitude for a limit on |value|), the others "
+          "on the value; the verdict column of section 5 gives the value judged, and for a bound the point value beside it. "
           "The limits of porebench's built-in demo suites are invented for the demo scenario; for a real qualification "
           "they come from the part specification, the applicable standards and local codes, set by qualified personnel.\n\n";
   }

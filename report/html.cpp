@@ -225,6 +225,9 @@ std::string header(const Page& p) {
   if (!r["criteria"].empty()) {
     h << " Criteria (on the held-out test slices):";
     for (const auto& c : r["criteria"]) h << " <code>" << escape(str(c["text"])) << "</code>";
+    if (std::any_of(r["criteria"].begin(), r["criteria"].end(), [](const Json& c) { return c.value("on", "") == "ci"; }))
+      h << " Criteria marked “95 % CI bound” are judged on the bound of the 95 % interval (lower for a minimum, upper for a "
+           "maximum); the tables give the bound judged and the point value.";
   }
   h << "</div>\n<table class=\"meta\">";
   auto row = [&](const std::string& k, const std::string& v) { h << "<tr><th>" << escape(k) << "</th><td>" << escape(v) << "</td></tr>"; };
@@ -237,7 +240,7 @@ std::string header(const Page& p) {
                          f3(100 * num(r["calibration"]["fraction"])) + " % of the part's slices, gap of " +
                          str(r["calibration"]["gap_slices"]) + " slices, scored on the slices above");
   row("scoring", "match rule " + str(r["scoring"]["match"]) + ", connectivity " + str(r["scoring"]["connectivity"]) + ", " +
-                     str(r["scoring"]["bins_per_decade"]) + " size bins per decade");
+                     hit_cap_text(r["scoring"]) + ", " + str(r["scoring"]["bins_per_decade"]) + " size bins per decade");
   h << "</table>\n<p class=\"links\">Files of this run: <a href=\"validation-record.md\">validation-record.md</a> · "
        "<a href=\"summary.md\">summary.md</a> · <a href=\"results.csv\">results.csv</a> · <a href=\"results.json\">results.json</a></p>\n";
   h << "<nav><strong>Contents:</strong> ";
@@ -279,13 +282,15 @@ std::string summary_tables(Page& p, const Json& d) {
       const Json& t = (*c)["test"];
       h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(slice_jaccard_mean(t)) << " ("
         << fmt(t["slices"]["jaccard_ci95"][0]) << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ")</td><td class=\"n\">"
-        << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << fmt(t["pod"]["a90_um"]) << "</td><td class=\"n\">" << escape(a9095_text(t))
+        << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << escape(a90_text(t)) << "</td><td class=\"n\">" << escape(a9095_text(t))
         << "</td><td class=\"n\">" << escape(false_calls_text(t)) << "</td><td class=\"n\">" << fmt((*c)["runtime_s"]) << "</td>";
       if ((*s)["verdicts"].empty()) h << "<td>none set</td>";
       else {
         h << "<td class=\"" << ((*s).value("passed", false) ? "pass" : "fail") << "\">" << ((*s).value("passed", false) ? "pass" : "FAIL");
-        for (const auto& v : (*s)["verdicts"])
-          if (!v.value("passed", false)) h << "<br><small>" << escape(str(v["criterion"])) << "</small>";
+        // Each criterion that failed or was judged on a CI bound, with the value judged.
+        for (const auto& v : judged_verdicts(p.r, *s, c))
+          if (v.on_ci || !v.passed)
+            h << "<br><small" << (v.on_ci ? " class=\"ci\"" : "") << ">" << escape(judged_text(v)) << (v.passed ? " pass" : " FAIL") << "</small>";
         h << "</td>";
       }
       h << "</tr>\n";
@@ -337,6 +342,7 @@ std::string metric_series(Page& p, const Json& d) {
         std::none_of(p.r["criteria"].begin(), p.r["criteria"].end(), [](const Json& c) { return c["metric"] == "false_calls_per_cm3"; }))
       pl.note("no false-call criterion declared: read a90/95 together with the false calls (noise buys detections)");
     std::map<std::string, std::vector<std::string>> missing;  // reason -> "method at x"
+    std::vector<double> extra_x, extra_y, bound_x, bound_y;  // a90/95 read outside the data / all-hit bounds
     for (const auto& m : method_labels(p)) {
       std::vector<std::pair<double, double>> pts;
       for (const auto& scan : dataset_scans(d)) {
@@ -367,6 +373,11 @@ std::string metric_series(Page& p, const Json& d) {
                                   : pod_metric ? pod_reason(*c, mp.metric) : "not defined";
           missing[why.empty() ? "not defined" : why].push_back(m + " at " + format_number(xv));
         }
+        if (std::string(mp.metric) == "a90_95_um" && c && std::isfinite(yv)) {
+          const Json& pod = (*c)["test"]["pod"];
+          if (pod.value("a90_95_relation", "") == "<=") bound_x.push_back(xv), bound_y.push_back(yv);
+          else if (pod.value("a90_95_extrapolated", false)) extra_x.push_back(xv), extra_y.push_back(yv);
+        }
         pts.push_back({xv, yv});
       }
       std::sort(pts.begin(), pts.end(), [](auto& a, auto& b) { return a.first < b.first; });
@@ -376,6 +387,22 @@ std::string metric_series(Page& p, const Json& d) {
       st.color = p.colour(m);
       st.marker = p.marker(m);
       pl.line(m, xs, ys, st);
+    }
+    // Marks over the method markers: an extrapolated a90/95 (below the smallest reference pore)
+    // and the all-hit bound "a90/95 <= smallest pore" are not values of the same kind.
+    svg::Style mark;
+    mark.color = "#000000";
+    mark.width = 0;
+    mark.marker_size = 7;
+    if (!extra_x.empty()) {
+      mark.marker = svg::Marker::cross;
+      mark.series = "a90_95-extrapolated";
+      pl.line("extrapolated (below the smallest pore)", extra_x, extra_y, mark);
+    }
+    if (!bound_x.empty()) {
+      mark.marker = svg::Marker::triangle;
+      mark.series = "a90_95-bound";
+      pl.line("≤ bound (every pore hit)", bound_x, bound_y, mark);
     }
     svg::Style crit;
     crit.color = "#B00000";
@@ -422,84 +449,7 @@ std::string bias_bars(Page& p, const Json& d) {
 
 std::string pod_panel(Page& p, const Json& sel, const Json* c) {
   const std::string m = str(sel["method"]);
-  svg::Plot pl(p.next_id("pod"), 360, 270, m);
-  pl.x.label = "ESD (µm)";
-  pl.x.log = true;
-  pl.y.label = "POD";
-  pl.y.lo = 0, pl.y.hi = 1;
-  if (!c || c->value("status", "") != "ok") {
-    pl.note("cell failed: " + (c ? str((*c)["error"]) : std::string("missing")));
-    return pl.render();
-  }
-  const Json& pod = (*c)["test"]["pod"];
-  const std::string col = p.colour(m);
-  double lo = INFINITY, hi = 0;
-  std::vector<double> bx, by, blo, bhi;
-  for (const auto& b : pod["bins"]) {
-    if (b.value("n", 0) <= 0) continue;
-    lo = std::min(lo, num(b["lo_um"])), hi = std::max(hi, num(b["hi_um"]));
-    bx.push_back(std::sqrt(num(b["lo_um"]) * num(b["hi_um"])));
-    by.push_back(num(b["pod"]));
-    blo.push_back(num(b["ci95"][0]));
-    bhi.push_back(num(b["ci95"][1]));
-  }
-  const double a90 = num(pod["a90_um"]), a9095 = num(pod["a90_95_um"]);
-  for (double v : {a90, a9095})
-    if (std::isfinite(v) && v > 0) lo = std::min(lo, v), hi = std::max(hi, v);
-  if (!(lo < hi)) {
-    pl.note("no reference pores in the test slices: POD not defined");
-    return pl.render();
-  }
-  pl.x.lo = lo / 1.15, pl.x.hi = hi * 1.15;
-  svg::Style s90;
-  s90.color = "#999999";
-  s90.width = 1;
-  s90.dashed = true;
-  pl.hline(0.9, s90, "POD 0.9", true);
-  const double b0 = num(pod["b0"]), b1 = num(pod["b1"]);
-  const PodLink link = parse_pod_link(str(pod["link"]));
-  if (pod.value("estimable", false) && std::isfinite(b0) && std::isfinite(b1)) {
-    const double c00 = num(pod["covariance"][0][0]), c01 = num(pod["covariance"][0][1]), c11 = num(pod["covariance"][1][1]);
-    std::vector<double> xs, ys, ylo, yhi;
-    const int n = 160;
-    for (int i = 0; i <= n; ++i) {
-      const double a = pl.x.lo * std::pow(pl.x.hi / pl.x.lo, double(i) / n);
-      const PodBandPoint q = pod_band_at(link, b0, b1, c00, c01, c11, a);
-      xs.push_back(a);
-      ys.push_back(q.pod);
-      ylo.push_back(q.lo);
-      yhi.push_back(q.hi);
-    }
-    pl.band(std::string("95 % band (delta method, ") + pod_link_name(link) + " scale)", xs, ylo, yhi, col, 0.18);
-    svg::Style cs;
-    cs.color = col;
-    cs.marker = svg::Marker::none;
-    cs.width = 2;
-    pl.line(std::string(pod_link_name(link)) + " fit", xs, ys, cs);
-  }
-  pl.error_bars(bx, blo, bhi, "#444444");
-  svg::Style ps;
-  ps.color = "#444444";
-  ps.width = 0;
-  ps.marker = svg::Marker::circle;
-  ps.marker_size = 3.2;
-  pl.line("binned POD, Clopper-Pearson 95 %", bx, by, ps);
-  svg::Style v90 = s90;
-  v90.color = col;
-  svg::Style v95;
-  v95.color = col;
-  v95.width = 1.6;
-  v95.marker = svg::Marker::none;
-  if (std::isfinite(a90)) pl.vline(a90, v90), pl.line("a90", {}, {}, [&] { auto s = v90; s.marker = svg::Marker::none; return s; }());
-  if (std::isfinite(a9095)) pl.vline(a9095, v95), pl.line("a90/95", {}, {}, v95);
-  std::string t = "a90 = " + f3(a90) + " µm, a90/95 = " + f3(a9095) + " µm";
-  if (!pod.value("estimable", false)) t = "no POD fit: " + str(pod["reason"]) + "; a90 and a90/95 n/a";
-  else if (!std::isfinite(a9095) && pod.contains("a90_95_reason")) t += " (" + str(pod["a90_95_reason"]) + ")";
-  t += "; " + str(pod["n_hits"]) + " of " + str(pod["n_targets"]) + " reference pores hit.";
-  pl.note(t);
-  for (const auto& w : pod["warnings"])
-    if (str(w) != str(pod.value("a90_95_reason", Json()))) pl.note("warning: " + str(w));
-  return pl.render();
+  return pod_panel_svg(p.next_id("pod"), m, p.colour(m), c);
 }
 
 std::string pod_section(Page& p, const Json& d) {
@@ -515,9 +465,10 @@ std::string pod_section(Page& p, const Json& d) {
     h << "</div>\n";
   }
   h << "<p class=\"caption\">Hit/miss POD against ESD of the reference pores in the test slices: the maximum-likelihood fit "
-       "(line), its pointwise 95 % band from the fit's covariance by the delta method on the link (logit) scale (shaded), "
-       "the binned empirical POD with Clopper-Pearson 95 % intervals (points and bars), a90 (dashed) and a90/95 (solid; "
-       "one-sided 95 % profile-likelihood bound, which need not coincide with the band's edge).</p>\n";
+       "(line), its one-sided 95 % lower likelihood-ratio bound (shaded from the bound up to the fit, edge drawn), "
+       "the binned empirical POD with Clopper-Pearson 95 % intervals (points and bars), a90 (dashed) and a90/95 (solid). "
+       "a90/95 is where the band's lower edge crosses POD 0.9: both are the same profile-likelihood construction. Left of "
+       "the dotted line (the smallest reference pore) the fit is extrapolated; a90 or a90/95 there is marked so.</p>\n";
   return h.str();
 }
 
@@ -759,6 +710,118 @@ nav{margin:10px 0;font-size:13px}.links{font-size:13px}.note{color:#555}code{bac
 )css";
 
 }  // namespace
+
+std::string pod_panel_svg(const std::string& id, const std::string& method, const std::string& colour, const Json* c) {
+  svg::Plot pl(id, 360, 270, method);
+  pl.x.label = "ESD (µm)";
+  pl.x.log = true;
+  pl.y.label = "POD";
+  pl.y.lo = 0, pl.y.hi = 1;
+  if (!c || c->value("status", "") != "ok") {
+    pl.note("cell failed: " + (c ? str((*c)["error"]) : std::string("missing")));
+    return pl.render();
+  }
+  const Json& pod = (*c)["test"]["pod"];
+  double lo = INFINITY, hi = 0;
+  std::vector<double> bx, by, blo, bhi;
+  for (const auto& b : pod["bins"]) {
+    if (b.value("n", 0) <= 0) continue;
+    lo = std::min(lo, num(b["lo_um"])), hi = std::max(hi, num(b["hi_um"]));
+    bx.push_back(std::sqrt(num(b["lo_um"]) * num(b["hi_um"])));
+    by.push_back(num(b["pod"]));
+    blo.push_back(num(b["ci95"][0]));
+    bhi.push_back(num(b["ci95"][1]));
+  }
+  const double a90 = num(pod["a90_um"]), a9095 = num(pod["a90_95_um"]), smallest = num(pod["smallest_target_um"]);
+  const bool bound = pod.value("a90_95_relation", "") == "<=";
+  const bool a90_extra = pod.value("a90_extrapolated", false), a9095_extra = pod.value("a90_95_extrapolated", false);
+  for (double v : {a90, a9095})
+    if (std::isfinite(v) && v > 0) lo = std::min(lo, v), hi = std::max(hi, v);
+  if (!(lo < hi)) {
+    pl.note("no reference pores in the test slices: POD not defined");
+    return pl.render();
+  }
+  pl.x.lo = lo / 1.15, pl.x.hi = hi * 1.15;
+  svg::Style s90;
+  s90.color = "#999999";
+  s90.width = 1;
+  s90.dashed = true;
+  s90.series = "pod-0.9";
+  pl.hline(0.9, s90, "POD 0.9", true);
+  const double b0 = num(pod["b0"]), b1 = num(pod["b1"]);
+  const PodLink link = parse_pod_link(str(pod["link"]));
+  if (pod.value("estimable", false) && std::isfinite(b0) && std::isfinite(b1)) {
+    // The one band: the one-sided 95 % lower likelihood-ratio bound the score record holds
+    // (pod.band), shaded up to the fit; its lower edge crosses 0.9 at a90/95.
+    std::vector<double> bs, bpod, blower;
+    if (pod.contains("band") && pod["band"].contains("points"))
+      for (const auto& q : pod["band"]["points"]) bs.push_back(num(q[0])), bpod.push_back(num(q[1])), blower.push_back(num(q[2]));
+    pl.band("one-sided 95 % lower bound (likelihood ratio)", bs, blower, bpod, colour, 0.18, "pod-band");
+    svg::Style edge;
+    edge.color = colour;
+    edge.marker = svg::Marker::none;
+    edge.width = 0.9;
+    edge.series = "pod-band-lower";
+    pl.line("", bs, blower, edge);
+    std::vector<double> xs, ys;
+    const int n = 160;
+    for (int i = 0; i <= n; ++i) {
+      const double a = pl.x.lo * std::pow(pl.x.hi / pl.x.lo, double(i) / n);
+      xs.push_back(a);
+      ys.push_back(pod_curve(link, b0, b1, a));
+    }
+    svg::Style cs;
+    cs.color = colour;
+    cs.marker = svg::Marker::none;
+    cs.width = 2;
+    cs.series = "pod-fit";
+    pl.line(std::string(pod_link_name(link)) + " fit", xs, ys, cs);
+  }
+  if (std::isfinite(smallest) && smallest > 0) {
+    svg::Style sm;
+    sm.color = "#777777";
+    sm.width = 0.8;
+    sm.dashed = true;
+    sm.series = "smallest-target";
+    pl.vline(smallest, sm, "smallest pore");
+  }
+  pl.error_bars(bx, blo, bhi, "#444444");
+  svg::Style ps;
+  ps.color = "#444444";
+  ps.width = 0;
+  ps.marker = svg::Marker::circle;
+  ps.marker_size = 3.2;
+  pl.line("binned POD, Clopper-Pearson 95 %", bx, by, ps);
+  svg::Style v90 = s90;
+  v90.color = colour;
+  v90.series = "a90";
+  svg::Style v95;
+  v95.color = colour;
+  v95.width = 1.6;
+  v95.marker = svg::Marker::none;
+  v95.series = "a90_95";
+  if (std::isfinite(a90)) {
+    pl.vline(a90, v90);
+    auto s = v90;
+    s.marker = svg::Marker::none;
+    pl.line(a90_extra ? "a90 (extrapolated: below the smallest pore)" : "a90", {}, {}, s);
+  }
+  if (std::isfinite(a9095)) {
+    pl.vline(a9095, v95);
+    pl.line(bound ? "a90/95 ≤ (every pore hit: a bound)" : a9095_extra ? "a90/95 (extrapolated: below the smallest pore)" : "a90/95",
+            {}, {}, v95);
+  }
+  std::string t = "a90 = " + f3(a90) + " µm" + (a90_extra ? " (extrapolated)" : "") + ", a90/95 = " + f3(a9095) + " µm" +
+                  (a9095_extra ? " (extrapolated)" : "");
+  if (bound) t = "every reference pore hit: no POD fit; a90/95 ≤ " + f3(a9095) + " µm (the smallest pore; no data below it)";
+  else if (!pod.value("estimable", false)) t = "no POD fit: " + str(pod["reason"]) + "; a90 and a90/95 n/a";
+  else if (!std::isfinite(a9095) && pod.contains("a90_95_reason")) t += " (" + str(pod["a90_95_reason"]) + ")";
+  t += "; " + str(pod["n_hits"]) + " of " + str(pod["n_targets"]) + " reference pores hit.";
+  pl.note(t);
+  for (const auto& w : pod["warnings"])
+    if (str(w) != str(pod.value("a90_95_reason", Json()))) pl.note("warning: " + str(w));
+  return pl.render();
+}
 
 std::vector<size_t> pareto_front(const std::vector<std::pair<double, double>>& runtime_quality) {
   // Sweep by runtime (ties: better quality first) and keep each point that raises the best quality.

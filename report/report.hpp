@@ -3,6 +3,7 @@
 // the Markdown summary, scan-recipe advice, the validation record and report.html (html.hpp).
 // The reporters that write them into the run folder: reporter.hpp. report/ reads suites/' records;
 // suites/ never includes report/.
+#include <cmath>
 #include <map>
 #include <nlohmann/json.hpp>
 #include <string>
@@ -32,7 +33,8 @@ std::string validation_record_md(const Json& results);
 Json scan_recipe_advice(const Json& results);
 
 // The decision of a run, one entry per dataset: "status" "recommended" (method, scan, projections,
-// i0, reasons = each criterion with its test value, time_saving_factor, also_passing_on_this_scan):
+// i0, reasons = each criterion with the test value it was judged on (its CI bound, named, with the
+// point value beside it, for criteria on the interval), time_saving_factor, also_passing_on_this_scan):
 // the fastest scan recipe (fewest projections, then lowest dose) on which a method meets every
 // criterion on the held-out test slices, and of the methods that do there the best by test
 // Jaccard; "none" with the nearest miss (fewest failed criteria, then the smallest relative
@@ -57,6 +59,8 @@ std::string md_cell(const std::string& s);
 std::string md_row(const std::vector<std::string>& cells);
 
 // Score-record readers shared by the tables (t = a cell's "test" block):
+// a90 as shown: "12.5", "4.95 (extrapolated)" below the smallest reference pore, "n/a";
+std::string a90_text(const Json& t);
 // a90/95 as shown: "61.2", "≤ 30.5 (every target hit)" for a bound, "(extrapolated)" flagged;
 std::string a9095_text(const Json& t);
 // false calls "N / X per cm³ / Y per target" (per target = false calls / reference pores);
@@ -65,6 +69,24 @@ std::string false_calls_text(const Json& t);
 const Json& slice_jaccard_mean(const Json& t);
 // why a90/95 is n/a ("" when defined).
 std::string a9095_reason(const Json& t);
+
+// The hit rule's volume cap of a record's "scoring" block in words ("hit rule capped at 10x the
+// reference pore's volume (max_volume_ratio)", "no hit-rule volume cap", or that it is not recorded).
+std::string hit_cap_text(const Json& scoring);
+
+// A selection's verdicts with what was judged, one per criterion of the record (in order): the
+// criterion text, passed (the record's verdict), whether it was judged on the 95 % CI bound and
+// which ("lower" for min_, "upper" for max_, "larger |bound|" for max_abs_), the value judged (the
+// bound, or the point value) and the point value, both from the test part of `cell` (NaN without).
+struct JudgedVerdict {
+  std::string criterion;
+  bool passed = false, on_ci = false;
+  std::string bound;
+  double judged = NAN, value = NAN;
+};
+std::vector<JudgedVerdict> judged_verdicts(const Json& results, const Json& selection, const Json* cell);
+// "jaccard >= 0.6: 0.713", or on a bound "jaccard >= 0.6 (95 % CI bound): CI lower bound 0.42 (value 0.632)".
+std::string judged_text(const JudgedVerdict& v);
 
 // Whether the selection's method is the one that segmented its dataset's paired reference (a
 // reference scan segmented by method X favours X: it is scored against its own output).

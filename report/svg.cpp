@@ -189,6 +189,8 @@ std::string stroke_attrs(const Style& s) {
   return a;
 }
 
+std::string series_attr(const Style& s) { return s.series.empty() ? "" : " data-series=\"" + escape(s.series) + "\""; }
+
 // Legend entries flowed in rows under the panel; returns the SVG and adds to `height`.
 template <class Entry>
 std::string legend_svg(const std::vector<Entry>& entries, double width, double top, double& height) {
@@ -306,10 +308,11 @@ void Plot::error_bars(const std::vector<double>& xs, const std::vector<double>& 
 }
 
 void Plot::band(const std::string& name, const std::vector<double>& xs, const std::vector<double>& lo,
-                const std::vector<double>& hi, const std::string& color, double opacity) {
+                const std::vector<double>& hi, const std::string& color, double opacity, const std::string& series) {
   Style s;
   s.color = color;
   s.opacity = opacity;
+  s.series = series;
   items_.push_back({Kind::band, xs, {}, lo, hi, s, name});
   if (!name.empty()) legend_.push_back({name, s, true});
 }
@@ -354,7 +357,8 @@ std::string band_svg(const Canvas& c, const std::vector<double>& xs, const std::
       body << "<polygon points=\"";
       for (const auto& p : run) body << px(c.X(p.first)) << "," << px(c.Y(p.second.second)) << " ";
       for (auto r = run.rbegin(); r != run.rend(); ++r) body << px(c.X(r->first)) << "," << px(c.Y(r->second.first)) << " ";
-      body << "\" fill=\"" << escape(st.color) << "\" fill-opacity=\"" << px(st.opacity) << "\" stroke=\"none\"/>";
+      body << "\" fill=\"" << escape(st.color) << "\" fill-opacity=\"" << px(st.opacity) << "\" stroke=\"none\""
+           << series_attr(st) << "/>";
     }
     run.clear();
   };
@@ -403,7 +407,7 @@ std::string line_svg(const Canvas& c, const std::vector<double>& xs, const std::
     d << (pen ? "L" : "M") << px(c.X(xs[i])) << " " << px(c.Y(ys[i]));
     pen = true;
   }
-  if (st.width > 0 && !d.str().empty()) body << "<path d=\"" << d.str() << "\"" << stroke_attrs(st) << "/>";
+  if (st.width > 0 && !d.str().empty()) body << "<path d=\"" << d.str() << "\"" << stroke_attrs(st) << series_attr(st) << "/>";
   for (size_t i = 0; i < xs.size() && i < ys.size(); ++i)
     if (c.sx.valid(xs[i]) && c.sy.valid(ys[i]))
       body << marker_svg(st.marker, c.X(xs[i]), c.Y(ys[i]), st.marker_size, st.color,
@@ -428,7 +432,7 @@ void hline_svg(const Canvas& c, double yv, const Style& st, const std::string& l
                std::ostream& overlay) {
   if (!c.sy.valid(yv) || yv < c.sy.lo || yv > c.sy.hi) return;
   body << "<line x1=\"" << px(c.f.ml) << "\" y1=\"" << px(c.Y(yv)) << "\" x2=\"" << px(c.f.ml + c.f.pw) << "\" y2=\""
-       << px(c.Y(yv)) << "\"" << stroke_attrs(st) << "/>";
+       << px(c.Y(yv)) << "\"" << stroke_attrs(st) << series_attr(st) << "/>";
   if (label.empty()) return;
   overlay << "<text x=\"" << px(left ? c.f.ml + 4 : c.f.ml + c.f.pw - 4) << "\" y=\"" << px(c.Y(yv) - 4) << "\" text-anchor=\""
           << (left ? "start" : "end") << "\" font-size=\"10\" fill=\"" << escape(st.color) << "\">" << escape(label) << "</text>";
@@ -437,7 +441,7 @@ void hline_svg(const Canvas& c, double yv, const Style& st, const std::string& l
 void vline_svg(const Canvas& c, double xv, const Style& st, const std::string& label, std::ostream& body, std::ostream& overlay) {
   if (!c.sx.valid(xv) || xv < c.sx.lo || xv > c.sx.hi) return;
   body << "<line x1=\"" << px(c.X(xv)) << "\" y1=\"" << px(c.f.mt) << "\" x2=\"" << px(c.X(xv)) << "\" y2=\""
-       << px(c.f.mt + c.f.ph) << "\"" << stroke_attrs(st) << "/>";
+       << px(c.f.mt + c.f.ph) << "\"" << stroke_attrs(st) << series_attr(st) << "/>";
   if (label.empty()) return;
   overlay << "<text x=\"" << px(c.X(xv) - 3) << "\" y=\"" << px(c.f.mt + 11) << "\" text-anchor=\"end\" font-size=\"10\" fill=\""
           << escape(st.color) << "\">" << escape(label) << "</text>";

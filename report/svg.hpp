@@ -30,6 +30,7 @@ struct Style {
   Marker marker = Marker::circle;
   double marker_size = 4;
   double opacity = 1;
+  std::string series;   // non-empty: written as data-series="..." on the drawn element (tests find it)
 };
 
 class Plot {
@@ -46,7 +47,8 @@ class Plot {
                   const std::string& color);
   // A shaded band between lo(x) and hi(x); split where a value is missing.
   void band(const std::string& name, const std::vector<double>& xs, const std::vector<double>& lo,
-            const std::vector<double>& hi, const std::string& color, double opacity = 0.2);
+            const std::vector<double>& hi, const std::string& color, double opacity = 0.2,
+            const std::string& series = "");
   // Histogram on bin edges (counts.size() + 1 == edges.size()) as an outline; filled optionally.
   // On a log y axis an empty bin drops to the bottom of the panel.
   void steps(const std::string& name, const std::vector<double>& edges, const std::vector<double>& counts,

@@ -165,10 +165,17 @@ std::string summary_md(const Json& results) {
       const Json& t = c["test"];
       md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(slice_jaccard_mean(t)) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
          << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ") | " << fmt(t["porosity"]["porosity_bias_pp"]) << " | "
-         << fmt(t["pod"]["a90_um"]) << " | " << md_cell(a9095_text(t)) << " | " << false_calls_text(t)
+         << md_cell(a90_text(t)) << " | " << md_cell(a9095_text(t)) << " | " << false_calls_text(t)
          << " | " << fmt(c["runtime_s"]) << " | ";
       if ((*s)["verdicts"].empty()) md << "none set";
-      else md << ((*s)["passed"].get<bool>() ? "pass" : "FAIL");
+      else {
+        // The verdict, then each criterion that failed or was judged on a CI bound, with the value judged.
+        md << ((*s)["passed"].get<bool>() ? "pass" : "FAIL");
+        std::string detail;
+        for (const auto& v : judged_verdicts(results, *s, &c))
+          if (v.on_ci || !v.passed) detail += (detail.empty() ? ": " : "; ") + judged_text(v) + (v.passed ? " pass" : " FAIL");
+        md << md_cell(detail);
+      }
       md << " |\n";
     }
     md << "\n";

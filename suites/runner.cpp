@@ -123,13 +123,18 @@ void write_suite_record(const Suite& s, const std::vector<Dataset>& data, const 
   std::stringstream ss;
   ss << f.rdbuf();
   Json rec;
-  rec["suite"] = {{"name", s.name}, {"description", s.description}, {"path", s.path}};
+  rec["suite"] = {{"name", s.name}, {"description", s.description}, {"path", s.path}, {"validation", s.validation}};
   rec["suite_sha256"] = s.text_sha256;
   rec["suite_text"] = ss.str();
   rec["calibration"] = {{"objective", s.calibration.objective}, {"fraction", s.calibration.fraction},
                         {"gap_slices", s.calibration.gap_slices}};
+  // Everything of the scoring that can change a verdict: the hit rule (match, connectivity, volume
+  // cap), the intervals criteria on CI bounds read (bootstrap samples and seed), the POD link.
+  const ScoreOptions so = s.scoring.options();
   rec["scoring"] = {{"match", s.scoring.match}, {"connectivity", s.scoring.connectivity},
-                    {"bins_per_decade", s.scoring.bins_per_decade}, {"bootstrap_samples", s.scoring.bootstrap_samples}};
+                    {"bins_per_decade", s.scoring.bins_per_decade}, {"bootstrap_samples", s.scoring.bootstrap_samples},
+                    {"max_volume_ratio", so.max_volume_ratio}, {"bootstrap_seed", so.seed},
+                    {"pod_link", pod_link_name(so.pod_link)}};
   rec["criteria"] = criteria_to_json(s.criteria);
   Json methods = Json::array();
   for (const auto& m : s.methods) {

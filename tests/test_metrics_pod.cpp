@@ -169,12 +169,20 @@ TEST_CASE("the one POD band: its crossing of 0.9 is a90/95 (likelihood-ratio con
   }
   INFO("crossing " << lo << " um, a90/95 " << f.a90_95_um << " um, link " << pod_link_name(link));
   CHECK(lo == Approx(f.a90_95_um).epsilon(0.005));
-  // The band in the fit: the lower bound below the fit everywhere, non-decreasing with size.
-  REQUIRE(f.band.size() == 41);
+  // The band in the fit: 41 log-spaced sizes plus a90/95 itself, ascending; the lower bound below
+  // the fit everywhere, non-decreasing with size, and 0.9 at a90/95.
+  REQUIRE(f.band.size() == 42);
+  int at_a9095 = 0;
   for (size_t k = 0; k < f.band.size(); ++k) {
     CHECK(f.band[k].lo <= f.band[k].pod);
+    if (k) CHECK(f.band[k].size_um > f.band[k - 1].size_um);
     if (k) CHECK(f.band[k].lo >= f.band[k - 1].lo - 1e-12);
+    if (f.band[k].size_um == f.a90_95_um) {
+      ++at_a9095;
+      CHECK(f.band[k].lo == Approx(0.9).epsilon(1e-6));
+    }
   }
+  CHECK(at_a9095 == 1);
   CHECK(f.band.back().size_um >= f.a90_95_um);
 }
 
