@@ -1,7 +1,7 @@
 // porebench convert IN -o OUT: brings a scan into a format that keeps its geometry. Reads what
 // read_volume reads (MetaImage, NRRD, NIfTI, TIFF files and folders of TIFF slices, raw with
 // --raw-*); writes only formats that store the spacing (.mha/.mhd, .nrrd/.nhdr, .nii/.nii.gz).
-// TIFF and raw inputs carry no trustworthy voxel size: --spacing is required for them.
+// TIFF, .npy and raw inputs carry no trustworthy voxel size: --spacing is required for them.
 #include <filesystem>
 #include <iostream>
 #include <memory>
@@ -14,7 +14,7 @@ namespace {
 
 bool spacing_unknown(const std::string& path) {
   const std::string ext = lower_extension(path);
-  return std::filesystem::is_directory(path) || ext == ".tif" || ext == ".tiff" || ext == ".raw" || ext.empty();
+  return std::filesystem::is_directory(path) || ext == ".tif" || ext == ".tiff" || ext == ".raw" || ext == ".npy" || ext.empty();
 }
 
 Action setup_convert(CLI::App& app) {
@@ -37,7 +37,7 @@ Action setup_convert(CLI::App& app) {
                        "' is not written (it would lose the voxel size); use .mha, .mhd, .nrrd, .nhdr, .nii or .nii.gz");
     const ReadOptions ro = a->read.options(a->input);
     if (!ro.spacing_mm && !ro.raw && spacing_unknown(a->input))
-      throw InputError("convert " + a->input + ": this format stores no reliable voxel size (z spacing of TIFF, raw); " +
+      throw InputError("convert " + a->input + ": this format stores no reliable voxel size (z spacing of TIFF, .npy, raw); " +
                        "give --spacing X,Y,Z in mm");
     check_writable(a->output);
     const AnyVolume v = read_volume(a->input, ro);

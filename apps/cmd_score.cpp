@@ -10,6 +10,7 @@
 #include "apps/cli.hpp"
 #include "core/context.hpp"
 #include "core/error.hpp"
+#include "core/npy.hpp"
 #include "core/sha256.hpp"
 #include "metrics/mask_input.hpp"
 #include "metrics/score.hpp"
@@ -22,6 +23,29 @@ std::string fmt(double v) {
   std::ostringstream s;
   s << v;
   return s.str();
+}
+
+// A .npy stores no voxel size or origin: it takes those of an input that has them (the
+// reference first, then the prediction); when every input is .npy, 1 mm is said aloud.
+void adopt_npy_geometry(AnyVolume& pv, const std::string& pred, AnyVolume& rv, const std::string& ref,
+                        AnyVolume& ov, const std::string& roi) {
+  const std::string* from_name = !is_npy_path(ref) ? &ref : !is_npy_path(pred) ? &pred : nullptr;
+  if (!from_name) {
+    if (!roi.empty() && !is_npy_path(roi)) from_name = &roi;
+    else {
+      log("porebench: warning: every input is .npy (no voxel size stored): spacing 1 mm assumed, so sizes in um "
+          "and counts per cm3 are in voxel units");
+      return;
+    }
+  }
+  const Geometry g = from_name == &ref ? rv.geometry() : from_name == &pred ? pv.geometry() : ov.geometry();
+  auto take = [&](AnyVolume& v, const std::string& name) {
+    if (!name.empty() && is_npy_path(name) && adopt_geometry(v, g))
+      log("porebench: " + name + " stores no voxel size: spacing and origin of " + *from_name + " taken");
+  };
+  take(pv, pred);
+  take(rv, ref);
+  take(ov, roi);
 }
 
 Action setup_score(CLI::App& app) {
@@ -88,13 +112,12 @@ Action setup_score(CLI::App& app) {
     if (!a->json.empty()) check_writable(a->json);
     if (!a->csv.empty()) check_writable(a->csv);
 
-    const AnyVolume pv = read_volume(a->pred), rv = read_volume(a->ref);
-    check_same_geometry(pv.geometry(), a->pred, rv.geometry(), a->ref);
+    AnyVolume pv = read_volume(a->pred), rv = read_volume(a->ref);
     AnyVolume ov;
-    if (!a->roi.empty()) {
-      ov = read_volume(a->roi);
-      check_same_geometry(ov.geometry(), a->roi, rv.geometry(), a->ref);
-    }
+    if (!a->roi.empty()) ov = read_volume(a->roi);
+    adopt_npy_geometry(pv, a->pred, rv, a->ref, ov, a->roi);
+    check_same_geometry(pv.geometry(), a->pred, rv.geometry(), a->ref);
+    if (!a->roi.empty()) check_same_geometry(ov.geometry(), a->roi, rv.geometry(), a->ref);
     const std::string ref_opt = a->pore_label.empty() ? "--ref-label" : "--pore-label";
     const std::string pred_opt = a->pore_label.empty() ? "--pred-label" : "--pore-label";
     const MaskReading pred_read = read_mask_volume(pv, pred_spec, a->pred, pred_opt, "--pred-threshold");

@@ -21,9 +21,11 @@
 #include <regex>
 #include <sstream>
 
+#include "core/byteorder.hpp"
 #include "core/error.hpp"
 #include "core/io_header.hpp"
 #include "core/memory.hpp"
+#include "core/npy.hpp"
 
 namespace fs = std::filesystem;
 
@@ -38,24 +40,6 @@ std::string lower_extension(const std::string& path) {
 }
 
 namespace {
-
-bool host_is_little_endian() {
-  const uint16_t one = 1;
-  uint8_t b;
-  std::memcpy(&b, &one, 1);
-  return b == 1;
-}
-
-void swap_bytes(void* data, size_t count, int width) {
-  auto* p = static_cast<uint8_t*>(data);
-  if (width == 2)
-    for (size_t i = 0; i < count; ++i) std::swap(p[2 * i], p[2 * i + 1]);
-  else if (width == 4)
-    for (size_t i = 0; i < count; ++i) {
-      std::swap(p[4 * i], p[4 * i + 3]);
-      std::swap(p[4 * i + 1], p[4 * i + 2]);
-    }
-}
 
 template <class T>
 AnyVolume make_empty(const Geometry& g) {
@@ -151,8 +135,12 @@ AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
     const std::string ext = lower_extension(path);
     if (ext == ".raw" || ext == ".bin" || ext == ".vol")
       throw InputError("input " + path + " is a raw file: give its geometry (--raw-dims, --raw-type, ...)");
-    if (has_checked_header(path)) check_volume_file(path);  // our header and size checks first
-    v = detail::itk_read(path);
+    if (ext == ".npy") {
+      v = read_npy(path);  // no spacing stored: 1 mm unless opt.spacing_mm
+    } else {
+      if (has_checked_header(path)) check_volume_file(path);  // our header and size checks first
+      v = detail::itk_read(path);
+    }
   }
   if (opt.spacing_mm) {
     for (double s : *opt.spacing_mm)
@@ -183,7 +171,8 @@ void check_volume_output(const std::string& path) {
   const std::string ext = lower_extension(path);
   if (ext == ".mhd" || ext == ".nhdr")
     throw InputError("output " + path + ": detached-header formats are not written; use .mha or .nrrd");
-  if (ext != ".mha" && ext != ".nrrd" && ext != ".nii" && ext != ".nii.gz" && ext != ".tif" && ext != ".tiff")
+  if (ext != ".mha" && ext != ".nrrd" && ext != ".nii" && ext != ".nii.gz" && ext != ".tif" && ext != ".tiff" &&
+      ext != ".npy")
     throw InputError("output " + path + ": unsupported extension '" + ext + "' (use .mha or .nrrd)");
   check_writable(path);
 }
@@ -194,6 +183,7 @@ void write_volume(const void* data, VoxelType type, const Geometry& g, const std
   for (int i = 0; i < 3; ++i)
     if (g.dims[i] < 1 || g.dims[i] > (int64_t(1) << 31) - 1)
       throw InputError("output " + path + ": cannot write dims " + std::to_string(g.dims[i]) + " along " + "xyz"[i]);
+  if (lower_extension(path) == ".npy") return write_npy(data, type, g, path);  // drops spacing and origin
   AtomicOutput out(path);
   // Refuse up front when even the uncompressed voxels cannot fit.
   const uint64_t raw_bytes = saturating_product({uint64_t(g.dims[0]), uint64_t(g.dims[1]), uint64_t(g.dims[2]),

@@ -226,4 +226,11 @@ run_folder("run-no-cells", cells=False)
 run_folder("run-corrupt-cell", bad_cell=True)
 run_folder("run-mixed", foreign=True)
 run_folder("run-no-suite-json", suite_json=False)
+# .npy (numpy.lib.format, written by numpy itself, then broken): data cut short; a dtype not read
+np.save(p("npy-full.npy"), scan(8, np.float32))
+with open(p("npy-full.npy"), "rb") as f:
+    full = f.read()
+write("truncated.npy", full[:-5])
+os.remove(p("npy-full.npy"))
+np.save(p("float64.npy"), scan(8, np.float64))
 print("wrote the bad-input catalogue inputs into", W)

@@ -1,0 +1,342 @@
+#include "core/npy.hpp"
+
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cctype>
+#include <cerrno>
+#include <cstring>
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+
+#include "core/byteorder.hpp"
+#include "core/error.hpp"
+#include "core/io.hpp"
+#include "core/memory.hpp"
+
+namespace fs = std::filesystem;
+
+namespace pb {
+namespace {
+
+constexpr uint64_t kMaxHeaderBytes = uint64_t(1) << 20;  // numpy writes < 100; 1 MiB is absurd already
+constexpr char kMagic[] = "\x93NUMPY";
+
+std::string printable(std::string_view s, size_t max = 60) {
+  std::string out;
+  for (char c : s.substr(0, max)) out += std::isprint(static_cast<unsigned char>(c)) ? c : '?';
+  if (s.size() > max) out += "...";
+  return out;
+}
+
+// A cursor over the header dict literal: {'descr': '<f4', 'fortran_order': False, 'shape': (2, 3), }
+struct DictReader {
+  std::string_view s;
+  size_t i = 0;
+  const std::string& path;
+
+  [[noreturn]] void fail(const std::string& what) const {
+    throw InputError("npy file " + path + ": header dict: " + what + " at byte " + std::to_string(i) + " of '" +
+                     printable(s, 200) + "'");
+  }
+  void ws() {
+    while (i < s.size() && (s[i] == ' ' || s[i] == '\t' || s[i] == '\n' || s[i] == '\r')) ++i;
+  }
+  bool eat(char c) {
+    ws();
+    if (i < s.size() && s[i] == c) {
+      ++i;
+      return true;
+    }
+    return false;
+  }
+  void expect(char c) {
+    if (!eat(c)) fail(std::string("expected '") + c + "'");
+  }
+  bool at(char c) {
+    ws();
+    return i < s.size() && s[i] == c;
+  }
+  std::string str() {
+    ws();
+    if (i >= s.size() || (s[i] != '\'' && s[i] != '"')) fail("expected a quoted string");
+    const char q = s[i++];
+    const size_t b = i;
+    while (i < s.size() && s[i] != q) {
+      if (s[i] == '\\') fail("escapes are not supported in header strings");
+      ++i;
+    }
+    if (i >= s.size()) fail("unterminated string");
+    return std::string(s.substr(b, i++ - b));
+  }
+  bool boolean() {
+    ws();
+    if (s.substr(i, 4) == "True") return i += 4, true;
+    if (s.substr(i, 5) == "False") return i += 5, false;
+    fail("fortran_order must be True or False");
+  }
+  int64_t integer() {
+    ws();
+    const size_t b = i;
+    int64_t v = 0;
+    while (i < s.size() && std::isdigit(static_cast<unsigned char>(s[i]))) {
+      if (v > (int64_t(1) << 50)) fail("shape value too large: '" + printable(s.substr(b, 30)) + "'");
+      v = v * 10 + (s[i++] - '0');
+    }
+    if (i == b) fail("shape values must be non-negative integers");
+    if (i < s.size() && (s[i] == 'L' || s[i] == 'l')) ++i;  // Python 2 long suffix
+    return v;
+  }
+  // skips a value we do not use (nested brackets, strings)
+  void skip_value() {
+    ws();
+    int depth = 0;
+    while (i < s.size()) {
+      const char c = s[i];
+      if (c == '\'' || c == '"') {
+        str();
+        continue;
+      }
+      if (c == '(' || c == '[' || c == '{') ++depth;
+      if (c == ')' || c == ']' || c == '}') {
+        if (depth == 0) return;
+        --depth;
+      }
+      if (c == ',' && depth == 0) return;
+      ++i;
+    }
+  }
+};
+
+void set_type(NpyHeader& h, const std::string& path) {
+  const std::string& d = h.descr;
+  auto refuse = [&](const std::string& why) -> void {
+    throw InputError("npy file " + path + ": descr '" + printable(d) + "' " + why +
+                     " (read: |u1, |b1, u2, i2, f4 little or big endian; e.g. arr.astype(np.float32) or "
+                     "arr.astype(np.uint16) before np.save)");
+  };
+  if (d.size() < 3) refuse("is not a simple dtype");
+  const char order = d[0];
+  const std::string code = d.substr(1);
+  if (order != '<' && order != '>' && order != '|' && order != '=') refuse("has an unknown byte order");
+  if (code == "u1") h.type = VoxelType::u8;
+  else if (code == "b1") h.type = VoxelType::u8;
+  else if (code == "u2") h.type = VoxelType::u16;
+  else if (code == "i2") h.type = VoxelType::i16;
+  else if (code == "f4") h.type = VoxelType::f32;
+  else refuse("is not a voxel type porebench reads");
+  h.item_bytes = voxel_type_bytes(h.type);
+  if (h.item_bytes > 1 && order == '|') refuse("has no byte order for a multi-byte type");
+  h.big_endian = order == '>' || (order == '=' && !host_is_little_endian());
+}
+
+}  // namespace
+
+bool is_npy_path(const std::string& path) { return lower_extension(path) == ".npy"; }
+
+NpyHeader parse_npy_header(std::string_view head, const std::string& path) {
+  NpyHeader h;
+  if (head.size() < 10)
+    throw InputError("npy file " + path + " is truncated: " + std::to_string(head.size()) +
+                     " bytes, the magic, version and header length need 10");
+  if (head.substr(0, 6) != std::string_view(kMagic, 6))
+    throw InputError("npy file " + path + ": magic is '" + printable(head.substr(0, 6)) + "', expected '\\x93NUMPY'");
+  h.major = static_cast<unsigned char>(head[6]);
+  h.minor = static_cast<unsigned char>(head[7]);
+  if ((h.major != 1 && h.major != 2 && h.major != 3) || h.minor != 0)
+    throw InputError("npy file " + path + ": format version " + std::to_string(h.major) + "." +
+                     std::to_string(h.minor) + " is not read (1.0, 2.0, 3.0)");
+  uint64_t len = 0, prefix = 0;
+  auto byte = [&](size_t k) { return uint64_t(static_cast<unsigned char>(head[k])); };
+  if (h.major == 1) {
+    len = byte(8) | byte(9) << 8;
+    prefix = 10;
+  } else {
+    if (head.size() < 12)
+      throw InputError("npy file " + path + " is truncated: " + std::to_string(head.size()) +
+                       " bytes, a version " + std::to_string(h.major) + ".0 header length needs 12");
+    len = byte(8) | byte(9) << 8 | byte(10) << 16 | byte(11) << 24;
+    prefix = 12;
+  }
+  if (len > kMaxHeaderBytes)
+    throw InputError("npy file " + path + ": header length " + std::to_string(len) + " bytes is absurd (at most " +
+                     std::to_string(kMaxHeaderBytes) + ")");
+  if (head.size() < prefix + len)
+    throw InputError("npy file " + path + " is truncated: header length " + std::to_string(len) + " needs " +
+                     std::to_string(prefix + len) + " bytes, found " + std::to_string(head.size()));
+  h.data_offset = prefix + len;
+  const std::string_view dict = head.substr(prefix, len);
+  if (h.major < 3)
+    for (char c : dict)
+      if (static_cast<unsigned char>(c) > 127)
+        throw InputError("npy file " + path + ": header of a version " + std::to_string(h.major) +
+                         ".0 file holds a non-ASCII byte (UTF-8 is for version 3.0)");
+
+  DictReader r{dict, 0, path};
+  bool have_descr = false, have_order = false, have_shape = false;
+  r.expect('{');
+  while (!r.at('}')) {
+    const std::string key = r.str();
+    r.expect(':');
+    if (key == "descr") {
+      r.ws();
+      if (r.at('[')) r.fail("descr is a structured dtype (a list); save a plain array");
+      h.descr = r.str();
+      have_descr = true;
+    } else if (key == "fortran_order") {
+      h.fortran_order = r.boolean();
+      have_order = true;
+    } else if (key == "shape") {
+      r.expect('(');
+      while (!r.at(')')) {
+        if (h.shape.size() >= 8) r.fail("shape has too many axes");
+        h.shape.push_back(r.integer());
+        if (!r.eat(',')) break;
+      }
+      r.expect(')');
+      have_shape = true;
+    } else {
+      r.fail("unknown key '" + printable(key) + "'");
+    }
+    if (!r.eat(',')) break;
+  }
+  r.expect('}');
+  if (!have_descr) throw InputError("npy file " + path + ": header dict has no 'descr'");
+  if (!have_order) throw InputError("npy file " + path + ": header dict has no 'fortran_order'");
+  if (!have_shape) throw InputError("npy file " + path + ": header dict has no 'shape'");
+  set_type(h, path);
+
+  std::string shape_text = "(";
+  for (size_t k = 0; k < h.shape.size(); ++k) shape_text += (k ? ", " : "") + std::to_string(h.shape[k]);
+  shape_text += ")";
+  if (h.shape.size() != 2 && h.shape.size() != 3)
+    throw InputError("npy file " + path + ": shape " + shape_text +
+                     " has " + std::to_string(h.shape.size()) + " axes; a volume is (z, y, x) and a slice (y, x)");
+  for (int64_t s : h.shape)
+    if (s < 1 || s > (int64_t(1) << 31) - 1)
+      throw InputError("npy file " + path + ": shape " + shape_text + " holds " + std::to_string(s) +
+                       "; every axis needs 1 to 2^31-1 voxels");
+  const size_t n = h.shape.size();
+  h.dims = {h.shape[n - 1], h.shape[n - 2], n == 3 ? h.shape[0] : 1};
+  h.expected_bytes = saturating_product(
+      {uint64_t(h.dims[0]), uint64_t(h.dims[1]), uint64_t(h.dims[2]), uint64_t(h.item_bytes)});
+  return h;
+}
+
+AnyVolume read_npy(const std::string& path) {
+  std::error_code ec;
+  const uint64_t size = fs::file_size(path, ec);
+  if (ec) throw InputError("cannot read " + path + ": " + ec.message());
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw InputError("cannot read " + path + ": " + std::strerror(errno));
+  // the whole header, whatever its stated length, is within the first 12 + kMaxHeaderBytes bytes
+  std::string head(size_t(std::min<uint64_t>(size, 12 + kMaxHeaderBytes)), '\0');
+  in.read(head.data(), std::streamsize(head.size()));
+  if (!in) throw InputError("cannot read " + path + ": short read");
+  const NpyHeader h = parse_npy_header(head, path);
+  const uint64_t expected = h.expected_bytes > UINT64_MAX - h.data_offset ? UINT64_MAX : h.data_offset + h.expected_bytes;
+  if (size != expected) {
+    std::ostringstream s;
+    s << "npy file " << path << (size < expected ? " is truncated" : " is larger than its header says") << ": expected "
+      << expected << " bytes (header " << h.data_offset << " + " << h.dims[0] << " x " << h.dims[1] << " x "
+      << h.dims[2] << " voxels x " << h.item_bytes << " bytes '" << h.descr << "'), found " << size;
+    throw InputError(s.str());
+  }
+  check_memory(h.expected_bytes, "npy file " + path);
+  Geometry g;
+  g.dims = h.dims;
+  AnyVolume v;
+  switch (h.type) {
+    case VoxelType::u8: v = AnyVolume(Image<uint8_t>(g, Uninitialized{})); break;
+    case VoxelType::u16: v = AnyVolume(Image<uint16_t>(g, Uninitialized{})); break;
+    case VoxelType::i16: v = AnyVolume(Image<int16_t>(g, Uninitialized{})); break;
+    case VoxelType::f32: v = AnyVolume(Image<float>(g, Uninitialized{})); break;
+  }
+  in.seekg(std::streamoff(h.data_offset));
+  const bool swap = h.big_endian == host_is_little_endian();
+  const int w = h.item_bytes;
+  char* dst = static_cast<char*>(v.raw());
+  if (!h.fortran_order) {
+    in.read(dst, std::streamsize(v.bytes()));
+    if (!in) throw InputError("cannot read " + path + ": short read");
+    if (swap) swap_bytes(dst, size_t(g.voxels()), w);
+  } else {
+    // Fortran order: element [z, y, x] at z + Z * (y + Y * x). One x-plane (Y * Z items) at a time.
+    const int64_t X = g.dims[0], Y = g.dims[1], Z = g.dims[2];
+    std::vector<char> plane(size_t(Y * Z * w));
+    for (int64_t x = 0; x < X; ++x) {
+      in.read(plane.data(), std::streamsize(plane.size()));
+      if (!in) throw InputError("cannot read " + path + ": short read");
+      if (swap) swap_bytes(plane.data(), size_t(Y * Z), w);
+      for (int64_t y = 0; y < Y; ++y)
+        for (int64_t z = 0; z < Z; ++z)
+          std::memcpy(dst + ((z * Y + y) * X + x) * w, plane.data() + (z + Z * y) * w, size_t(w));
+    }
+  }
+  return v;
+}
+
+void write_npy(const void* data, VoxelType type, const Geometry& g, const std::string& path) {
+  const char* descr = type == VoxelType::u8 ? "|u1" : type == VoxelType::u16 ? "<u2" : type == VoxelType::i16 ? "<i2" : "<f4";
+  std::string dict = std::string("{'descr': '") + descr + "', 'fortran_order': False, 'shape': (" +
+                     std::to_string(g.dims[2]) + ", " + std::to_string(g.dims[1]) + ", " + std::to_string(g.dims[0]) +
+                     "), }";
+  // numpy pads with spaces so that the voxels start on a multiple of 64 bytes, ending with '\n'
+  const size_t total = (10 + dict.size() + 1 + 63) / 64 * 64;
+  dict.append(total - 10 - dict.size() - 1, ' ');
+  dict += '\n';
+  std::string head(kMagic, 6);
+  head += char(1);
+  head += char(0);
+  head += char(dict.size() & 0xff);
+  head += char(dict.size() >> 8);
+  head += dict;
+  const int w = voxel_type_bytes(type);
+  const uint64_t bytes = uint64_t(g.voxels()) * uint64_t(w);
+  AtomicOutput out(path);
+  const uint64_t free_b = free_bytes_at(out.tmp_path());
+  if (free_b < bytes + head.size())
+    throw InputError("cannot write " + path + ": No space left on device (" + std::to_string(bytes + head.size()) +
+                     " bytes, " + std::to_string(free_b) + " bytes free)");
+  const int fd = ::open(out.tmp_path().c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
+  if (fd < 0) throw InputError("cannot write " + path + ": " + std::strerror(errno));
+  auto put = [&](const char* p, size_t n) {
+    while (n > 0) {
+      const ssize_t k = ::write(fd, p, n);
+      if (k < 0 && errno == EINTR) continue;
+      if (k <= 0) {
+        const int err = k < 0 ? errno : ENOSPC;
+        ::close(fd);
+        throw InputError("cannot write " + path + ": " + std::strerror(err));
+      }
+      p += k;
+      n -= size_t(k);
+    }
+  };
+  put(head.data(), head.size());
+  const char* src = static_cast<const char*>(data);
+  if (host_is_little_endian() || w == 1) {
+    put(src, size_t(bytes));
+  } else {
+    std::vector<char> block(size_t(1) << 20);
+    for (uint64_t done = 0; done < bytes;) {
+      const size_t n = size_t(std::min<uint64_t>(block.size(), bytes - done));
+      std::memcpy(block.data(), src + done, n);
+      swap_bytes(block.data(), n / size_t(w), w);
+      put(block.data(), n);
+      done += n;
+    }
+  }
+  if (::close(fd) != 0) throw InputError("cannot write " + path + ": " + std::strerror(errno));
+  out.commit(head.size() + bytes);
+}
+
+bool adopt_geometry(AnyVolume& v, const Geometry& from) {
+  if (v.geometry().dims != from.dims) return false;
+  v.visit([&](auto& img) { img.set_geometry_keep_dims(from); });
+  return true;
+}
+
+}  // namespace pb

@@ -1,0 +1,76 @@
+#!/usr/bin/python3
+"""Reference for core/npy.cpp: .npy files written and read by numpy (numpy.lib.format, Debian
+python3-numpy), the format's own implementation.
+
+  npy_numpy.py write DIR   every dtype porebench reads (|u1 |b1 u2 i2 f4), C and Fortran order,
+                           little and big endian, format versions 1.0, 2.0, 3.0, 3-D (z, y, x)
+                           and 2-D (y, x); values from value() below, so the C++ side knows them.
+  npy_numpy.py check FILE DTYPE [NZ NY NX]
+                           np.load(FILE) must equal value() exactly, with that dtype and shape;
+                           prints "ok" or exits 1 with the difference."""
+import os
+import sys
+
+import numpy as np
+
+
+def value(dtype, shape):
+    """Element [z, y, x] of the test arrays (the same formula is in tests/test_npy.cpp)."""
+    if len(shape) == 2:
+        shape = (1,) + tuple(shape)
+    z, y, x = np.indices(shape)
+    k = x + 10 * y + 100 * z
+    out = {
+        "u1": (k * 7 + 3) % 256,
+        "b1": (x + y + z) % 2,
+        "u2": k * 61 + 300,
+        "i2": -(k * 37) + 5,
+        "f4": k * 0.5 - 3.25,
+    }[dtype]
+    return out.astype(np.dtype(dtype))
+
+
+def write(folder):
+    os.makedirs(folder, exist_ok=True)
+    n = 0
+    for dtype in ["u1", "b1", "u2", "i2", "f4"]:
+        endians = ["<", ">"] if dtype in ("u2", "i2", "f4") else ["|"]
+        for shape in [(5, 4, 3), (4, 3)]:
+            base = value(dtype, shape)
+            if len(shape) == 2:
+                base = base[0]
+            for endian in endians:
+                a = base.astype(np.dtype(endian + dtype) if endian != "|" else base.dtype)
+                for order in ["C", "F"]:
+                    arr = np.asfortranarray(a) if order == "F" else np.ascontiguousarray(a)
+                    assert arr.flags.f_contiguous == (order == "F") or arr.ndim < 2
+                    for version in [(1, 0), (2, 0), (3, 0)]:
+                        name = "%s_%s_%s_%dd_v%d.npy" % (dtype, {"<": "le", ">": "be", "|": "na"}[endian], order,
+                                                       len(shape), version[0])
+                        with open(os.path.join(folder, name), "wb") as f:
+                            np.lib.format.write_array(f, arr, version=version)
+                        n += 1
+    # np.save itself (version 1.0, C order) for a volume
+    np.save(os.path.join(folder, "f4_save.npy"), value("f4", (5, 4, 3)))
+    print("wrote", n + 1)
+
+
+def check(path, dtype, shape):
+    a = np.load(path)
+    want = value(dtype, shape)
+    if len(shape) == 2:
+        want = want[0]
+    if a.dtype != np.dtype(dtype).newbyteorder("<") and a.dtype != np.dtype(dtype):
+        sys.exit("dtype %s, expected %s" % (a.dtype, dtype))
+    if a.shape != tuple(shape):
+        sys.exit("shape %s, expected %s" % (a.shape, shape))
+    if not np.array_equal(a, want):
+        sys.exit("values differ at %s" % (np.argwhere(a != want)[:3].tolist(),))
+    print("ok")
+
+
+if __name__ == "__main__":
+    if sys.argv[1] == "write":
+        write(sys.argv[2])
+    else:
+        check(sys.argv[2], sys.argv[3], tuple(int(s) for s in sys.argv[4:]))
