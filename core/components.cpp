@@ -68,17 +68,18 @@ inline void merge_runs(const Run* runs, uint32_t* p, int64_t c0, int64_t c1, Nbr
 #if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
 #define PB_CCL_HAVE_AVX2_CLONE 1
 #include <immintrin.h>
-#pragma GCC push_options
-#pragma GCC target("avx2")
 namespace avx2 {
 #define PB_CCL_RUNS_AVX2 1
+#define PB_CCL_TARGET __attribute__((target("avx2")))
 #include "core/components_runs.inc"
+#undef PB_CCL_TARGET
 #undef PB_CCL_RUNS_AVX2
 }  // namespace avx2
-#pragma GCC pop_options
 #endif
 namespace generic {
+#define PB_CCL_TARGET
 #include "core/components_runs.inc"
+#undef PB_CCL_TARGET
 }  // namespace generic
 
 #ifdef PB_CCL_HAVE_AVX2_CLONE
