@@ -83,6 +83,7 @@ struct CardReader {
     return i;
   }
   void keys(const Json& obj, const std::string& field, const std::vector<std::string>& allowed) const {
+    if (!obj.is_object()) fail(field, "= " + show(obj) + " must be an object");
     for (auto it = obj.begin(); it != obj.end(); ++it)
       if (std::find(allowed.begin(), allowed.end(), it.key()) == allowed.end()) {
         std::string list;
@@ -99,9 +100,13 @@ ModelCard read_model_card(const std::string& path) {
   if (!f) throw InputError("model card " + path + ": cannot be opened (missing or unreadable)");
   std::stringstream ss;
   ss << f.rdbuf();
+  return parse_model_card(ss.str(), path);
+}
+
+ModelCard parse_model_card(const std::string& text, const std::string& path) {
   Json j;
   try {
-    j = Json::parse(ss.str());
+    j = Json::parse(text);
   } catch (const Json::parse_error& e) {
     throw InputError("model card " + path + ": not valid JSON: " + e.what());
   }

@@ -42,6 +42,8 @@ struct ModelCard {
 // Reads and validates a card (fields, types, ranges, the model file's presence). Throws
 // InputError naming the card, the field and the value.
 ModelCard read_model_card(const std::string& card_path);
+// The same on the card's text (card_path names it in errors; the model file is looked for beside it).
+ModelCard parse_model_card(const std::string& text, const std::string& card_path);
 
 // One loaded model. run() takes a batch of tiles [batch, channels, (z,) y, x] and returns the
 // model's full output, with its shape.

@@ -10,6 +10,8 @@
 #include <itkGradientMagnitudeRecursiveGaussianImageFilter.h>
 #include <itkMorphologicalWatershedFromMarkersImageFilter.h>
 
+#include <algorithm>
+
 #include "core/itk_bridge.hpp"
 #include "core/parallel.hpp"
 #include "methods/pores.hpp"
@@ -21,13 +23,42 @@ namespace pb {
 using ItkF = itk::Image<float, 3>;
 using ItkL = itk::Image<uint8_t, 3>;
 
+namespace {
+constexpr int64_t kRecursiveMin = 4;  // ITK's recursive Gaussian filters need 4 voxels along each axis
+
+// v with every axis shorter than kRecursiveMin extended to it by repeating its last slice: the
+// constant continuation ITK's recursive filters assume beyond a border, so the derivative across
+// a thin axis is 0 and the gradient is the in-plane one (a single slice gives the 2D gradient).
+VolumeF pad_thin_axes(const VolumeF& v) {
+  Geometry g = v.geometry();
+  for (auto& d : g.dims) d = std::max(d, kRecursiveMin);
+  VolumeF p(g, Uninitialized{});
+  const auto& n = v.geometry().dims;
+  for (int64_t z = 0; z < g.dims[2]; ++z)
+    for (int64_t y = 0; y < g.dims[1]; ++y)
+      for (int64_t x = 0; x < g.dims[0]; ++x)
+        p(x, y, z) = v(std::min(x, n[0] - 1), std::min(y, n[1] - 1), std::min(z, n[2] - 1));
+  return p;
+}
+}  // namespace
+
 VolumeF gradient_magnitude(const VolumeF& v, double sigma_mm) {
+  const auto& n = v.geometry().dims;
+  const bool thin = std::min({n[0], n[1], n[2]}) < kRecursiveMin;
+  const VolumeF padded = thin ? pad_thin_axes(v) : VolumeF();
+  const VolumeF& in = thin ? padded : v;
   auto g = itk::GradientMagnitudeRecursiveGaussianImageFilter<ItkF, ItkF>::New();
-  g->SetInput(itk_view(v));
+  g->SetInput(itk_view(in));
   g->SetSigma(sigma_mm);
   g->SetNumberOfWorkUnits(unsigned(thread_count()));
   g->Update();
-  return from_itk<float>(g->GetOutput(), v.geometry());
+  VolumeF full = from_itk<float>(g->GetOutput(), in.geometry());
+  if (!thin) return full;
+  VolumeF out(v.geometry(), Uninitialized{});
+  for (int64_t z = 0; z < n[2]; ++z)
+    for (int64_t y = 0; y < n[1]; ++y)
+      for (int64_t x = 0; x < n[0]; ++x) out(x, y, z) = full(x, y, z);
+  return out;
 }
 
 // Marker-based watershed: markers 1 (air) and 2 (material), 0 unknown; returns the label volume.

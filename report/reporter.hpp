@@ -31,7 +31,9 @@ std::string report_files_text();
 // context, the selections with their verdicts, the advice, criteria_met and the cells.
 Json assemble_results(const std::string& out_dir);
 
-// assemble_results, then every standard reporter. Returns whether every criterion passed.
+// assemble_results, then every standard reporter, results.json last (an earlier results.json is
+// removed first): results.json present means every file of the pass is complete. Returns whether
+// every criterion passed.
 bool write_results(const std::string& out_dir);
 
 }  // namespace pb::report

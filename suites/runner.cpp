@@ -268,6 +268,11 @@ RunSummary run_suite(const Suite& s, const RunOptions& o) {
   }
   sum.datasets_prepared = prepare_needed(data, todo, prev, s, o);
   write_suite_record(s, data, (dir / "suite.json").string());
+  if (!todo.empty()) {  // an earlier pass's results.json no longer describes the folder: it goes first
+    std::error_code ec;
+    fs::remove(dir / "results.json", ec);
+    if (ec) throw InputError("cannot remove the earlier " + (dir / "results.json").string() + ": " + ec.message());
+  }
   run_cells(todo, s, o, sum);
   size_t present = 0;
   for (const auto& c : plan) present += fs::exists(dir / "cells" / (c.file + ".json"));

@@ -119,6 +119,9 @@ TEST_CASE("model cards: every error names the card, the field and the value", "[
   fails_with(edited_card("tiny2d", "typo", {{"outptu", 1}}), "outptu", "not a card field");
   fails_with(edited_card("tiny2d", "win", {{"input", {{"normalise", {{"low", 2.0}}}}}}), "input.normalise.high", "1.0");
   fails_with(edited_card("tiny2d", "nofile", {{"file", "absent.onnx"}}), "file", "absent.onnx");
+  // Blocks that are not objects: an InputError, not a JSON iterator error (fuzz/regressions/card).
+  fails_with(edited_card("tiny2d", "inputnum", {{"input", 5}}), "input", "5");
+  fails_with(edited_card("tiny2d", "outarr", {{"output", {1, 2}}}), "output", "[1,2]");
   // Card / model shape mismatches, found by probing the model at load.
   fails_with(edited_card("tiny2d", "slices", {{"input", {{"kind", "stack"}, {"slices", 3}}}}), "input.slices", "[1, 3, 32, 32]");
   fails_with(edited_card("tiny2d", "odd", {{"input", {{"tile", {33, 32}}}}}), "input.tile", "[1, 1, 33, 32]");
