@@ -45,9 +45,9 @@ Action setup_segment(CLI::App& app) {
     check_volume_output(a->output);
     if (!a->json.empty()) check_writable(a->json);
     if (!a->probability.empty()) {
-      if (m.family != "neural")
+      if (m.family != "neural" && m.family != "predictions")
         throw InputError("--save-probability " + a->probability + ": method " + m.name + " (family " + m.family +
-                         ") makes no probability map; neural methods do");
+                         ") makes no probability map; neural methods and predictions of kind probability do");
       check_volume_output(a->probability);
     }
     if (!a->json.empty() && std::filesystem::absolute(a->json) == std::filesystem::absolute(a->output))
@@ -105,6 +105,8 @@ Action setup_segment(CLI::App& app) {
       json_out.emplace(a->json);
       write_text_to(*json_out, json_text);
     }
+    if (!a->probability.empty() && out.probability.empty())
+      throw InputError("--save-probability " + a->probability + ": method " + m.name + " made no probability map here");
     if (!a->probability.empty()) write_volume(out.probability, a->probability, wo);
     write_volume(out.pores, a->output, wo);
     if (json_out) json_out->commit(json_text.size());

@@ -300,6 +300,7 @@ MethodOutput run_method(const MethodInfo& m, const ParamValues& p, const MethodI
   if (const int64_t min_voxels = p.integer("min_pore_voxels"); min_voxels > 1)
     out.chosen.emplace_back("small_pores_removed", double(remove_small_pores(out.pores, min_voxels)));
   out.runtime_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  if (out.external_runtime_s) out.runtime_s = *out.external_runtime_s;
   return out;
 }
 

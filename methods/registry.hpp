@@ -9,6 +9,7 @@
 #include <map>
 #include <memory>
 #include <mutex>
+#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
@@ -60,6 +61,9 @@ struct MethodOutput {
   std::vector<std::string> warnings;                  // degenerate input and the like
   VolumeF probability;                                // pore probability map, when the method makes one (neural)
   double runtime_s = 0;                               // wall time of the run, set by run_method
+  // A runtime measured elsewhere (predictions: from a sidecar; NaN = not measured): when set,
+  // run_method reports it as runtime_s instead of its own timing.
+  std::optional<double> external_runtime_s;
 };
 
 struct MethodInfo {

@@ -14,6 +14,11 @@ const char* const kCaution =
 
 std::string fmt(const Json& v, int digits) { return v.is_number() ? format_number(v.get<double>(), digits) : "n/a"; }
 
+std::string runtime_text(const Json& cell) {
+  const Json& r = cell.contains("runtime_s") ? cell["runtime_s"] : Json();
+  return r.is_number() ? fmt(r) : "not measured";
+}
+
 std::string md_cell(const std::string& s) {
   std::string out;
   for (char c : s) {

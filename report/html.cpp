@@ -283,7 +283,7 @@ std::string summary_tables(Page& p, const Json& d) {
       h << "<td class=\"n\">" << fmt(t["overlap"]["jaccard"]) << "</td><td class=\"n\">" << fmt(slice_jaccard_mean(t)) << " ("
         << fmt(t["slices"]["jaccard_ci95"][0]) << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ")</td><td class=\"n\">"
         << fmt(t["porosity"]["porosity_bias_pp"]) << "</td><td class=\"n\">" << escape(a90_text(t)) << "</td><td class=\"n\">" << escape(a9095_text(t))
-        << "</td><td class=\"n\">" << escape(false_calls_text(t)) << "</td><td class=\"n\">" << fmt((*c)["runtime_s"]) << "</td>";
+        << "</td><td class=\"n\">" << escape(false_calls_text(t)) << "</td><td class=\"n\">" << runtime_text(*c) << "</td>";
       if ((*s)["verdicts"].empty()) h << "<td>none set</td>";
       else {
         h << "<td class=\"" << ((*s).value("passed", false) ? "pass" : "fail") << "\">" << ((*s).value("passed", false) ? "pass" : "FAIL");

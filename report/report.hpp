@@ -50,6 +50,8 @@ std::string verdict_headline(const Json& results);
 
 // Formats a metric value for tables: "0.873", "n/a" for null (core/format.hpp).
 std::string fmt(const Json& v, int digits = 3);
+// A cell's runtime_s: "not measured" when the cell has none (predictions without a sidecar).
+std::string runtime_text(const Json& cell);
 
 // Text made safe for one cell of a Markdown table: '|' escaped as "\|", line breaks as spaces
 // (GitHub Flavored Markdown spec 0.29, section 4.10 "Tables": a pipe in a cell is escaped with '\').

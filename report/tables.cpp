@@ -166,7 +166,7 @@ std::string summary_md(const Json& results) {
       md << fmt(t["overlap"]["jaccard"]) << " | " << fmt(slice_jaccard_mean(t)) << " (" << fmt(t["slices"]["jaccard_ci95"][0])
          << "–" << fmt(t["slices"]["jaccard_ci95"][1]) << ") | " << fmt(t["porosity"]["porosity_bias_pp"]) << " | "
          << md_cell(a90_text(t)) << " | " << md_cell(a9095_text(t)) << " | " << false_calls_text(t)
-         << " | " << fmt(c["runtime_s"]) << " | ";
+         << " | " << runtime_text(c) << " | ";
       if ((*s)["verdicts"].empty()) md << "none set";
       else {
         // The verdict, then each criterion that failed or was judged on a CI bound, with the value judged.

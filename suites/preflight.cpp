@@ -14,6 +14,7 @@
 #include "core/io.hpp"
 #include "core/io_header.hpp"
 #include "metrics/score.hpp"
+#include "suites/predictions.hpp"
 #include "synthetic/recipe.hpp"
 
 namespace fs = std::filesystem;
@@ -98,6 +99,7 @@ void preflight(const Suite& s) {
       throw InputError(dw + e.what());
     }
   }
+  preflight_predictions(s);  // every prediction file of a predictions method (suites/predictions)
 }
 
 Json load_suite_record(const std::string& dir) {

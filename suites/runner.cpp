@@ -17,6 +17,7 @@
 #include "metrics/score.hpp"
 #include "suites/datasets.hpp"
 #include "suites/layout.hpp"
+#include "suites/predictions.hpp"
 #include "suites/preflight.hpp"
 #include "suites/results.hpp"
 
@@ -169,7 +170,9 @@ Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::strin
   cell["grid_size"] = c.method->grid.size();
   const MethodInfo& info = Registry::instance().get(c.method->name);
   cell["family"] = info.family;
-  const ParamValues params = parse_params(info, c.method->grid.point(c.grid_index));
+  // a predictions method's file template filled for this cell (suites/predictions)
+  const ParamValues params =
+      parse_params(info, cell_settings(*c.method, c.grid_index, c.data->name, c.variant->scan, s.path));
   cell["params"] = params.text();
   try {
     if (cache.dataset != c.data->name) {
