@@ -4,6 +4,8 @@
 #include <cmath>
 #include <iostream>
 #include <memory>
+#include <optional>
+#include <type_traits>
 #include <sstream>
 #include <nlohmann/json.hpp>
 
@@ -13,6 +15,7 @@
 #include "core/npy.hpp"
 #include "core/sha256.hpp"
 #include "metrics/mask_input.hpp"
+#include "metrics/probability.hpp"
 #include "metrics/score.hpp"
 
 namespace pb::cli {
@@ -129,6 +132,13 @@ Action setup_score(CLI::App& app) {
     Mask roi;
     if (!a->roi.empty()) roi = ov.to_mask();
     const ScoreResult r = score(pred, ref, a->roi.empty() ? nullptr : &roi, o);
+    // A probability map also gets the probability-map metrics (metrics/probability.hpp).
+    std::optional<ProbabilityMetrics> pm;
+    if (pv.type() == VoxelType::f32 && pred_spec.kind == MaskSpec::automatic)
+      pv.visit([&](const auto& img) {
+        if constexpr (std::is_same_v<std::decay_t<decltype(img)>, VolumeF>)
+          pm = probability_metrics(img, ref, a->roi.empty() ? nullptr : &roi, o.z_begin, o.z_end, pred_spec.threshold);
+      });
     for (const auto& w : r.warnings) log("porebench: warning: " + w);
 
     // Both outputs are rendered before either is written.
@@ -146,6 +156,7 @@ Action setup_score(CLI::App& app) {
       j["inputs"]["ref"]["read_as"] = ref_read.how;
       const nlohmann::ordered_json body = to_json(r);
       for (auto it = body.begin(); it != body.end(); ++it) j[it.key()] = *it;
+      if (pm) j["probability"] = to_json(*pm);
       json_text = j.dump(2) + "\n";
     }
     if (!a->csv.empty()) csv_text = pores_csv(r);
@@ -174,6 +185,9 @@ Action setup_score(CLI::App& app) {
     std::cout << "sizes: ks " << fmt(r.sizes.ks) << "  wasserstein1 " << fmt(r.sizes.wasserstein1_um) << " um\n";
     if (o.surface_distances)
       std::cout << "surface: hd95 " << fmt(r.surface.hd95_mm) << " mm  assd " << fmt(r.surface.assd_mm) << " mm\n";
+    if (pm)
+      std::cout << "probability map: average precision " << fmt(pm->average_precision) << "  Brier " << fmt(pm->brier_score)
+                << "  ECE " << fmt(pm->ece) << " (" << pm->ece_bins << " uniform bins)\n";
     if (!a->json.empty() || !a->csv.empty())
       std::cout << "wrote" << (a->json.empty() ? "" : " " + a->json) << (a->csv.empty() ? "" : " " + a->csv) << '\n';
     return 0;

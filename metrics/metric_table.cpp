@@ -75,6 +75,16 @@ const std::vector<MetricInfo>& metric_table() {
       {"assd_mm", "mm", B::lower, "surface", "", "metrics/surface.cpp",
        "mean of all surface-voxel distances of both directions",
        "Heimann et al. (2009) IEEE TMI 28:1251 (from memory)"},
+      {"average_precision", "", B::higher, "probability", "", "metrics/probability.cpp (probability maps only)",
+       "sum over distinct probabilities, highest first, of (R_n - R_{n-1}) P_n; ROI voxels of the scored slices",
+       "Zhu (2004) Recall, precision and average precision, Univ. Waterloo tech. rep. 2004-09 (from memory); "
+       "computed as sklearn.metrics.average_precision_score"},
+      {"brier_score", "", B::lower, "probability", "", "metrics/probability.cpp (probability maps only)",
+       "mean (p - y)^2 over ROI voxels of the scored slices", "Brier (1950) Mon. Weather Rev. 78:1 (from memory)"},
+      {"ece", "", B::lower, "probability", "", "metrics/probability.cpp (probability maps only)",
+       "expected calibration error: sum over 10 uniform bins of n_b / N |fraction positive - mean p| (bins as "
+       "sklearn.calibration.calibration_curve)",
+       "Guo et al. (2017) On calibration of modern neural networks, ICML, PMLR 70:1321 (from memory)"},
       {"runtime_s", "s", B::lower, "cell", "", "suites/runner.cpp (method run)",
        "wall time of the method on the whole scan", "common practice, no source"},
   };

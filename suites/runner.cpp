@@ -14,6 +14,7 @@
 #include "core/histogram.hpp"
 #include "core/io.hpp"
 #include "methods/registry.hpp"
+#include "metrics/probability.hpp"
 #include "metrics/score.hpp"
 #include "suites/datasets.hpp"
 #include "suites/layout.hpp"
@@ -207,6 +208,15 @@ Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::strin
     so.z_begin = c.data->test_begin;
     so.z_end = c.data->test_end;
     cell["test"] = to_json(score(out.pores, cache.ref, roi, so));
+    if (!out.probability.empty()) {  // probability-map metrics at the method's threshold (metrics/probability)
+      double t = 0.5;
+      for (const auto& [k, v] : out.chosen)
+        if (k == "pore_threshold") t = v;
+      cell["calibration"]["probability"] =
+          to_json(probability_metrics(out.probability, cache.ref, roi, c.data->cal_begin, c.data->cal_end, t));
+      cell["test"]["probability"] =
+          to_json(probability_metrics(out.probability, cache.ref, roi, c.data->test_begin, c.data->test_end, t));
+    }
     const std::string png = "cells/" + c.file + ".png";
     write_mask_png(out.pores, c.data->montage_z, (fs::path(out_dir) / png).string());
     cell["montage_slice_png"] = png;

@@ -131,6 +131,13 @@ TEST_CASE("predictions: made elsewhere, ranked with a classical method in one su
   // the whole part, 0.9 nothing; the calibration picks 0.5
   CHECK((*chosen["prob"])["params"]["pore_threshold"] == "0.5");
   CHECK((*chosen["prob"])["test"]["overlap"]["jaccard"].get<double>() == 1.0);
+  // probability-map metrics for the probability map only (metrics/probability.hpp): every pore
+  // voxel (0.8) ranks above every other (0.1), so the average precision is 1 (its definition)
+  const Json& pb = (*chosen["prob"])["test"]["probability"];
+  CHECK(pb["average_precision"].get<double>() == 1.0);
+  CHECK(pb["chosen_threshold"].get<double>() == 0.5);
+  CHECK(pb["thresholds"].size() == 19);
+  CHECK_FALSE((*chosen["truth-copy"])["test"].contains("probability"));
   // runtime: from the sidecar, or not measured
   CHECK((*chosen["truth-copy"])["runtime_s"].get<double>() == 2.5);
   CHECK((*chosen["noisy"])["runtime_s"].is_null());
