@@ -92,10 +92,10 @@ ProbabilityMetrics probability_metrics(const VolumeF& prob, const Mask& ref, con
         (keys[j - 1] & 1u ? tp : fp) += 1;
         --j;
       }
-      ap += (tp - tp_prev) / pos * (tp / (tp + fp));
+      ap += (tp - tp_prev) * (tp / (tp + fp));  // divided by the positives once, at the end
       tp_prev = tp;
     }
-    m.average_precision = ap;
+    m.average_precision = ap / pos;
   }
   double ece = 0;
   for (int b = 0; b < ece_bins; ++b) {

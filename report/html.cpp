@@ -14,6 +14,7 @@
 #include "methods/registry.hpp"
 #include "metrics/pod.hpp"
 #include "report/html.hpp"
+#include "report/probability_html.hpp"
 #include "report/montage.hpp"
 #include "report/report.hpp"
 #include "report/svg.hpp"
@@ -635,6 +636,8 @@ std::string dataset_section(Page& p, const Json& d, int k, const std::string& ou
   h << "<h3>Probability of detection</h3>\n" << pod_section(p, d);
   h << "<h3>Pore-size distributions</h3>\n" << sizes_section(p, d);
   h << "<h3>Runtime and quality</h3>\n" << pareto_section(p, d);
+  if (const std::string prob = probability_section_html(p.r, d); !prob.empty())  // report/probability_html
+    h << "<h3>Probability maps</h3>\n" << prob;
   h << "<h3>Slice montages</h3>\n" << montage_section(p, d, out_dir);
   h << "</section>\n";
   return h.str();

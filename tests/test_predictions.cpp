@@ -145,6 +145,13 @@ TEST_CASE("predictions: made elsewhere, ranked with a classical method in one su
   std::stringstream summary;
   summary << sm.rdbuf();
   CHECK_THAT(summary.str(), Catch::Contains("not measured"));
+  // report.html: the probability-map section with its threshold curve and reliability diagram
+  std::ifstream hf(p.d / "out/report.html");
+  std::stringstream html;
+  html << hf.rdbuf();
+  CHECK_THAT(html.str(), Catch::Contains("<h3>Probability maps</h3>"));
+  CHECK_THAT(html.str(), Catch::Contains("Reliability (test slices)"));
+  CHECK_THAT(html.str(), Catch::Contains("chosen 0.5"));
   const int truth_rank = rank_in_summary(p.d / "out/summary.md", "truth-copy");
   const int noisy_rank = rank_in_summary(p.d / "out/summary.md", "noisy");
   CHECK(truth_rank >= 1);
