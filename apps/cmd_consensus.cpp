@@ -27,7 +27,7 @@ Action setup_consensus(CLI::App& app) {
   auto a = std::make_shared<Args>();
   app.add_option("masks", a->masks, "pore masks of one scan (non-zero = pore, or see --pore-label); two or more")
       ->required();
-  app.add_option("-o,--output", a->out, "consensus mask to write (.mha or .nrrd)")->required();
+  app.add_option("-o,--output", a->out, "consensus mask to write: .mha, .nrrd, .nii or .nii.gz (they keep the spacing), or .npy (no spacing)")->required();
   app.add_option("--json", a->json, "write each mask's sensitivity and specificity as JSON");
   app.add_option("--threshold", a->threshold, "consensus where the STAPLE probability is >= this")->capture_default_str();
   app.add_option("--pore-label", a->pore_label, "masks are label volumes: pores are voxels equal to N");

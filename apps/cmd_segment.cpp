@@ -30,7 +30,7 @@ Action setup_segment(CLI::App& app) {
   auto a = std::make_shared<Args>();
   app.add_option("METHOD", a->method, "method name (see 'porebench methods')")->required();
   app.add_option("INPUT", a->input, "grey-value volume")->required();
-  app.add_option("-o,--output", a->output, "pore mask to write (.mha or .nrrd)")->required();
+  app.add_option("-o,--output", a->output, "pore mask to write: .mha, .nrrd, .nii or .nii.gz (they keep the spacing), or .npy (no spacing)")->required();
   app.add_option("--set", a->sets, "method parameter key=value (repeatable)");
   app.add_option("--roi", a->roi, "part mask: only voxels inside (non-zero) are classified");
   app.add_option("--json", a->json, "write what the method chose, its runtime and counts as JSON");

@@ -3,6 +3,7 @@
 // error. `report` exits 0 once it has rendered: it prints the verdict but does not judge.
 #include <algorithm>
 #include <cstdio>
+#include <filesystem>
 #include <fstream>
 #include <iostream>
 #include <new>
@@ -53,6 +54,11 @@ ReadOptions ReadArgs::options(const std::string& input) const {
   o.allow_nonfinite = allow_nonfinite;
   const bool raw = !raw_dims.empty() || !raw_type.empty();
   if (!spacing.empty()) o.spacing_mm = std::array<double, 3>{spacing[0], spacing[1], spacing[2]};
+  const std::string ext = lower_extension(input);
+  std::error_code ec;
+  if (!raw && spacing.empty() && (ext == ".tif" || ext == ".tiff" || std::filesystem::is_directory(input, ec)))
+    log("porebench: warning: " + input + " is TIFF, which stores no z spacing: it is read with 1 mm slices (x and y "
+        "from its resolution tags, else 1 mm); give --spacing X,Y,Z in mm");
   if (raw) {
     if (raw_dims.size() != 3) throw InputError("raw input " + input + ": --raw-dims X,Y,Z is required");
     if (raw_type.empty()) throw InputError("raw input " + input + ": --raw-type is required");

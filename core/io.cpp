@@ -167,19 +167,31 @@ AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
   return v;
 }
 
-void check_volume_output(const std::string& path) {
+namespace {
+void check_output_extension(const std::string& path) {
   const std::string ext = lower_extension(path);
   if (ext == ".mhd" || ext == ".nhdr")
-    throw InputError("output " + path + ": detached-header formats are not written; use .mha or .nrrd");
+    throw InputError("output " + path + ": detached-header formats are not written; use .mha, .nrrd, .nii or .nii.gz");
   if (ext != ".mha" && ext != ".nrrd" && ext != ".nii" && ext != ".nii.gz" && ext != ".tif" && ext != ".tiff" &&
       ext != ".npy")
-    throw InputError("output " + path + ": unsupported extension '" + ext + "' (use .mha or .nrrd)");
+    throw InputError("output " + path + ": unsupported extension '" + ext +
+                     "' (written: .mha, .nrrd, .nii, .nii.gz; .npy without spacing)");
+}
+}  // namespace
+
+void check_volume_output(const std::string& path) {
+  check_output_extension(path);
+  const std::string ext = lower_extension(path);
+  if (ext == ".tif" || ext == ".tiff")
+    throw InputError("output " + path + ": TIFF stores no z spacing (a volume would read back with 1 mm slices); "
+                     "write .mha, .nrrd, .nii or .nii.gz");
   check_writable(path);
 }
 
 void write_volume(const void* data, VoxelType type, const Geometry& g, const std::string& path,
                   const WriteOptions& opt) {
-  check_volume_output(path);
+  check_output_extension(path);
+  check_writable(path);
   for (int i = 0; i < 3; ++i)
     if (g.dims[i] < 1 || g.dims[i] > (int64_t(1) << 31) - 1)
       throw InputError("output " + path + ": cannot write dims " + std::to_string(g.dims[i]) + " along " + "xyz"[i]);

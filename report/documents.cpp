@@ -8,6 +8,53 @@
 
 namespace pb::report {
 
+// Paired datasets: how the reference was brought onto each fast scan (suites/paired.hpp).
+static std::string paired_alignment_md(const Json& d) {
+  if (!d.contains("variants")) return "";
+  std::ostringstream md;
+  md << "\nThe reference is scored on each fast scan's grid (the grid the decision is about): its pores resampled by "
+        "nearest neighbour (grey values, where needed, by linear interpolation) under the registration below.\n\n"
+        "| scan | align | method | converged | rotation (°) | translation (mm) | scale | marker RMS (mm) | residual shift (voxel) | note |\n"
+        "|---|---|---|---|---|---|---|---|---|---|\n";
+  auto n3 = [](const Json& a) {
+    std::ostringstream s;
+    s.precision(4);
+    s << "(" << a[0].get<double>() << ", " << a[1].get<double>() << ", " << a[2].get<double>() << ")";
+    return s.str();
+  };
+  for (const auto& v : d["variants"]) {
+    const Json& a = v.value("alignment", Json::object());
+    md << "| " << md_cell(v["scan"].get<std::string>()) << " | " << a.value("align", std::string("?")) << " | ";
+    const Json& r = a.contains("registration") ? a["registration"] : Json();
+    if (r.is_object()) {
+      std::ostringstream s;
+      s.precision(4);
+      s << r["method"].get<std::string>() << " (" << r["dof"].get<std::string>() << ") | " << (r["converged"].get<bool>() ? "yes" : "no") << " | "
+        << r["transform"]["rotation_deg"].get<double>() << " | " << n3(r["transform"]["translation_mm"]) << " | "
+        << r["transform"]["scale"].get<double>() << " | ";
+      if (r["markers"]["rms_mm"].is_number()) s << r["markers"]["rms_mm"].get<double>();
+      else s << "no markers";
+      s << " | – | ";
+      md << s.str();
+    } else {
+      md << "– | – | – | – | – | – | ";
+      if (a.contains("shift_check") && a["shift_check"].is_object()) {
+        std::ostringstream s;
+        s.precision(3);
+        s << a["shift_check"]["magnitude_voxel"].get<double>();
+        md << s.str() << " | ";
+      } else {
+        md << "– | ";
+      }
+    }
+    std::string note = a.contains("error") ? a["error"].get<std::string>() : "";
+    for (const auto& w : v.value("warnings", Json::array())) note += (note.empty() ? "" : "; ") + w.get<std::string>();
+    md << md_cell(note) << " |\n";
+  }
+  md << "\n";
+  return md.str();
+}
+
 std::string validation_record_md(const Json& r) {
   std::ostringstream md;
   const Json& ctx = r["context"];
@@ -44,11 +91,16 @@ std::string validation_record_md(const Json& r) {
            << (f.is_object() && f.contains("sha256") ? f["sha256"].get<std::string>() : f.is_string() ? f.get<std::string>() : "") << " |\n";
       }
     } else {
-      md << "| file | sha256 |\n|---|---|\n| " << md_cell(d["scan"].get<std::string>()) << " | " << d["scan_sha256"].get<std::string>() << " |\n";
+      md << "| file | sha256 |\n|---|---|\n";
       const Json& ref = d["reference"];
       if (ref.contains("mask")) md << "| " << md_cell(ref["mask"].get<std::string>()) << " (reference mask) | " << ref["sha256"].get<std::string>() << " |\n";
       else md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, segmented by " << md_cell(ref["method"].get<std::string>())
               << ") | " << ref["sha256"].get<std::string>() << " |\n";
+      if (!d.contains("variants")) md << "| " << md_cell(d["scan"].get<std::string>()) << " | " << d["scan_sha256"].get<std::string>() << " |\n";
+      else for (const auto& v : d["variants"])
+        md << "| " << md_cell(v["path"].get<std::string>()) << " (" << md_cell(v["scan"].get<std::string>()) << ") | "
+           << v.value("sha256", std::string()) << " |\n";
+      md << paired_alignment_md(d);
     }
     md << "\nSlices: calibration " << d["slices"]["calibration"][0] << "–" << d["slices"]["calibration"][1].get<int>() - 1
        << ", gap " << d["slices"]["gap"] << ", test " << d["slices"]["test"][0] << "–" << d["slices"]["test"][1].get<int>() - 1

@@ -609,10 +609,13 @@ std::string montage_section(Page& p, const Json& d, const std::string& out_dir) 
       tiles.push_back(t);
     }
     const std::string rel = "montages/" + suite::file_token(str(d["name"])) + "__" + suite::file_token(scan) + ".png";
-    write_montage((dir / str(v["montage_png"])).string(), (dir / str(d["montage_reference_png"])).string(),
+    // Paired series: each scan has its own grid, so its own reference slice (suites/paired.hpp).
+    const Json& ref_png = v.contains("montage_reference_png") ? v["montage_reference_png"] : d["montage_reference_png"];
+    const Json& slices = v.contains("slices") ? v["slices"] : d["slices"];
+    write_montage((dir / str(v["montage_png"])).string(), (dir / str(ref_png)).string(),
                   scan, tiles, (dir / rel).string(), pixel_um);
     h << "<figure class=\"montage\"><img src=\"" << escape(rel) << "\" alt=\"slice montage of " << escape(scan)
-      << "\"><figcaption>" << escape(scan) << ", slice z = " << str(d["slices"]["montage_z"])
+      << "\"><figcaption>" << escape(scan) << ", slice z = " << str(slices["montage_z"])
       << " (the test slice with the most reference pore voxels): scan (scale bar in µm"
       << (std::isfinite(pixel_um) ? ", pixel " + format_number(pixel_um, 3) + " µm" : std::string(", pixel size unknown: no bar"))
       << "), reference, then each method's selected cell.</figcaption></figure>\n";

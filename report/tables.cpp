@@ -64,7 +64,7 @@ Json scan_recipe_advice(const Json& results) {
   Json out = Json::array();
   for (auto& [key, sels] : groups) {
     const Json* d = dataset_records[key.first];
-    if (!d || (*d)["kind"] != "synthetic") continue;
+    if (!d) continue;  // synthetic and paired series alike (projections per scan from the suite)
     // Which axis varies: projections, or dose at fixed projections.
     std::set<int> projections;
     std::set<double> doses;

@@ -13,6 +13,7 @@
 #include "core/sha256.hpp"
 #include "methods/registry.hpp"
 #include "suites/layout.hpp"
+#include "suites/paired.hpp"
 #include "synthetic/synth.hpp"
 
 namespace fs = std::filesystem;
@@ -46,42 +47,6 @@ std::string read_text(const std::string& path) {
   return ss.str();
 }
 
-// The z-split: calibration slices at the bottom of the part, a gap, the test slices above.
-void split_slices(Dataset& p, const Mask* part, int64_t nz, const Calibration& c) {
-  int64_t z0 = 0, z1 = nz - 1;
-  if (part) {
-    z0 = nz, z1 = -1;
-    for (int64_t z = 0; z < nz; ++z) {
-      const uint8_t* s = part->slice(z);
-      bool any = false;
-      for (int64_t i = 0; i < part->geometry().slice_voxels() && !any; ++i) any = s[i] != 0;
-      if (any) z0 = std::min(z0, z), z1 = std::max(z1, z);
-    }
-    if (z1 < z0) throw InputError("dataset '" + p.name + "': the part mask is empty");
-  }
-  const int64_t span = z1 - z0 + 1;
-  p.cal_begin = z0;
-  p.cal_end = z0 + std::max<int64_t>(1, int64_t(std::lround(c.fraction * double(span))));
-  p.test_begin = p.cal_end + c.gap_slices;
-  p.test_end = z1 + 1;
-  if (p.test_end - p.test_begin < 1)
-    throw InputError("dataset '" + p.name + "': " + std::to_string(span) + " part slices leave no test slices after " +
-                     std::to_string(p.cal_end - p.cal_begin) + " calibration slices and a gap of " +
-                     std::to_string(c.gap_slices) + "; lower [calibration] fraction or gap_slices");
-}
-
-// Montages show the test slice with the most reference pore voxels.
-int64_t montage_slice(const Dataset& p, const Mask& ref) {
-  int64_t best = -1, at = p.test_begin;
-  for (int64_t z = p.test_begin; z < p.test_end; ++z) {
-    int64_t n = 0;
-    const uint8_t* sl = ref.slice(z);
-    for (int64_t i = 0; i < ref.geometry().slice_voxels(); ++i) n += sl[i] != 0;
-    if (n > best) best = n, at = z;
-  }
-  return at;
-}
-
 void prepare_synthetic(Dataset& p, const LogFn& log) {
   const DatasetSpec& d = *p.spec;
   const std::string manifest = p.data_dir + "/manifest.json";
@@ -106,41 +71,42 @@ void prepare_synthetic(Dataset& p, const LogFn& log) {
               {"manifest", read_json_file(manifest)}};
 }
 
-void prepare_paired(Dataset& p) {
-  const DatasetSpec& d = *p.spec;
-  fs::create_directories(p.data_dir);
-  const AnyVolume scan = read_volume(d.scan, d.read);
-  Mask part;
-  if (!d.part_mask.empty()) {
-    const AnyVolume pm = read_volume(d.part_mask);
-    check_same_geometry(scan.geometry(), d.scan, pm.geometry(), d.part_mask);
-    part = pm.to_mask();
-  }
-  Json ref_record;
-  if (!d.reference_mask.empty()) {
-    const AnyVolume rm = read_volume(d.reference_mask);
-    check_same_geometry(scan.geometry(), d.scan, rm.geometry(), d.reference_mask);
-    if (d.reference_label >= 0) write_volume(rm.to_mask(d.reference_label), p.ref_mask_path, {true});
-    ref_record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", sha256_file(d.reference_mask)}};
-  } else {
-    // The reference is the high-quality scan segmented by the named method.
-    const AnyVolume rs = read_volume(d.reference_scan, d.read);
-    check_same_geometry(scan.geometry(), d.scan, rs.geometry(), d.reference_scan);
-    const MethodInfo& m = Registry::instance().get(d.reference_method);
-    const ParamValues pv = parse_params(m, d.reference_params);
-    const VolumeF f = rs.to_float();
-    const MethodOutput out = run_method(m, pv, MethodInput{f, part.empty() ? nullptr : &part, rs.type()});
-    write_volume(out.pores, p.ref_mask_path, {true});
-    Json chosen = Json::object();
-    for (const auto& [k, v] : out.chosen) chosen[k] = v;
-    ref_record = {{"scan", d.reference_scan}, {"sha256", sha256_file(d.reference_scan)}, {"method", m.name},
-                  {"params", pv.text()}, {"chosen", chosen}};
-  }
-  p.record = {{"name", d.name}, {"kind", "paired"}, {"scan", d.scan}, {"scan_sha256", sha256_file(d.scan)},
-              {"part_mask", d.part_mask}, {"reference", ref_record}};
-}
-
 }  // namespace
+
+Split split_slices(const std::string& name, const Mask* part, const Mask& ref, const Calibration& c) {
+  const int64_t nz = ref.nz();
+  int64_t z0 = 0, z1 = nz - 1;
+  if (part) {
+    z0 = nz, z1 = -1;
+    for (int64_t z = 0; z < nz; ++z) {
+      const uint8_t* s = part->slice(z);
+      bool any = false;
+      for (int64_t i = 0; i < part->geometry().slice_voxels() && !any; ++i) any = s[i] != 0;
+      if (any) z0 = std::min(z0, z), z1 = std::max(z1, z);
+    }
+    if (z1 < z0) throw InputError("dataset '" + name + "': the part mask is empty");
+  }
+  Split p;
+  const int64_t span = z1 - z0 + 1;
+  p.cal_begin = z0;
+  p.cal_end = z0 + std::max<int64_t>(1, int64_t(std::lround(c.fraction * double(span))));
+  p.test_begin = p.cal_end + c.gap_slices;
+  p.test_end = z1 + 1;
+  if (p.test_end - p.test_begin < 1)
+    throw InputError("dataset '" + name + "': " + std::to_string(span) + " part slices leave no test slices after " +
+                     std::to_string(p.cal_end - p.cal_begin) + " calibration slices and a gap of " +
+                     std::to_string(c.gap_slices) + "; lower [calibration] fraction or gap_slices");
+  // Montages show the test slice with the most reference pore voxels.
+  int64_t best = -1;
+  p.montage_z = p.test_begin;
+  for (int64_t z = p.test_begin; z < p.test_end; ++z) {
+    int64_t n = 0;
+    const uint8_t* sl = ref.slice(z);
+    for (int64_t i = 0; i < ref.geometry().slice_voxels(); ++i) n += sl[i] != 0;
+    if (n > best) best = n, p.montage_z = z;
+  }
+  return p;
+}
 
 Dataset describe_dataset(const DatasetSpec& d, const std::string& out_dir) {
   Dataset p;
@@ -172,26 +138,25 @@ Dataset describe_dataset(const DatasetSpec& d, const std::string& out_dir) {
       p.variants.push_back(v);
     }
   } else {
-    p.part_mask_path = d.part_mask;
-    p.ref_mask_path = !d.reference_mask.empty() && d.reference_label < 0 ? d.reference_mask : p.data_dir + "/reference-pores.mha";
-    Variant v;
-    v.scan = "scan";
-    v.path = d.scan;
-    v.projections = d.projections;
-    v.reference_projections = d.reference_projections;
-    p.variants.push_back(v);
+    describe_paired(d, p);  // suites/paired.cpp
+  }
+  for (auto& v : p.variants) {
+    if (v.ref_mask_path.empty()) v.ref_mask_path = p.ref_mask_path;
+    if (v.part_mask_path.empty()) v.part_mask_path = p.part_mask_path;
   }
   return p;
 }
 
 void prepare_dataset(Dataset& p, const Calibration& c, const std::string& out_dir, const LogFn& log) {
-  if (p.spec->kind == DatasetSpec::synthetic) prepare_synthetic(p, log);
-  else prepare_paired(p);
+  if (p.spec->kind == DatasetSpec::paired) return prepare_paired(p, c, out_dir, log);  // suites/paired.cpp
+  prepare_synthetic(p, log);
   const fs::path dir(out_dir);
   const Mask part = p.part_mask_path.empty() ? Mask() : read_volume(p.part_mask_path).to_mask();
   const Mask ref = read_volume(p.ref_mask_path).to_mask();
-  split_slices(p, part.empty() ? nullptr : &part, ref.nz(), c);
-  p.montage_z = montage_slice(p, ref);
+  const Split sp = split_slices(p.name, part.empty() ? nullptr : &part, ref, c);
+  p.cal_begin = sp.cal_begin, p.cal_end = sp.cal_end, p.test_begin = sp.test_begin, p.test_end = sp.test_end;
+  p.montage_z = sp.montage_z;
+  for (auto& v : p.variants) v.split = sp;
   p.record["slices"] = {{"calibration", {p.cal_begin, p.cal_end}}, {"gap", c.gap_slices},
                         {"test", {p.test_begin, p.test_end}}, {"montage_z", p.montage_z}};
   // Montage backgrounds: the reference and each scan at the montage slice.

@@ -1,10 +1,12 @@
 // Per-file geometry and reference alignment for paired suites (see pairs.hpp).
 #include "suites/pairs.hpp"
 
+#include <algorithm>
 #include <filesystem>
 #include <sstream>
 
 #include "core/resample.hpp"
+#include "suites/layout.hpp"
 
 namespace pb::suite {
 
@@ -41,15 +43,20 @@ bool spacing_unknown(const std::string& path) {
   return fs::is_directory(path) || ext == ".tif" || ext == ".tiff" || ext == ".raw" || ext.empty();
 }
 
-FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where) {
+FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where,
+                           bool check_exists, const std::vector<std::string>& extra_keys) {
   FileEntry e;
   if (const auto s = n.value<std::string>()) {
     e.path = resolve(base_dir, *s);
   } else if (const toml::table* t = n.as_table()) {
     for (const auto& [k, v] : *t) {
       const std::string key(k.str());
-      if (key != "path" && key != "spacing_mm" && key != "raw")
-        throw InputError(where + ": unknown key '" + key + "' (path, spacing_mm, raw)" + at(v));
+      if (key != "path" && key != "spacing_mm" && key != "raw" &&
+          std::find(extra_keys.begin(), extra_keys.end(), key) == extra_keys.end()) {
+        std::string known = "path, spacing_mm, raw";
+        for (const auto& x : extra_keys) known += ", " + x;
+        throw InputError(where + ": unknown key '" + key + "' (" + known + ")" + at(v));
+      }
     }
     const toml::node* p = t->get("path");
     if (!p || !p->is_string()) throw InputError(where + ": 'path' (a string) is required" + at(n));
@@ -58,6 +65,11 @@ FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, con
     if (const toml::node* r = t->get("raw")) {
       const toml::table* rt = r->as_table();
       if (!rt) throw InputError(where + ": 'raw' must be a table" + at(*r));
+      for (const auto& [k, v] : *rt) {
+        const std::string key(k.str());
+        if (key != "dims" && key != "type" && key != "endian" && key != "header_bytes")
+          throw InputError(where + " raw: unknown key '" + key + "' (dims, type, endian, header_bytes)" + at(v));
+      }
       RawSpec spec;
       const toml::array* dims = rt->get("dims") ? rt->get("dims")->as_array() : nullptr;
       if (!dims || dims->size() != 3) throw InputError(where + " raw: 'dims' must be a list of 3 integers" + at(*r));
@@ -87,7 +99,7 @@ FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, con
   }
   if (!e.read.spacing_mm && spacing_unknown(e.path))
     throw InputError(where + ": " + e.path + " stores no reliable voxel size (TIFF or raw); give 'spacing_mm'" + at(n));
-  if (!fs::exists(e.path)) throw InputError(where + ": file not found: " + e.path + at(n));
+  if (check_exists && !fs::exists(e.path)) throw InputError(where + ": file not found: " + e.path + at(n));
   return e;
 }
 
@@ -107,6 +119,50 @@ const char* align_mode_name(AlignMode m) {
     case AlignMode::intensity: return "intensity";
   }
   return "?";
+}
+
+SimilarityTransform read_transform_json(const std::string& path) {
+  const nlohmann::ordered_json j = read_json_file(path);
+  const nlohmann::ordered_json* t = &j;
+  if (j.contains("registration") && j["registration"].is_object() && j["registration"].contains("transform"))
+    t = &j["registration"]["transform"];
+  else if (j.contains("transform"))
+    t = &j["transform"];
+  SimilarityTransform T;
+  try {
+    const auto& R = t->at("rotation");
+    const auto& tr = t->at("translation_mm");
+    if (!R.is_array() || R.size() != 3 || !tr.is_array() || tr.size() != 3) throw std::runtime_error("shape");
+    for (int r = 0; r < 3; ++r) {
+      if (!R[size_t(r)].is_array() || R[size_t(r)].size() != 3) throw std::runtime_error("shape");
+      for (int k = 0; k < 3; ++k) T.R(r, k) = R[size_t(r)][size_t(k)].get<double>();
+      T.t[r] = tr[size_t(r)].get<double>();
+    }
+    T.scale = t->value("scale", 1.0);
+  } catch (const std::exception&) {
+    throw InputError("transform " + path + ": needs 'rotation' (3 x 3 numbers) and 'translation_mm' (3 numbers), "
+                     "at the top, in 'transform' or in 'registration.transform' (the T.json of porebench align)");
+  }
+  const double det = T.R.determinant();
+  if (!(std::abs(det - 1) < 1e-3) || !((T.R * T.R.transpose() - Eigen::Matrix3d::Identity()).norm() < 1e-3) ||
+      !(T.scale > 0) || !T.t.allFinite())
+    throw InputError("transform " + path + ": 'rotation' is not a proper rotation (det " + std::to_string(det) +
+                     ") or 'scale' is not positive");
+  return T;
+}
+
+AlignedReference apply_known_transform(const VolumeF& fast, const Mask& ref_pores, const SimilarityTransform& T,
+                                       const std::string& source) {
+  AlignedReference out;
+  out.T = T;
+  out.record["align"] = "given";
+  out.record["resampled"] = {{"from", describe(ref_pores.geometry())}, {"onto", describe(fast.geometry())},
+                             {"grid", "the fast scan's"}, {"mask", "nearest neighbour"}, {"grey", "linear"}};
+  out.record["registration"] = {{"method", "given"}, {"source", source}, {"dof", T.scale == 1.0 ? "rigid" : "similarity"},
+                                {"converged", true}, {"transform", to_json(T)}, {"markers", {{"rms_mm", nullptr}}}};
+  out.record["shift_check"] = nullptr;
+  out.pores = resample_nearest(ref_pores, fast.geometry(), T);
+  return out;
 }
 
 AlignedReference align_reference(AlignMode mode, const VolumeF& fast, const std::string& fast_name,
@@ -164,6 +220,7 @@ AlignedReference align_reference(AlignMode mode, const VolumeF& fast, const std:
   }
   for (const auto& w : r.warnings) out.warnings.push_back(fast_name + ": " + w);
   rec["shift_check"] = nullptr;
+  out.T = r.T;
   out.pores = resample_nearest(ref_pores, fg, r.T);
   return out;
 }

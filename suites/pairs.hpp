@@ -19,17 +19,18 @@
 #include "core/io.hpp"
 #include "core/registration.hpp"
 #include "core/volume.hpp"
+#include "suites/suite.hpp"
 
 namespace pb::suite {
 
-struct FileEntry {
-  std::string path;
-  ReadOptions read;
-};
+using FileEntry = FileSpec;  // suites/suite.hpp
 
 // `n` is a string or a table as above; relative paths resolve against base_dir. Throws InputError
-// naming `where`, the key and the value.
-FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where);
+// naming `where`, the key and the value. `extra_keys`: further keys the caller reads from the same
+// table (e.g. a fast scan's label and projections). `check_exists` = false leaves the file to the preflight
+// (suites/paired.hpp), so a suite parses before its files are made.
+FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where,
+                           bool check_exists = true, const std::vector<std::string>& extra_keys = {});
 
 // True for inputs whose voxel size cannot be trusted from the file: TIFF files and folders, raw.
 bool spacing_unknown(const std::string& path);
@@ -44,9 +45,20 @@ const char* align_mode_name(AlignMode m);
 
 struct AlignedReference {
   Mask pores;                      // reference pores on the fast scan's grid
+  SimilarityTransform T;           // fast-scan mm -> reference mm (identity for align = "none")
   nlohmann::ordered_json record;   // "alignment" block for results.json and the report
   std::vector<std::string> warnings;
 };
+
+// A transform file: the T.json of `porebench align` ({"registration": {"transform": ...}}), or a
+// {"transform": ...} block, or the block itself: rotation (3x3), translation_mm, scale (default 1);
+// fast-scan mm -> reference mm. InputError naming the file and the field.
+SimilarityTransform read_transform_json(const std::string& path);
+
+// The reference pores brought onto the fast scan by a known transform (no registration).
+AlignedReference apply_known_transform(const VolumeF& fast, const Mask& ref_pores, const SimilarityTransform& T,
+                                       const std::string& source);
+
 
 // ref_scan may be null when the reference is a mask only (then only align = "none" works and the
 // alarm cannot run). ref_pores lies on ref_scan's grid.

@@ -14,6 +14,7 @@
 #include "core/io.hpp"
 #include "core/io_header.hpp"
 #include "metrics/score.hpp"
+#include "suites/paired.hpp"
 #include "suites/predictions.hpp"
 #include "synthetic/recipe.hpp"
 
@@ -82,19 +83,7 @@ void preflight(const Suite& s) {
         synth::validate(r);
         continue;
       }
-      // Paired: every file readable and sound; the scans finite (float scans are read and counted).
-      const std::pair<const std::string*, const char*> files[] = {
-          {&d.scan, "scan"}, {&d.reference_scan, "reference_scan"}, {&d.reference_mask, "reference_mask"}, {&d.part_mask, "part_mask"}};
-      for (const auto& [f, key] : files) {
-        if (f->empty()) continue;
-        check_readable_file(*f, key);
-        const bool raw_read = d.read.raw.has_value() && (f == &d.scan || f == &d.reference_scan);
-        if (!raw_read && has_checked_header(*f)) {
-          const VolumeHeader h = check_volume_file(*f);
-          if (h.type != VoxelType::f32) continue;  // integer voxels are always finite
-        }
-        if (f == &d.scan || f == &d.reference_scan) read_volume(*f, d.read);  // refuses non-finite voxels
-      }
+      preflight_paired(d);  // every file present and sound, float scans finite, no conflicting geometry (suites/paired)
     } catch (const InputError& e) {
       throw InputError(dw + e.what());
     }

@@ -52,7 +52,7 @@ struct CellPlan {
 };
 
 struct Loaded {  // the volumes of the current dataset variant, kept between cells
-  std::string scan_path, dataset;
+  std::string scan_path, masks;  // the scan file, and the reference|part mask files it is scored with
   VolumeF scan;
   VoxelType stored = VoxelType::f32;
   Mask part, ref;
@@ -176,16 +176,18 @@ Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::strin
       parse_params(info, cell_settings(*c.method, c.grid_index, c.data->name, c.variant->scan, s.path));
   cell["params"] = params.text();
   try {
-    if (cache.dataset != c.data->name) {
+    const Variant& v = *c.variant;
+    if (!v.error.empty()) throw InputError(v.error);  // e.g. a failed registration: reported, not scored
+    if (cache.masks != v.ref_mask_path + "|" + v.part_mask_path) {
       cache = Loaded{};
-      cache.dataset = c.data->name;
-      cache.ref = read_volume(c.data->ref_mask_path).to_mask();
-      cache.has_part = !c.data->part_mask_path.empty();
-      if (cache.has_part) cache.part = read_volume(c.data->part_mask_path).to_mask();
+      cache.masks = v.ref_mask_path + "|" + v.part_mask_path;
+      cache.ref = read_volume(v.ref_mask_path).to_mask();
+      cache.has_part = !v.part_mask_path.empty();
+      if (cache.has_part) cache.part = read_volume(v.part_mask_path).to_mask();
     }
-    if (cache.scan_path != c.variant->path) {
-      const AnyVolume a = read_volume(c.variant->path);
-      check_same_geometry(a.geometry(), c.variant->path, cache.ref.geometry(), c.data->ref_mask_path);
+    if (cache.scan_path != v.path) {
+      const AnyVolume a = read_volume(v.path, v.read);
+      check_same_geometry(a.geometry(), v.path, cache.ref.geometry(), v.ref_mask_path);
       cache.scan = a.to_float();
       cache.stored = a.type();
       cache.scan_path = c.variant->path;
@@ -202,11 +204,11 @@ Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::strin
     cell["runtime_s"] = out.runtime_s;
     cell["peak_rss_mib"] = peak_rss_mib();
     ScoreOptions so = s.scoring.options();
-    so.z_begin = c.data->cal_begin;
-    so.z_end = c.data->cal_end;
+    so.z_begin = v.split.cal_begin;
+    so.z_end = v.split.cal_end;
     cell["calibration"] = to_json(score(out.pores, cache.ref, roi, so));
-    so.z_begin = c.data->test_begin;
-    so.z_end = c.data->test_end;
+    so.z_begin = v.split.test_begin;
+    so.z_end = v.split.test_end;
     cell["test"] = to_json(score(out.pores, cache.ref, roi, so));
     if (!out.probability.empty()) {  // probability-map metrics at the method's threshold (metrics/probability)
       double t = 0.5;
@@ -218,7 +220,7 @@ Json run_cell(const CellPlan& c, const Suite& s, Loaded& cache, const std::strin
           to_json(probability_metrics(out.probability, cache.ref, roi, c.data->test_begin, c.data->test_end, t));
     }
     const std::string png = "cells/" + c.file + ".png";
-    write_mask_png(out.pores, c.data->montage_z, (fs::path(out_dir) / png).string());
+    write_mask_png(out.pores, v.split.montage_z, (fs::path(out_dir) / png).string());
     cell["montage_slice_png"] = png;
     cell["status"] = "ok";
   } catch (const std::exception& e) {

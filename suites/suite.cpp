@@ -14,6 +14,7 @@
 #include "core/sha256.hpp"
 #include "metrics/metric_table.hpp"
 #include "methods/registry.hpp"
+#include "suites/paired.hpp"
 
 namespace fs = std::filesystem;
 
@@ -176,55 +177,8 @@ DatasetSpec parse_dataset(const Reader& rd, const toml::table& t, const std::str
       walk(*st, "");
     }
   } else if (kind == "paired") {
-    d.kind = DatasetSpec::paired;
-    rd.check_keys(t, {"name", "kind", "scan", "reference_mask", "reference_label", "reference_scan", "reference_method",
-                      "reference_params", "part_mask", "projections", "reference_projections", "raw", "spacing_mm"},
-                  where);
-    d.scan = resolve(base, rd.str(t, "scan", where, "", true));
-    d.reference_mask = resolve(base, rd.str(t, "reference_mask", where));
-    d.reference_scan = resolve(base, rd.str(t, "reference_scan", where));
-    d.reference_method = rd.str(t, "reference_method", where);
-    d.reference_params = rd.string_list(t, "reference_params", where);
-    d.reference_label = int(rd.num(t, "reference_label", where, -1, -1, 65535));
-    d.part_mask = resolve(base, rd.str(t, "part_mask", where));
-    d.projections = int(rd.num(t, "projections", where, 0, 0, 1e6));
-    d.reference_projections = int(rd.num(t, "reference_projections", where, 0, 0, 1e6));
-    if (d.reference_mask.empty() == d.reference_scan.empty())
-      rd.fail(t.source(), where + ": give exactly one of 'reference_mask' and 'reference_scan'");
-    if (!d.reference_scan.empty() && d.reference_method.empty())
-      rd.fail(t.source(), where + ": 'reference_scan' needs 'reference_method' (the method that segments it)");
-    for (const std::string* f : {&d.scan, &d.reference_mask, &d.reference_scan, &d.part_mask})
-      if (!f->empty() && !fs::exists(*f)) rd.fail(t.get(f == &d.scan ? "scan" : f == &d.reference_mask ? "reference_mask" : f == &d.reference_scan ? "reference_scan" : "part_mask")->source(),
-                                                  where + ": file not found: " + *f);
-    if (const toml::node* s = t.get("spacing_mm")) {
-      const toml::array* a = s->as_array();
-      if (!a || a->size() != 3) rd.fail(s->source(), "'spacing_mm' in " + where + " must be a list of 3 numbers");
-      std::array<double, 3> sp{};
-      for (size_t i = 0; i < 3; ++i) sp[i] = a->get(i)->value<double>().value_or(0);
-      d.read.spacing_mm = sp;
-    }
-    if (const toml::node* r = t.get("raw")) {
-      const toml::table* rt = r->as_table();
-      if (!rt) rd.fail(r->source(), "'raw' in " + where + " must be a table");
-      const std::string w = where + " raw";
-      rd.check_keys(*rt, {"dims", "type", "endian", "header_bytes"}, w);
-      RawSpec spec;
-      const toml::array* dims = rt->get("dims") ? rt->get("dims")->as_array() : nullptr;
-      if (!dims || dims->size() != 3) rd.fail(rt->source(), w + ": 'dims' must be a list of 3 integers");
-      for (size_t i = 0; i < 3; ++i) spec.dims[i] = dims->get(i)->value<int64_t>().value_or(0);
-      try {
-        spec.type = parse_voxel_type(rd.str(*rt, "type", w, "", true));
-      } catch (const InputError& e) {
-        rd.fail(rt->get("type")->source(), w + ": " + e.what());
-      }
-      const std::string endian = rd.str(*rt, "endian", w, "little");
-      if (endian != "little" && endian != "big") rd.fail(rt->get("endian")->source(), w + ": 'endian' must be little or big");
-      spec.big_endian = endian == "big";
-      spec.header_bytes = uint64_t(rd.num(*rt, "header_bytes", w, 0, 0, 1e12));
-      if (!d.read.spacing_mm) rd.fail(r->source(), where + ": raw files need 'spacing_mm'");
-      spec.spacing_mm = *d.read.spacing_mm;
-      d.read.raw = spec;
-    }
+    // Real scans: one reference, a series of fast scans, per-file geometry (suites/paired.cpp).
+    parse_paired_dataset(t, base, where, [&](const toml::source_region& at, const std::string& m) { rd.fail(at, m); }, d);
   } else {
     rd.fail(t.get("kind")->source(), where + ": kind must be 'synthetic' or 'paired', got '" + kind + "'");
   }

@@ -28,6 +28,24 @@ struct MethodSpec {
   ParamGrid grid;
 };
 
+// A file of a paired dataset with its own geometry: a path, or { path, spacing_mm, raw = {...} }
+// (suites/pairs.hpp parse_file_entry). `where` names it in messages: "suite F:LINE:COL: field".
+struct FileSpec {
+  std::string path;
+  ReadOptions read;
+  std::string where;
+};
+
+// One fast scan of a paired dataset's series (suites/paired.hpp).
+struct PairedScanSpec {
+  std::string label;  // unique in the dataset; default "scan-<N>p" from projections
+  FileSpec file;
+  int projections = 0;  // for series plots and the scan-recipe advice
+  double i0 = 0;        // exposure or dose, in the user's unit (optional)
+  std::string align;    // auto, markers, intensity, none
+  std::string transform;  // a known transform (T.json of `porebench align`, fast mm -> reference mm) instead of registering
+};
+
 struct DatasetSpec {
   std::string name;
   enum Kind { synthetic, paired } kind = synthetic;
@@ -40,6 +58,10 @@ struct DatasetSpec {
   int projections = 0, reference_projections = 0;  // optional, for scan-recipe advice
   ReadOptions read;                                 // raw geometry / spacing for the paired files
   int reference_label = -1;                         // label value of pores in the reference mask (-1: non-zero)
+  // paired, as parsed by suites/paired.cpp: the reference file, the part mask (on the reference's
+  // grid) and the series of fast scans (a single `scan` is a series of one, label "scan").
+  FileSpec reference_file, part_file;
+  std::vector<PairedScanSpec> scans;
 };
 
 struct Calibration {

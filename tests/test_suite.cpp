@@ -12,6 +12,7 @@
 #include "core/error.hpp"
 #include "report/compare.hpp"
 #include "report/report.hpp"
+#include "suites/preflight.hpp"
 #include "suites/results.hpp"
 #include "suites/suite.hpp"
 #include "tests/helpers.hpp"
@@ -90,8 +91,14 @@ TEST_CASE("suite errors name the file, line and column, and the closest valid ke
   expect_suite_error(std::string(kMinimal) + "[[method]]\nname = \"otsuu\"\n", {"bad.toml:7:", "unknown method 'otsuu'"});
   expect_suite_error(std::string(kMinimal) + "[[method]]\nname = \"manual\"\nparams = { threshold = [1, \"x\"] }\n",
                      {"'threshold'", "not a number"});
-  expect_suite_error("[[dataset]]\nname = \"p\"\nkind = \"paired\"\nscan = \"nope.mha\"\nreference_mask = \"r.mha\"\n[[method]]\nname = \"otsu\"\n",
-                     {"bad.toml:4:", "file not found", "nope.mha"});
+  // Paired files are looked for at the preflight (a suite parses before its files are made).
+  try {
+    preflight(parse_suite("[[dataset]]\nname = \"p\"\nkind = \"paired\"\nscan = \"nope.mha\"\nreference_mask = \"r.mha\"\n[[method]]\nname = \"otsu\"\n",
+                          "bad.toml"));
+    FAIL("missing files accepted");
+  } catch (const InputError& e) {
+    for (const char* w : {"bad.toml", "dataset 'p'", "reference_mask (line 5)", "file not found", "r.mha"}) CHECK_THAT(e.what(), Catch::Contains(w));
+  }
   expect_suite_error("[[method]]\nname = \"otsu\"\n", {"no [[dataset]]"});
   expect_suite_error(std::string(kMinimal) + "[[method]]\nname = \"otsu\"\n", {"label 'otsu' is used twice"});
 }

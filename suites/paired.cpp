@@ -1,0 +1,408 @@
+// Paired datasets of a suite: parsing, preflight and preparation (see paired.hpp).
+#include "suites/paired.hpp"
+
+#include <unistd.h>
+
+#include <cerrno>
+#include <cmath>
+#include <cstring>
+#include <filesystem>
+#include <set>
+#include <sstream>
+
+#include "core/error.hpp"
+#include "core/histogram.hpp"
+#include "core/io.hpp"
+#include "core/io_header.hpp"
+#include "core/resample.hpp"
+#include "core/sha256.hpp"
+#include "core/toml_keys.hpp"
+#include "methods/registry.hpp"
+#include "suites/layout.hpp"
+#include "suites/pairs.hpp"
+
+namespace fs = std::filesystem;
+
+namespace pb::suite {
+
+namespace {
+
+std::string resolve(const std::string& base_dir, const std::string& p) {
+  if (p.empty() || fs::path(p).is_absolute()) return p;
+  return (fs::path(base_dir) / p).lexically_normal().string();
+}
+
+std::string line_of(const toml::node& n) { return " (line " + std::to_string(n.source().begin.line) + ")"; }
+
+// SHA-256 of a file; a TIFF folder is named as such.
+std::string file_sha256(const std::string& path) {
+  std::error_code ec;
+  return fs::is_directory(path, ec) ? std::string("(a folder of slices: not hashed)") : sha256_file(path);
+}
+
+std::string list_text(const std::array<double, 3>& a) {
+  std::ostringstream s;
+  s.precision(6);
+  s << "[" << a[0] << ", " << a[1] << ", " << a[2] << "]";
+  return s.str();
+}
+
+// A file entry (path or table) at key `key` of t; empty FileSpec when absent.
+FileSpec file_at(const toml::table& t, const std::string& key, const std::string& base, const std::string& where,
+                 const FailAt& fail, const std::vector<std::string>& extra = {}) {
+  const toml::node* n = t.get(key);
+  if (!n) return {};
+  try {
+    FileSpec f = parse_file_entry(*n, base, where + " " + key, false, extra);
+    f.where = key + line_of(*n);
+    return f;
+  } catch (const InputError& e) {
+    fail(n->source(), e.what());
+    throw;
+  }
+}
+
+int int_at(const toml::table& t, const std::string& key, const std::string& where, const FailAt& fail, int lo, int hi,
+           int def) {
+  const toml::node* n = t.get(key);
+  if (!n) return def;
+  const auto v = n->value_exact<int64_t>();
+  if (!v || *v < lo || *v > hi) {
+    std::ostringstream s;
+    s << where << ": '" << key << "' must be an integer in [" << lo << ", " << hi << "]";
+    fail(n->source(), s.str());
+  }
+  return int(*v);
+}
+
+std::string str_at(const toml::table& t, const std::string& key, const std::string& where, const FailAt& fail) {
+  const toml::node* n = t.get(key);
+  if (!n) return "";
+  if (!n->is_string()) fail(n->source(), where + ": '" + key + "' must be a string");
+  return std::string(*n->value<std::string_view>());
+}
+
+bool is_header_file(const std::string& path) { return has_checked_header(path); }
+
+// The geometry of a file as it will be read: from the checked header when it has one (the data
+// size checked too), else by reading it (TIFF, raw: the size and the finite check come with it).
+Geometry file_geometry(const FileSpec& f, const std::string& field, bool scan) {
+  std::error_code ec;
+  if (!fs::exists(f.path, ec)) throw InputError(field + ": file not found: " + f.path);
+  if (!fs::is_directory(f.path, ec) && ::access(f.path.c_str(), R_OK) != 0)
+    throw InputError(field + ": cannot read " + f.path + ": " + std::strerror(errno));
+  if (is_header_file(f.path)) {
+    if (f.read.raw)
+      throw InputError(field + ": conflicting geometry: 'raw' given for " + f.path +
+                       ", whose header states its geometry; drop 'raw' (raw is for headerless files)");
+    const VolumeHeader h = check_volume_file(f.path);
+    if (f.read.spacing_mm) {
+      for (int i = 0; i < 3; ++i)
+        if (std::abs((*f.read.spacing_mm)[size_t(i)] - h.spacing_mm[size_t(i)]) > 1e-6 * h.spacing_mm[size_t(i)])
+          throw InputError(field + ": conflicting geometry: spacing_mm = " + list_text(*f.read.spacing_mm) +
+                           " but the header of " + f.path + " says " + list_text(h.spacing_mm) +
+                           "; drop 'spacing_mm' (or correct the file)");
+    }
+    if (!(scan && h.type == VoxelType::f32)) {  // integer voxels are always finite
+      Geometry g;
+      g.dims = h.dims;
+      g.spacing_mm = h.spacing_mm;
+      return g;
+    }
+  }
+  try {
+    return read_volume(f.path, f.read).geometry();  // refuses non-finite voxels and short raw files
+  } catch (const InputError& e) {
+    throw InputError(field + ": " + e.what());
+  }
+}
+
+}  // namespace
+
+void parse_paired_dataset(const toml::table& t, const std::string& base, const std::string& where, const FailAt& fail,
+                          DatasetSpec& d) {
+  static const std::vector<std::string> keys = {"name", "kind", "scan", "scans", "reference_mask", "reference_label",
+                                                "reference_scan", "reference_method", "reference_params", "part_mask",
+                                                "projections", "reference_projections", "raw", "spacing_mm", "align"};
+  if (const auto u = first_unknown_key(t, keys))
+    fail(u->where, "unknown key '" + u->key + "' in " + where + (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
+  d.kind = DatasetSpec::paired;
+  // The older form's geometry for the scan and the reference scan (both files).
+  const toml::node* dsp = t.get("spacing_mm");
+  const toml::node* draw = t.get("raw");
+  if (dsp || draw) {
+    toml::table g;
+    g.insert("path", "dataset-level");
+    if (dsp) dsp->is_array() ? g.insert("spacing_mm", *dsp->as_array()) : g.insert("spacing_mm", "not a list");
+    if (draw) draw->is_table() ? g.insert("raw", *draw->as_table()) : g.insert("raw", "not a table");
+    try {
+      d.read = parse_file_entry(g, base, where, false).read;
+    } catch (const InputError& e) {
+      fail((dsp ? dsp : draw)->source(), e.what());
+    }
+  }
+  const bool shared_geometry = dsp || draw;
+  // The reference.
+  const bool has_mask = t.get("reference_mask"), has_scan = t.get("reference_scan");
+  if (has_mask == has_scan) fail(t.source(), where + ": give exactly one of 'reference_mask' and 'reference_scan'");
+  const std::string rkey = has_scan ? "reference_scan" : "reference_mask";
+  d.reference_file = file_at(t, rkey, base, where, fail);
+  if (has_scan && shared_geometry) {
+    if (t.get(rkey)->is_table())
+      fail(t.get(rkey)->source(), where + ": conflicting geometry: 'spacing_mm'/'raw' are given for the dataset and " + rkey +
+                                      " is a table; give the geometry in each file entry");
+    d.reference_file.read = d.read;
+  }
+  (has_scan ? d.reference_scan : d.reference_mask) = d.reference_file.path;
+  d.reference_method = str_at(t, "reference_method", where, fail);
+  if (has_scan && d.reference_method.empty())
+    fail(t.source(), where + ": 'reference_scan' needs 'reference_method' (the method that segments it)");
+  if (!has_scan && !d.reference_method.empty())
+    fail(t.get("reference_method")->source(), where + ": 'reference_method' is for a 'reference_scan'; a reference_mask is used as it is");
+  if (const toml::node* n = t.get("reference_params")) {
+    if (n->is_string()) d.reference_params.push_back(std::string(*n->value<std::string_view>()));
+    else if (const toml::array* a = n->as_array()) {
+      for (const auto& e : *a) {
+        if (!e.is_string()) fail(e.source(), where + ": 'reference_params' entries are strings \"key=value\"");
+        d.reference_params.push_back(std::string(*e.value<std::string_view>()));
+      }
+    } else {
+      fail(n->source(), where + ": 'reference_params' must be a list of \"key=value\" strings");
+    }
+  }
+  if (!d.reference_method.empty()) {
+    try {
+      parse_params(Registry::instance().get(d.reference_method), d.reference_params);
+    } catch (const InputError& e) {
+      fail(t.get("reference_method")->source(), where + ": reference_method '" + d.reference_method + "': " + e.what());
+    }
+  }
+  d.reference_label = int_at(t, "reference_label", where, fail, -1, 65535, -1);
+  if (d.reference_label >= 0 && !has_mask)
+    fail(t.get("reference_label")->source(), where + ": 'reference_label' is for a 'reference_mask'");
+  d.reference_projections = int_at(t, "reference_projections", where, fail, 0, 1000000, 0);
+  d.part_file = file_at(t, "part_mask", base, where, fail);
+  d.part_mask = d.part_file.path;
+  // align: the dataset's default, each scan may set its own.
+  std::string align = has_scan ? "auto" : "none";
+  if (t.get("align")) align = str_at(t, "align", where, fail);
+  auto check_align = [&](const std::string& a, const toml::node& at, const std::string& w) {
+    try {
+      const AlignMode m = parse_align_mode(a, w);
+      if (m != AlignMode::none && !has_scan)
+        fail(at.source(), w + ": align = \"" + a + "\" needs a 'reference_scan': a reference mask alone cannot be registered (align = \"none\")");
+    } catch (const InputError& e) {
+      fail(at.source(), e.what());
+    }
+  };
+  if (const toml::node* n = t.get("align")) check_align(align, *n, where);
+  // The series.
+  const toml::node* one = t.get("scan");
+  const toml::node* many = t.get("scans");
+  if (bool(one) == bool(many)) fail(t.source(), where + ": give exactly one of 'scans' (the fast scans, a list) and 'scan'");
+  if (one) {
+    PairedScanSpec s;
+    s.label = "scan";
+    s.file = file_at(t, "scan", base, where, fail);
+    if (shared_geometry) {
+      if (one->is_table())
+        fail(one->source(), where + ": conflicting geometry: 'spacing_mm'/'raw' are given for the dataset and 'scan' is "
+                                    "a table; give the geometry in each file entry");
+      s.file.read = d.read;
+    }
+    s.projections = int_at(t, "projections", where, fail, 0, 1000000, 0);
+    s.align = align;
+    s.file.where = "scan" + line_of(*one);
+    d.scan = s.file.path;
+    d.projections = s.projections;
+    d.scans.push_back(s);
+  } else {
+    if (t.get("projections"))
+      fail(t.get("projections")->source(), where + ": 'projections' belongs to each entry of 'scans'");
+    if (shared_geometry)
+      fail((dsp ? dsp : draw)->source(), where + ": dataset-level 'spacing_mm'/'raw' go with 'scan'; with 'scans' give them in each entry");
+    const toml::array* a = many->as_array();
+    if (!a || a->empty()) fail(many->source(), where + ": 'scans' must be a non-empty list of file entries");
+    std::set<std::string> labels;
+    for (size_t i = 0; i < a->size(); ++i) {
+      const toml::node& e = *a->get(i);
+      const std::string w = where + " scans[" + std::to_string(i + 1) + "]";
+      PairedScanSpec s;
+      try {
+        s.file = parse_file_entry(e, base, w, false, {"label", "projections", "i0", "align", "transform"});
+      } catch (const InputError& err) {
+        fail(e.source(), err.what());
+      }
+      s.file.where = w;
+      s.align = align;
+      if (const toml::table* st = e.as_table()) {
+        s.projections = int_at(*st, "projections", w, fail, 0, 1000000, 0);
+        s.label = str_at(*st, "label", w, fail);
+        if (const toml::node* n = st->get("i0")) {
+          const auto v = n->value<double>();
+          if (!v || !(*v > 0) || !std::isfinite(*v)) fail(n->source(), w + ": 'i0' (exposure or dose) must be a positive number");
+          s.i0 = *v;
+        }
+        if (const toml::node* n = st->get("align")) {
+          s.align = str_at(*st, "align", w, fail);
+          check_align(s.align, *n, w);
+        }
+        if (const toml::node* n = st->get("transform")) {
+          if (st->get("align")) fail(n->source(), w + ": give 'align' or a known 'transform', not both");
+          s.transform = resolve(base, str_at(*st, "transform", w, fail));
+          s.align = "none";
+        }
+      }
+      if (s.label.empty()) s.label = s.projections > 0 ? "scan-" + std::to_string(s.projections) + "p" : "scan-" + std::to_string(i + 1);
+      if (file_token(s.label) != s.label)
+        fail(e.source(), w + ": label '" + s.label + "' must be letters, digits, '-', '_' or '.' (it names files)");
+      if (!labels.insert(s.label).second)
+        fail(e.source(), w + ": label '" + s.label + "' is used twice in the dataset (give each scan a 'label')");
+      s.file.where = "scans[" + std::to_string(i + 1) + "] (" + s.label + ", line " + std::to_string(e.source().begin.line) + ")";
+      d.scans.push_back(s);
+    }
+    d.scan = d.scans.front().file.path;
+  }
+}
+
+void preflight_paired(const DatasetSpec& d) {
+  const std::string rkey = d.reference_scan.empty() ? "reference_mask" : "reference_scan";
+  const Geometry rg = file_geometry(d.reference_file, d.reference_file.where, !d.reference_scan.empty());
+  if (!d.part_file.path.empty()) {
+    const Geometry pg = file_geometry(d.part_file, d.part_file.where, false);
+    if (pg.dims != rg.dims)
+      throw InputError("part_mask: conflicting geometry: " + d.part_file.path + " has dims " + describe(pg) + " but " + rkey +
+                       " " + d.reference_file.path + " has " + describe(rg) + " (the part mask lies on the reference's grid)");
+  }
+  for (const auto& s : d.scans) {
+    file_geometry(s.file, s.file.where, true);
+    if (!s.transform.empty()) try {
+        read_transform_json(s.transform);
+      } catch (const InputError& e) {
+        throw InputError(s.file.where + " transform: " + e.what());
+      }
+  }
+}
+
+void describe_paired(const DatasetSpec& d, Dataset& p) {
+  p.ref_mask_path = p.data_dir + "/reference-pores.mha";  // on the reference's grid
+  p.part_mask_path = d.part_mask;
+  for (const auto& s : d.scans) {
+    Variant v;
+    v.scan = s.label;
+    v.path = s.file.path;
+    v.read = s.file.read;
+    v.projections = s.projections;
+    v.i0 = s.i0;
+    v.reference_projections = d.reference_projections;
+    v.ref_mask_path = p.data_dir + "/reference-pores-" + file_token(s.label) + ".mha";
+    v.part_mask_path = d.part_mask.empty() ? "" : p.data_dir + "/part-mask-" + file_token(s.label) + ".mha";
+    p.variants.push_back(v);
+  }
+}
+
+void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir, const LogFn& log) {
+  const DatasetSpec& d = *p.spec;
+  fs::create_directories(p.data_dir);
+  const fs::path dir(out_dir);
+  const std::string token = file_token(p.name);
+  // The reference, once: a mask as it is, or the high-quality scan segmented by the named method.
+  AnyVolume ref_any = read_volume(d.reference_file.path, d.reference_file.read);
+  Mask part;
+  if (!d.part_file.path.empty()) {
+    const AnyVolume pm = read_volume(d.part_file.path, d.part_file.read);
+    check_same_geometry(ref_any.geometry(), d.reference_file.path, pm.geometry(), d.part_file.path);
+    part = pm.to_mask();
+  }
+  Mask ref_pores;
+  VolumeF ref_scan;
+  Json ref_record;
+  if (!d.reference_mask.empty()) {
+    ref_pores = d.reference_label >= 0 ? ref_any.to_mask(d.reference_label) : ref_any.to_mask();
+    ref_record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", file_sha256(d.reference_mask)},
+                  {"grid", describe(ref_any.geometry())}};
+  } else {
+    const MethodInfo& m = Registry::instance().get(d.reference_method);
+    const ParamValues pv = parse_params(m, d.reference_params);
+    ref_scan = ref_any.to_float();
+    if (log) log("dataset '" + d.name + "': segmenting the reference scan " + d.reference_scan + " once (" + m.name + ")");
+    const MethodOutput out = run_method(m, pv, MethodInput{ref_scan, part.empty() ? nullptr : &part, ref_any.type()});
+    ref_pores = out.pores;
+    Json chosen = Json::object();
+    for (const auto& [k, v] : out.chosen) chosen[k] = v;
+    ref_record = {{"scan", d.reference_scan}, {"sha256", file_sha256(d.reference_scan)}, {"method", m.name},
+                  {"params", pv.text()}, {"chosen", chosen}, {"projections", d.reference_projections},
+                  {"grid", describe(ref_any.geometry())}};
+  }
+  ref_any = AnyVolume();
+  write_volume(ref_pores, p.ref_mask_path, {true});
+  // Each fast scan: the reference brought onto its grid, its own split and montage slice.
+  Json variants = Json::array();
+  bool first = true;
+  for (auto& v : p.variants) {
+    const PairedScanSpec& s = d.scans[size_t(&v - p.variants.data())];
+    const AnyVolume fa = read_volume(v.path, v.read);
+    const VolumeF fast = fa.to_float();
+    const Geometry& fg = fast.geometry();
+    const AlignMode mode = parse_align_mode(s.align, s.file.where);
+    Json rec = {{"scan", v.scan}, {"path", v.path}, {"sha256", file_sha256(v.path)}, {"grid", describe(fg)},
+                {"projections", v.projections}, {"i0", v.i0}, {"reference", false},
+                {"reference_projections", v.reference_projections}, {"reference_i0", v.reference_i0}};
+    const std::string png = "data/" + token + "/montage-" + file_token(v.scan) + ".png";
+    const std::string ref_png = "data/" + token + "/montage-reference-" + file_token(v.scan) + ".png";
+    const Stats st = compute_stats(fast);
+    try {
+      const AlignedReference a =
+          s.transform.empty() ? align_reference(mode, fast, v.path, ref_scan.empty() ? nullptr : &ref_scan,
+                                                d.reference_file.path, ref_pores)
+                              : apply_known_transform(fast, ref_pores, read_transform_json(s.transform), s.transform);
+      write_volume(a.pores, v.ref_mask_path, {true});
+      Mask part_here;
+      if (!part.empty()) {
+        part_here = same_grid(part.geometry(), fg) && mode == AlignMode::none && s.transform.empty()
+                        ? part : resample_nearest(part, fg, a.T);
+        write_volume(part_here, v.part_mask_path, {true});
+      }
+      v.split = split_slices(p.name + "' scan '" + v.scan, part.empty() ? nullptr : &part_here, a.pores, c);
+      rec["alignment"] = a.record;
+      rec["warnings"] = a.warnings;
+      for (const auto& w : a.warnings)
+        if (log) log("warning: dataset '" + d.name + "', scan '" + v.scan + "': " + w);
+      rec["slices"] = {{"calibration", {v.split.cal_begin, v.split.cal_end}}, {"gap", c.gap_slices},
+                       {"test", {v.split.test_begin, v.split.test_end}}, {"montage_z", v.split.montage_z}};
+      write_mask_png(a.pores, v.split.montage_z, (dir / ref_png).string());
+      if (first) {  // the dataset's split and montage slice, as for synthetic data: the first scan's
+        p.cal_begin = v.split.cal_begin, p.cal_end = v.split.cal_end, p.test_begin = v.split.test_begin;
+        p.test_end = v.split.test_end, p.montage_z = v.split.montage_z;
+        p.record["slices"] = rec["slices"];
+        p.record["montage_reference_png"] = ref_png;
+        first = false;
+      }
+    } catch (const InputError& e) {
+      // A registration that fails (does not converge, too few markers): this scan's cells fail
+      // with the reason; the other scans go on.
+      v.error = std::string("registration failed (align = \"") + align_mode_name(mode) + "\"): " + e.what();
+      v.split.montage_z = fg.dims[2] / 2;
+      rec["alignment"] = {{"align", align_mode_name(mode)}, {"error", v.error}};
+      rec["error"] = v.error;
+      if (log) log("error: dataset '" + d.name + "', scan '" + v.scan + "': " + v.error);
+      write_mask_png(Mask(fg), v.split.montage_z, (dir / ref_png).string());
+    }
+    write_slice_png(fast, v.split.montage_z, st.min, st.max, (dir / png).string());
+    rec["montage_png"] = png;
+    rec["montage_reference_png"] = ref_png;
+    variants.push_back(rec);
+  }
+  Json rec = {{"name", d.name}, {"kind", "paired"}, {"reference", ref_record}, {"part_mask", d.part_mask},
+              {"scan", d.scan}, {"scan_sha256", file_sha256(d.scan)}, {"grid", "each scan's own (the reference resampled onto it)"}};
+  for (auto it = p.record.begin(); it != p.record.end(); ++it) rec[it.key()] = it.value();
+  if (!rec.contains("slices")) {  // every registration failed
+    rec["slices"] = {{"calibration", {0, 0}}, {"gap", c.gap_slices}, {"test", {0, 0}}, {"montage_z", p.variants.front().split.montage_z}};
+    rec["montage_reference_png"] = variants.front()["montage_reference_png"];
+  }
+  rec["variants"] = variants;
+  p.record = rec;
+  p.prepared = true;
+}
+
+}  // namespace pb::suite

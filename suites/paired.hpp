@@ -1,0 +1,56 @@
+#pragma once
+// Paired datasets of a suite: real scans of one part. One reference (a high-quality scan that a
+// named method segments ONCE per dataset, or a reference mask) and a series of fast scans, each a
+// file entry with its own geometry (suites/pairs.hpp), its label, projection count and exposure:
+//
+//   [[dataset]]
+//   name = "blank-0042"
+//   kind = "paired"
+//   reference_scan = { path = "ref-1200p.tif", spacing_mm = [0.01, 0.01, 0.01] }  # or a path
+//   reference_method = "median+otsu"
+//   reference_projections = 1200
+//   part_mask = "part.mha"          # optional, on the reference's grid (carried along with it)
+//   align = "auto"                  # auto | markers | intensity | none (default: auto with a
+//                                   # reference scan, none with a reference mask)
+//   scans = [ { path = "fast-400p.mha", projections = 400 },
+//             { path = "fast-200p.raw", projections = 200, label = "200p-raw", align = "intensity",
+//               spacing_mm = [0.0104, 0.0104, 0.0104], raw = { dims = [96, 96, 96], type = "uint16" } } ]
+//
+// The older form (one `scan`, `projections`, and `raw`/`spacing_mm` for the scan and the reference
+// scan) still parses: a series of one scan labelled "scan".
+// Each fast scan becomes cells like a synthetic scan: the reference pores (and the part mask) are
+// registered onto the scan and resampled on its grid (align_reference), and its slices are split
+// there. The alignment record (transform, residuals, method, or the shift check) goes into the
+// dataset's record (suite.json, results.json, validation record); a registration that fails makes
+// that scan's cells fail with the reason (reported, never scored).
+#include <functional>
+#include <string>
+#include <toml++/toml.h>
+
+#include "suites/datasets.hpp"
+#include "suites/suite.hpp"
+
+namespace pb::suite {
+
+// Reports a bad value at a place in the suite file; must throw (suite.cpp's Reader::fail).
+using FailAt = std::function<void(const toml::source_region&, const std::string&)>;
+
+// Fills the paired fields of `d` from its [[dataset]] table. Files are not opened (the preflight
+// does): a suite parses before the files are made. `where` is "[[dataset]] 'NAME'".
+void parse_paired_dataset(const toml::table& t, const std::string& base_dir, const std::string& where,
+                          const FailAt& fail, DatasetSpec& d);
+
+// Every file of a paired dataset: present, readable, headers and data sizes sound, float scans
+// finite, and no conflicting geometry ('raw' for a file whose header states its geometry,
+// 'spacing_mm' contradicting the header, a part mask or reference mask off the reference grid).
+// Throws InputError naming the field (e.g. "scans[2] (200p)"), the file and the values.
+void preflight_paired(const DatasetSpec& d);
+
+// The variants (one per fast scan) and the files their cells will read; writes nothing.
+void describe_paired(const DatasetSpec& d, Dataset& p);
+
+// Loads and segments the reference once, registers and resamples it onto every fast scan, splits
+// each scan's slices, draws the montage backgrounds and fills the record.
+void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir, const LogFn& log);
+
+}  // namespace pb::suite
