@@ -91,10 +91,48 @@ void preflight(const Suite& s) {
   preflight_predictions(s);  // every prediction file of a predictions method (suites/predictions)
 }
 
+namespace {
+
+// The top-level shape write_suite_record gives suite.json, which the reports read without further
+// checks: a record edited by hand or written by something else is named here, not read as garbage.
+void check_suite_record_shape(const Json& rec, const std::string& path) {
+  auto bad = [&](const std::string& field, const std::string& want) {
+    const std::string got = !rec.is_object() ? "the file is not an object"
+                            : field.find('.') == std::string::npos && !rec.contains(field) ? "missing"
+                                                                                           : "of the wrong type";
+    throw InputError("run record " + path + ": field '" + field + "' must be " + want + " (" + got +
+                     "); the folder was not written by this porebench, or was edited: run the suite again into a fresh folder");
+  };
+  if (!rec.is_object()) bad("(top level)", "an object");
+  auto need = [&](const char* key, Json::value_t type, const char* want) {
+    if (!rec.contains(key) || rec[key].type() != type) bad(key, want);
+  };
+  need("suite", Json::value_t::object, "an object");
+  for (const char* k : {"name", "description", "path"})
+    if (!rec["suite"].contains(k) || !rec["suite"][k].is_string()) bad(std::string("suite.") + k, "a string");
+  need("suite_sha256", Json::value_t::string, "a string");
+  need("calibration", Json::value_t::object, "an object");
+  if (!rec["calibration"].contains("objective") || !rec["calibration"]["objective"].is_string())
+    bad("calibration.objective", "a string");
+  need("scoring", Json::value_t::object, "an object");
+  need("criteria", Json::value_t::array, "an array");
+  need("methods", Json::value_t::array, "an array");
+  need("datasets", Json::value_t::array, "an array");
+  for (const auto& m : rec["methods"])
+    if (!m.is_object() || !m.contains("label") || !m["label"].is_string()) bad("methods[].label", "a string in every method");
+  for (const auto& d : rec["datasets"])
+    if (!d.is_object() || !d.contains("name") || !d["name"].is_string()) bad("datasets[].name", "a string in every dataset");
+}
+
+}  // namespace
+
 Json load_suite_record(const std::string& dir) {
   std::error_code ec;
   if (!fs::is_directory(dir, ec)) throw InputError("run folder " + dir + " not found");
-  return read_json_named((fs::path(dir) / "suite.json").string(), "run record");
+  const std::string path = (fs::path(dir) / "suite.json").string();
+  Json rec = read_json_named(path, "run record");
+  check_suite_record_shape(rec, path);
+  return rec;
 }
 
 std::vector<Json> load_checked_cells(const std::string& dir, const std::string& suite_sha256) {

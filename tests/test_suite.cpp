@@ -313,3 +313,27 @@ TEST_CASE("shards run apart into one folder and merge into the whole run", "[sui
   CHECK(fs::last_write_time(bg) == stamp);
   CHECK(regression_record(read_json(d / "sharded/results.json"))["cells"].dump() == before);
 }
+
+TEST_CASE("a run record with missing or mistyped fields is refused before any report is written", "[suite][harden]") {
+  // Found by fuzz_results: the reports read suite.json's top-level fields without checks, so a
+  // record edited by hand (or from another tool) was undefined behaviour instead of exit 2.
+  TempDir d;
+  const fs::path run = d.path / "run";
+  fs::create_directories(run / "cells");
+  auto write_record = [&](const std::string& text) { std::ofstream(run / "suite.json") << text; };
+  write_record(R"({"suite_sha256": "abc", "criteria": [], "cells": [], "selections": []})");
+  auto r = run_cli("report " + run.string());
+  CHECK(r.exit_code == 2);
+  CHECK_THAT(r.err, Catch::Contains("suite.json") && Catch::Contains("field 'suite'") && Catch::Contains("missing"));
+  write_record(R"({"suite": {"name": 3, "description": "", "path": "q.toml"}, "suite_sha256": "abc"})");
+  r = run_cli("report " + run.string());
+  CHECK(r.exit_code == 2);
+  CHECK_THAT(r.err, Catch::Contains("field 'suite.name'") && Catch::Contains("a string"));
+  write_record(R"({"suite": {"name": "q", "description": "", "path": "q.toml"}, "suite_sha256": "abc",
+                   "calibration": {"objective": "jaccard"}, "scoring": {}, "criteria": {}, "methods": [], "datasets": []})");
+  r = run_cli("report " + run.string());
+  CHECK(r.exit_code == 2);
+  CHECK_THAT(r.err, Catch::Contains("field 'criteria'") && Catch::Contains("an array") && Catch::Contains("wrong type"));
+  CHECK_FALSE(fs::exists(run / "results.json"));
+  CHECK_FALSE(fs::exists(run / "report.html"));
+}

@@ -214,8 +214,11 @@ def run_folder(name, cells=True, suite_json=True, bad_cell=False, foreign=False)
     d = p(name)
     os.makedirs(d, exist_ok=True)
     if suite_json:
-        write(name + "/suite.json", json.dumps({"suite_sha256": "a" * 64, "criteria": [],
-                                                 "calibration": {"objective": "jaccard"}}).encode())
+        # The top-level shape porebench writes (suites/preflight.cpp checks it before the cells).
+        write(name + "/suite.json", json.dumps({"suite": {"name": "blank", "description": "", "path": "suite.toml"},
+                                                 "suite_sha256": "a" * 64, "criteria": [],
+                                                 "calibration": {"objective": "jaccard"}, "scoring": {},
+                                                 "methods": [], "datasets": []}).encode())
     if cells:
         os.makedirs(d + "/cells", exist_ok=True)
         c = {"id": "blank/scan/otsu/0", "index": 0, "suite_sha256": ("b" if foreign else "a") * 64, "status": "failed"}
