@@ -14,24 +14,15 @@
 #include "methods/predictions.hpp"
 #include "methods/registry.hpp"
 #include "tests/helpers.hpp"
+#include "tests/json_files.hpp"
 
 using namespace pb;
 namespace fs = std::filesystem;
 using Json = nlohmann::ordered_json;
+using pbtest::read_json;
+using pbtest::write_file;
 
 namespace {
-
-void write_file(const std::string& path, const std::string& text) {
-  fs::create_directories(fs::path(path).parent_path());
-  std::ofstream f(path);
-  f << text;
-}
-
-Json read_json(const std::string& path) {
-  std::ifstream f(path);
-  REQUIRE(f);
-  return Json::parse(f);
-}
 
 // A paired dataset: a 32^3 scan (part: a cylinder of grey 1, air 0, pores 0.1, noise 0.08), its
 // part mask and its reference pores (spheres of radius 2.5 voxels, away from every border).

@@ -16,12 +16,15 @@
 #include "suites/results.hpp"
 #include "suites/suite.hpp"
 #include "tests/helpers.hpp"
+#include "tests/json_files.hpp"
 
 using namespace pb;
 using namespace pb::suite;
 using pbtest::run_cli;
 using pbtest::TempDir;
 using Json = nlohmann::ordered_json;
+using pbtest::read_json;
+using pbtest::write_file;
 namespace fs = std::filesystem;
 
 namespace {
@@ -53,17 +56,6 @@ std::string tiny_suite(double min_jaccard) {
   std::string s = kTinySuite;
   s.replace(s.find("%MINJ%"), 6, std::to_string(min_jaccard));
   return s;
-}
-
-void write_file(const std::string& path, const std::string& text) {
-  std::ofstream f(path);
-  f << text;
-}
-
-Json read_json(const std::string& path) {
-  std::ifstream f(path);
-  REQUIRE(f);
-  return Json::parse(f);
 }
 
 void expect_suite_error(const std::string& text, const std::vector<std::string>& words) {

@@ -1,0 +1,25 @@
+#pragma once
+// Small file helpers shared by the tests that write suites and read run records.
+#include <catch2/catch.hpp>
+#include <filesystem>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <string>
+
+namespace pbtest {
+
+// Writes TEXT to PATH, creating its folder.
+inline void write_file(const std::string& path, const std::string& text) {
+  const std::filesystem::path p(path);
+  if (p.has_parent_path()) std::filesystem::create_directories(p.parent_path());
+  std::ofstream f(path);
+  f << text;
+}
+
+inline nlohmann::ordered_json read_json(const std::string& path) {
+  std::ifstream f(path);
+  REQUIRE(f);
+  return nlohmann::ordered_json::parse(f);
+}
+
+}  // namespace pbtest
