@@ -103,13 +103,33 @@ std::string judged_text(const JudgedVerdict& v) {
   return v.criterion + ": " + bound + " " + format_number(v.judged, 3) + " (value " + format_number(v.value, 3) + ")";
 }
 
-bool is_reference_method(const Json& results, const Json& selection) {
+std::string reference_role(const Json& results, const Json& selection) {
   const Json* m = method_entry(results, selection["method"].get<std::string>());
-  if (!m) return false;
-  for (const auto& d : results["datasets"])
-    if (d["name"] == selection["dataset"] && d["reference"].is_object() && d["reference"].contains("method"))
-      return d["reference"]["method"] == (*m)["name"];
-  return false;
+  if (!m) return "";
+  for (const auto& d : results["datasets"]) {
+    if (d["name"] != selection["dataset"] || !d["reference"].is_object()) continue;
+    const Json& ref = d["reference"];
+    if (ref.contains("method") && ref["method"] == (*m)["name"]) return "the reference's own method";
+    if (ref.contains("consensus") && ref["consensus"].contains("raters"))
+      for (const auto& r : ref["consensus"]["raters"])
+        if (r["method"] == (*m)["name"]) return "reference rater";
+    return "";
+  }
+  return "";
+}
+
+std::string consensus_text(const Json& reference) {
+  const Json& c = reference["consensus"];
+  std::string s = "STAPLE consensus (W >= " + format_number(c.value("threshold", 0.5), 3) + ", " +
+                  std::to_string(c.value("iterations", 0)) + " iterations" + (c.value("converged", true) ? "" : ", not converged") +
+                  ") of " + std::to_string(c["raters"].size()) + " raters on the reference scan: ";
+  bool first = true;
+  for (const auto& r : c["raters"]) {
+    s += (first ? "" : ", ") + r["label"].get<std::string>() + " (sensitivity " + format_number(r["sensitivity"].get<double>(), 4) +
+         ", specificity " + format_number(r["specificity"].get<double>(), 6) + ")";
+    first = false;
+  }
+  return s;
 }
 
 std::map<std::string, const Json*> cells_by_id(const Json& results) {

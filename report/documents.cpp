@@ -3,6 +3,7 @@
 #include <vector>
 #include <sstream>
 
+#include "core/format.hpp"
 #include "report/report.hpp"
 #include "suites/results.hpp"
 
@@ -55,6 +56,27 @@ static std::string paired_alignment_md(const Json& d) {
   return md.str();
 }
 
+// A consensus reference: its raters with their STAPLE performance estimates (suites/paired.hpp).
+static std::string consensus_md(const Json& ref) {
+  if (!ref.is_object() || !ref.contains("consensus")) return "";
+  const Json& c = ref["consensus"];
+  std::ostringstream md;
+  md << "\nThe reference is a consensus: each rater below segmented the reference scan, and STAPLE (" << c["source"].get<std::string>()
+     << ") combined them over " << c["over"].get<std::string>() << "; its pores are the voxels with W >= "
+     << format_number(c["threshold"].get<double>(), 3) << " (" << c["pore_voxels"] << " voxels, prior "
+     << format_number(c["prior"].get<double>(), 4) << ", " << c["iterations"] << " iterations, "
+     << (c["converged"].get<bool>() ? "converged" : "NOT converged") << "). Every rater's method is marked "
+     << "\"reference rater\" in the rankings: it is scored partly against its own output.\n\n";
+  md << "| rater | method | parameters | pore voxels | STAPLE sensitivity | STAPLE specificity |\n|---|---|---|---:|---:|---:|\n";
+  for (const auto& r : c["raters"])
+    md << md_row({r["label"].get<std::string>(), r["method"].get<std::string>(), r["given"].get<std::string>(),
+                  std::to_string(r["pore_voxels"].get<int64_t>()), format_number(r["sensitivity"].get<double>(), 6),
+                  format_number(r["specificity"].get<double>(), 8)});
+  for (const auto& w : c.value("warnings", Json::array())) md << "\nWarning: " << md_cell(w.get<std::string>()) << "\n";
+  md << "\n";
+  return md.str();
+}
+
 std::string validation_record_md(const Json& r) {
   std::ostringstream md;
   const Json& ctx = r["context"];
@@ -94,12 +116,16 @@ std::string validation_record_md(const Json& r) {
       md << "| file | sha256 |\n|---|---|\n";
       const Json& ref = d["reference"];
       if (ref.contains("mask")) md << "| " << md_cell(ref["mask"].get<std::string>()) << " (reference mask) | " << ref["sha256"].get<std::string>() << " |\n";
+      else if (ref.contains("consensus"))
+        md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, STAPLE consensus of "
+           << ref["consensus"]["raters"].size() << " raters) | " << ref["sha256"].get<std::string>() << " |\n";
       else md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, segmented by " << md_cell(ref["method"].get<std::string>())
               << ") | " << ref["sha256"].get<std::string>() << " |\n";
       if (!d.contains("variants")) md << "| " << md_cell(d["scan"].get<std::string>()) << " | " << d["scan_sha256"].get<std::string>() << " |\n";
       else for (const auto& v : d["variants"])
         md << "| " << md_cell(v["path"].get<std::string>()) << " (" << md_cell(v["scan"].get<std::string>()) << ") | "
            << v.value("sha256", std::string()) << " |\n";
+      md << consensus_md(ref);
       md << paired_alignment_md(d);
     }
     md << "\nSlices: calibration " << d["slices"]["calibration"][0] << "–" << d["slices"]["calibration"][1].get<int>() - 1

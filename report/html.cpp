@@ -272,7 +272,7 @@ std::string summary_tables(Page& p, const Json& d) {
     for (const Json* s : sels) {
       const Json* c = p.cell(*s);
       h << "<tr><td class=\"n\">" << ++rank << "</td><td><span class=\"sw\" style=\"background:" << p.colour(str((*s)["method"])) << "\"></span>"
-        << escape(str((*s)["method"])) << (is_reference_method(p.r, *s) ? " <small>(the reference's own method)</small>" : "") << "</td><td>" << (c ? escape(params_text((*c)["params"], ", ", method_entry(p.r, str((*s)["method"])))) : "") << ((*s).value("tuned", false) ? " (tuned)" : "");
+        << escape(str((*s)["method"])) << [&] { const std::string role = reference_role(p.r, *s); return role.empty() ? role : " <small>(" + escape(role) + ")</small>"; }() << "</td><td>" << (c ? escape(params_text((*c)["params"], ", ", method_entry(p.r, str((*s)["method"])))) : "") << ((*s).value("tuned", false) ? " (tuned)" : "");
       if (c && c->contains("warnings"))
         for (const auto& w : (*c)["warnings"]) h << "<br><small class=\"warn\">method warning: " << escape(str(w)) << "</small>";
       h << "</td>";
@@ -629,6 +629,7 @@ std::string dataset_section(Page& p, const Json& d, int k, const std::string& ou
     << " dataset; reference: ";
   if (d["reference"].is_string()) h << escape(str(d["reference"]));
   else if (d["reference"].contains("mask")) h << "mask " << escape(str(d["reference"]["mask"]));
+  else if (d["reference"].contains("consensus")) h << "scan " << escape(str(d["reference"]["scan"])) << ", " << escape(consensus_text(d["reference"]));
   else h << "scan " << escape(str(d["reference"]["scan"])) << " segmented by " << escape(str(d["reference"]["method"]));
   const Json& sl = d["slices"];
   h << ". Calibration slices z " << str(sl["calibration"][0]) << "–" << num(sl["calibration"][1]) - 1 << ", gap " << str(sl["gap"])

@@ -90,9 +90,15 @@ std::vector<JudgedVerdict> judged_verdicts(const Json& results, const Json& sele
 // "jaccard >= 0.6: 0.713", or on a bound "jaccard >= 0.6 (95 % CI bound): CI lower bound 0.42 (value 0.632)".
 std::string judged_text(const JudgedVerdict& v);
 
-// Whether the selection's method is the one that segmented its dataset's paired reference (a
-// reference scan segmented by method X favours X: it is scored against its own output).
-bool is_reference_method(const Json& results, const Json& selection);
+// How the selection's method took part in its dataset's paired reference (a reference scan segmented
+// by method X favours X: it is scored against its own output): "the reference's own method", or
+// "reference rater" when it is one of the raters of a consensus reference (suites/paired.hpp);
+// "" otherwise.
+std::string reference_role(const Json& results, const Json& selection);
+
+// A consensus reference in one line: "STAPLE consensus (W >= 0.5, 12 iterations) of 3 raters on the
+// reference scan: otsu (sensitivity 0.981, specificity 0.9995), ..." (suites/paired.hpp).
+std::string consensus_text(const Json& reference);
 
 // The cells of a results record by id.
 std::map<std::string, const Json*> cells_by_id(const Json& results);

@@ -150,7 +150,7 @@ std::string summary_md(const Json& results) {
     std::vector<std::string> warnings;
     for (const Json* s : v) {
       const Json& c = *cell_by_id.at((*s)["chosen_cell"]);
-      md << "| " << ++rank << " | " << md_cell((*s)["method"].get<std::string>()) << (is_reference_method(results, *s) ? " (the reference's own method)" : "") << " | ";
+      md << "| " << ++rank << " | " << md_cell((*s)["method"].get<std::string>()) << [&] { const std::string role = reference_role(results, *s); return role.empty() ? role : " (" + role + ")"; }() << " | ";
       md << md_cell(params_text(c["params"], ", ", method_entry(results, (*s)["method"]))) << ((*s)["tuned"].get<bool>() ? " (tuned)" : "");
       if (c.contains("warnings"))
         for (const auto& w : c["warnings"]) {

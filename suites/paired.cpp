@@ -17,7 +17,9 @@
 #include "core/resample.hpp"
 #include "core/sha256.hpp"
 #include "core/toml_keys.hpp"
+#include "methods/pores.hpp"
 #include "methods/registry.hpp"
+#include "metrics/staple.hpp"
 #include "suites/layout.hpp"
 #include "suites/pairs.hpp"
 
@@ -117,13 +119,126 @@ Geometry file_geometry(const FileSpec& f, const std::string& field, bool scan) {
   }
 }
 
+// reference_consensus = ["otsu", { name = "sauvola", label = "sauvola-31", params = { window = 31 } }, ...]:
+// entries in the form of the suite's [[method]] entries, one parameter set each (no grid), at
+// least two, labels unique.
+std::vector<RaterSpec> parse_raters(const toml::node& n, const std::string& where, const FailAt& fail) {
+  const toml::array* a = n.as_array();
+  if (!a || a->size() < 2)
+    fail(n.source(), where + ": 'reference_consensus' must be a list of at least two method entries (a method name, or "
+                             "{ name = ..., label = ..., params = { ... } }), got " +
+                         (a ? std::to_string(a->size()) + " entr" + (a->size() == 1 ? "y" : "ies") : std::string("no list")));
+  std::vector<RaterSpec> out;
+  std::set<std::string> labels;
+  for (size_t i = 0; i < a->size(); ++i) {
+    const toml::node& e = *a->get(i);
+    const std::string w = where + " reference_consensus[" + std::to_string(i + 1) + "]";
+    RaterSpec r;
+    if (const auto s = e.value_exact<std::string>()) {
+      r.name = *s;
+    } else if (const toml::table* et = e.as_table()) {
+      if (const auto u = first_unknown_key(*et, {"name", "label", "params"}))
+        fail(u->where, w + ": unknown key '" + u->key + "' (name, label, params)" +
+                           (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
+      r.name = str_at(*et, "name", w, fail);
+      if (r.name.empty()) fail(e.source(), w + ": 'name' (the method) is required");
+      r.label = str_at(*et, "label", w, fail);
+      if (const toml::node* p = et->get("params")) {
+        const toml::table* pt = p->as_table();
+        if (!pt) fail(p->source(), w + ": 'params' must be a table");
+        for (auto&& [k, v] : *pt) {
+          const std::string key(k.str());
+          std::string text;
+          if (auto sv = v.value_exact<std::string>()) text = *sv;
+          else if (auto iv = v.value_exact<int64_t>()) text = std::to_string(*iv);
+          else if (auto dv = v.value_exact<double>()) {
+            std::ostringstream ss;
+            ss.precision(12);
+            ss << *dv;
+            text = ss.str();
+          } else if (auto bv = v.value_exact<bool>()) text = *bv ? "true" : "false";
+          else
+            fail(v.source(), w + ": parameter '" + key + "' must be one string, number or boolean (a rater runs one "
+                                 "parameter set, not a grid)");
+          r.params.push_back(key + "=" + text);
+        }
+      }
+    } else {
+      fail(e.source(), w + ": must be a method name or a table { name, label, params }");
+    }
+    if (r.label.empty()) r.label = r.name;
+    try {
+      parse_params(Registry::instance().get(r.name), r.params);
+    } catch (const InputError& err) {
+      fail(e.source(), w + ": method '" + r.name + "': " + err.what());
+    }
+    if (!labels.insert(r.label).second)
+      fail(e.source(), w + ": rater label '" + r.label + "' is used twice (give each rater a 'label')");
+    out.push_back(r);
+  }
+  return out;
+}
+
+// The consensus reference: each rater run on the reference scan, combined by STAPLE (Warfield, Zou
+// & Wells 2004, IEEE TMI 23(7):903-921) over the whole reference volume, W >= 0.5 the reference
+// pores. The record keeps each rater's STAPLE sensitivity and specificity and the iterations.
+Mask consensus_reference(const DatasetSpec& d, const VolumeF& ref_scan, const Mask* part, VoxelType type, Json& record,
+                         const LogFn& log) {
+  constexpr double threshold = 0.5;
+  std::vector<Mask> masks;
+  Json raters = Json::array();
+  for (const RaterSpec& r : d.reference_consensus) {
+    const MethodInfo& m = Registry::instance().get(r.name);
+    const ParamValues pv = parse_params(m, r.params);
+    if (log) log("dataset '" + d.name + "': reference rater '" + r.label + "' (" + m.name + ") on " + d.reference_scan);
+    MethodOutput out = run_method(m, pv, MethodInput{ref_scan, part, type});
+    Json chosen = Json::object();
+    for (const auto& [k, v] : out.chosen) chosen[k] = v;
+    std::string given;
+    for (const auto& kv : r.params) given += (given.empty() ? "" : ", ") + kv;
+    raters.push_back({{"label", r.label}, {"method", m.name}, {"given", given.empty() ? "defaults" : given},
+                      {"params", pv.text()}, {"chosen", chosen},
+                      {"pore_voxels", count_nonzero(out.pores)}});
+    masks.push_back(std::move(out.pores));
+  }
+  std::vector<const Mask*> in;
+  std::vector<std::string> names;
+  for (size_t i = 0; i < masks.size(); ++i) in.push_back(&masks[i]), names.push_back("reference_consensus[" + std::to_string(i + 1) + "] (" + d.reference_consensus[i].label + ")");
+  StapleResult st = staple(in, names, threshold);
+  for (size_t i = 0; i < masks.size(); ++i) {
+    raters[i]["sensitivity"] = st.sensitivity[i];
+    raters[i]["specificity"] = st.specificity[i];
+  }
+  std::vector<std::string> warnings;
+  if (!st.converged)
+    warnings.push_back("STAPLE did not converge in " + std::to_string(st.iterations) +
+                       " iterations: the consensus is the last estimate");
+  if (log) {
+    std::ostringstream s;
+    s << "dataset '" << d.name << "': STAPLE consensus of " << masks.size() << " raters: " << st.consensus_voxels
+      << " pore voxels after " << st.iterations << " iterations";
+    log(s.str());
+    for (const auto& w : warnings) log("warning: dataset '" + d.name + "': " + w);
+  }
+  record = {{"scan", d.reference_scan}, {"sha256", file_sha256(d.reference_scan)},
+            {"consensus", {{"method", "STAPLE"},
+                           {"source", "Warfield, Zou & Wells (2004) Simultaneous truth and performance level estimation "
+                                      "(STAPLE). IEEE Trans. Med. Imaging 23(7):903-921"},
+                           {"threshold", threshold}, {"over", "the whole reference volume"},
+                           {"prior", st.prior}, {"iterations", st.iterations}, {"converged", st.converged},
+                           {"pore_voxels", st.consensus_voxels}, {"raters", raters}, {"warnings", warnings}}},
+            {"projections", d.reference_projections}};
+  return std::move(st.consensus);
+}
+
 }  // namespace
 
 void parse_paired_dataset(const toml::table& t, const std::string& base, const std::string& where, const FailAt& fail,
                           DatasetSpec& d) {
   static const std::vector<std::string> keys = {"name", "kind", "scan", "scans", "reference_mask", "reference_label",
                                                 "reference_scan", "reference_method", "reference_params", "part_mask",
-                                                "projections", "reference_projections", "raw", "spacing_mm", "align"};
+                                                "projections", "reference_projections", "raw", "spacing_mm", "align",
+                                                "reference_consensus"};
   if (const auto u = first_unknown_key(t, keys))
     fail(u->where, "unknown key '" + u->key + "' in " + where + (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
   d.kind = DatasetSpec::paired;
@@ -155,8 +270,17 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
   }
   (has_scan ? d.reference_scan : d.reference_mask) = d.reference_file.path;
   d.reference_method = str_at(t, "reference_method", where, fail);
-  if (has_scan && d.reference_method.empty())
-    fail(t.source(), where + ": 'reference_scan' needs 'reference_method' (the method that segments it)");
+  if (const toml::node* n = t.get("reference_consensus")) {
+    if (!has_scan)
+      fail(n->source(), where + ": 'reference_consensus' segments a 'reference_scan'; a reference_mask is used as it is");
+    if (t.get("reference_method") || t.get("reference_params"))
+      fail(n->source(), where + ": give 'reference_method' (one method) or 'reference_consensus' (a STAPLE consensus of "
+                                "several), not both");
+    d.reference_consensus = parse_raters(*n, where, fail);
+  }
+  if (has_scan && d.reference_method.empty() && d.reference_consensus.empty())
+    fail(t.source(), where + ": 'reference_scan' needs 'reference_method' (the method that segments it) or "
+                             "'reference_consensus' (several methods, combined by STAPLE)");
   if (!has_scan && !d.reference_method.empty())
     fail(t.get("reference_method")->source(), where + ": 'reference_method' is for a 'reference_scan'; a reference_mask is used as it is");
   if (const toml::node* n = t.get("reference_params")) {
@@ -321,6 +445,10 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
     ref_pores = d.reference_label >= 0 ? ref_any.to_mask(d.reference_label) : ref_any.to_mask();
     ref_record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", file_sha256(d.reference_mask)},
                   {"grid", describe(ref_any.geometry())}};
+  } else if (!d.reference_consensus.empty()) {
+    ref_scan = ref_any.to_float();
+    ref_pores = consensus_reference(d, ref_scan, part.empty() ? nullptr : &part, ref_any.type(), ref_record, log);
+    ref_record["grid"] = describe(ref_any.geometry());
   } else {
     const MethodInfo& m = Registry::instance().get(d.reference_method);
     const ParamValues pv = parse_params(m, d.reference_params);

@@ -16,6 +16,16 @@
 //             { path = "fast-200p.raw", projections = 200, label = "200p-raw", align = "intensity",
 //               spacing_mm = [0.0104, 0.0104, 0.0104], raw = { dims = [96, 96, 96], type = "uint16" } } ]
 //
+// A consensus reference instead of one method (against the bias of a reference made by the
+// method under trial): `reference_consensus` lists two or more raters, each in the form of a
+// [[method]] entry with one parameter set (a name, or { name, label, params }), each run on the
+// reference scan; STAPLE (Warfield, Zou & Wells 2004, metrics/staple.hpp) combines them, W >= 0.5
+// is the reference. Each rater's STAPLE sensitivity and specificity and the iterations go into the
+// record; the rankings mark every rater's method "reference rater". Exclusive with
+// reference_method/reference_params and reference_mask.
+//   reference_consensus = [ "otsu", { name = "sauvola", params = { window = 31, k = 0.2 } },
+//                           { name = "median+otsu", label = "otsu-median", params = { "median.radius" = 1 } } ]
+//
 // The older form (one `scan`, `projections`, and `raw`/`spacing_mm` for the scan and the reference
 // scan) still parses: a series of one scan labelled "scan".
 // Each fast scan becomes cells like a synthetic scan: the reference pores (and the part mask) are

@@ -46,6 +46,13 @@ struct PairedScanSpec {
   std::string transform;  // a known transform (T.json of `porebench align`, fast mm -> reference mm) instead of registering
 };
 
+// One rater of a consensus reference: a method with one parameter set, run on the reference scan.
+struct RaterSpec {
+  std::string label;  // unique among the raters; defaults to the method name
+  std::string name;   // registry name or composition
+  std::vector<std::string> params;  // "key=value"
+};
+
 struct DatasetSpec {
   std::string name;
   enum Kind { synthetic, paired } kind = synthetic;
@@ -62,6 +69,9 @@ struct DatasetSpec {
   // grid) and the series of fast scans (a single `scan` is a series of one, label "scan").
   FileSpec reference_file, part_file;
   std::vector<PairedScanSpec> scans;
+  // paired: a STAPLE consensus of these raters on the reference scan as the reference (instead of
+  // reference_method; suites/paired.hpp).
+  std::vector<RaterSpec> reference_consensus;
 };
 
 struct Calibration {

@@ -4,6 +4,7 @@
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
+#include <sstream>
 #include <string>
 
 namespace pbtest {
@@ -20,6 +21,14 @@ inline nlohmann::ordered_json read_json(const std::string& path) {
   std::ifstream f(path);
   REQUIRE(f);
   return nlohmann::ordered_json::parse(f);
+}
+
+// The whole file as text ("" when it cannot be read).
+inline std::string read_text(const std::string& path) {
+  std::ifstream f(path, std::ios::binary);
+  std::stringstream s;
+  s << f.rdbuf();
+  return s.str();
 }
 
 }  // namespace pbtest

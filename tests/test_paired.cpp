@@ -14,6 +14,7 @@
 #include "suites/results.hpp"
 #include "suites/suite.hpp"
 #include "tests/helpers.hpp"
+#include "tests/paired_helpers.hpp"
 
 using namespace pb;
 using pbtest::run_cli;
@@ -184,18 +185,7 @@ TEST_CASE("paired suites: bad entries are refused at the preflight naming the su
   const std::string head = "[[dataset]]\nname = \"p\"\nkind = \"paired\"\nreference_scan = \"ref.mha\"\nreference_method = \"otsu\"\n";
   const std::string tail = "[[method]]\nname = \"otsu\"\n";
   auto expect = [&](const std::string& body, const std::vector<std::string>& words) {
-    const std::string text = head + body + tail;
-    INFO(text);
-    write_file(d / "s.toml", text);
-    try {
-      const suite::Suite s = suite::load_suite(d / "s.toml");
-      suite::preflight(s);
-      FAIL("accepted");
-    } catch (const InputError& e) {
-      INFO(e.what());
-      CHECK_THAT(e.what(), Catch::Contains("s.toml"));
-      for (const auto& w : words) CHECK_THAT(e.what(), Catch::Contains(w));
-    }
+    pbtest::expect_suite_refused(d / "s.toml", head + body + tail, words);
   };
   expect("scans = [ \"fast.mha\", \"nope.mha\" ]\n", {"scans[2]", "file not found", "nope.mha"});
   expect("scans = [ { path = \"fast.mha\", projection = 400 } ]\n", {"unknown key 'projection'", "scans[1]"});
