@@ -8,13 +8,13 @@
 #include <nlohmann/json.hpp>
 
 #include "apps/cli.hpp"
-#include "core/context.hpp"
 #include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "core/io_atomic.hpp"
 #include "core/sha256.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"
+#include "methods/segment_record.hpp"
 
 namespace pb::cli {
 namespace {
@@ -80,23 +80,9 @@ Action setup_segment(CLI::App& app) {
     // The JSON is rendered before the mask is written, so that both are written or neither is.
     std::string json_text;
     if (!a->json.empty()) {
-      nlohmann::ordered_json j;
-      j["context"] = run_context();
-      j["method"] = m.name;
-      j["family"] = m.family;
-      j["params"] = params.text();
-      j["chosen"] = nlohmann::ordered_json::object();
-      for (const auto& [k, v] : out.chosen) j["chosen"][k] = v;
-      j["runtime_s"] = out.runtime_s;
-      j["voxels"] = vol.size();
-      j["part_voxels"] = out.part_voxels;
-      j["pore_voxels"] = pore_voxels;
-      j["porosity_pct"] = std::isfinite(porosity) ? nlohmann::ordered_json(porosity) : nlohmann::ordered_json();
-      j["warnings"] = out.warnings;
-      j["input"] = {{"path", a->input}, {"sha256_voxels", input_sha}};
-      if (!a->roi.empty()) j["roi"] = a->roi;
-      j["output"] = a->output;
-      json_text = j.dump(2) + "\n";
+      SegmentRecordInputs io{a->input, input_sha, std::nullopt, a->output};
+      if (!a->roi.empty()) io.roi = a->roi;
+      json_text = segment_record(m, params, out, vol.size(), io).dump(2) + "\n";
     }
     // Both or neither: the JSON goes to its temporary first, the mask is written (and committed),
     // then the JSON is renamed; a failure before that removes the JSON temporary.

@@ -14,6 +14,7 @@
 #include "core/cpu.hpp"
 #include "core/error.hpp"
 #include "core/names.hpp"
+#include "core/npy.hpp"
 #include "core/parallel.hpp"
 
 namespace pb::cli {
@@ -133,6 +134,7 @@ int main(int argc, char** argv) {
   }
   try {
     set_threads(cli::g_globals.threads);
+    set_read_note([](const std::string& m) { cli::log("porebench: note: " + m); });
     const std::string& simd = cli::g_globals.simd;
     set_simd_cap(simd == "generic" ? Simd::generic : simd == "avx2" ? Simd::avx2 : Simd::avx512);
     for (auto& [sub, action] : actions)

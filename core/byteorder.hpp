@@ -14,7 +14,7 @@ inline bool host_is_little_endian() {
   return b == 1;
 }
 
-// Reverses the bytes of `count` items of `width` bytes (2 or 4; other widths are left alone).
+// Reverses the bytes of `count` items of `width` bytes (2, 4 or 8; other widths are left alone).
 inline void swap_bytes(void* data, size_t count, int width) {
   auto* p = static_cast<uint8_t*>(data);
   if (width == 2)
@@ -24,6 +24,9 @@ inline void swap_bytes(void* data, size_t count, int width) {
       std::swap(p[4 * i], p[4 * i + 3]);
       std::swap(p[4 * i + 1], p[4 * i + 2]);
     }
+  else if (width == 8)
+    for (size_t i = 0; i < count; ++i)
+      for (int k = 0; k < 4; ++k) std::swap(p[8 * i + size_t(k)], p[8 * i + 7 - size_t(k)]);
 }
 
 }  // namespace pb

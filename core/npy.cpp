@@ -4,6 +4,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <cmath>
 #include <cctype>
 #include <cerrno>
 #include <cstring>
@@ -20,6 +21,11 @@ namespace fs = std::filesystem;
 
 namespace pb {
 namespace {
+
+std::function<void(const std::string&)>& read_note() {
+  static std::function<void(const std::string&)> sink;
+  return sink;
+}
 
 constexpr uint64_t kMaxHeaderBytes = uint64_t(1) << 20;  // numpy writes < 100; 1 MiB is absurd already
 constexpr char kMagic[] = "\x93NUMPY";
@@ -114,8 +120,8 @@ void set_type(NpyHeader& h, const std::string& path) {
   const std::string& d = h.descr;
   auto refuse = [&](const std::string& why) -> void {
     throw InputError("npy file " + path + ": descr '" + printable(d) + "' " + why +
-                     " (read: |u1, |b1, u2, i2, f4 little or big endian; e.g. arr.astype(np.float32) or "
-                     "arr.astype(np.uint16) before np.save)");
+                     " (read: |u1, |b1, u2, i2, f4, f8 (as float32) little or big endian; e.g. "
+                     "arr.astype(np.float32) or arr.astype(np.uint16) before np.save)");
   };
   if (d.size() < 3) refuse("is not a simple dtype");
   const char order = d[0];
@@ -126,8 +132,9 @@ void set_type(NpyHeader& h, const std::string& path) {
   else if (code == "u2") h.type = VoxelType::u16;
   else if (code == "i2") h.type = VoxelType::i16;
   else if (code == "f4") h.type = VoxelType::f32;
+  else if (code == "f8") h.type = VoxelType::f32, h.float64 = true;
   else refuse("is not a voxel type porebench reads");
-  h.item_bytes = voxel_type_bytes(h.type);
+  h.item_bytes = h.float64 ? 8 : voxel_type_bytes(h.type);
   if (h.item_bytes > 1 && order == '|') refuse("has no byte order for a multi-byte type");
   h.big_endian = order == '>' || (order == '=' && !host_is_little_endian());
 }
@@ -244,7 +251,7 @@ AnyVolume read_npy(const std::string& path) {
       << h.dims[2] << " voxels x " << h.item_bytes << " bytes '" << h.descr << "'), found " << size;
     throw InputError(s.str());
   }
-  check_memory(h.expected_bytes, "npy file " + path);
+  check_memory(h.float64 ? h.expected_bytes / 2 + (size_t(8) << 20) : h.expected_bytes, "npy file " + path);
   Geometry g;
   g.dims = h.dims;
   AnyVolume v;
@@ -256,26 +263,81 @@ AnyVolume read_npy(const std::string& path) {
   }
   in.seekg(std::streamoff(h.data_offset));
   const bool swap = h.big_endian == host_is_little_endian();
-  const int w = h.item_bytes;
+  const int w = h.item_bytes;        // as stored
+  const int wv = h.float64 ? 4 : w;  // as held
   char* dst = static_cast<char*>(v.raw());
-  if (!h.fortran_order) {
-    in.read(dst, std::streamsize(v.bytes()));
+  // Reads k stored items into `buf` and writes them as held to `out` (swapped, float64 narrowed).
+  std::vector<char> buf;
+  Float64Narrowing narrowing;
+  auto read_items = [&](char* out, size_t k) {
+    char* target = h.float64 ? (buf.resize(k * 8), buf.data()) : out;
+    in.read(target, std::streamsize(k * size_t(w)));
     if (!in) throw InputError("cannot read " + path + ": short read");
-    if (swap) swap_bytes(dst, size_t(g.voxels()), w);
+    if (swap) swap_bytes(target, k, w);
+    if (h.float64)
+      narrowing.add(narrow_float64(reinterpret_cast<const double*>(target), int64_t(k), reinterpret_cast<float*>(out),
+                                   "npy file " + path));
+  };
+  if (!h.fortran_order) {
+    const size_t total = size_t(g.voxels()), step = h.float64 ? size_t(1) << 20 : total;
+    for (size_t i = 0; i < total; i += step) read_items(dst + i * size_t(wv), std::min(step, total - i));
   } else {
     // Fortran order: element [z, y, x] at z + Z * (y + Y * x). One x-plane (Y * Z items) at a time.
     const int64_t X = g.dims[0], Y = g.dims[1], Z = g.dims[2];
-    std::vector<char> plane(size_t(Y * Z * w));
+    std::vector<char> plane(size_t(Y * Z * wv));
     for (int64_t x = 0; x < X; ++x) {
-      in.read(plane.data(), std::streamsize(plane.size()));
-      if (!in) throw InputError("cannot read " + path + ": short read");
-      if (swap) swap_bytes(plane.data(), size_t(Y * Z), w);
+      read_items(plane.data(), size_t(Y * Z));
       for (int64_t y = 0; y < Y; ++y)
         for (int64_t z = 0; z < Z; ++z)
-          std::memcpy(dst + ((z * Y + y) * X + x) * w, plane.data() + (z + Z * y) * w, size_t(w));
+          std::memcpy(dst + ((z * Y + y) * X + x) * wv, plane.data() + (z + Z * y) * wv, size_t(wv));
     }
   }
+  const std::string note = narrowing.note("npy file " + path + " ('" + h.descr + "', read as float32)");
+  if (!note.empty() && read_note()) read_note()(note);
   return v;
+}
+
+void set_read_note(std::function<void(const std::string&)> sink) { read_note() = std::move(sink); }
+
+void Float64Narrowing::add(const Float64Narrowing& o) {
+  values += o.values;
+  rounded += o.rounded;
+  max_rel_change = std::max(max_rel_change, o.max_rel_change);
+}
+
+std::string Float64Narrowing::note(const std::string& what) const {
+  if (rounded == 0) return "";
+  std::ostringstream s;
+  s << what << ": " << rounded << " of " << values
+    << " float64 values are not exactly float32 and were rounded (largest relative change " << max_rel_change
+    << "; float32 holds about 7 significant digits)";
+  return s.str();
+}
+
+Float64Narrowing narrow_float64(const double* src, int64_t n, float* dst, const std::string& what) {
+  Float64Narrowing r;
+  r.values = n;
+  int64_t rounded = 0, overflow_at = -1;
+  double max_rel = 0;
+#pragma omp parallel for schedule(static) reduction(+ : rounded) reduction(max : max_rel, overflow_at)
+  for (int64_t i = 0; i < n; ++i) {
+    const double d = src[i];
+    const float f = float(d);
+    dst[i] = f;
+    if (!std::isfinite(d)) continue;
+    if (!std::isfinite(f)) overflow_at = std::max(overflow_at, i);
+    else if (double(f) != d) ++rounded, max_rel = std::max(max_rel, std::abs(double(f) - d) / std::abs(d));
+  }
+  if (overflow_at >= 0) {
+    std::ostringstream s;
+    s.precision(17);
+    s << what << ": float64 value " << src[overflow_at]
+      << " is beyond float32's range (+-3.4e38); porebench holds voxels as float32";
+    throw InputError(s.str());
+  }
+  r.rounded = rounded;
+  r.max_rel_change = max_rel;
+  return r;
 }
 
 void write_npy(const void* data, VoxelType type, const Geometry& g, const std::string& path) {

@@ -15,6 +15,7 @@
 // Every failure is an InputError naming the file, the field and the value.
 #include <array>
 #include <cstdint>
+#include <functional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -27,7 +28,8 @@ struct NpyHeader {
   int major = 0, minor = 0;
   std::string descr;            // as written, e.g. "<f4"
   VoxelType type = VoxelType::u8;
-  int item_bytes = 1;
+  int item_bytes = 1;  // as stored (8 for f8)
+  bool float64 = false;  // f8, read as float32
   bool big_endian = false;
   bool fortran_order = false;
   std::vector<int64_t> shape;   // as written (numpy order)
@@ -45,6 +47,20 @@ NpyHeader parse_npy_header(std::string_view head, const std::string& path);
 
 // Reads a .npy file (header checks, memory budget, file size, then the voxels). Spacing 1 mm.
 AnyVolume read_npy(const std::string& path);
+
+// Where read_npy tells what the user should know but is no error (float64 values rounded to
+// float32). The command line logs it to stderr, the Python module warns; none set: dropped.
+void set_read_note(std::function<void(const std::string&)> sink);
+
+// float64 -> float32 for n values (f8 .npy files, float64 NumPy arrays): a finite value beyond
+// float32's range is an InputError naming `what` and the value; non-finite values stay non-finite.
+struct Float64Narrowing {
+  int64_t values = 0, rounded = 0;  // rounded: values float32 does not hold exactly
+  double max_rel_change = 0;        // of the rounded ones, |float32 - float64| / |float64|
+  void add(const Float64Narrowing& o);
+  std::string note(const std::string& what) const;  // "" when nothing was rounded
+};
+Float64Narrowing narrow_float64(const double* src, int64_t n, float* dst, const std::string& what);
 
 // Writes a .npy file atomically (AtomicOutput, size checked): C order, shape (nz, ny, nx).
 void write_npy(const void* data, VoxelType type, const Geometry& g, const std::string& path);

@@ -36,18 +36,6 @@ int limit_of(const std::string& dir, bool v2) {
   return std::max(1, int(std::ceil(quota / period - 1e-9)));
 }
 
-// OpenMP's wait policy must be in the environment when libgomp initialises, which happens before
-// any of our code runs. A function in the executable's .preinit_array runs before every shared
-// library's initialiser (ELF gABI; these objects are linked into each executable), so it sets
-// OMP_WAIT_POLICY=passive there unless the user chose OMP_WAIT_POLICY or GOMP_SPINCOUNT. Passive:
-// a worker that finds no work sleeps on a futex at once instead of spinning (libgomp's default
-// spins ~300k iterations), which on a shared machine otherwise burns the slices the other threads
-// of the same team need; measured in bench/README.md (threads rows).
-void omp_passive_by_default(int, char**, char**) {
-  if (!std::getenv("OMP_WAIT_POLICY") && !std::getenv("GOMP_SPINCOUNT")) ::setenv("OMP_WAIT_POLICY", "passive", 0);
-}
-__attribute__((section(".preinit_array"), used)) void (*const g_omp_passive)(int, char**, char**) = omp_passive_by_default;
-
 }  // namespace
 
 int cgroup_cpu_limit(const std::string& proc_cgroup, const std::string& root) {

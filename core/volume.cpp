@@ -1,4 +1,5 @@
 #include "core/volume.hpp"
+#include "core/volume_view.hpp"
 
 #include <cmath>
 #include <cstdint>
@@ -112,31 +113,37 @@ size_t AnyVolume::bytes() const {
   return visit([](const auto& img) { return img.buffer().size() * sizeof(typename std::decay_t<decltype(img)>::value_type); });
 }
 
-VolumeF AnyVolume::to_float() const {
-  return visit([](const auto& img) {
-    VolumeF out(img.geometry());
-    const auto* s = img.data();
-    float* d = out.data();
-    const int64_t n = img.size();
+VolumeF to_float(const VolumeView& v) {
+  VolumeF out(v.geometry);
+  float* d = out.data();
+  v.visit([d](const auto* s, int64_t n) {
 #pragma omp parallel for schedule(static)
     for (int64_t i = 0; i < n; ++i) d[i] = float(s[i]);
-    return out;
   });
+  return out;
 }
 
+Mask to_mask(const VolumeView& v) {
+  Mask out(v.geometry);
+  uint8_t* d = out.data();
+  v.visit([d](const auto* s, int64_t n) {
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < n; ++i) d[i] = s[i] != 0;
+  });
+  return out;
+}
+
+VolumeF AnyVolume::to_float() const { return pb::to_float(view_of(*this)); }
+
 Mask AnyVolume::to_mask(int64_t label) const {
+  if (label < 0) return pb::to_mask(view_of(*this));
   return visit([label](const auto& img) {
     Mask out(img.geometry());
     const auto* s = img.data();
     uint8_t* d = out.data();
     const int64_t n = img.size();
-    if (label < 0) {
 #pragma omp parallel for schedule(static)
-      for (int64_t i = 0; i < n; ++i) d[i] = s[i] != 0;
-    } else {
-#pragma omp parallel for schedule(static)
-      for (int64_t i = 0; i < n; ++i) d[i] = double(s[i]) == double(label);
-    }
+    for (int64_t i = 0; i < n; ++i) d[i] = double(s[i]) == double(label);
     return out;
   });
 }

@@ -36,16 +36,15 @@ std::string num(double v) {
 }
 
 template <class T>
-MaskReading read_integer(const Image<T>& img, const MaskSpec& spec, const std::string& file, const std::string& label_option,
+MaskReading read_integer(const T* s, const Geometry& g, const MaskSpec& spec, const std::string& file, const std::string& label_option,
                          const std::string& threshold_option) {
   if (spec.threshold_given)
     throw InputError(threshold_option + " applies to float probability maps; " + file + " holds " +
                      voxel_type_name(VoxelTraits<T>::type) + " voxels (give " + label_option + " for a label volume)");
   MaskReading r;
-  r.mask = Mask(img.geometry());
-  const T* s = img.data();
+  r.mask = Mask(g);
   uint8_t* d = r.mask.data();
-  const int64_t n = img.size();
+  const int64_t n = g.voxels();
   if (spec.kind == MaskSpec::label) {
     const int64_t lo = std::numeric_limits<T>::min(), hi = std::numeric_limits<T>::max();
     if (spec.value < lo || spec.value > hi)
@@ -102,15 +101,14 @@ MaskReading read_integer(const Image<T>& img, const MaskSpec& spec, const std::s
   throw InputError(msg.str());
 }
 
-MaskReading read_float(const Image<float>& img, const MaskSpec& spec, const std::string& file, const std::string& label_option,
+MaskReading read_float(const float* s, const Geometry& g, const MaskSpec& spec, const std::string& file, const std::string& label_option,
                        const std::string& threshold_option) {
   if (spec.kind != MaskSpec::automatic)
     throw InputError(label_option + " applies to integer label volumes; " + file +
                      " holds float32 voxels (a probability map: use " + threshold_option + ")");
   if (!(spec.threshold > 0 && spec.threshold <= 1))
     throw InputError(threshold_option + " must be in (0, 1], got " + num(spec.threshold));
-  const float* s = img.data();
-  const int64_t n = img.size();
+  const int64_t n = g.voxels();
   int64_t nan = 0, outside = 0;
   float lo = INFINITY, hi = -INFINITY;
 #pragma omp parallel for schedule(static) reduction(+ : nan, outside) reduction(min : lo) reduction(max : hi)
@@ -128,7 +126,7 @@ MaskReading read_float(const Image<float>& img, const MaskSpec& spec, const std:
     throw InputError(file + " looks like a grey scan, not a mask or probability map: float values from " + num(lo) + " to " +
                      num(hi) + " (" + std::to_string(outside) + " voxels outside [0, 1]); give the segmented mask");
   MaskReading r;
-  r.mask = Mask(img.geometry());
+  r.mask = Mask(g);
   uint8_t* d = r.mask.data();
   const float t = float(spec.threshold);
 #pragma omp parallel for schedule(static)
@@ -140,15 +138,20 @@ MaskReading read_float(const Image<float>& img, const MaskSpec& spec, const std:
 
 }  // namespace
 
+MaskReading read_mask_volume(const VolumeView& v, const MaskSpec& spec, const std::string& file,
+                             const std::string& label_option, const std::string& threshold_option) {
+  return v.visit([&](const auto* s, int64_t) -> MaskReading {
+    using T = std::remove_cv_t<std::remove_pointer_t<decltype(s)>>;
+    if constexpr (std::is_same_v<T, float>)
+      return read_float(s, v.geometry, spec, file, label_option, threshold_option);
+    else
+      return read_integer(s, v.geometry, spec, file, label_option, threshold_option);
+  });
+}
+
 MaskReading read_mask_volume(const AnyVolume& v, const MaskSpec& spec, const std::string& file, const std::string& label_option,
                              const std::string& threshold_option) {
-  return v.visit([&](const auto& img) -> MaskReading {
-    using T = typename std::decay_t<decltype(img)>::value_type;
-    if constexpr (std::is_same_v<T, float>)
-      return read_float(img, spec, file, label_option, threshold_option);
-    else
-      return read_integer(img, spec, file, label_option, threshold_option);
-  });
+  return read_mask_volume(view_of(v), spec, file, label_option, threshold_option);
 }
 
 }  // namespace pb

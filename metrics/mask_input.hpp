@@ -10,6 +10,7 @@
 #include <string>
 
 #include "core/volume.hpp"
+#include "core/volume_view.hpp"
 
 namespace pb {
 
@@ -31,6 +32,9 @@ struct MaskReading {
 // file: the path, for messages; label_option / threshold_option: the options that set spec
 // (e.g. "--pred-label", "--pred-threshold").
 MaskReading read_mask_volume(const AnyVolume& v, const MaskSpec& spec, const std::string& file,
+                             const std::string& label_option, const std::string& threshold_option);
+// The same on voxels held elsewhere (read in place).
+MaskReading read_mask_volume(const VolumeView& v, const MaskSpec& spec, const std::string& file,
                              const std::string& label_option, const std::string& threshold_option);
 
 }  // namespace pb

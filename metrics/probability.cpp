@@ -4,6 +4,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstring>
+#include <vector>
 #include <string>
 
 #include "core/error.hpp"
@@ -18,11 +19,125 @@ nlohmann::ordered_json number_or_null(double v) { return std::isfinite(v) ? nloh
 
 }  // namespace
 
+namespace {
+
+// Average precision without sorting every voxel. A probability p in [0, 1] is identified by its
+// float32 bits v < 2^30 (monotone in p for p >= 0); v >> 15 is its bucket (at most 32513), v & 0x7fff
+// its place in the bucket. Pass 0 (in probability_metrics) counts voxels per bucket. The buckets are
+// then taken from the highest down in groups that fit `memory_bytes`: a bucket of many voxels is
+// counted in a dense array of its 32768 places (tp and fp per place, 512 KiB), a bucket of few has
+// its voxels' keys (v << 1 | y) collected and sorted; one more pass over the voxels fills a group.
+// The distinct probabilities are visited in descending order with the same sums as a full sort, so
+// the result is the same to the last bit; memory is at most about memory_bytes instead of 4 bytes
+// per ROI voxel.
+constexpr int kLowBits = 15;
+constexpr uint32_t kPlaces = 1u << kLowBits;
+constexpr size_t kBuckets = (0x3F800000u >> kLowBits) + 1;
+
+struct ApInput {
+  const float* prob;
+  const Mask& ref;
+  const Mask* roi;
+  int64_t z0, z1;
+};
+
+// Calls f(bits, y) for every ROI voxel of slices [z0, z1) with a probability in [0, 1]; counts the
+// others (NaN, outside [0, 1]) into *skipped when given.
+template <class F>
+void for_each_voxel(const ApInput& in, F&& f, int64_t* skipped = nullptr) {
+  const int64_t sv = in.ref.geometry().slice_voxels();
+  for (int64_t z = in.z0; z < in.z1; ++z) {
+    const float* p = in.prob + z * sv;
+    const uint8_t* r = in.ref.slice(z);
+    const uint8_t* o = in.roi ? in.roi->slice(z) : nullptr;
+    for (int64_t i = 0; i < sv; ++i) {
+      if (o && !o[i]) continue;
+      const float v = p[i] + 0.0f;  // -0 -> +0
+      if (!(v >= 0.f && v <= 1.f)) {
+        if (skipped) ++*skipped;
+        continue;
+      }
+      uint32_t bits;
+      std::memcpy(&bits, &v, 4);
+      f(bits, r[i] != 0);
+    }
+  }
+}
+
+double average_precision(const ApInput& in, const std::vector<int64_t>& bucket_n, double positives, size_t memory_bytes) {
+  constexpr size_t dense_bytes = size_t(kPlaces) * 2 * sizeof(uint64_t);
+  double ap = 0, tp = 0, fp = 0, tp_prev = 0;
+  auto visit = [&](double dtp, double dfp) {  // one distinct probability, from the highest down
+    tp += dtp;
+    fp += dfp;
+    ap += (tp - tp_prev) * (tp / (tp + fp));  // divided by the positives once, at the end
+    tp_prev = tp;
+  };
+  std::vector<int32_t> dense_slot(kBuckets, -1);
+  std::vector<uint32_t> keys;
+  std::vector<uint64_t> dense;
+  size_t hi = kBuckets;  // buckets [lo, hi) form the group
+  while (hi > 0) {
+    // the group: buckets downwards from hi - 1 while they fit (one bucket at least)
+    size_t lo = hi, bytes = 0, n_keys = 0, n_dense = 0;
+    while (lo > 0) {
+      const size_t n = size_t(bucket_n[lo - 1]);
+      const size_t cost = std::min(n * sizeof(uint32_t), dense_bytes);
+      if (n > 0 && bytes > 0 && bytes + cost > memory_bytes) break;
+      bytes += cost;
+      --lo;
+      if (n * sizeof(uint32_t) > dense_bytes) dense_slot[lo] = int32_t(n_dense++);
+      else n_keys += n;
+    }
+    if (bytes == 0) break;  // only empty buckets left
+    keys.clear();
+    keys.reserve(n_keys);
+    dense.assign(n_dense * kPlaces * 2, 0);
+    for_each_voxel(in, [&](uint32_t bits, bool y) {
+      const size_t b = bits >> kLowBits;
+      if (b < lo || b >= hi) return;
+      if (dense_slot[b] >= 0) ++dense[(size_t(dense_slot[b]) * kPlaces + (bits & (kPlaces - 1))) * 2 + y];
+      else keys.push_back(bits << 1 | uint32_t(y));
+    });
+    std::sort(keys.begin(), keys.end());
+    size_t j = keys.size();
+    for (size_t b = hi; b-- > lo;) {
+      if (dense_slot[b] >= 0) {
+        const uint64_t* d = dense.data() + size_t(dense_slot[b]) * kPlaces * 2;
+        for (size_t k = kPlaces; k-- > 0;)
+          if (d[2 * k] | d[2 * k + 1]) visit(double(d[2 * k + 1]), double(d[2 * k]));
+        continue;
+      }
+      while (j > 0 && (keys[j - 1] >> 1 >> kLowBits) == b) {
+        const uint32_t value = keys[j - 1] >> 1;
+        double dtp = 0, dfp = 0;
+        while (j > 0 && (keys[j - 1] >> 1) == value) {
+          (keys[j - 1] & 1u ? dtp : dfp) += 1;
+          --j;
+        }
+        visit(dtp, dfp);
+      }
+    }
+    hi = lo;
+  }
+  return ap / positives;
+}
+
+}  // namespace
+
 ProbabilityMetrics probability_metrics(const VolumeF& prob, const Mask& ref, const Mask* roi, int64_t z0, int64_t z1,
                                        double chosen_threshold, int ece_bins) {
-  if (!prob.geometry().same_dims(ref.geometry()) || (roi && !roi->geometry().same_dims(ref.geometry())))
-    throw InputError("probability metrics: the probability map, reference and ROI differ in dims (" +
+  if (!prob.geometry().same_dims(ref.geometry()))
+    throw InputError("probability metrics: the probability map and the reference differ in dims (" +
                      describe(prob.geometry()) + " vs " + describe(ref.geometry()) + ")");
+  return probability_metrics(prob.data(), ref, roi, z0, z1, chosen_threshold, ece_bins);
+}
+
+ProbabilityMetrics probability_metrics(const float* prob, const Mask& ref, const Mask* roi, int64_t z0, int64_t z1,
+                                       double chosen_threshold, int ece_bins, size_t ap_memory_bytes) {
+  if (roi && !roi->geometry().same_dims(ref.geometry()))
+    throw InputError("probability metrics: the ROI and the reference differ in dims (" + describe(roi->geometry()) +
+                     " vs " + describe(ref.geometry()) + ")");
   if (ece_bins < 1) throw InputError("probability metrics: ece_bins must be >= 1");
   const int64_t nz = ref.nz();
   if (z1 < 0 || z1 > nz) z1 = nz;
@@ -39,40 +154,27 @@ ProbabilityMetrics probability_metrics(const VolumeF& prob, const Mask& ref, con
   for (int i = 0; i <= ece_bins; ++i) edges[size_t(i)] = double(i) * (1.0 / double(ece_bins));
   edges.back() = 1.0;
 
-  // keys: the probability's bits (monotone for p >= 0) shifted left, the reference bit below
-  std::vector<uint32_t> keys;
+  std::vector<int64_t> bucket_n(kBuckets, 0);  // voxels per bucket of the average precision
   std::vector<int64_t> tp_at(nt, 0), fp_at(nt, 0);
   std::vector<int64_t> bin_n(size_t(ece_bins), 0), bin_pos(size_t(ece_bins), 0);
   std::vector<double> bin_sum(size_t(ece_bins), 0);
   long double brier = 0;
-  const int64_t sv = ref.geometry().slice_voxels();
-  for (int64_t z = z0; z < z1; ++z) {
-    const float* p = prob.slice(z);
-    const uint8_t* r = ref.slice(z);
-    const uint8_t* o = roi ? roi->slice(z) : nullptr;
-    for (int64_t i = 0; i < sv; ++i) {
-      if (o && !o[i]) continue;
-      const float v = p[i] + 0.0f;  // -0 -> +0
-      if (!(v >= 0.f && v <= 1.f)) {
-        ++m.nonfinite;
-        continue;
-      }
-      const bool y = r[i] != 0;
-      ++m.voxels;
-      m.positives += y;
-      uint32_t bits;
-      std::memcpy(&bits, &v, 4);
-      keys.push_back(bits << 1 | uint32_t(y));
-      const double d = double(v) - (y ? 1.0 : 0.0);
-      brier += d * d;
-      // thresholds: every t <= v counts v as pore
-      for (size_t k = 0; k < nt && v >= tf[k]; ++k) (y ? tp_at[k] : fp_at[k])++;
-      const size_t b = size_t(std::lower_bound(edges.begin() + 1, edges.end() - 1, double(v)) - (edges.begin() + 1));
-      ++bin_n[b];
-      bin_pos[b] += y;
-      bin_sum[b] += double(v);
-    }
-  }
+  const ApInput in{prob, ref, roi, z0, z1};
+  for_each_voxel(in, [&](uint32_t bits, bool y) {
+    float v;
+    std::memcpy(&v, &bits, 4);
+    ++m.voxels;
+    m.positives += y;
+    ++bucket_n[bits >> kLowBits];
+    const double d = double(v) - (y ? 1.0 : 0.0);
+    brier += d * d;
+    // thresholds: every t <= v counts v as pore
+    for (size_t k = 0; k < nt && v >= tf[k]; ++k) (y ? tp_at[k] : fp_at[k])++;
+    const size_t b = size_t(std::lower_bound(edges.begin() + 1, edges.end() - 1, double(v)) - (edges.begin() + 1));
+    ++bin_n[b];
+    bin_pos[b] += y;
+    bin_sum[b] += double(v);
+  }, &m.nonfinite);
   const double n = double(m.voxels), pos = double(m.positives);
   for (size_t k = 0; k < nt; ++k) {
     const double tp = double(tp_at[k]), fp = double(fp_at[k]), fn = pos - tp;
@@ -80,23 +182,7 @@ ProbabilityMetrics probability_metrics(const VolumeF& prob, const Mask& ref, con
     m.porosity_bias_pp_at.push_back(m.voxels > 0 ? 100.0 * (tp + fp - pos) / n : NAN);
   }
   m.brier_score = m.voxels > 0 ? double(brier / (long double)(n)) : NAN;
-  // average precision: distinct probabilities from the highest down
-  std::sort(keys.begin(), keys.end());
-  if (m.positives == 0) {
-    m.average_precision = NAN;
-  } else {
-    double ap = 0, tp = 0, fp = 0, tp_prev = 0;
-    for (size_t j = keys.size(); j > 0;) {
-      const uint32_t value = keys[j - 1] >> 1;
-      while (j > 0 && (keys[j - 1] >> 1) == value) {
-        (keys[j - 1] & 1u ? tp : fp) += 1;
-        --j;
-      }
-      ap += (tp - tp_prev) * (tp / (tp + fp));  // divided by the positives once, at the end
-      tp_prev = tp;
-    }
-    m.average_precision = ap / pos;
-  }
+  m.average_precision = m.positives == 0 ? NAN : average_precision(in, bucket_n, pos, ap_memory_bytes);
   double ece = 0;
   for (int b = 0; b < ece_bins; ++b) {
     if (bin_n[size_t(b)] == 0) continue;

@@ -7,7 +7,8 @@
 //  - threshold curve: Jaccard and porosity bias (pp of the ROI voxels) at t = 0.05, 0.10, ..., 0.95,
 //    pore = p >= t (float32 comparison, as the methods binarise); the method's chosen threshold kept
 //  - average precision: sum over distinct probabilities in descending order of (R_n - R_{n-1}) P_n,
-//    exact (every voxel sorted), as scikit-learn's average_precision_score;
+//    exact (every distinct probability visited), as scikit-learn's average_precision_score; bounded
+//    memory (probability.cpp: buckets of the float bits, a few passes) instead of a sort of every voxel;
 //    Zhu M. (2004) Recall, precision and average precision. Tech. rep. 2004-09, Univ. Waterloo
 //  - Brier score: mean (p - y)^2; Brier G.W. (1950) Monthly Weather Review 78:1-3
 //  - expected calibration error: sum_b n_b / N |fraction positive_b - mean p_b| over 10 uniform bins
@@ -41,6 +42,12 @@ struct ProbabilityMetrics {
 // z1 < 0: to the last slice. prob, ref and roi (when given) have the same dims.
 ProbabilityMetrics probability_metrics(const VolumeF& prob, const Mask& ref, const Mask* roi, int64_t z0, int64_t z1,
                                        double chosen_threshold, int ece_bins = 10);
+// The same on a map held elsewhere: `prob` holds ref's voxel count in porebench's layout.
+// ap_memory_bytes bounds the average precision's working memory (more passes when smaller; the
+// result does not depend on it).
+constexpr size_t kApMemoryBytes = size_t(64) << 20;
+ProbabilityMetrics probability_metrics(const float* prob, const Mask& ref, const Mask* roi, int64_t z0, int64_t z1,
+                                       double chosen_threshold, int ece_bins = 10, size_t ap_memory_bytes = kApMemoryBytes);
 
 // The "probability" block of a score record (keys in metric_table order first).
 nlohmann::ordered_json to_json(const ProbabilityMetrics& m);

@@ -6,7 +6,8 @@ set -euo pipefail
 build=(cmake g++ make pkg-config zlib1g-dev
        libinsighttoolkit5-dev libopencv-dev libeigen3-dev libfftw3-dev
        libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev libboost-dev
-       libssl-dev libtorch-dev)
+       libssl-dev libtorch-dev
+       pybind11-dev python3-dev python3-numpy)  # the Python module (python/), built for /usr/bin/python3
 tests=(python3-skimage python3-scipy python3-sklearn python3-statsmodels python3-pandas python3-numpy python3-markdown chromium
        python3-torch clang libfuzzer-14-dev libomp-dev  # clang, libFuzzer, OpenMP for clang: fuzz/ci.sh
        slurm-wlm munge)  # a single-node Slurm for tests/slurm (shards as a job array)

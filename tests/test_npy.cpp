@@ -153,8 +153,16 @@ TEST_CASE("npy: bad files are InputErrors naming file and field, before allocati
   expect_error("header-cut.npy", good.substr(0, 40), "is truncated");
   expect_error("magic.npy", "\x93NUMPZ" + good.substr(6) + data, "magic");
   expect_error("version.npy", good.substr(0, 6) + "\x04" + good.substr(7) + data, "format version 4.0");
-  expect_error("f8.npy", v1("{'descr': '<f8', 'fortran_order': False, 'shape': (2, 3, 4), }") + data + data,
-               "descr '<f8'");
+  expect_error("i8.npy", v1("{'descr': '<i8', 'fortran_order': False, 'shape': (2, 3, 4), }") + data + data,
+               "descr '<i8'");
+  {  // float64 beyond float32's range (1e300): refused naming the value
+    double big[24] = {};
+    big[5] = 1e300;
+    expect_error("f8-huge.npy",
+                 v1("{'descr': '<f8', 'fortran_order': False, 'shape': (2, 3, 4), }") +
+                     std::string(reinterpret_cast<const char*>(big), sizeof(big)),
+                 "float64 value 1.0000000000000001e+300 is beyond float32's range");
+  }
   expect_error("struct.npy", v1("{'descr': [('a', '<u2')], 'fortran_order': False, 'shape': (2, 3, 4), }") + data,
                "structured");
   expect_error("axes.npy", v1("{'descr': '<u2', 'fortran_order': False, 'shape': (2, 3, 4, 1), }") + data,
@@ -207,4 +215,40 @@ TEST_CASE("npy: score takes a .npy prediction's geometry from the reference", "[
   CHECK(c.exit_code == 2);
   CHECK_THAT(c.err, Catch::Contains("--spacing"));
   CHECK_FALSE(fs::exists(d / "pred.mha"));
+}
+
+TEST_CASE("npy: float64 is read as float32 as numpy rounds it", "[npy]") {
+  // numpy (tests/ref/npy_numpy.py f8) writes float64 volumes (both byte orders, C and Fortran order)
+  // and its own astype(np.float32) of each; porebench must read the first exactly as the second,
+  // and tell that values were rounded (the read note).
+  pbtest::TempDir d;
+  const auto w = pbtest::run_ref_script("npy_numpy.py", "f8 " + d / "np");
+  INFO(w.out << w.err);
+  REQUIRE(w.exit_code == 0);
+  std::vector<std::string> notes;
+  set_read_note([&](const std::string& m) { notes.push_back(m); });
+  for (const std::string name : {"le_C", "le_F", "be_C", "be_F"}) {
+    INFO(name);
+    notes.clear();
+    const AnyVolume v = read_volume(d / ("np/f8_" + name + ".npy"));
+    const AnyVolume want = read_volume(d / ("np/as32_" + name + ".npy"));
+    REQUIRE(v.type() == VoxelType::f32);
+    CHECK(v.geometry().dims == std::array<int64_t, 3>{3, 4, 5});
+    CHECK(std::memcmp(v.raw(), want.raw(), want.bytes()) == 0);
+    REQUIRE(notes.size() == 1);
+    CHECK_THAT(notes[0], Catch::Contains("58 of 60 float64 values are not exactly float32"));
+  }
+  set_read_note({});
+  // numbers that float32 holds exactly: no note; NaN goes to the non-finite check of read_volume
+  double exact[8] = {0.5, -2, 0, 1, 0.25, 3, 1024, -0.125};
+  const std::string h = v1("{'descr': '<f8', 'fortran_order': False, 'shape': (2, 4), }");
+  write_bytes(d / "exact.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
+  notes.clear();
+  set_read_note([&](const std::string& m) { notes.push_back(m); });
+  CHECK(at(read_volume(d / "exact.npy"), 6) == 1024.0);
+  CHECK(notes.empty());
+  exact[3] = NAN;
+  write_bytes(d / "nan.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
+  CHECK_THROWS_WITH(read_volume(d / "nan.npy"), Catch::Contains("1 non-finite voxel"));
+  set_read_note({});
 }

@@ -12,6 +12,21 @@
 
 using namespace pb;
 
+namespace {
+// scikit-learn's figures on the ROI voxels of slices [z0, z1) (tests/ref/probability_sklearn.py).
+nlohmann::json sklearn_reference(const VolumeF& prob, const Mask& ref, const Mask& roi, int64_t z0, int64_t z1) {
+  pbtest::TempDir d;
+  write_volume(prob, d / "p.npy");
+  write_volume(ref, d / "r.npy");
+  write_volume(roi, d / "o.npy");
+  const auto r = pbtest::run_ref_script("probability_sklearn.py", d / "p.npy" + " " + d / "r.npy" + " " + d / "o.npy" +
+                                                                      " " + std::to_string(z0) + " " + std::to_string(z1));
+  INFO(r.err);
+  REQUIRE(r.exit_code == 0);
+  return nlohmann::json::parse(r.out);
+}
+}  // namespace
+
 TEST_CASE("probability metrics equal scikit-learn's on the same voxels", "[probability]") {
   const Geometry g = pbtest::cube(24, 0.05);
   VolumeF prob(g, 0.f);
@@ -31,16 +46,8 @@ TEST_CASE("probability metrics equal scikit-learn's on the same voxels", "[proba
         if (kind == 1) p = float(int(p * 10.f)) / 10.f;                 // 0.1, 0.2 ... exactly (float32)
         prob(x, y, z) = std::min(1.f, std::max(0.f, p));
       }
-  pbtest::TempDir d;
-  write_volume(prob, d / "p.npy");
-  write_volume(ref, d / "r.npy");
-  write_volume(roi, d / "o.npy");
   const int64_t z0 = 3, z1 = 20;
-  const auto r = pbtest::run_ref_script("probability_sklearn.py", d / "p.npy" + " " + d / "r.npy" + " " + d / "o.npy" +
-                                                                      " " + std::to_string(z0) + " " + std::to_string(z1));
-  INFO(r.err);
-  REQUIRE(r.exit_code == 0);
-  const auto sk = nlohmann::json::parse(r.out);
+  const auto sk = sklearn_reference(prob, ref, roi, z0, z1);
   const ProbabilityMetrics m = probability_metrics(prob, ref, &roi, z0, z1, 0.5);
   REQUIRE(m.voxels == sk["voxels"].get<int64_t>());
   REQUIRE(m.positives == sk["positives"].get<int64_t>());
@@ -94,4 +101,34 @@ TEST_CASE("probability metrics: analytic cases", "[probability]") {
   CHECK(std::isnan(m.average_precision));
   CHECK(to_json(m)["average_precision"].is_null());
   CHECK(m.brier_score == Approx(0.25));
+}
+
+TEST_CASE("average precision in bounded memory equals scikit-learn's", "[probability]") {
+  // 64^3 voxels, 60 % of them exactly 0 (one bucket of the float bits above the dense limit of
+  // 131072 voxels), many distinct values close together (several per bucket) and ties; the working
+  // memory from 1 byte (one bucket per pass) to the default. Reference: scikit-learn's
+  // average_precision_score (tests/ref/probability_sklearn.py) on the same voxels.
+  const Geometry g = pbtest::cube(64, 0.05);
+  Mask roi(g, 1), ref(g, 0);
+  VolumeF prob(g, 0.f);
+  std::mt19937 rng(23);
+  auto u = [&rng] { return std::uniform_real_distribution<float>(0.f, 1.f)(rng); };
+  for (int64_t i = 0; i < prob.size(); ++i) {
+    const bool pore = u() < 0.2f;
+    ref[i] = pore;
+    const float w = u();
+    float p = 0.f;
+    if (w >= 0.6f) p = pore ? 0.3f + 0.0001f * float(int(u() * 500)) : 0.3f + 0.0001f * float(int(u() * 300));
+    if (w >= 0.9f) p = pore ? u() : 0.5f * u();
+    prob[i] = p;
+  }
+  const double sk = sklearn_reference(prob, ref, roi, 0, 64)["average_precision"].get<double>();
+  const double full = probability_metrics(prob, ref, &roi, 0, -1, 0.5).average_precision;
+  CHECK(full == Approx(sk).epsilon(1e-12));
+  for (size_t bytes : {size_t(1), size_t(4096), size_t(1) << 20}) {
+    INFO("working memory " << bytes << " bytes");
+    const double ap = probability_metrics(prob.data(), ref, &roi, 0, -1, 0.5, 10, bytes).average_precision;
+    CHECK(ap == full);  // the same sums in the same order, whatever the passes
+    CHECK(ap == Approx(sk).epsilon(1e-12));
+  }
 }

@@ -229,11 +229,13 @@ run_folder("run-no-cells", cells=False)
 run_folder("run-corrupt-cell", bad_cell=True)
 run_folder("run-mixed", foreign=True)
 run_folder("run-no-suite-json", suite_json=False)
-# .npy (numpy.lib.format, written by numpy itself, then broken): data cut short; a dtype not read
+# .npy (numpy.lib.format, written by numpy itself, then broken): data cut short; a float64 beyond float32
 np.save(p("npy-full.npy"), scan(8, np.float32))
 with open(p("npy-full.npy"), "rb") as f:
     full = f.read()
 write("truncated.npy", full[:-5])
 os.remove(p("npy-full.npy"))
-np.save(p("float64.npy"), scan(8, np.float64))
+huge = scan(8, np.float64)  # float64 is read as float32; 1e300 does not fit (float32 max ~3.4e38)
+huge[4, 4, 4] = 1e300
+np.save(p("float64-huge.npy"), huge)
 print("wrote the bad-input catalogue inputs into", W)

@@ -5,6 +5,10 @@ python3-numpy), the format's own implementation.
   npy_numpy.py write DIR   every dtype porebench reads (|u1 |b1 u2 i2 f4), C and Fortran order,
                            little and big endian, format versions 1.0, 2.0, 3.0, 3-D (z, y, x)
                            and 2-D (y, x); values from value() below, so the C++ side knows them.
+  npy_numpy.py f8 DIR      float64 (numpy's default dtype) volumes, little and big endian, C and
+                           Fortran order (f8_*.npy), values float32 cannot hold exactly, and beside
+                           each numpy's own float32 rounding of it (astype(np.float32), round to
+                           nearest even) as as32_*.npy: porebench must read the first as the second.
   npy_numpy.py check FILE DTYPE [NZ NY NX]
                            np.load(FILE) must equal value() exactly, with that dtype and shape;
                            prints "ok" or exits 1 with the difference."""
@@ -55,6 +59,21 @@ def write(folder):
     print("wrote", n + 1)
 
 
+def write_f8(folder):
+    os.makedirs(folder, exist_ok=True)
+    z, y, x = np.indices((5, 4, 3))
+    base = (x + 10 * y + 100 * z) * 0.1 + 1.0 / 3.0  # 0.1 and 1/3 are not float32 numbers
+    base[0, 0, 0], base[0, 0, 1] = 0.5, -2.0         # two exact ones
+    for endian in "<>":
+        for order in "CF":
+            a = base.astype(endian + "f8")
+            a = np.asfortranarray(a) if order == "F" else np.ascontiguousarray(a)
+            name = "%s_%s.npy" % ({"<": "le", ">": "be"}[endian], order)
+            np.save(os.path.join(folder, "f8_" + name), a)
+            np.save(os.path.join(folder, "as32_" + name), np.ascontiguousarray(a.astype(np.float32)))
+    print("wrote", 8)
+
+
 def check(path, dtype, shape):
     a = np.load(path)
     want = value(dtype, shape)
@@ -72,5 +91,7 @@ def check(path, dtype, shape):
 if __name__ == "__main__":
     if sys.argv[1] == "write":
         write(sys.argv[2])
+    elif sys.argv[1] == "f8":
+        write_f8(sys.argv[2])
     else:
         check(sys.argv[2], sys.argv[3], tuple(int(s) for s in sys.argv[4:]))

@@ -1,0 +1,20 @@
+#!/usr/bin/env bash
+# The installable library: `cmake --install BUILD --prefix P` into a temporary prefix, then a tiny
+# consumer (tests/install/consumer) configured with find_package(porebench), built and run.
+# Usage: test_install.sh BUILD_DIR WORK_DIR
+set -euo pipefail
+build=$1 work=$2
+here=$(cd "$(dirname "$0")" && pwd)
+rm -rf "$work"
+mkdir -p "$work"
+cmake --install "$build" --prefix "$work/prefix" >"$work/install.log"
+for f in lib/libporebench.so include/porebench/metrics/score.hpp include/porebench/core/volume.hpp \
+         lib/cmake/porebench/porebenchConfig.cmake lib/cmake/porebench/porebenchConfigVersion.cmake; do
+  [ -e "$work/prefix/$f" ] || { echo "test_install: $f not installed" >&2; exit 1; }
+done
+launcher=()
+command -v ccache >/dev/null && launcher=(-DCMAKE_CXX_COMPILER_LAUNCHER=ccache)
+cmake -S "$here/consumer" -B "$work/consumer" -DCMAKE_PREFIX_PATH="$work/prefix" -DCMAKE_BUILD_TYPE=Release \
+      "${launcher[@]}" >"$work/configure.log" 2>&1 || { cat "$work/configure.log"; exit 1; }
+cmake --build "$work/consumer" >"$work/build.log" 2>&1 || { cat "$work/build.log"; exit 1; }
+"$work/consumer/consumer"
