@@ -1,6 +1,6 @@
 // porebench convert IN -o OUT: brings a scan into a format that keeps its geometry. Reads what
-// read_volume reads (MetaImage, NRRD, NIfTI, TIFF files and folders of TIFF slices, raw with
-// --raw-*); writes only formats that store the spacing (.mha/.mhd, .nrrd/.nhdr, .nii/.nii.gz).
+// read_volume reads (MetaImage, NRRD, NIfTI, TIFF files and folders of TIFF slices, DICOM/DICONDE
+// series folders and files, raw with --raw-*); writes only formats that store the spacing (.mha/.mhd, .nrrd/.nhdr, .nii/.nii.gz).
 // TIFF, .npy and raw inputs carry no trustworthy voxel size: --spacing is required for them.
 #include <filesystem>
 #include <iostream>
@@ -12,20 +12,16 @@
 namespace pb::cli {
 namespace {
 
-bool spacing_unknown(const std::string& path) {
-  const std::string ext = lower_extension(path);
-  return std::filesystem::is_directory(path) || ext == ".tif" || ext == ".tiff" || ext == ".raw" || ext == ".npy" || ext.empty();
-}
-
 Action setup_convert(CLI::App& app) {
-  app.description("convert a volume (raw, TIFF file or folder, MetaImage, NRRD, NIfTI) to .mha, .nrrd or .nii(.gz)");
+  app.description("convert a volume (raw, TIFF file or folder, DICOM series folder or file, MetaImage, NRRD, NIfTI) "
+                  "to .mha, .nrrd or .nii(.gz)");
   struct Args {
     std::string input, output;
     bool compress = false;
     ReadArgs read;
   };
   auto a = std::make_shared<Args>();
-  app.add_option("IN", a->input, "volume file or folder of TIFF slices")->required();
+  app.add_option("IN", a->input, "volume file, folder of TIFF slices or DICOM series folder")->required();
   app.add_option("-o,--output", a->output, "file to write: .mha/.mhd, .nrrd/.nhdr or .nii/.nii.gz (they keep the spacing)")
       ->required();
   app.add_flag("--compress", a->compress, "zlib compression (MetaImage, NRRD)");

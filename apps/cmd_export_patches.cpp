@@ -1,7 +1,8 @@
 // porebench export-patches SUITE -o DIR: training data for a segmentation model from the
 // CALIBRATION slices of a suite's datasets only (never the test slices, which judge the model):
-// for each dataset and scan, tiles of the scan (with `slices` adjacent z-slices as context) and
-// of the reference pore mask, as .npy arrays, listed in DIR/index.csv (written last).
+// for each dataset and scan (every fast scan of a paired series, read with its own geometry, the
+// reference registered onto it as in a run), tiles of the scan (with `slices` adjacent z-slices as
+// context) and of the reference pore mask, as .npy arrays, listed in DIR/index.csv (written last).
 #include <cmath>
 #include <fstream>
 #include <filesystem>
@@ -15,96 +16,26 @@
 #include "core/io.hpp"
 #include "core/sha256.hpp"
 #include "methods/neural.hpp"
+#include "suites/datasets.hpp"
+#include "suites/layout.hpp"
+#include "suites/paired.hpp"
 #include "suites/suite.hpp"
-#include "synthetic/recipe.hpp"
-#include "synthetic/scan.hpp"
-#include "synthetic/synth.hpp"
 
 namespace pb::cli {
 namespace {
 
 namespace fs = std::filesystem;
 
-std::string token(const std::string& s) {
-  std::string t;
-  for (char c : s) t += std::isalnum(static_cast<unsigned char>(c)) || c == '-' || c == '_' ? c : '-';
-  return t;
-}
-
-// A dataset ready for export: its scans, reference and part masks, and calibration slices.
-// The split follows the runner's rule (suites/runner.cpp split_slices: calibration slices at the
-// bottom of the part, `fraction` of its z-span); to be replaced by suites/datasets when it lands.
-struct ExportData {
-  std::string name, ref_mask_path, part_mask_path;
-  struct Scan { std::string scan, path; int projections = 0; bool reference = false; };
-  std::vector<Scan> scans;
-  int64_t cal_begin = 0, cal_end = 0;
-};
-
-std::string read_text(const std::string& path) {
-  std::ifstream f(path);
-  std::stringstream ss;
-  ss << f.rdbuf();
-  return ss.str();
-}
-
-ExportData prepare(const suite::DatasetSpec& d, const suite::Calibration& c, const std::string& out) {
-  ExportData e;
-  e.name = d.name;
-  if (d.kind != suite::DatasetSpec::synthetic) {
-    if (d.reference_mask.empty())
-      throw InputError("dataset '" + d.name + "': export-patches needs a reference_mask for a paired dataset");
-    e.ref_mask_path = d.reference_mask;
-    e.part_mask_path = d.part_mask;
-    e.scans.push_back({"scan", d.scan, d.projections, false});
-  } else {
-    synth::Recipe r = d.preset.empty() ? synth::load_recipe(d.recipe) : synth::preset(d.preset);
-    try {
-      r = synth::apply_overrides(r, d.overrides);
-      synth::validate(r);
-    } catch (const InputError& x) {
-      throw InputError("dataset '" + d.name + "': " + x.what());
-    }
-    const std::string dir = (fs::path(out) / "data" / token(d.name)).string();
-    const std::string text = synth::to_toml(r);
-    if (!(fs::exists(dir + "/manifest.json") && read_text(dir + "/recipe.toml") == text)) {
-      fs::create_directories(dir);
-      log("porebench: synthesising dataset '" + d.name + "' into " + dir);
-      synth::write_synth(r, dir);
-    }
-    const bool dose_series = r.i0.size() > 1;
-    for (const auto& s : synth::scan_list(r))
-      e.scans.push_back({fs::path(s.file_name(dose_series)).stem().string(), dir + "/" + s.file_name(dose_series),
-                         s.projections, s.reference});
-    e.part_mask_path = dir + "/part-mask.mha";
-    e.ref_mask_path = dir + "/reference-pores.mha";
-    write_volume(read_volume(dir + "/truth-labels.mha").to_mask(2), e.ref_mask_path, {true});  // closed pores
-  }
-  const Mask part = e.part_mask_path.empty() ? Mask() : read_volume(e.part_mask_path).to_mask();
-  int64_t z0 = 0, z1 = -1;
-  const int64_t nz = part.empty() ? read_volume(e.ref_mask_path).geometry().dims[2] : part.nz();
-  if (part.empty()) z1 = nz - 1;
-  else {
-    z0 = nz;
-    for (int64_t z = 0; z < nz; ++z)
-      for (int64_t i = 0; i < part.geometry().slice_voxels(); ++i)
-        if (part.slice(z)[i]) {
-          z0 = std::min(z0, z), z1 = std::max(z1, z);
-          break;
-        }
-    if (z1 < z0) throw InputError("dataset '" + d.name + "': the part mask " + e.part_mask_path + " is empty");
-  }
-  e.cal_begin = z0;
-  e.cal_end = z0 + std::max<int64_t>(1, int64_t(std::lround(c.fraction * double(z1 - z0 + 1))));
-  return e;
-}
-
-int64_t mirror_index(int64_t i, int64_t n) {
-  if (n == 1) return 0;
-  const int64_t period = 2 * (n - 1);
-  i %= period;
-  if (i < 0) i += period;
-  return i < n ? i : period - i;
+// A dataset made ready as a suite run makes it (suites/datasets.hpp): synthesised, or for a paired
+// dataset every fast scan of the series with its own geometry, the reference brought onto its grid
+// and its own calibration slices. A paired dataset needs a reference_mask (training on one
+// method's segmentation would teach that method).
+suite::Dataset prepare(const suite::DatasetSpec& d, const suite::Calibration& c, const std::string& out) {
+  if (d.kind != suite::DatasetSpec::synthetic && d.reference_mask.empty())
+    throw InputError("dataset '" + d.name + "': export-patches needs a reference_mask for a paired dataset");
+  suite::Dataset p = suite::describe_dataset(d, out);
+  suite::prepare_dataset(p, c, out, [](const std::string& m) { log("porebench: " + m); });
+  return p;
 }
 
 Action setup_export_patches(CLI::App& app) {
@@ -142,46 +73,55 @@ Action setup_export_patches(CLI::App& app) {
     int64_t total = 0;
     const int64_t t = a->tile, ns = a->slices;
     for (const auto& spec : s.datasets) {
-      const ExportData d = prepare(spec, s.calibration, a->out);
-      const Mask ref = read_volume(d.ref_mask_path).to_mask();
-      const Mask part = d.part_mask_path.empty() ? Mask() : read_volume(d.part_mask_path).to_mask();
-      const int64_t nx = ref.nx(), ny = ref.ny(), nz = ref.nz();
+      if (spec.kind == suite::DatasetSpec::paired) suite::preflight_paired(spec);  // every file, before any work
+    }
+    for (const auto& spec : s.datasets) {
+      const suite::Dataset d = prepare(spec, s.calibration, a->out);
       nlohmann::ordered_json drec = {{"name", d.name}, {"calibration_slices", {d.cal_begin, d.cal_end}},
                                      {"scans", nlohmann::ordered_json::array()}};
-      // Patch positions: calibration slices only, every N-th, tiles inside the part.
-      struct Pos { int64_t z, y, x; };
-      std::vector<Pos> pos;
-      for (int64_t z = d.cal_begin; z < d.cal_end; z += a->every)
-        for (int64_t y = 0; y + t <= ny; y += t)
-          for (int64_t x = 0; x + t <= nx; x += t) {
-            int64_t in = t * t;
-            if (!part.empty()) {
-              in = 0;
-              for (int64_t j = 0; j < t; ++j)
-                for (int64_t i = 0; i < t; ++i) in += part(x + i, y + j, z) != 0;
-            }
-            if (double(in) >= a->min_part * double(t * t)) pos.push_back({z, y, x});
-          }
-      for (const auto& v : d.scans) {
+      for (const auto& v : d.variants) {
         const bool want = a->scans == "all" ? true : a->scans == "sparse" ? !v.reference
                           : ("," + a->scans + ",").find("," + v.scan + ",") != std::string::npos;
-        if (!want || pos.empty()) continue;
-        const VolumeF scan = read_volume(v.path).to_float();
+        if (!want) continue;
+        if (!v.error.empty()) {  // e.g. a registration that failed: no reference on this scan
+          log("porebench: warning: dataset '" + d.name + "', scan '" + v.scan + "' skipped: " + v.error);
+          drec["scans"].push_back({{"scan", v.scan}, {"path", v.path}, {"skipped", v.error}});
+          continue;
+        }
+        const Mask ref = read_volume(v.ref_mask_path).to_mask();
+        const Mask part = v.part_mask_path.empty() ? Mask() : read_volume(v.part_mask_path).to_mask();
+        const int64_t nx = ref.nx(), ny = ref.ny(), nz = ref.nz();
+        // Patch positions: this scan's calibration slices only, every N-th, tiles inside the part.
+        struct Pos { int64_t z, y, x; };
+        std::vector<Pos> pos;
+        for (int64_t z = v.split.cal_begin; z < v.split.cal_end; z += a->every)
+          for (int64_t y = 0; y + t <= ny; y += t)
+            for (int64_t x = 0; x + t <= nx; x += t) {
+              int64_t in = t * t;
+              if (!part.empty()) {
+                in = 0;
+                for (int64_t j = 0; j < t; ++j)
+                  for (int64_t i = 0; i < t; ++i) in += part(x + i, y + j, z) != 0;
+              }
+              if (double(in) >= a->min_part * double(t * t)) pos.push_back({z, y, x});
+            }
+        if (pos.empty()) continue;
+        const VolumeF scan = read_volume(v.path, v.read).to_float();  // the file's own geometry (raw, spacing_mm)
         if (!scan.geometry().same_dims(ref.geometry()))
-          throw InputError("dataset '" + d.name + "': scan " + v.path + " and reference " + d.ref_mask_path + " differ in dims");
+          throw InputError("dataset '" + d.name + "': scan " + v.path + " and reference " + v.ref_mask_path + " differ in dims");
         std::vector<float> xs(pos.size() * size_t(ns * t * t));
         std::vector<uint8_t> ms(pos.size() * size_t(t * t));
         for (size_t k = 0; k < pos.size(); ++k) {
           const Pos& p = pos[k];
           for (int64_t c = 0; c < ns; ++c) {
-            const int64_t z = mirror_index(p.z + c - ns / 2, nz);
+            const int64_t z = mirror_index(p.z + c - ns / 2, nz);  // methods/neural.hpp, as inference pads
             for (int64_t j = 0; j < t; ++j)
               for (int64_t i = 0; i < t; ++i) xs[(k * size_t(ns) + size_t(c)) * size_t(t * t) + size_t(j * t + i)] = scan(p.x + i, p.y + j, z);
           }
           for (int64_t j = 0; j < t; ++j)
             for (int64_t i = 0; i < t; ++i) ms[k * size_t(t * t) + size_t(j * t + i)] = ref(p.x + i, p.y + j, p.z) ? 1 : 0;
         }
-        const std::string stem = token(d.name) + "-" + token(v.scan);
+        const std::string stem = suite::file_token(d.name) + "-" + suite::file_token(v.scan);
         write_npy((fs::path(a->out) / (stem + "-scans.npy")).string(), {int64_t(pos.size()), ns, t, t}, xs.data());
         write_npy((fs::path(a->out) / (stem + "-masks.npy")).string(), {int64_t(pos.size()), t, t}, ms.data());
         for (size_t k = 0; k < pos.size(); ++k) {
@@ -191,7 +131,8 @@ Action setup_export_patches(CLI::App& app) {
                 << k << ',' << pos[k].z << ',' << pos[k].y << ',' << pos[k].x << ',' << pores << '\n';
         }
         total += int64_t(pos.size());
-        drec["scans"].push_back({{"scan", v.scan}, {"path", v.path}, {"projections", v.projections}, {"patches", pos.size()}});
+        drec["scans"].push_back({{"scan", v.scan}, {"path", v.path}, {"projections", v.projections},
+                                 {"calibration_slices", {v.split.cal_begin, v.split.cal_end}}, {"patches", pos.size()}});
       }
       record["datasets"].push_back(drec);
     }

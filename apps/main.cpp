@@ -57,7 +57,7 @@ ReadOptions ReadArgs::options(const std::string& input) const {
   if (!spacing.empty()) o.spacing_mm = std::array<double, 3>{spacing[0], spacing[1], spacing[2]};
   const std::string ext = lower_extension(input);
   std::error_code ec;
-  if (!raw && spacing.empty() && (ext == ".tif" || ext == ".tiff" || std::filesystem::is_directory(input, ec)))
+  if (!raw && spacing.empty() && (ext == ".tif" || ext == ".tiff" || (std::filesystem::is_directory(input, ec) && !is_dicom(input))))
     log("porebench: warning: " + input + " is TIFF, which stores no z spacing: it is read with 1 mm slices (x and y "
         "from its resolution tags, else 1 mm); give --spacing X,Y,Z in mm");
   if (raw) {

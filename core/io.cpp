@@ -41,6 +41,38 @@ std::string lower_extension(const std::string& path) {
 
 namespace {
 
+bool dicom_file(const fs::path& p) {
+  if (lower_extension(p.string()) == ".dcm") return true;
+  std::ifstream f(p, std::ios::binary);
+  char mark[4] = {};
+  return f.seekg(128) && f.read(mark, 4) && std::memcmp(mark, "DICM", 4) == 0;
+}
+
+}  // namespace
+
+bool is_dicom(const std::string& path) {
+  std::error_code ec;
+  if (!fs::is_directory(path, ec)) return fs::is_regular_file(path, ec) && dicom_file(path);
+  // A folder: DICOM when its first regular files (by name) are DICOM files; TIFF slices are not.
+  std::vector<fs::path> files;
+  for (auto it = fs::directory_iterator(path, ec); !ec && it != fs::directory_iterator(); it.increment(ec))
+    if (it->is_regular_file(ec) && it->path().filename().string()[0] != '.') files.push_back(it->path());
+  std::sort(files.begin(), files.end());
+  if (files.empty()) return false;
+  for (size_t i = 0; i < std::min<size_t>(files.size(), 3); ++i)
+    if (!dicom_file(files[i])) return false;
+  return true;
+}
+
+bool spacing_unknown(const std::string& path) {
+  if (is_dicom(path)) return false;
+  std::error_code ec;
+  const std::string ext = lower_extension(path);
+  return fs::is_directory(path, ec) || ext == ".tif" || ext == ".tiff" || ext == ".raw" || ext == ".npy" || ext.empty();
+}
+
+namespace {
+
 template <class T>
 AnyVolume make_empty(const Geometry& g) {
   return AnyVolume(Image<T>(g));
@@ -129,6 +161,8 @@ AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
   AnyVolume v;
   if (opt.raw) {
     v = read_raw(path, *opt.raw);
+  } else if (is_dicom(path)) {
+    v = detail::itk_read_dicom(path);
   } else if (fs::is_directory(path)) {
     v = detail::itk_read_tiff_folder(path);
   } else {

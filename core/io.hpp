@@ -1,6 +1,7 @@
 #pragma once
 // Volume input/output. Formats by file name: MetaImage (.mha/.mhd), NRRD (.nrrd/.nhdr), NIfTI
-// (.nii/.nii.gz), TIFF (.tif/.tiff, multi-page = 3D), a folder of numbered TIFF slices, and raw
+// (.nii/.nii.gz), TIFF (.tif/.tiff, multi-page = 3D), a folder of numbered TIFF slices, DICOM and
+// DICONDE (a series folder or one file, by content), and raw
 // files whose geometry is given by a RawSpec. Writing: .mha (optionally compressed), .nrrd, and for
 // tests and interchange .nii/.nii.gz/.tif. Writes go to a temporary name and are renamed when
 // complete, so a failed command never leaves a file that looks finished.
@@ -138,9 +139,19 @@ uint64_t free_bytes_at(const std::string& path);
 
 std::string lower_extension(const std::string& path);  // ".mha", ".nii.gz", "" for none
 
+// DICOM, and DICONDE (its NDT profile, ASTM E2339: the same file format): a folder holding a DICOM
+// series (its files carry the Part 10 mark "DICM" at byte 128, or end in .dcm), or one such file
+// (multi-frame = 3D). Read through ITK's GDCM reader; spacing and orientation come from the headers.
+bool is_dicom(const std::string& path);
+
+// True for inputs whose voxel size cannot be trusted from the file: TIFF files and folders, raw
+// and .npy files, files without an extension (DICOM files and folders excepted).
+bool spacing_unknown(const std::string& path);
+
 namespace detail {  // implemented in io_itk.cpp, the only I/O unit that sees ITK
 AnyVolume itk_read(const std::string& path);
 AnyVolume itk_read_tiff_folder(const std::string& folder);
+AnyVolume itk_read_dicom(const std::string& path);  // a DICOM series folder or one DICOM file
 void itk_write(const void* data, VoxelType type, const Geometry& g, const std::string& path, bool compress);
 }  // namespace detail
 

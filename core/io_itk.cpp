@@ -1,7 +1,13 @@
 // ITK-backed volume I/O. ITK's ImageIO classes are used directly (no itk::Image pipeline), reading
 // straight into our buffer; the IO class is chosen by file name, so no IO factory registration is
-// needed. This is one of the few translation units that include ITK headers.
+// needed. DICOM (and DICONDE) series go through ITK's GDCM reader (GDCMSeriesFileNames orders the
+// slices by position, ImageSeriesReader + GDCMImageIO read them with the header geometry).
+// This is one of the few translation units that include ITK headers.
+#include <itkGDCMImageIO.h>
+#include <itkGDCMSeriesFileNames.h>
 #include <itkImageIOBase.h>
+#include <itkImageSeriesReader.h>
+#include <itkOrientImageFilter.h>
 #include <itkMetaImageIO.h>
 #include <itkNiftiImageIO.h>
 #include <itkNrrdImageIO.h>
@@ -12,6 +18,7 @@
 #include <filesystem>
 #include <map>
 #include <regex>
+#include <sstream>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
@@ -154,6 +161,102 @@ AnyVolume itk_read_tiff_folder(const std::string& folder) {
     ++z;
   }
   return out;
+}
+
+namespace {
+
+// The files of a DICOM path: one file, or the one series of a folder ordered by slice position.
+std::vector<std::string> dicom_files(const std::string& path) {
+  if (!fs::is_directory(path)) return {path};
+  auto names = itk::GDCMSeriesFileNames::New();
+  names->SetUseSeriesDetails(false);
+  names->SetDirectory(path);
+  const auto& uids = names->GetSeriesUIDs();
+  if (uids.empty()) throw InputError("DICOM folder " + path + " holds no readable DICOM series");
+  if (uids.size() > 1) {
+    std::string list;
+    for (const auto& u : uids) list += (list.empty() ? "" : ", ") + u;
+    throw InputError("DICOM folder " + path + " holds " + std::to_string(uids.size()) + " series (" + list +
+                     "); give a folder with one series");
+  }
+  return names->GetFileNames(uids.front());
+}
+
+template <class T>
+AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string& path) {
+  using Img = itk::Image<T, 3>;
+  auto reader = itk::ImageSeriesReader<Img>::New();
+  reader->SetImageIO(itk::GDCMImageIO::New());
+  reader->SetFileNames(files);
+  reader->UpdateOutputInformation();
+  const auto size = reader->GetOutput()->GetLargestPossibleRegion().GetSize();
+  // ITK's buffer and ours: twice the volume while it is copied.
+  check_memory(saturating_product({uint64_t(size[0]), uint64_t(size[1]), uint64_t(size[2]), uint64_t(2 * sizeof(T))}),
+               "DICOM input " + path + " (" + std::to_string(size[0]) + " x " + std::to_string(size[1]) + " x " +
+                   std::to_string(size[2]) + ")");
+  reader->Update();
+  typename Img::Pointer img = reader->GetOutput();
+  // Orientation from the headers: our volumes are axis-aligned with x fastest. Axis flips and
+  // permutations are undone exactly (OrientImageFilter to the identity direction, ITK's "RAI");
+  // an oblique orientation would need resampling and is refused.
+  const auto D = img->GetDirection();
+  bool identity = true, permutation = true;
+  for (unsigned r = 0; r < 3; ++r) {
+    int nonzero = 0;
+    for (unsigned c = 0; c < 3; ++c) {
+      identity = identity && std::abs(D[r][c] - (r == c ? 1.0 : 0.0)) < 1e-6;
+      if (std::abs(D[r][c]) > 1e-6) ++nonzero, permutation = permutation && std::abs(std::abs(D[r][c]) - 1) < 1e-6;
+    }
+    permutation = permutation && nonzero == 1;
+  }
+  if (!identity) {
+    if (!permutation) {
+      std::ostringstream m;
+      m << "DICOM input " << path << " has an oblique orientation (direction cosines " << D
+        << "); porebench reads axis-aligned volumes only: resample it onto the axes first";
+      throw InputError(m.str());
+    }
+    auto orient = itk::OrientImageFilter<Img, Img>::New();
+    orient->UseImageDirectionOn();
+    orient->SetDesiredCoordinateOrientation(itk::SpatialOrientation::ITK_COORDINATE_ORIENTATION_RAI);
+    orient->SetInput(img);
+    orient->Update();
+    img = orient->GetOutput();
+  }
+  Geometry g;
+  for (unsigned i = 0; i < 3; ++i) {
+    g.dims[i] = int64_t(img->GetLargestPossibleRegion().GetSize()[i]);
+    g.spacing_mm[i] = img->GetSpacing()[i];
+    g.origin_mm[i] = img->GetOrigin()[i];
+  }
+  Image<T> out(g, Uninitialized{});
+  std::memcpy(out.data(), img->GetBufferPointer(), size_t(g.voxels()) * sizeof(T));
+  return AnyVolume(std::move(out));
+}
+
+}  // namespace
+
+AnyVolume itk_read_dicom(const std::string& path) {
+  try {
+    const std::vector<std::string> files = dicom_files(path);
+    auto io = itk::GDCMImageIO::New();
+    if (!io->CanReadFile(files.front().c_str())) throw InputError("cannot read " + files.front() + ": not a DICOM file");
+    io->SetFileName(files.front());
+    io->ReadImageInformation();
+    if (io->GetNumberOfComponents() != 1)
+      throw InputError("DICOM input " + path + " has " + std::to_string(io->GetNumberOfComponents()) +
+                       " components per voxel; expected a scalar (grey-value) image");
+    // The voxel type after the header's rescale slope/intercept; types we do not keep are read as float.
+    using C = itk::IOComponentEnum;
+    switch (io->GetComponentType()) {
+      case C::UCHAR: return read_dicom_as<uint8_t>(files, path);
+      case C::USHORT: return read_dicom_as<uint16_t>(files, path);
+      case C::SHORT: return read_dicom_as<int16_t>(files, path);
+      default: return read_dicom_as<float>(files, path);
+    }
+  } catch (const itk::ExceptionObject& e) {
+    throw InputError("cannot read DICOM input " + path + ": " + e.GetDescription());
+  }
 }
 
 void itk_write(const void* data, VoxelType type, const Geometry& g, const std::string& path, bool compress) {

@@ -292,15 +292,15 @@ Normaliser make_normaliser(const ModelCard& c, const VolumeF& v, const Mask* roi
   return nz;
 }
 
-namespace {
-
-int64_t mirror(int64_t i, int64_t n) {
+int64_t mirror_index(int64_t i, int64_t n) {
   if (n == 1) return 0;
   const int64_t period = 2 * (n - 1);
   i %= period;
   if (i < 0) i += period;
   return i < n ? i : period - i;
 }
+
+namespace {
 
 // Hann window sin^2(pi (i + 0.5) / T): never zero inside the tile, small at its edges.
 std::vector<double> window(int64_t t) {
@@ -355,11 +355,11 @@ VolumeF predict_volume(Model& m, const VolumeF& v, const Mask* roi, const Neural
     for (int64_t r = 0; r < rows; ++r) {
       const int64_t j = r % ty, k = (r / ty) % tz, q = (r / (ty * tz)) % ch, b = r / (ty * tz * ch);
       const Tile& t = tiles[t0 + size_t(b)];
-      const int64_t z = p3 ? mirror(t.z + k, nz_) : mirror(t.z + q - ch / 2, nz_);
-      const float* src = v.data() + (z * ny + mirror(t.y + j, ny)) * nx;
+      const int64_t z = p3 ? mirror_index(t.z + k, nz_) : mirror_index(t.z + q - ch / 2, nz_);
+      const float* src = v.data() + (z * ny + mirror_index(t.y + j, ny)) * nx;
       float* dst = in.data() + r * tx;
       for (int64_t i = 0; i < tx; ++i) {
-        const float g = src[t.x + i < nx ? t.x + i : mirror(t.x + i, nx)];
+        const float g = src[t.x + i < nx ? t.x + i : mirror_index(t.x + i, nx)];
         dst[i] = std::isfinite(g) ? (g - off) * scale : 0.0f;
       }
     }

@@ -90,6 +90,11 @@ struct NeuralOptions {
 // image), the last tile reaching n or beyond (the input is mirrored past the border).
 std::vector<int64_t> tile_origins(int64_t n, int64_t tile, double overlap);
 
+// Index i of an axis of length n mirrored past the borders without repeating the edge voxel
+// (numpy.pad mode 'reflect': -1 -> 1, n -> n - 2): how tiles read beyond the volume, in inference
+// and in the training patches of export-patches alike.
+int64_t mirror_index(int64_t i, int64_t n);
+
 // Grey values -> network input, following the card's normalise block (percentile and zscore
 // statistics over the voxels inside the ROI, or all voxels).
 struct Normaliser {

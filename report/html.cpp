@@ -117,7 +117,11 @@ struct SeriesAxis {
   bool by_dose = false;
   bool usable = false;  // at least two scans on the axis
   double reference = NAN, fixed = NAN;  // the reference recipe's axis value; the series' other setting
-  std::string label() const { return by_dose ? "dose I0 (photons per detector pixel)" : "projections"; }
+  bool user_units = false;  // a paired dataset: i0 is the exposure or dose the suite file gives, in its own unit
+  std::string label() const {
+    if (!by_dose) return "projections";
+    return user_units ? "i0 (exposure or dose as given in the suite file)" : "dose I0 (photons per detector pixel)";
+  }
   double of(const Json& s) const { return by_dose ? num(s["i0"]) : num(s["projections"]); }
   bool on_axis(const Json& s) const {
     const double x = of(s), other = by_dose ? num(s["projections"]) : num(s["i0"]);
@@ -134,6 +138,7 @@ SeriesAxis series_axis(const Json& d) {
     dose.insert(num(v["i0"]));
   }
   a.by_dose = proj.size() == 1 && dose.size() > 1;
+  a.user_units = d.value("kind", std::string()) == "paired";  // synthetic i0 is the simulation's photon count
   if (a.by_dose) a.fixed = *proj.begin();
   else if (dose.size() == 1) a.fixed = *dose.begin();
   for (const auto& v : d["variants"]) {

@@ -4,7 +4,7 @@
 #        scripts/setup.sh --list      (prints every package it would install, build and tests)
 set -euo pipefail
 build=(cmake g++ make pkg-config zlib1g-dev
-       libinsighttoolkit5-dev libopencv-dev libeigen3-dev libfftw3-dev
+       libinsighttoolkit5-dev libgdcm-dev libopencv-dev libeigen3-dev libfftw3-dev  # libgdcm-dev: DICOM (core/io_itk.cpp)
        libtomlplusplus-dev nlohmann-json3-dev libcli11-dev catch2 libbenchmark-dev libboost-dev
        libssl-dev libtorch-dev
        pybind11-dev python3-dev python3-numpy)  # the Python module (python/), built for /usr/bin/python3

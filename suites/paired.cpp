@@ -93,18 +93,33 @@ Geometry file_geometry(const FileSpec& f, const std::string& field, bool scan) {
   if (!fs::exists(f.path, ec)) throw InputError(field + ": file not found: " + f.path);
   if (!fs::is_directory(f.path, ec) && ::access(f.path.c_str(), R_OK) != 0)
     throw InputError(field + ": cannot read " + f.path + ": " + std::strerror(errno));
-  if (is_header_file(f.path)) {
-    if (f.read.raw)
-      throw InputError(field + ": conflicting geometry: 'raw' given for " + f.path +
-                       ", whose header states its geometry; drop 'raw' (raw is for headerless files)");
-    const VolumeHeader h = check_volume_file(f.path);
-    if (f.read.spacing_mm) {
+  const bool dicom = is_dicom(f.path);  // a series folder or file: its headers state the geometry
+  if ((is_header_file(f.path) || dicom) && f.read.raw)
+    throw InputError(field + ": conflicting geometry: 'raw' given for " + f.path +
+                     ", whose header states its geometry; drop 'raw' (raw is for headerless files)");
+  auto check_spacing = [&](const std::array<double, 3>& header) {
+    if (f.read.spacing_mm)
       for (int i = 0; i < 3; ++i)
-        if (std::abs((*f.read.spacing_mm)[size_t(i)] - h.spacing_mm[size_t(i)]) > 1e-6 * h.spacing_mm[size_t(i)])
+        if (std::abs((*f.read.spacing_mm)[size_t(i)] - header[size_t(i)]) > 1e-6 * header[size_t(i)])
           throw InputError(field + ": conflicting geometry: spacing_mm = " + list_text(*f.read.spacing_mm) +
-                           " but the header of " + f.path + " says " + list_text(h.spacing_mm) +
+                           " but the header of " + f.path + " says " + list_text(header) +
                            "; drop 'spacing_mm' (or correct the file)");
+  };
+  if (dicom) {
+    ReadOptions ro = f.read;
+    ro.spacing_mm.reset();
+    try {
+      const Geometry g = read_volume(f.path, ro).geometry();
+      check_spacing(g.spacing_mm);
+      return g;
+    } catch (const InputError& e) {
+      if (std::string(e.what()).rfind(field, 0) == 0) throw;
+      throw InputError(field + ": " + e.what());
     }
+  }
+  if (is_header_file(f.path)) {
+    const VolumeHeader h = check_volume_file(f.path);
+    check_spacing(h.spacing_mm);
     if (!(scan && h.type == VoxelType::f32)) {  // integer voxels are always finite
       Geometry g;
       g.dims = h.dims;

@@ -38,11 +38,6 @@ std::array<double, 3> spacing3(const toml::node& n, const std::string& where) {
 }
 }  // namespace
 
-bool spacing_unknown(const std::string& path) {
-  const std::string ext = lower_extension(path);
-  return fs::is_directory(path) || ext == ".tif" || ext == ".tiff" || ext == ".raw" || ext.empty();
-}
-
 FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where,
                            bool check_exists, const std::vector<std::string>& extra_keys) {
   FileEntry e;
@@ -98,7 +93,7 @@ FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, con
     throw InputError(where + ": must be a path or a table { path = ..., spacing_mm = [...], raw = {...} }" + at(n));
   }
   if (!e.read.spacing_mm && spacing_unknown(e.path))
-    throw InputError(where + ": " + e.path + " stores no reliable voxel size (TIFF or raw); give 'spacing_mm'" + at(n));
+    throw InputError(where + ": " + e.path + " stores no reliable voxel size (TIFF, raw or .npy); give 'spacing_mm'" + at(n));
   if (check_exists && !fs::exists(e.path)) throw InputError(where + ": file not found: " + e.path + at(n));
   return e;
 }

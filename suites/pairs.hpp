@@ -32,9 +32,6 @@ using FileEntry = FileSpec;  // suites/suite.hpp
 FileEntry parse_file_entry(const toml::node& n, const std::string& base_dir, const std::string& where,
                            bool check_exists = true, const std::vector<std::string>& extra_keys = {});
 
-// True for inputs whose voxel size cannot be trusted from the file: TIFF files and folders, raw.
-bool spacing_unknown(const std::string& path);
-
 struct RegistrationFailed : InputError {
   using InputError::InputError;
 };

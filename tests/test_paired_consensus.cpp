@@ -4,8 +4,8 @@
 // reference. The case has a known answer: the reference scan is built from a known truth so that
 // three manual thresholds give raters whose flipped voxels are known and never shared by two
 // raters (the majority is always right). The consensus is then the truth, W is 0 or 1 everywhere,
-// and the paper's M-step (eqs. 19-20: p_j = sum_{D_ij=1} W_i / sum W_i, q_j = sum_{D_ij=0} (1-W_i) /
-// sum (1-W_i)) makes each rater's sensitivity the share of truth voxels it marks and its
+// and the paper's M-step (p_j = sum_{D_ij=1} W_i / sum W_i, q_j = sum_{D_ij=0} (1-W_i) / sum (1-W_i);
+// equation numbers not given: from memory of the paper) makes each rater's sensitivity the share of truth voxels it marks and its
 // specificity the share of non-truth voxels it leaves: known analytically from the counts.
 #include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
@@ -95,7 +95,7 @@ TEST_CASE("a STAPLE consensus reference in a paired suite: known sensitivities, 
   CHECK(cs["iterations"].get<int>() > 0);
   CHECK(cs["pore_voxels"].get<int64_t>() == c.truth_voxels);
   REQUIRE(cs["raters"].size() == 3);
-  // Analytic sensitivities and specificities (Warfield, Zou & Wells 2004, eqs. 19-20 with W = truth).
+  // Analytic sensitivities and specificities (Warfield, Zou & Wells 2004, the M-step with W = truth).
   const double n = double(c.scan.size()), t = double(c.truth_voxels);
   const double p[3] = {1.0 - double(c.missed_by_low) / t, 1.0, 1.0};
   const double q[3] = {1.0, 1.0, 1.0 - double(c.false_by_high) / (n - t)};
