@@ -1,0 +1,77 @@
+#!/bin/sh
+# Issue 14: porebench.score from Python on an N^3 pair (default 512^3) within 10 % of the command
+# line's scoring time. The same three .npy files (pred, ref, part mask; uint8, made here with numpy)
+# are scored in alternating rounds (bench/peers/peerlib.py: medians, load, refused when a side's
+# spread > 25 %) by `porebench score ... --json` (wall time of the process: start-up, reading,
+# hashing, scoring, writing) and, in one running interpreter, by np.load of the three files then
+# porebench.score on the arrays (read in place: no copy). Prints the medians and CLI / Python; the
+# goal is Python <= 1.10 x CLI, i.e. CLI / Python >= 0.909. The two records are compared too. One
+# untimed round of each side first.
+# Both sides wait passively in OpenMP: the command line sets OMP_WAIT_POLICY=passive itself
+# (core/omp_preinit.cpp), a shared library cannot, so the interpreter gets it from the environment.
+# Usage: bench/peers/score_python_vs_cli.sh [BUILD_DIR] [N] [ROUNDS]   (exit 0 met, 1 not, 3 refused)
+set -eu
+export OMP_WAIT_POLICY="${OMP_WAIT_POLICY:-passive}"
+BUILD=${1:-build}
+N=${2:-512}
+ROUNDS=${3:-5}
+tmp=$(mktemp -d)
+trap 'rm -rf "$tmp"' EXIT
+PYTHONPATH="$BUILD/python" exec /usr/bin/python3 - "$BUILD/porebench" "$N" "$ROUNDS" "$tmp" "$(dirname "$0")" <<'PY'
+import json, subprocess, sys, warnings
+sys.path.insert(0, sys.argv[5])
+import numpy as np
+import peerlib
+import porebench
+
+cli, n, rounds, tmp = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), sys.argv[4]
+rng = np.random.default_rng(14)
+# A cylinder part with ~3000 spherical pores (radius 1.5-7 voxels); the prediction moves each pore by
+# up to one voxel, misses one in ten and adds 3000 single-voxel false calls.
+z, y, x = np.ogrid[:n, :n, :n]
+part = ((y - n / 2) ** 2 + (x - n / 2) ** 2 < (0.45 * n) ** 2) & (z > 4) & (z < n - 5)
+ref = np.zeros((n, n, n), np.uint8)
+pred = np.zeros((n, n, n), np.uint8)
+for _ in range(3000 * n ** 3 // 512 ** 3):
+    r = rng.uniform(1.5, 7)
+    c = rng.uniform(0.1 * n, 0.9 * n, 3)
+    lo = np.maximum(np.floor(c - r - 2).astype(int), 0)
+    hi = np.minimum(np.ceil(c + r + 2).astype(int), n)
+    zz, yy, xx = np.ogrid[lo[0]:hi[0], lo[1]:hi[1], lo[2]:hi[2]]
+    ball = lambda d: (zz - c[0] - d[0]) ** 2 + (yy - c[1] - d[1]) ** 2 + (xx - c[2] - d[2]) ** 2 <= r * r
+    ref[lo[0]:hi[0], lo[1]:hi[1], lo[2]:hi[2]] |= ball((0, 0, 0))
+    if rng.random() > 0.1:
+        pred[lo[0]:hi[0], lo[1]:hi[1], lo[2]:hi[2]] |= ball(rng.integers(-1, 2, 3))
+pred[tuple(rng.integers(0, n, (3, 3000)))] = 1
+ref &= part
+pred &= part
+files = {k: f"{tmp}/{k}.npy" for k in ("pred", "ref", "part")}
+for k, v in (("pred", pred), ("ref", ref), ("part", part.astype(np.uint8))):
+    np.save(files[k], v)
+del z, y, x, part, ref, pred
+
+def cli_side():
+    subprocess.run([cli, "score", "--pred", files["pred"], "--ref", files["ref"], "--roi", files["part"],
+                    "--json", f"{tmp}/cli.json"], check=True, capture_output=True)
+    return 0.0
+
+records = {}
+def python_side():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # every input is .npy: the 1 mm note
+        p, r, o = (np.load(files[k]) for k in ("pred", "ref", "part"))
+        records["python"] = porebench.score(p, r, roi=o)
+    return 0.0
+
+sides = {"cli": lambda: peerlib.wall(cli_side)[0], "python": lambda: peerlib.wall(python_side)[0]}
+for f in sides.values():  # one untimed round: page cache, and the interpreter's first allocations
+    f()
+run = peerlib.alternate(sides, rounds)
+cli_rec = json.load(open(f"{tmp}/cli.json"))
+strip = lambda rec: {k: v for k, v in rec.items() if k not in ("context", "inputs")}
+same = strip(cli_rec) == strip(records["python"])
+print(f"score {n}^3 uint8 pair + part mask: Jaccard {cli_rec['overlap']['jaccard']:.4f}; the two records equal "
+      f"(context and input paths aside): {same}")
+_, v = peerlib.ratio(run, "cli", "python", 1 / 1.10, what="CLI / Python (goal: Python within 10 % of the CLI)")
+sys.exit(peerlib.exit_status([v]) if same else 1)
+PY
