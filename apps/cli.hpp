@@ -2,7 +2,6 @@
 // Subcommand registration for the porebench command line. Each apps/cmd_*.cpp file adds its
 // subcommands with PB_REGISTER_COMMAND; main.cpp knows none of them by name.
 #include <CLI/CLI.hpp>
-#include <nlohmann/json.hpp>
 #include <array>
 #include <functional>
 #include <optional>
@@ -10,6 +9,7 @@
 #include <vector>
 
 #include "core/io.hpp"
+#include "core/json.hpp"
 
 namespace pb::cli {
 

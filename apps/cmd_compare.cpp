@@ -39,7 +39,9 @@ Action setup_compare(CLI::App& app) {
       o.tolerance[m] = v;
     }
     if (!a->out.empty()) check_writable(a->out);
-    const auto r = report::compare_runs(load_results(a->base), load_results(a->cand), o);
+    const auto base = load_results(a->base), cand = load_results(a->cand);
+    const auto r = reading_records(a->base + "/results.json or " + a->cand + "/results.json",
+                                   [&] { return report::compare_runs(base, cand, o); });
     const std::string md = report::compare_markdown(r, a->base, a->cand, o);
     std::cout << md;
     if (!a->out.empty()) write_text_atomic(a->out, md);

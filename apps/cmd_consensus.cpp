@@ -4,11 +4,11 @@
 // sensitivity and specificity, the prior, the iterations and the input hashes.
 #include <iostream>
 #include <memory>
-#include <nlohmann/json.hpp>
 
 #include "apps/cli.hpp"
 #include "core/context.hpp"
 #include "core/error.hpp"
+#include "core/json.hpp"
 #include "core/sha256.hpp"
 #include "metrics/staple.hpp"
 

@@ -2,11 +2,11 @@
 // pre-filters), generated from the code.
 #include <iostream>
 #include <memory>
-#include <nlohmann/json.hpp>
 
 #include "apps/cli.hpp"
 #include "build_info.hpp"
 #include "core/context.hpp"
+#include "core/json.hpp"
 #include "methods/registry.hpp"
 
 namespace pb::cli {

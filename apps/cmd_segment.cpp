@@ -5,12 +5,12 @@
 #include <iostream>
 #include <memory>
 #include <optional>
-#include <nlohmann/json.hpp>
 
 #include "apps/cli.hpp"
 #include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "core/io_atomic.hpp"
+#include "core/json.hpp"
 #include "core/sha256.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"

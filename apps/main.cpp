@@ -16,6 +16,7 @@
 #include "core/names.hpp"
 #include "core/npy.hpp"
 #include "core/parallel.hpp"
+#include "suites/preflight.hpp"
 
 namespace pb::cli {
 
@@ -79,11 +80,14 @@ nlohmann::ordered_json load_results(const std::string& dir) {
   const std::string path = dir + "/results.json";
   std::ifstream f(path);
   if (!f) throw InputError("no results.json in " + dir + " (run the suite there first)");
+  nlohmann::ordered_json j;
   try {
-    return nlohmann::ordered_json::parse(f);
+    j = nlohmann::ordered_json::parse(f);
   } catch (const std::exception& e) {
     throw InputError("cannot parse " + path + ": " + e.what());
   }
+  suite::check_run_record(j, path);  // the top-level shape; deeper fields: reading_records
+  return j;
 }
 
 }  // namespace pb::cli

@@ -1,7 +1,7 @@
 #pragma once
 // The context block that opens every results file: tool version and git hash, dependency
 // versions, host, threads, time.
-#include <nlohmann/json.hpp>
+#include "core/json.hpp"
 
 namespace pb {
 

@@ -12,10 +12,10 @@
 //   (Mattes mutual information, multi-resolution, versor rigid 6 DOF or similarity 7 DOF;
 //   registration_itk.cpp).
 #include <Eigen/Dense>
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
+#include "core/json.hpp"
 #include "core/volume.hpp"
 
 namespace pb {

@@ -10,7 +10,7 @@
 #include <string>
 #include <vector>
 
-#include <nlohmann/json.hpp>
+#include "core/json.hpp"
 
 #include "core/volume.hpp"
 

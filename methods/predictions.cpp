@@ -14,11 +14,11 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "core/npy.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"

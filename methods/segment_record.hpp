@@ -3,10 +3,10 @@
 // the Python module (porebench.segment returns it as a dict beside the mask): the method, its
 // parameters, what it chose, its runtime, the counts and porosity, its warnings, the input (path or
 // null, and the SHA-256 of its voxels as stored), the ROI and the output (paths or absent/null).
-#include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
 
+#include "core/json.hpp"
 #include "methods/registry.hpp"
 
 namespace pb {

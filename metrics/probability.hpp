@@ -17,9 +17,9 @@
 //    calibration of modern neural networks. ICML, PMLR 70:1321-1330; Naeini M.P. et al. (2015) AAAI
 //  - reliability data: per non-empty bin its edges, voxel count, mean p and fraction positive.
 #include <cstdint>
-#include <nlohmann/json.hpp>
 #include <vector>
 
+#include "core/json.hpp"
 #include "core/volume.hpp"
 
 namespace pb {

@@ -9,10 +9,10 @@
 #include <array>
 #include <cstdint>
 #include <map>
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
+#include "core/json.hpp"
 #include "core/volume.hpp"
 #include "metrics/distribution.hpp"
 #include "metrics/pod.hpp"

@@ -7,10 +7,10 @@
 // score, then the "probability" block).
 #include <cstdint>
 #include <functional>
-#include <nlohmann/json.hpp>
 #include <optional>
 #include <string>
 
+#include "core/json.hpp"
 #include "core/volume.hpp"
 #include "core/volume_view.hpp"
 #include "metrics/mask_input.hpp"

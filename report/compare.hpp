@@ -6,10 +6,10 @@
 // tolerance. A metric regresses when it is worse by more than its tolerance and, where a CI
 // exists, the CI lies entirely on the worse side.
 #include <map>
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
+#include "core/json.hpp"
 #include "metrics/metric_table.hpp"
 
 namespace pb::report {

@@ -5,9 +5,10 @@
 // suites/ never includes report/.
 #include <cmath>
 #include <map>
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
+
+#include "core/json.hpp"
 
 namespace pb::report {
 

@@ -7,6 +7,7 @@
 #include "core/context.hpp"
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "report/html.hpp"
 #include "suites/preflight.hpp"
 #include "suites/layout.hpp"
@@ -96,24 +97,28 @@ Json assemble_results(const std::string& out_dir) {
 }
 
 bool write_results(const std::string& out_dir) {
-  const Json results = assemble_results(out_dir);
-  // results.json is the mark of a complete pass: an earlier one goes first and the new one is
-  // written last, so a pass killed or failed midway leaves no results.json beside missing or
-  // stale files.
-  const std::string record = (fs::path(out_dir) / "results.json").string();
-  std::error_code ec;
-  fs::remove(record, ec);
-  if (ec) throw InputError("cannot remove the earlier " + record + ": " + ec.message());
-  const Reporter* last = nullptr;
-  for (const auto& r : standard_reporters()) {
-    if (r->files() == std::vector<std::string>{"results.json"}) {
-      last = r.get();
-      continue;
+  // The cells and suite.json are files a user may have edited: a field they lack is named, not
+  // undefined behaviour in a renderer (core/json.hpp).
+  return reading_records("run folder " + out_dir + " (suite.json, cells/)", [&] {
+    const Json results = assemble_results(out_dir);
+    // results.json is the mark of a complete pass: an earlier one goes first and the new one is
+    // written last, so a pass killed or failed midway leaves no results.json beside missing or
+    // stale files.
+    const std::string record = (fs::path(out_dir) / "results.json").string();
+    std::error_code ec;
+    fs::remove(record, ec);
+    if (ec) throw InputError("cannot remove the earlier " + record + ": " + ec.message());
+    const Reporter* last = nullptr;
+    for (const auto& r : standard_reporters()) {
+      if (r->files() == std::vector<std::string>{"results.json"}) {
+        last = r.get();
+        continue;
+      }
+      r->write(results, out_dir);
     }
-    r->write(results, out_dir);
-  }
-  if (last) last->write(results, out_dir);
-  return results["criteria_met"].get<bool>();
+    if (last) last->write(results, out_dir);
+    return results["criteria_met"].get<bool>();
+  });
 }
 
 }  // namespace pb::report

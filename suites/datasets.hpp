@@ -4,10 +4,10 @@
 // slices, the montage backgrounds and the record the results keep). A run prepares only the
 // datasets that have cells to run; the others keep the record of the run that prepared them.
 #include <functional>
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
+#include "core/json.hpp"
 #include "core/volume.hpp"
 #include "suites/suite.hpp"
 #include "synthetic/recipe.hpp"

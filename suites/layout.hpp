@@ -1,8 +1,9 @@
 #pragma once
 // The layout of a run folder, shared by the runner (which writes it) and the reports (which read
 // it): DIR/suite.json (the suite record), DIR/cells/<cell>.json and .png, DIR/data/<dataset>/.
-#include <nlohmann/json.hpp>
 #include <string>
+
+#include "core/json.hpp"
 
 namespace pb::suite {
 

@@ -10,13 +10,13 @@
 //   neighbour); "none" keeps the pose, resamples only when the grids differ, and runs the
 //   misalignment alarm (phase correlation, warning above 0.5 voxel with the fix to use).
 //   A registration that does not converge throws RegistrationFailed: reported, never scored.
-#include <nlohmann/json.hpp>
 #include <string>
 #include <toml++/toml.h>
 #include <vector>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "core/registration.hpp"
 #include "core/volume.hpp"
 #include "suites/suite.hpp"

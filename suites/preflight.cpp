@@ -91,11 +91,7 @@ void preflight(const Suite& s) {
   preflight_predictions(s);  // every prediction file of a predictions method (suites/predictions)
 }
 
-namespace {
-
-// The top-level shape write_suite_record gives suite.json, which the reports read without further
-// checks: a record edited by hand or written by something else is named here, not read as garbage.
-void check_suite_record_shape(const Json& rec, const std::string& path) {
+void check_run_record(const Json& rec, const std::string& path) {
   auto bad = [&](const std::string& field, const std::string& want) {
     const std::string got = !rec.is_object() ? "the file is not an object"
                             : field.find('.') == std::string::npos && !rec.contains(field) ? "missing"
@@ -108,8 +104,10 @@ void check_suite_record_shape(const Json& rec, const std::string& path) {
     if (!rec.contains(key) || rec[key].type() != type) bad(key, want);
   };
   need("suite", Json::value_t::object, "an object");
-  for (const char* k : {"name", "description", "path"})
+  for (const char* k : {"name", "description"})
     if (!rec["suite"].contains(k) || !rec["suite"][k].is_string()) bad(std::string("suite.") + k, "a string");
+  // suite.path: in every suite.json and results.json, not in a regression record (machine-free)
+  if (rec["suite"].contains("path") && !rec["suite"]["path"].is_string()) bad("suite.path", "a string");
   need("suite_sha256", Json::value_t::string, "a string");
   need("calibration", Json::value_t::object, "an object");
   if (!rec["calibration"].contains("objective") || !rec["calibration"]["objective"].is_string())
@@ -124,14 +122,12 @@ void check_suite_record_shape(const Json& rec, const std::string& path) {
     if (!d.is_object() || !d.contains("name") || !d["name"].is_string()) bad("datasets[].name", "a string in every dataset");
 }
 
-}  // namespace
-
 Json load_suite_record(const std::string& dir) {
   std::error_code ec;
   if (!fs::is_directory(dir, ec)) throw InputError("run folder " + dir + " not found");
   const std::string path = (fs::path(dir) / "suite.json").string();
   Json rec = read_json_named(path, "run record");
-  check_suite_record_shape(rec, path);
+  check_run_record(rec, path);
   return rec;
 }
 

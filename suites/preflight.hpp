@@ -24,7 +24,14 @@ void preflight(const Suite& s);
 // `suite_sha256` of DIR/suite.json (a cell of another run is refused: the folder mixes runs).
 std::vector<Json> load_checked_cells(const std::string& dir, const std::string& suite_sha256);
 
-// DIR/suite.json read and checked (named when missing or not JSON).
+// The top-level shape write_suite_record gives suite.json (and results.json, which starts with
+// it, and a regression record): suite.name/description (suite.path a string if present), suite_sha256, calibration.objective, scoring, criteria,
+// methods[].label, datasets[].name. A record edited by hand or written by something else is named
+// (InputError naming `path` and the field), not read as garbage. What the renderers read deeper
+// is guarded by core/json.hpp (reading_records).
+void check_run_record(const Json& rec, const std::string& path);
+
+// DIR/suite.json read and checked (named when missing or not JSON; check_run_record).
 Json load_suite_record(const std::string& dir);
 
 }  // namespace pb::suite

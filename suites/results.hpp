@@ -1,10 +1,10 @@
 #pragma once
 // Reading results: the value of a named metric from a cell record, the selection of tuned
 // parameter sets, and the criteria verdicts. Shared by the runner, the reports and `compare`.
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
+#include "core/json.hpp"
 #include "suites/suite.hpp"
 
 namespace pb::suite {

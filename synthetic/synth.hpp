@@ -4,10 +4,10 @@
 // part-mask.mha, reference-scan.mha, scan-<N>p.mha per projection count, pores.csv, recipe.toml and
 // manifest.json with the SHA-256 of every file). Bit-identical for any thread count.
 #include <functional>
-#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
+#include "core/json.hpp"
 #include "synthetic/phantom.hpp"
 #include "synthetic/recipe.hpp"
 #include "synthetic/scan.hpp"

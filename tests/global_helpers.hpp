@@ -8,9 +8,9 @@
 #include <vector>
 
 #include <catch2/catch.hpp>
-#include <nlohmann/json.hpp>
 
 #include "core/histogram.hpp"
+#include "core/json.hpp"
 #include "methods/registry.hpp"
 #include "tests/helpers.hpp"
 

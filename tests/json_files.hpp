@@ -3,9 +3,10 @@
 #include <catch2/catch.hpp>
 #include <filesystem>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <sstream>
 #include <string>
+
+#include "core/json.hpp"
 
 namespace pbtest {
 

@@ -6,12 +6,12 @@
 
 #include <cstring>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <random>
 #include <sstream>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "core/markers.hpp"
 #include "core/registration.hpp"
 #include "core/resample.hpp"

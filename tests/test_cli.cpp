@@ -2,9 +2,9 @@
 // output file; good input writes the mask and a JSON record with the documented keys.
 #include <catch2/catch.hpp>
 #include <cmath>
-#include <nlohmann/json.hpp>
 
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "tests/helpers.hpp"
 
 using namespace pb;

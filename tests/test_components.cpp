@@ -7,11 +7,11 @@
 #include <array>
 #include <fstream>
 #include <map>
-#include <nlohmann/json.hpp>
 
+#include "core/components.hpp"
 #include "core/cpu.hpp"
 #include "core/error.hpp"
-#include "core/components.hpp"
+#include "core/json.hpp"
 #include "tests/helpers.hpp"
 #include "tests/metrics_helpers.hpp"
 

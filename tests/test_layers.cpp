@@ -1,8 +1,10 @@
 // The layers hold: the folders are the layers (core -> methods | metrics | synthetic -> suites ->
 // report -> apps | python), and a file may include only its own folder and the folders below it.
 // methods, metrics and synthetic are siblings: none includes another, nor do apps and python.
-// Nothing but apps/ knows the command line (CLI11). The rule is the project's own (DEVELOPERS.md, "Architecture"); this test
-// reads every #include of the source tree and fails naming the file, line and include.
+// Nothing but apps/ knows the command line (CLI11). No file but core/json.hpp includes
+// <nlohmann/json.hpp> (core/json.hpp says why), in the layers nor in tests/, bench/ and fuzz/. The
+// rule is the project's own (DEVELOPERS.md, "Architecture"); this test reads every #include of the
+// source tree and fails naming the file, line and include.
 #include <catch2/catch.hpp>
 
 #include <filesystem>
@@ -52,6 +54,13 @@ std::vector<Include> includes_of(const fs::path& root, const std::string& folder
 // The layer violations of the tree at `root`, one line each ("file:line includes target").
 std::vector<std::string> violations(const fs::path& root) {
   std::vector<std::string> bad;
+  for (const char* folder : {"core", "methods", "metrics", "synthetic", "suites", "report", "apps", "tests", "bench",
+                             "fuzz", "python"}) {
+    if (!fs::is_directory(root / folder)) continue;
+    for (const auto& i : includes_of(root, folder))
+      if (i.angled && i.target == "nlohmann/json.hpp" && i.file != "core/json.hpp")
+        bad.push_back(i.file + ":" + std::to_string(i.line) + " includes nlohmann/json.hpp (include core/json.hpp)");
+  }
   for (const auto& [folder, rank] : kRank) {
     if (!fs::is_directory(root / folder)) continue;
     for (const auto& i : includes_of(root, folder)) {
@@ -95,8 +104,9 @@ TEST_CASE("no folder includes a higher or sibling layer", "[layers]") {
 
 TEST_CASE("the layer check finds a planted violation", "[layers]") {
   // A tiny tree where methods/ reaches metrics/, metrics/ reaches synthetic/, core/ reaches apps/,
-  // suites/ uses CLI11, python/ uses CLI11 and apps/; and the allowed directions (methods -> core,
-  // report -> suites, python -> metrics).
+  // suites/ uses CLI11, python/ uses CLI11 and apps/, bench/ includes nlohmann directly; and the
+  // allowed directions (methods -> core, report -> suites, python -> metrics, core/json.hpp ->
+  // nlohmann).
   const fs::path root = fs::temp_directory_path() / ("porebench-layers-" + std::to_string(::getpid()));
   fs::remove_all(root);
   auto put = [&](const std::string& path, const std::string& text) {
@@ -109,6 +119,8 @@ TEST_CASE("the layer check finds a planted violation", "[layers]") {
   put("suites/d.cpp", "#include <CLI/CLI.hpp>\n#include \"methods/b.hpp\"\n");
   put("report/e.cpp", "#include \"suites/results.hpp\"\n#include \"report/e.hpp\"\n");
   put("python/f.cpp", "#include <CLI/CLI.hpp>\n#include \"apps/cli.hpp\"\n#include \"metrics/score.hpp\"\n");
+  put("core/json.hpp", "#include <nlohmann/json.hpp>\n");
+  put("bench/f.cpp", "#include \"core/json.hpp\"\n#include <nlohmann/json.hpp>\n");
   const auto bad = violations(root);
   fs::remove_all(root);
   const std::set<std::string> got(bad.begin(), bad.end());
@@ -116,6 +128,7 @@ TEST_CASE("the layer check finds a planted violation", "[layers]") {
                                       "metrics/c.cpp:1 includes synthetic/phantom.hpp",
                                       "suites/d.cpp:1 includes CLI/CLI.hpp (the command line)",
                                       "python/f.cpp:1 includes CLI/CLI.hpp (the command line)",
-                                      "python/f.cpp:2 includes apps/cli.hpp"};
+                                      "python/f.cpp:2 includes apps/cli.hpp",
+                                      "bench/f.cpp:2 includes nlohmann/json.hpp (include core/json.hpp)"};
   CHECK(got == want);
 }

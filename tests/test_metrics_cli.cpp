@@ -2,7 +2,7 @@
 // bad input (dims or spacing mismatch, bad rule) as exit 2 with nothing written.
 #include <catch2/catch.hpp>
 
-#include <nlohmann/json.hpp>
+#include "core/json.hpp"
 
 #include "tests/helpers.hpp"
 

@@ -4,9 +4,9 @@
 
 #include <cmath>
 #include <fstream>
-#include <nlohmann/json.hpp>
 
 #include "core/components.hpp"
+#include "core/json.hpp"
 #include "metrics/distribution.hpp"
 #include "metrics/surface.hpp"
 #include "tests/helpers.hpp"

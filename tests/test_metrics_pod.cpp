@@ -6,9 +6,9 @@
 #include <algorithm>
 #include <cmath>
 #include <fstream>
-#include <nlohmann/json.hpp>
 
 #include "core/error.hpp"
+#include "core/json.hpp"
 #include "metrics/pod.hpp"
 #include "tests/helpers.hpp"
 

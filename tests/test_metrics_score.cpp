@@ -6,10 +6,10 @@
 
 #include <cmath>
 #include <map>
-#include <nlohmann/json.hpp>
 
-#include "core/error.hpp"
 #include "core/components.hpp"
+#include "core/error.hpp"
+#include "core/json.hpp"
 #include "metrics/score.hpp"
 #include "tests/helpers.hpp"
 #include "tests/metrics_helpers.hpp"

@@ -7,9 +7,9 @@
 
 #include <cmath>
 #include <fstream>
-#include <nlohmann/json.hpp>
 
 #include "core/error.hpp"
+#include "core/json.hpp"
 #include "core/npy.hpp"
 #include "tests/helpers.hpp"
 

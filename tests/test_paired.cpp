@@ -5,10 +5,10 @@
 #include <Eigen/Dense>
 #include <catch2/catch.hpp>
 #include <fstream>
-#include <nlohmann/json.hpp>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "suites/layout.hpp"
 #include "suites/preflight.hpp"
 #include "suites/results.hpp"

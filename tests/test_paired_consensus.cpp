@@ -8,9 +8,9 @@
 // equation numbers not given: from memory of the paper) makes each rater's sensitivity the share of truth voxels it marks and its
 // specificity the share of non-truth voxels it leaves: known analytically from the counts.
 #include <catch2/catch.hpp>
-#include <nlohmann/json.hpp>
 
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "suites/layout.hpp"
 #include "tests/helpers.hpp"
 #include "tests/json_files.hpp"

@@ -7,10 +7,10 @@
 #include <cctype>
 #include <cmath>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <random>
 
 #include "core/error.hpp"
+#include "core/json.hpp"
 #include "methods/predictions.hpp"
 #include "methods/registry.hpp"
 #include "tests/helpers.hpp"

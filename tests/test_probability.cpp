@@ -4,9 +4,9 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
-#include <nlohmann/json.hpp>
 #include <random>
 
+#include "core/json.hpp"
 #include "metrics/probability.hpp"
 #include "tests/helpers.hpp"
 

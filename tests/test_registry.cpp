@@ -2,7 +2,7 @@
 // validates types, ranges and names before any work.
 #include <catch2/catch.hpp>
 
-#include <nlohmann/json.hpp>
+#include "core/json.hpp"
 
 #include "core/error.hpp"
 #include "methods/registry.hpp"

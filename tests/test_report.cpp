@@ -7,7 +7,6 @@
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
 #include <iomanip>
 #include <random>
@@ -15,6 +14,7 @@
 #include <set>
 
 #include "core/format.hpp"
+#include "core/json.hpp"
 #include "methods/registry.hpp"
 #include "metrics/pod.hpp"
 #include "metrics/score.hpp"

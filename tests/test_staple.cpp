@@ -3,13 +3,13 @@
 // validation, Sec. IV), and the paper's EM equations in numpy (tests/ref/staple_em.py).
 #include <catch2/catch.hpp>
 
-#include <nlohmann/json.hpp>
 #include <filesystem>
 #include <fstream>
 #include <random>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "metrics/staple.hpp"
 #include "tests/helpers.hpp"
 

@@ -6,10 +6,10 @@
 #include <catch2/catch.hpp>
 #include <chrono>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <thread>
 
 #include "core/error.hpp"
+#include "core/json.hpp"
 #include "report/compare.hpp"
 #include "report/report.hpp"
 #include "suites/preflight.hpp"

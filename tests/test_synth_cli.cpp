@@ -4,12 +4,12 @@
 #include <algorithm>
 #include <cmath>
 #include <fstream>
-#include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "core/io.hpp"
-#include "synthetic/synth.hpp"
+#include "core/json.hpp"
 #include "core/sha256.hpp"
+#include "synthetic/synth.hpp"
 #include "tests/helpers.hpp"
 
 using pbtest::run_cli;
