@@ -11,10 +11,10 @@
 
 #include <catch2/catch.hpp>
 #include <filesystem>
-#include <nlohmann/json.hpp>
 
 #include "core/error.hpp"
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "suites/layout.hpp"
 #include "tests/helpers.hpp"
 #include "tests/json_files.hpp"

@@ -4,10 +4,10 @@
 // own geometry; the mirrored border index shared by inference and export-patches.
 #include <catch2/catch.hpp>
 #include <filesystem>
-#include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "core/io.hpp"
+#include "core/json.hpp"
 #include "methods/neural.hpp"
 #include "suites/layout.hpp"
 #include "suites/results.hpp"
