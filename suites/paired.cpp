@@ -3,6 +3,7 @@
 
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cmath>
 #include <cstring>
@@ -194,6 +195,32 @@ std::vector<RaterSpec> parse_raters(const toml::node& n, const std::string& wher
   return out;
 }
 
+// The reference method again at the threshold it chose on the reference scan, for the grey
+// resampling: its pre-filters and pore options as they were, the last stage replaced by "manual".
+// No info when the method reports no threshold (local methods, region growing).
+struct Reapply {
+  const MethodInfo* info = nullptr;
+  ParamValues params;
+  std::string threshold_text;
+};
+Reapply threshold_reapply(const MethodInfo& m, const ParamValues& pv, const MethodOutput& out) {
+  Reapply r;
+  const auto it = std::find_if(out.chosen.begin(), out.chosen.end(), [](const auto& kv) { return kv.first == "threshold"; });
+  if (it == out.chosen.end()) return r;
+  const size_t plus = m.name.rfind('+');
+  const MethodInfo& manual = Registry::instance().get(plus == std::string::npos ? "manual" : m.name.substr(0, plus) + "+manual");
+  std::ostringstream t;
+  t.precision(17);
+  t << it->second;
+  std::vector<std::string> kv = {"threshold=" + t.str()};
+  for (const auto& spec : manual.params)
+    if (spec.name != "threshold" && pv.text().count(spec.name)) kv.push_back(spec.name + "=" + pv.text().at(spec.name));
+  r.info = &manual;
+  r.params = parse_params(manual, kv);
+  r.threshold_text = "threshold " + t.str() + " (chosen on the reference scan)";
+  return r;
+}
+
 // The consensus reference: each rater run on the reference scan, combined by STAPLE (Warfield, Zou
 // & Wells 2004, IEEE TMI 23(7):903-921) over the whole reference volume, W >= 0.5 the reference
 // pores. The record keeps each rater's STAPLE sensitivity and specificity and the iterations.
@@ -253,7 +280,7 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
   static const std::vector<std::string> keys = {"name", "kind", "scan", "scans", "reference_mask", "reference_label",
                                                 "reference_scan", "reference_method", "reference_params", "part_mask",
                                                 "projections", "reference_projections", "raw", "spacing_mm", "align",
-                                                "reference_consensus"};
+                                                "reference_consensus", "reference_resample"};
   if (const auto u = first_unknown_key(t, keys))
     fail(u->where, "unknown key '" + u->key + "' in " + where + (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
   d.kind = DatasetSpec::paired;
@@ -315,6 +342,13 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
     } catch (const InputError& e) {
       fail(t.get("reference_method")->source(), where + ": reference_method '" + d.reference_method + "': " + e.what());
     }
+  }
+  if (const toml::node* n = t.get("reference_resample")) {
+    d.reference_resample = str_at(t, "reference_resample", where, fail);
+    if (d.reference_resample != "grey" && d.reference_resample != "mask")
+      fail(n->source(), where + ": reference_resample = '" + d.reference_resample + "' unknown (grey, mask)");
+    if (!has_scan && d.reference_resample == "grey")
+      fail(n->source(), where + ": reference_resample = 'grey' needs a 'reference_scan' (a reference mask is resampled as a mask)");
   }
   d.reference_label = int_at(t, "reference_label", where, fail, -1, 65535, -1);
   if (d.reference_label >= 0 && !has_mask)
@@ -456,6 +490,7 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
   Mask ref_pores;
   VolumeF ref_scan;
   Json ref_record;
+  Reapply reapply;  // the reference method at its chosen threshold, for grey resampling
   if (!d.reference_mask.empty()) {
     ref_pores = d.reference_label >= 0 ? ref_any.to_mask(d.reference_label) : ref_any.to_mask();
     ref_record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", file_sha256(d.reference_mask)},
@@ -473,12 +508,22 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
     ref_pores = out.pores;
     Json chosen = Json::object();
     for (const auto& [k, v] : out.chosen) chosen[k] = v;
+    if (d.reference_resample == "grey") reapply = threshold_reapply(m, pv, out);
     ref_record = {{"scan", d.reference_scan}, {"sha256", file_sha256(d.reference_scan)}, {"method", m.name},
                   {"params", pv.text()}, {"chosen", chosen}, {"projections", d.reference_projections},
                   {"grid", describe(ref_any.geometry())}};
   }
+  const VoxelType ref_type = ref_any.type();
   ref_any = AnyVolume();
   write_volume(ref_pores, p.ref_mask_path, {true});
+  if (d.reference_resample == "grey") {
+    ref_record["resample"] = reapply.info ? "grey: the reference scan resampled linearly onto each fast scan's grid, " +
+                                                reapply.info->name + " applied there at threshold " + reapply.threshold_text
+                                          : std::string("mask: nearest neighbour (the reference has no single threshold "
+                                                        "to re-apply: a consensus or a local method)");
+  } else {
+    ref_record["resample"] = "mask: nearest neighbour (reference_resample = \"mask\")";
+  }
   // Each fast scan: the reference brought onto its grid, its own split and montage slice.
   Json variants = Json::array();
   bool first = true;
@@ -495,17 +540,27 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
     const std::string ref_png = "data/" + token + "/montage-reference-" + file_token(v.scan) + ".png";
     const Stats st = compute_stats(fast);
     try {
-      const AlignedReference a =
+      AlignedReference a =
           s.transform.empty() ? align_reference(mode, fast, v.path, ref_scan.empty() ? nullptr : &ref_scan,
                                                 d.reference_file.path, ref_pores)
                               : apply_known_transform(fast, ref_pores, read_transform_json(s.transform), s.transform);
-      write_volume(a.pores, v.ref_mask_path, {true});
+      const bool moved = !(same_grid(ref_pores.geometry(), fg) && mode == AlignMode::none && s.transform.empty());
       Mask part_here;
       if (!part.empty()) {
-        part_here = same_grid(part.geometry(), fg) && mode == AlignMode::none && s.transform.empty()
-                        ? part : resample_nearest(part, fg, a.T);
+        part_here = moved ? resample_nearest(part, fg, a.T) : part;
         write_volume(part_here, v.part_mask_path, {true});
       }
+      if (moved && reapply.info) {  // grey resampling: thin voids survive a sub-voxel re-mount
+        const VolumeF grey = resample_linear(ref_scan, fg, a.T);
+        a.pores = run_method(*reapply.info, reapply.params,
+                             MethodInput{grey, part_here.empty() ? nullptr : &part_here, ref_type}).pores;
+        if (a.record.contains("resampled") && a.record["resampled"].is_object())
+          a.record["resampled"]["mask"] = "grey resampled (linear), " + reapply.info->name + " at " + reapply.threshold_text;
+        else
+          a.record["resampled"] = {{"grid", "the fast scan's"}, {"mask", "grey resampled (linear), " + reapply.info->name +
+                                                                           " at " + reapply.threshold_text}};
+      }
+      write_volume(a.pores, v.ref_mask_path, {true});
       v.split = split_slices(p.name + "' scan '" + v.scan, part.empty() ? nullptr : &part_here, a.pores, c);
       rec["alignment"] = a.record;
       rec["warnings"] = a.warnings;

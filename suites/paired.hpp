@@ -26,6 +26,12 @@
 //   reference_consensus = [ "otsu", { name = "sauvola", params = { window = 31, k = 0.2 } },
 //                           { name = "median+otsu", label = "otsu-median", params = { "median.radius" = 1 } } ]
 //
+// reference_resample = "grey" (default) | "mask": when a fast scan's grid or pose differs, the
+// reference scan is resampled linearly onto it and the reference method re-applied there at the
+// threshold it chose on the reference scan (pre-filters and pore options as they were), or the
+// reference pores are resampled by nearest neighbour ("mask"; also what a reference mask, a
+// consensus or a method without a single threshold gets). The record says which.
+//
 // The older form (one `scan`, `projections`, and `raw`/`spacing_mm` for the scan and the reference
 // scan) still parses: a series of one scan labelled "scan".
 // Each fast scan becomes cells like a synthetic scan: the reference pores (and the part mask) are

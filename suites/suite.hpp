@@ -72,6 +72,10 @@ struct DatasetSpec {
   // paired: a STAPLE consensus of these raters on the reference scan as the reference (instead of
   // reference_method; suites/paired.hpp).
   std::vector<RaterSpec> reference_consensus;
+  // paired: how the reference comes onto a fast scan's grid when the grids or poses differ: "grey"
+  // (the reference scan resampled linearly, its method re-applied at the threshold it chose; the
+  // default where the method reports one) or "mask" (its pores resampled by nearest neighbour).
+  std::string reference_resample = "grey";
 };
 
 struct Calibration {

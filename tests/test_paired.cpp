@@ -71,10 +71,11 @@ i0 = [200000.0]
   return r;
 }
 
-std::string paired_suite(const fs::path& data, const std::string& align, const std::string& transform = "") {
+std::string paired_suite(const fs::path& data, const std::string& align, const std::string& transform = "",
+                         const std::string& resample = "grey") {
   const std::string tr = transform.empty() ? "" : ", transform = \"" + transform + "\"";
   return "[suite]\nname = \"paired-" + align + "\"\n"
-         "[[dataset]]\nname = \"blank\"\nkind = \"paired\"\n"
+         "[[dataset]]\nname = \"blank\"\nkind = \"paired\"\nreference_resample = \"" + resample + "\"\n"
          "reference_scan = \"" + (data / "reference-scan.mha").string() + "\"\n"
          "reference_method = \"otsu\"\nreference_projections = 1200\n"
          "part_mask = \"" + (data / "part-mask.mha").string() + "\"\n"
@@ -163,6 +164,23 @@ TEST_CASE("a posed synthetic pair read as real files: registered Jaccard and hit
     REQUIRE(v["warnings"].size() == 1);
     CHECK_THAT(v["warnings"][0].get<std::string>(), Catch::Contains("align = \"auto\""));
   }
+  // The reference on the fast grid: the grey reference resampled and re-thresholded at the
+  // threshold otsu chose (the default) is closer to the synthetic truth (exact, closed pores = label
+  // 2 of the posed scan's truth labels) than the reference pores resampled by nearest neighbour.
+  write_file(d / "mask-suite.toml", paired_suite(d.path / "posed", "auto", "", "mask"));
+  const auto rm = run_cli("run " + (d / "mask-suite.toml") + " -o " + (d / "out-mask"));
+  REQUIRE(rm.exit_code <= 1);
+  auto ref_jaccard = [&](const std::string& out) {
+    const auto r = run_cli("score --pred " + (d.path / out / "data" / "blank" / "reference-pores-scan-400p.mha").string() +
+                           " --ref " + (d.path / "posed" / "truth-labels-400p.mha").string() + " --ref-label 2 --roi " +
+                           (d.path / "posed" / "part-mask-400p.mha").string() + " --json " + (d.path / (out + ".json")).string());
+    REQUIRE(r.exit_code == 0);
+    return read_json(d.path / (out + ".json"))["overlap"]["jaccard"].get<double>();
+  };
+  const double grey = ref_jaccard("out-auto"), nn = ref_jaccard("out-mask");
+  INFO("reference against the truth: grey " << grey << ", nearest neighbour " << nn);
+  CHECK(grey > nn);
+  CHECK_THAT(ds["reference"]["resample"].get<std::string>(), Catch::Contains("grey") && Catch::Contains("threshold"));
   // Real series get the scan-recipe advice (projections from the entries).
   REQUIRE(res[1]["advice"].size() == 1);
   CHECK(res[1]["advice"][0]["axis"] == "projections");
