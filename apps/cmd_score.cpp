@@ -5,21 +5,16 @@
 #include <iostream>
 #include <memory>
 #include <optional>
-#include <sstream>
 
 #include "apps/cli.hpp"
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "metrics/score_record.hpp"
 
 namespace pb::cli {
 namespace {
 
-std::string fmt(double v) {
-  if (!std::isfinite(v)) return "undefined";
-  std::ostringstream s;
-  s << v;
-  return s.str();
-}
+std::string fmt(double v) { return format_number(v, 6, "undefined"); }
 
 Action setup_score(CLI::App& app) {
   app.description("score a predicted pore mask against a reference mask");

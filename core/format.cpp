@@ -8,7 +8,7 @@
 namespace pb {
 
 std::string format_number(double v, int digits, const char* missing) {
-  if (!std::isfinite(v)) return missing;
+  if (!std::isfinite(v) && missing) return missing;
   if (v == 0) return "0";
   const double a = std::abs(v);
   const int int_digits = a >= 1 && a < 1e6 ? int(std::floor(std::log10(a))) + 1 : 0;

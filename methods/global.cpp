@@ -24,6 +24,7 @@
 #include <stdexcept>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "methods/threshold.hpp"
 
 namespace pb {
@@ -518,26 +519,20 @@ Choice percentile(const Histogram& h, const ParamValues& p) {
 
 // --- the shared run --------------------------------------------------------------------------
 
-std::string fmt(double v) {
-  char b[32];
-  std::snprintf(b, sizeof b, "%.6g", v);
-  return b;
-}
-
 // Warnings on the resolution of a histogram of integer data with bins set by the user (see the
 // file header); bins=auto is one bin per level where it can be.
 std::vector<std::string> resolution_warnings(const MethodInput& in, const ParamValues& p, const Histogram& h) {
   if (!integer_type(in.stored_type) || p.is_word("bins")) return {};
   const double levels = grey_levels(h.lo, h.hi);
   const int bins = h.bins();
-  const std::string one_per_level = levels <= kAutoMaxLevels ? "bins=auto or bins=" + fmt(levels) : "bins=" + fmt(std::min(levels, 65536.0));
+  const std::string one_per_level = levels <= kAutoMaxLevels ? "bins=auto or bins=" + format_number(levels, 6) : "bins=" + format_number(std::min(levels, 65536.0), 6);
   if (levels > bins)
-    return {std::string(voxel_type_name(in.stored_type)) + " data span " + fmt(levels) + " grey levels over the histogram range [" +
-            fmt(h.lo) + ", " + fmt(h.hi) + "] but bins=" + std::to_string(bins) + ": some bins hold more than one level (bin width " +
-            fmt(h.width()) + " grey levels), so the threshold is resolved to that; set " + one_per_level +
+    return {std::string(voxel_type_name(in.stored_type)) + " data span " + format_number(levels, 6) + " grey levels over the histogram range [" +
+            format_number(h.lo, 6) + ", " + format_number(h.hi, 6) + "] but bins=" + std::to_string(bins) + ": some bins hold more than one level (bin width " +
+            format_number(h.width(), 6) + " grey levels), so the threshold is resolved to that; set " + one_per_level +
             " for one bin per grey level"};
   if (levels >= 2 && levels < bins)
-    return {std::string(voxel_type_name(in.stored_type)) + " data span only " + fmt(levels) + " grey levels but bins=" +
+    return {std::string(voxel_type_name(in.stored_type)) + " data span only " + format_number(levels, 6) + " grey levels but bins=" +
             std::to_string(bins) + ": bins are narrower than one grey level and some are empty by construction, which "
             "misleads peak-based methods; set " + one_per_level};
   return {};
@@ -571,7 +566,7 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
     Choice c;
     auto no_air = [&](const std::string& why) {
       c = Choice{no_air_threshold(in, h, p), {}};
-      warnings.push_back(why + ": no voxel is called air (threshold " + fmt(c.threshold) +
+      warnings.push_back(why + ": no voxel is called air (threshold " + format_number(c.threshold, 6) +
                          " = the lowest grey value); if the part has pores, include surrounding air in the volume or "
                          "use manual or percentile");
     };

@@ -14,9 +14,9 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
-#include <sstream>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "core/io.hpp"
 #include "core/json.hpp"
 #include "core/npy.hpp"
@@ -26,16 +26,6 @@
 namespace fs = std::filesystem;
 
 namespace pb {
-
-namespace {
-
-std::string num_text(double v) {
-  std::ostringstream s;
-  s << v;
-  return s.str();
-}
-
-}  // namespace
 
 PredictionKind parse_prediction_kind(const std::string& s) {
   if (s == "auto") return PredictionKind::automatic;
@@ -66,7 +56,7 @@ void check_prediction_values(const AnyVolume& v, PredictionKind kind, int64_t po
       }
     if (bad > 0)
       throw InputError("prediction " + path + ": probability map holds " + std::to_string(bad) +
-                       " voxels outside [0, 1] (first: voxel " + std::to_string(first) + " = " + num_text(d[first]) +
+                       " voxels outside [0, 1] (first: voxel " + std::to_string(first) + " = " + format_number(d[first], 6, nullptr) +
                        "); a probability map is in [0, 1] (a logit or a grey scan is not)");
   } else if (kind == PredictionKind::label) {
     bool any = false;

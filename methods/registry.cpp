@@ -12,6 +12,7 @@
 #include <sstream>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "core/names.hpp"
 #include "methods/pores.hpp"
 
@@ -30,19 +31,11 @@ const char* param_type_name(ParamType t) {
 
 namespace {
 
-std::string fmt_num(double v) {
-  if (std::isinf(v)) return v > 0 ? "inf" : "-inf";
-  std::ostringstream s;
-  s.precision(10);
-  s << v;
-  return s.str();
-}
-
 std::string range_text(const ParamSpec& s) {
   switch (s.type) {
     case ParamType::Int:
     case ParamType::Float: {
-      std::string out = "[" + fmt_num(s.min) + ", " + fmt_num(s.max) + "]";
+      std::string out = "[" + format_number(s.min, 10, nullptr) + ", " + format_number(s.max, 10, nullptr) + "]";
       for (const auto& c : s.choices) out += " or " + c;
       return out;
     }
@@ -78,7 +71,7 @@ void ParamValues::set(const ParamSpec& s, const std::string& value) {
       if (s.type == ParamType::Int && v != std::floor(v)) throw bad("not a whole number:");
       if (v < s.min || v > s.max) throw bad("value out of range:");
       num_[s.name] = v;
-      text_[s.name] = s.type == ParamType::Int ? std::to_string(int64_t(v)) : fmt_num(v);
+      text_[s.name] = s.type == ParamType::Int ? std::to_string(int64_t(v)) : format_number(v, 10, nullptr);
       break;
     }
     case ParamType::Bool: {

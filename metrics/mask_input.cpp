@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 
 namespace pb {
 
@@ -28,12 +29,6 @@ MaskSpec parse_mask_label(const std::string& text, const std::string& option) {
 }
 
 namespace {
-
-std::string num(double v) {
-  std::ostringstream s;
-  s << v;
-  return s.str();
-}
 
 template <class T>
 MaskReading read_integer(const T* s, const Geometry& g, const MaskSpec& spec, const std::string& file, const std::string& label_option,
@@ -91,7 +86,7 @@ MaskReading read_integer(const T* s, const Geometry& g, const MaskSpec& spec, co
   std::ostringstream msg;
   if (values.size() > 256 || zero_share < 0.5) {
     msg << file << " looks like a grey scan, not a mask: " << values.size() << " distinct values from " << values.front()
-        << " to " << values.back() << ", " << num(std::round(1000 * zero_share) / 10)
+        << " to " << values.back() << ", " << format_number(std::round(1000 * zero_share) / 10, 6, nullptr)
         << " % of voxels 0 (a pore mask is mostly 0 and has few values); give the segmented mask";
   } else {
     msg << file << " is a label volume with " << nonzero.size() << " non-zero values (" << nonzero[0] << ", " << nonzero[1]
@@ -107,7 +102,7 @@ MaskReading read_float(const float* s, const Geometry& g, const MaskSpec& spec, 
     throw InputError(label_option + " applies to integer label volumes; " + file +
                      " holds float32 voxels (a probability map: use " + threshold_option + ")");
   if (!(spec.threshold > 0 && spec.threshold <= 1))
-    throw InputError(threshold_option + " must be in (0, 1], got " + num(spec.threshold));
+    throw InputError(threshold_option + " must be in (0, 1], got " + format_number(spec.threshold, 6, nullptr));
   const int64_t n = g.voxels();
   int64_t nan = 0, outside = 0;
   float lo = INFINITY, hi = -INFINITY;
@@ -123,15 +118,15 @@ MaskReading read_float(const float* s, const Geometry& g, const MaskSpec& spec, 
   }
   if (nan) throw InputError(file + " has " + std::to_string(nan) + " non-finite voxels; a probability map has values in [0, 1]");
   if (outside)
-    throw InputError(file + " looks like a grey scan, not a mask or probability map: float values from " + num(lo) + " to " +
-                     num(hi) + " (" + std::to_string(outside) + " voxels outside [0, 1]); give the segmented mask");
+    throw InputError(file + " looks like a grey scan, not a mask or probability map: float values from " + format_number(lo, 6, nullptr) + " to " +
+                     format_number(hi, 6, nullptr) + " (" + std::to_string(outside) + " voxels outside [0, 1]); give the segmented mask");
   MaskReading r;
   r.mask = Mask(g);
   uint8_t* d = r.mask.data();
   const float t = float(spec.threshold);
 #pragma omp parallel for schedule(static)
   for (int64_t i = 0; i < n; ++i) d[i] = s[i] >= t;
-  r.how = "probability map: pore = value >= " + num(spec.threshold) + " (" + threshold_option +
+  r.how = "probability map: pore = value >= " + format_number(spec.threshold, 6, nullptr) + " (" + threshold_option +
           (spec.threshold_given ? ")" : ", default: common practice for probabilities)");
   return r;
 }

@@ -15,13 +15,13 @@
 #include <cmath>
 #include <map>
 #include <random>
-#include <sstream>
 #include <unordered_map>
 
 #include <boost/math/distributions/chi_squared.hpp>
 
-#include "core/error.hpp"
 #include "core/components.hpp"
+#include "core/error.hpp"
+#include "core/format.hpp"
 
 namespace pb {
 
@@ -29,10 +29,8 @@ using ojson = nlohmann::ordered_json;
 
 // ---------------------------------------------------------------------------------------------
 std::string MatchRule::text() const {
-  std::ostringstream s;
   if (kind == any) return "any";
-  s << (kind == coverage ? "coverage:" : "iou:") << threshold;
-  return s.str();
+  return (kind == coverage ? "coverage:" : "iou:") + format_number(threshold, 6);
 }
 
 MatchRule parse_match_rule(const std::string& s, const std::string& what) {

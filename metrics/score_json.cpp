@@ -2,10 +2,10 @@
 // under their block and name in the metric table (metrics/metric_table.hpp), so that the record,
 // criteria and compare spell them one way; the other fields are the counts and details behind them.
 #include <cmath>
-#include <iomanip>
 #include <sstream>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "metrics/metric_table.hpp"
 #include "metrics/score.hpp"
 
@@ -133,16 +133,10 @@ nlohmann::ordered_json to_json(const ScoreResult& r) {
 
 std::string pores_csv(const ScoreResult& r) {
   std::ostringstream s;
-  s << std::setprecision(10);
   s << "side,label,voxels,volume_mm3,esd_um,centroid_x_mm,centroid_y_mm,centroid_z_mm,bbox_x0,bbox_y0,bbox_z0,"
        "bbox_x1,bbox_y1,bbox_z1,surface_mm2,sphericity,touches_border,overlap_voxels,partners,best_partner,"
        "best_iou,matched,oversized\n";
-  auto num = [&](double v) {
-    if (std::isfinite(v))
-      s << v;
-    else
-      s << "NaN";
-  };
+  auto num = [&](double v) { s << format_number(v, 10, "NaN"); };
   for (int side = 0; side < 2; ++side)
     for (const auto& p : side == 0 ? r.pores_ref : r.pores_pred) {
       s << (side == 0 ? "ref" : "pred") << ',' << p.label << ',' << p.voxels << ',';

@@ -8,9 +8,9 @@
 #include <cstring>
 #include <filesystem>
 #include <fstream>
-#include <sstream>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "core/io.hpp"
 #include "core/io_header.hpp"
 #include "metrics/score.hpp"
@@ -31,11 +31,7 @@ void check_readable_file(const std::string& path, const std::string& what) {
   if (::access(path.c_str(), R_OK) != 0) throw InputError("cannot read " + what + " " + path + ": " + std::strerror(errno));
 }
 
-std::string num(double v) {
-  std::ostringstream s;
-  s << v;
-  return s.str();
-}
+std::string num(double v) { return format_number(v, 6, nullptr); }
 
 Json read_json_named(const std::string& path, const std::string& what) {
   std::error_code ec;

@@ -12,6 +12,7 @@
 #include <sstream>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 
 namespace pb::synth {
 
@@ -271,11 +272,7 @@ double shape_volume(const Shape& s) {
   return v;
 }
 
-std::string mm(double v) {
-  std::ostringstream os;
-  os << std::setprecision(4) << v << " mm";
-  return os.str();
-}
+std::string mm(double v) { return format_number(v, 4, nullptr) + " mm"; }
 
 struct Placer {
   const Phantom& ph;

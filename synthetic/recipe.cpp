@@ -14,6 +14,7 @@
 #include <toml++/toml.h>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "core/memory.hpp"
 #include "core/names.hpp"
 #include "core/toml_keys.hpp"
@@ -421,11 +422,7 @@ std::string to_toml(const Recipe& recipe) {
 
 void validate(const Recipe& r) {
   auto bad = [](const std::string& key, const std::string& msg) { throw InputError("recipe: " + key + " " + msg); };
-  auto num = [](double v) {
-    std::ostringstream os;
-    os << v;
-    return os.str();
-  };
+  auto num = [](double v) { return format_number(v, 6, nullptr); };
   for (int i = 0; i < 3; ++i)
     if (r.dims[i] < 8 || r.dims[i] > 4096) bad("phantom.dims", "= " + std::to_string(r.dims[i]) + " must be in 8..4096");
   if (!(r.voxel_size_um > 0)) bad("phantom.voxel_size_um", "= " + num(r.voxel_size_um) + " must be > 0");
