@@ -21,7 +21,8 @@ int64_t reflect(int64_t i, int64_t n) { return i < 0 ? -i : (i >= n ? 2 * (n - 1
 
 namespace {
 
-// Window sums over x and y of slice z, channels d = v - c and d^2, into s1 and s2 (one thread).
+// Window sums over x and y of slice z, channels d = v - c and (Std) d^2, into s1 and s2 (one thread).
+template <bool Std>
 void plane_sums(const VolumeF& v, int64_t z, int64_t h, double c, double* s1, double* s2, std::vector<double>& scratch) {
   const int64_t nx = v.nx(), ny = v.ny(), m = nx + 2 * h;
   scratch.resize(size_t(2 * nx * ny + 2 * m));
@@ -37,33 +38,35 @@ void plane_sums(const VolumeF& v, int64_t z, int64_t h, double c, double* s1, do
       const float f = row[reflect(i - h, nx)];
       const double d = std::isfinite(f) ? double(f) - c : 0.0;
       p1[i] = d;
-      p2[i] = d * d;
+      if constexpr (Std) p2[i] = d * d;
     }
-    double r1 = p1[h], r2 = p2[h];  // window at x = 0: voxel 0 plus twice voxels 1..h (mirror)
+    double r1 = p1[h], r2 = Std ? p2[h] : 0.0;  // window at x = 0: voxel 0 plus twice voxels 1..h (mirror)
     for (int64_t j = 1; j <= h; ++j) {
       r1 += 2 * p1[h + j];
-      r2 += 2 * p2[h + j];
+      if constexpr (Std) r2 += 2 * p2[h + j];
     }
     double* o1 = x1 + y * nx;
     double* o2 = x2 + y * nx;
     o1[0] = r1;
-    o2[0] = r2;
+    if constexpr (Std) o2[0] = r2;
     for (int64_t x = 1; x < nx; ++x) {
       r1 += p1[x + 2 * h] - p1[x - 1];
-      r2 += p2[x + 2 * h] - p2[x - 1];
       o1[x] = r1;
-      o2[x] = r2;
+      if constexpr (Std) {
+        r2 += p2[x + 2 * h] - p2[x - 1];
+        o2[x] = r2;
+      }
     }
   }
   // y: whole rows at a time; the window at y = 0 is row 0 plus twice rows 1..h (mirror).
   for (int64_t x = 0; x < nx; ++x) {
     s1[x] = x1[x];
-    s2[x] = x2[x];
+    if constexpr (Std) s2[x] = x2[x];
   }
   for (int64_t j = 1; j <= h; ++j)
     for (int64_t x = 0; x < nx; ++x) {
       s1[x] += 2 * x1[j * nx + x];
-      s2[x] += 2 * x2[j * nx + x];
+      if constexpr (Std) s2[x] += 2 * x2[j * nx + x];
     }
   for (int64_t y = 1; y < ny; ++y) {
     const double* e1 = x1 + reflect(y + h, ny) * nx;
@@ -76,24 +79,26 @@ void plane_sums(const VolumeF& v, int64_t z, int64_t h, double c, double* s1, do
     const double* q2 = o2 - nx;
     for (int64_t x = 0; x < nx; ++x) {
       o1[x] = q1[x] + e1[x] - l1[x];
-      o2[x] = q2[x] + e2[x] - l2[x];
+      if constexpr (Std) o2[x] = q2[x] + e2[x] - l2[x];
     }
   }
 }
 
 struct PlaneJob {
   int64_t z;
-  double *s1, *s2;
+  double *s1, *s2;  // s2 unused without Std
 };
 
 // Computes the jobs' plane sums in parallel, one plane per thread at a time.
+template <bool Std>
 void run_plane_jobs(const VolumeF& v, int64_t h, double c, const std::vector<PlaneJob>& jobs) {
   const int64_t n = int64_t(jobs.size());
 #pragma omp parallel
   {
     std::vector<double> scratch;
 #pragma omp for schedule(static)
-    for (int64_t j = 0; j < n; ++j) plane_sums(v, jobs[size_t(j)].z, h, c, jobs[size_t(j)].s1, jobs[size_t(j)].s2, scratch);
+    for (int64_t j = 0; j < n; ++j)
+      plane_sums<Std>(v, jobs[size_t(j)].z, h, c, jobs[size_t(j)].s1, jobs[size_t(j)].s2, scratch);
   }
 }
 
@@ -102,35 +107,42 @@ void run_plane_jobs(const VolumeF& v, int64_t h, double c, const std::vector<Pla
 // Along z: Z(z) = Z(z-1) + P(z+h) - P(z-1-h) over the planes P of x,y window sums, from
 // Z(0) = P(0) + 2 (P(1) + ... + P(h)). Planes are computed in parallel a batch at a time; the
 // recurrence itself is serial and in fixed order.
-SliceMoments::SliceMoments(const VolumeF& v, int64_t window, double centre)
-    : v_(v), h_(window / 2), batch_(std::clamp<int64_t>(v.nz() / 16, 1, 8)), c_(centre) {
-  const size_t nxy = size_t(v.geometry().slice_voxels());
+SliceMoments::SliceMoments(const VolumeF& v, int64_t window, double centre, bool with_std)
+    : v_(v), h_(window / 2), batch_(std::clamp<int64_t>(v.nz() / 16, 1, 8)), c_(centre), with_std_(with_std) {
+  const size_t nxy = size_t(v.geometry().slice_voxels()), channels = with_std ? 2 : 1;
   z1_.assign(nxy, 0.0);
-  z2_.assign(nxy, 0.0);
-  e_.assign(nxy * 2 * size_t(batch_), 0.0);
-  l_.assign(nxy * 2 * size_t(batch_), 0.0);
+  if (with_std) z2_.assign(nxy, 0.0);
+  e_.assign(nxy * channels * size_t(batch_), 0.0);
+  l_.assign(nxy * channels * size_t(batch_), 0.0);
 }
 
 int64_t SliceMoments::next(double* mean, double* stdev) {
+  return with_std_ ? next_slices<true>(mean, stdev) : next_slices<false>(mean, nullptr);
+}
+
+template <bool Std>
+int64_t SliceMoments::next_slices(double* mean, double* stdev) {
   const int64_t nz = v_.nz(), h = h_, nxy = v_.geometry().slice_voxels();
   const int64_t n = std::min(batch_, nz - z_);
   if (n <= 0) return 0;
+  constexpr int64_t channels = Std ? 2 : 1;
   double* z1 = z1_.data();
   double* z2 = z2_.data();
-  auto e1 = [&](int64_t t) { return e_.data() + 2 * t * nxy; };
-  auto l1 = [&](int64_t t) { return l_.data() + 2 * t * nxy; };
+  auto e1 = [&](int64_t t) { return e_.data() + channels * t * nxy; };
+  auto l1 = [&](int64_t t) { return l_.data() + channels * t * nxy; };
+  auto second = [&](auto* first) { return Std ? first + nxy : nullptr; };  // the d^2 channel
   if (z_ == 0) {  // Z(0) from planes 0..h, a batch at a time, summed in order j = 0, 1, ..., h
     for (int64_t j0 = 0; j0 <= h; j0 += batch_) {
       std::vector<PlaneJob> jobs;
-      for (int64_t j = j0; j <= std::min(h, j0 + batch_ - 1); ++j) jobs.push_back({j, e1(j - j0), e1(j - j0) + nxy});
-      run_plane_jobs(v_, h, c_, jobs);
+      for (int64_t j = j0; j <= std::min(h, j0 + batch_ - 1); ++j) jobs.push_back({j, e1(j - j0), second(e1(j - j0))});
+      run_plane_jobs<Std>(v_, h, c_, jobs);
       const int64_t nj = int64_t(jobs.size());
 #pragma omp parallel for schedule(static)
       for (int64_t i = 0; i < nxy; ++i)
         for (int64_t t = 0; t < nj; ++t) {
           const double f = jobs[size_t(t)].z == 0 ? 1.0 : 2.0;
           z1[i] += f * jobs[size_t(t)].s1[i];
-          z2[i] += f * jobs[size_t(t)].s2[i];
+          if constexpr (Std) z2[i] += f * jobs[size_t(t)].s2[i];
         }
     }
   }
@@ -143,31 +155,31 @@ int64_t SliceMoments::next(double* mean, double* stdev) {
     const int64_t e = reflect(z + h, nz), l = reflect(z - 1 - h, nz);
     if (e == l) continue;  // the mirror brings back the plane that leaves
     moves[size_t(t)] = 1;
-    jobs.push_back({e, e1(t), e1(t) + nxy});
-    jobs.push_back({l, l1(t), l1(t) + nxy});
+    jobs.push_back({e, e1(t), second(e1(t))});
+    jobs.push_back({l, l1(t), second(l1(t))});
   }
-  run_plane_jobs(v_, h, c_, jobs);
+  run_plane_jobs<Std>(v_, h, c_, jobs);
   const double w = double(2 * h + 1), inv = 1.0 / (w * w * w), c = c_;
   // Serial in z, parallel over the slice: each thread keeps the same band of voxels for every
   // slice (static schedule over the same range), so no barrier is needed between slices.
 #pragma omp parallel
   for (int64_t t = 0; t < n; ++t) {
     const double* ea = e1(t);
-    const double* eb = ea + nxy;
+    const double* eb = second(ea);
     const double* la = l1(t);
-    const double* lb = la + nxy;
+    const double* lb = second(la);
     double* mo = mean + t * nxy;
-    double* so = stdev + t * nxy;
+    double* so = Std ? stdev + t * nxy : nullptr;
     const bool move = moves[size_t(t)];
 #pragma omp for schedule(static) nowait
     for (int64_t i = 0; i < nxy; ++i) {
       if (move) {
         z1[i] += ea[i] - la[i];
-        z2[i] += eb[i] - lb[i];
+        if constexpr (Std) z2[i] += eb[i] - lb[i];
       }
       const double m = z1[i] * inv;
       mo[i] = c + m;
-      so[i] = std::sqrt(std::max(0.0, z2[i] * inv - m * m));
+      if constexpr (Std) so[i] = std::sqrt(std::max(0.0, z2[i] * inv - m * m));
     }
   }
   z_ += n;

@@ -20,20 +20,25 @@ namespace pb {
 // mean) before squaring, so the variance does not cancel on CT data with a large grey offset;
 // non-finite voxels are read as `centre`. std = sqrt(max(0, E[(v-c)^2] - E[v-c]^2)) (population
 // form, as scikit-image). The z recurrence runs in one fixed order: results do not depend on the
-// thread count.
+// thread count. With with_std = false only the mean is computed (no squared sums: about half the
+// work and memory); the means are the same to the bit.
 class SliceMoments {
  public:
-  SliceMoments(const VolumeF& v, int64_t window, double centre);
+  SliceMoments(const VolumeF& v, int64_t window, double centre, bool with_std = true);
   int64_t next_z() const { return z_; }
   int64_t batch() const { return batch_; }  // slices per call: 1..8, from nz only
-  // Fills mean and std of slices next_z() .. next_z()+n-1 (batch() * nx * ny values each, slice
-  // after slice), advances, and returns n (0 at the end).
+  // Fills mean and (with_std) std of slices next_z() .. next_z()+n-1 (batch() * nx * ny values
+  // each, slice after slice), advances, and returns n (0 at the end). std is not read without with_std.
   int64_t next(double* mean, double* std);
 
  private:
+  template <bool Std>
+  int64_t next_slices(double* mean, double* std);
+
   const VolumeF& v_;
   int64_t h_, batch_, z_ = 0;
   double c_;
+  bool with_std_;
   std::vector<double> z1_, z2_, e_, l_;
 };
 

@@ -9,22 +9,17 @@
 #include <cmath>
 #include <functional>
 #include <map>
-#include <sstream>
+#include <type_traits>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "core/histogram.hpp"
 #include "methods/integral.hpp"
 #include "methods/pores.hpp"
+#include "methods/threshold.hpp"
 
 namespace pb {
 namespace {
-
-std::string fmt(double v) {
-  std::ostringstream s;
-  s.precision(8);
-  s << v;
-  return s.str();
-}
 
 // Window: odd and no larger than the volume along any axis (the mirror needs window/2 < dim).
 int64_t checked_window(const std::string& method, const VolumeF& v, const ParamValues& p) {
@@ -68,13 +63,9 @@ Context context(const MethodInput& in, double clip_pct, bool need_range) {
     const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
     const Stats s = roi ? compute_stats(in.volume.data(), in.volume.size(), roi) : c.all;
     if (s.count == 0) throw InputError("no finite voxels inside the region of interest");
-    c.lo = s.min;
-    c.hi = s.max;
-    if (clip_pct > 0 && c.hi > c.lo) {
-      const Histogram fine = compute_histogram(in.volume.data(), in.volume.size(), s.min, s.max, 65536, roi);
-      c.lo = histogram_quantile(fine, clip_pct / 100.0);
-      c.hi = histogram_quantile(fine, 1.0 - clip_pct / 100.0);
-    }
+    const GreyRange r = grey_range(in.volume, roi, s, clip_pct);
+    c.lo = r.lo;
+    c.hi = r.hi;
   }
   return c;
 }
@@ -90,19 +81,27 @@ LocalAir finish(Mask air, Context& c) {
 bool constant_volume(const MethodInput& in, const Context& c, LocalAir& out) {
   if (c.all.max > c.all.min) return false;
   Context cc = c;
-  cc.warnings.push_back("constant volume (every voxel " + fmt(c.all.min) + "): no local contrast, no pores");
+  cc.warnings.push_back("constant volume (every voxel " + format_number(c.all.min, 8) + "): no local contrast, no pores");
   out = finish(Mask(in.volume.geometry()), cc);
   return true;
 }
 
-// Air mask from the window mean and std: air where v < thr(mean, std) (and inside the ROI).
+// Air mask from the window mean and std: air where v < thr(mean, std) (and inside the ROI). A
+// threshold of the mean alone, thr(mean), is served without the std sums.
 template <class Thr>
 Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr thr) {
+  constexpr bool with_std = std::is_invocable_v<Thr, double, double>;
   const VolumeF& v = in.volume;
   Mask air(v.geometry(), Uninitialized{});  // every slice written below
   const int64_t nxy = v.geometry().slice_voxels();
-  SliceMoments mom(v, window, centre);
-  std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(mean.size());
+  SliceMoments mom(v, window, centre, with_std);
+  std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(with_std ? mean.size() : 0);
+  auto threshold = [&](int64_t i) {
+    if constexpr (with_std)
+      return thr(mean[size_t(i)], sd[size_t(i)]);
+    else
+      return thr(mean[size_t(i)]);
+  };
   const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
   for (;;) {
     const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data()) * nxy;
@@ -111,7 +110,7 @@ Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr 
     uint8_t* a = air.slice(z0);
     const uint8_t* r = roi ? roi + z0 * nxy : nullptr;
 #pragma omp parallel for schedule(static)
-    for (int64_t i = 0; i < n; ++i) a[i] = double(s[i]) < thr(mean[size_t(i)], sd[size_t(i)]) && (!r || r[i]);
+    for (int64_t i = 0; i < n; ++i) a[i] = double(s[i]) < threshold(i) && (!r || r[i]);
   }
   return air;
 }
@@ -204,7 +203,7 @@ MethodInfo sauvola_info() {
           if (r == 0) r = 0.5 * (c.hi - c.lo);
           if (!(r > 0)) r = 0.5 * (c.all.max - c.all.min);  // ROI constant: fall back to the whole volume
           if (c.lo < 0)
-            c.warnings.push_back("grey values below 0 (low " + fmt(c.lo) +
+            c.warnings.push_back("grey values below 0 (low " + format_number(c.lo, 8) +
                                  "): Sauvola's T = m(1 + k(s/R - 1)) assumes non-negative grey values");
           out = finish(air_from_moments(in, w, c.all.mean,
                                             [k, r](double m, double s) { return m * (1 + k * (s / r - 1)); }),
@@ -342,7 +341,7 @@ MethodInfo local_mean_info() {
         Context c = context(in, 0, false);
         LocalAir out;
         if (!constant_volume(in, c, out))
-          out = finish(air_from_moments(in, w, c.all.mean, [off](double m, double) { return m - off; }), c);
+          out = finish(air_from_moments(in, w, c.all.mean, [off](double m) { return m - off; }), c);
         out.chosen = {{"window", double(w)}, {"offset", off}};
         return out;
       });

@@ -5,9 +5,9 @@
 #include "methods/threshold.hpp"
 
 #include <cmath>
-#include <cstdio>
 
 #include "core/error.hpp"
+#include "core/format.hpp"
 #include "methods/pores.hpp"
 
 namespace pb {
@@ -30,21 +30,22 @@ bool integer_type(VoxelType t) { return t == VoxelType::u8 || t == VoxelType::u1
 
 double grey_levels(double lo, double hi) { return std::floor(hi) - std::ceil(lo) + 1; }
 
+GreyRange grey_range(const VolumeF& v, const uint8_t* roi, const Stats& s, double clip_pct) {
+  if (!(clip_pct > 0 && s.max > s.min)) return {s.min, s.max};
+  const Histogram fine = compute_histogram(v.data(), v.size(), s.min, s.max, 65536, roi);
+  return {histogram_quantile(fine, clip_pct / 100.0), histogram_quantile(fine, 1.0 - clip_pct / 100.0)};
+}
+
 Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
   const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
   const Stats s = compute_stats(in.volume.data(), in.volume.size(), roi);
   if (s.count == 0) throw InputError(roi ? "no finite voxels inside the region of interest" : "no finite voxels in the volume");
-  double lo = s.min, hi = s.max;
   const double clip = p.num("clip_pct");
   const bool automatic = p.is_word("bins");
-  if (clip > 0 && hi > lo) {
-    const Histogram fine = compute_histogram(in.volume.data(), in.volume.size(), lo, hi, 65536, roi);
-    lo = histogram_quantile(fine, clip / 100.0);
-    hi = histogram_quantile(fine, 1.0 - clip / 100.0);
-    if (automatic && integer_type(in.stored_type)) {  // whole levels at both ends, so that bins fall on levels
-      lo = std::floor(lo);
-      hi = std::ceil(hi);
-    }
+  auto [lo, hi] = grey_range(in.volume, roi, s, clip);
+  if (clip > 0 && s.max > s.min && automatic && integer_type(in.stored_type)) {
+    lo = std::floor(lo);  // whole levels at both ends, so that bins fall on levels
+    hi = std::ceil(hi);
   }
   int bins = automatic ? kAutoBins : int(p.integer("bins"));
   if (automatic && integer_type(in.stored_type) && grey_levels(lo, hi) <= kAutoMaxLevels)
@@ -69,8 +70,7 @@ MethodOutput pores_from_air(Mask air, const MethodInput& in, const std::string& 
 }
 
 MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, const std::string& method) {
-  char t[32];
-  std::snprintf(t, sizeof t, "%.6g", c.threshold);
+  const std::string t = format_number(c.threshold, 6);
   MethodOutput out = pores_from_air(air_below(in.volume, c.threshold, in.roi), in, method, std::string("threshold ") + t);
   out.chosen.emplace_back("threshold", c.threshold);
   out.warnings.insert(out.warnings.begin(), c.warnings.begin(), c.warnings.end());

@@ -19,6 +19,15 @@ inline constexpr int kAutoBins = 256;
 // Schema entries every histogram method takes: bins (default auto), clip_pct, histogram.
 std::vector<ParamSpec> histogram_params();
 
+// The grey range [lo, hi] of the voxels that `s` describes (the ROI's where `roi` is given, else
+// the volume's): [s.min, s.max], or with clip_pct > 0 the [clip_pct, 100 - clip_pct] percentiles
+// (from a 65,536-bin histogram over [s.min, s.max]). One computation for the method histogram and
+// for the local methods' R, lowest grey and normalisation (methods/local.cpp).
+struct GreyRange {
+  double lo = 0, hi = 0;
+};
+GreyRange grey_range(const VolumeF& v, const uint8_t* roi, const Stats& s, double clip_pct);
+
 // Histogram of the voxels of the volume (histogram=volume, the default) or of the ROI
 // (histogram=roi) over [min, max] or, with clip_pct > 0, over the [clip_pct, 100 - clip_pct]
 // percentile range (values outside go to the end bins; with bins=auto on integer data the range

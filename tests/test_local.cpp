@@ -152,11 +152,15 @@ TEST_CASE("window mean and std on a 3D checkerboard are the hand-computed ones, 
   double mean_total = 0;
   for (int64_t i = 0; i < v.size(); ++i) mean_total += v[i];
   SliceMoments mom(v, w, mean_total / double(v.size()));
+  // The mean alone (local-mean's use, without the squared sums) must be the same to the bit.
+  SliceMoments mean_only(v, w, mean_total / double(v.size()), false);
   const int64_t nxy = v.geometry().slice_voxels();
-  std::vector<double> m(size_t(nxy * mom.batch())), s(m.size());
+  std::vector<double> m(size_t(nxy * mom.batch())), s(m.size()), m_only(m.size());
   double worst_m = 0, worst_s = 0;
-  int64_t slices = 0;
-  for (int64_t z0 = 0, n; (n = mom.next(m.data(), s.data())) > 0; z0 += n)
+  int64_t slices = 0, mean_only_differs = 0;
+  for (int64_t z0 = 0, n; (n = mom.next(m.data(), s.data())) > 0; z0 += n) {
+    REQUIRE(mean_only.next(m_only.data(), nullptr) == n);
+    for (int64_t i = 0; i < n * nxy; ++i) mean_only_differs += m_only[size_t(i)] != m[size_t(i)];
     for (int64_t t = 0; t < n; ++t, ++slices)
       for (int64_t y = 0; y < v.ny(); ++y)
         for (int64_t x = 0; x < v.nx(); ++x) {
@@ -166,6 +170,9 @@ TEST_CASE("window mean and std on a 3D checkerboard are the hand-computed ones, 
           worst_m = std::max(worst_m, std::abs(m[i] - (offset + f)));
           worst_s = std::max(worst_s, std::abs(s[i] - std::sqrt(f * (1 - f))));
         }
+  }
+  CHECK(mean_only.next(m_only.data(), nullptr) == 0);
+  CHECK(mean_only_differs == 0);
   CHECK(slices == v.nz());
   INFO("window " << w << " offset " << offset);
   CHECK(worst_m < 1e-9);
