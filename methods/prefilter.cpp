@@ -14,7 +14,6 @@
 
 #include <algorithm>
 #include <array>
-#include <utility>
 #include <cmath>
 #include <limits>
 #include <opencv2/photo.hpp>
@@ -31,71 +30,108 @@ namespace pb {
 
 namespace {
 
-// Batcher's odd-even merge sort network for n = 2^k wires, as (low, high) comparator pairs.
-void batcher(int lo, int n, int r, std::vector<std::pair<int, int>>& out) {
+// A comparator of a sorting network: afterwards wire a holds the lower value, wire b the higher.
+struct Comparator {
+  int a = 0, b = 0;
+};
+
+// A vector of fixed capacity usable in constant expressions (std::vector is not, in C++17), so
+// that one builder makes both the run-time networks (on std::vector) and the compile-time 3x3x3
+// network below (on this).
+template <class T, size_t N>
+struct StaticVec {
+  T items[N] = {};
+  size_t count = 0;
+  constexpr void push_back(const T& x) { items[count++] = x; }
+  constexpr void assign(size_t n, const T& x) {
+    for (count = 0; count < n;) items[count++] = x;
+  }
+  constexpr size_t size() const { return count; }
+  constexpr T& operator[](size_t i) { return items[i]; }
+  constexpr const T& operator[](size_t i) const { return items[i]; }
+};
+template <class T>
+using DynamicVec = std::vector<T>;
+
+// Batcher's odd-even merge sort network for n = 2^k wires, as (low, high) comparators.
+template <class Out>
+constexpr void batcher_merge(int lo, int n, int r, Out& out) {
   const int step = r * 2;
   if (step < n) {
-    batcher(lo, n, step, out);
-    batcher(lo + r, n, step, out);
-    for (int i = lo + r; i + r < lo + n; i += step) out.emplace_back(i, i + r);
+    batcher_merge(lo, n, step, out);
+    batcher_merge(lo + r, n, step, out);
+    for (int i = lo + r; i + r < lo + n; i += step) out.push_back({i, i + r});
   } else {
-    out.emplace_back(lo, lo + r);
+    out.push_back({lo, lo + r});
   }
 }
-void batcher_sort(int lo, int n, std::vector<std::pair<int, int>>& out) {
+template <class Out>
+constexpr void batcher_sort(int lo, int n, Out& out) {
   if (n > 1) {
     const int m = n / 2;
     batcher_sort(lo, m, out);
     batcher_sort(lo + m, m, out);
-    batcher(lo, n, 1, out);
+    batcher_merge(lo, n, 1, out);
   }
 }
 
-struct MedianNetwork {
+template <template <class> class Vec>
+struct BasicMedianNetwork {
   int wires = 0;      // power of two >= window size
   int low_pad = 0;    // wires filled with -inf before the data
   int out_wire = 0;   // wire holding the median after the network
-  std::vector<std::pair<int, int>> comparators;  // pruned to those that reach out_wire
+  Vec<Comparator> comparators;  // pruned to those that reach out_wire
 };
+using MedianNetwork = BasicMedianNetwork<DynamicVec>;
 
-MedianNetwork make_median_network(int count) {
-  MedianNetwork net;
+enum WireKind : char { kLow, kData, kHigh };
+
+// The median network of `count` values: Batcher's sort of the next power of two wires, padded
+// with -inf below and +inf above, pruned by constant propagation and to what reaches the median.
+template <template <class> class Vec>
+constexpr BasicMedianNetwork<Vec> make_median_network(int count) {
+  BasicMedianNetwork<Vec> net;
   net.wires = 1;
   while (net.wires < count) net.wires *= 2;
   const int pad = net.wires - count;
   net.low_pad = pad / 2;  // -inf below, +inf above: the median of the data stays in the middle
-  std::vector<std::pair<int, int>> all;
+  Vec<Comparator> all;
   batcher_sort(0, net.wires, all);
   // Constant propagation: a comparator whose inputs are already ordered (-inf low or +inf high)
   // is dropped; one whose inputs are surely reversed becomes a relabelling of wires.
-  enum Kind : char { kLow, kData, kHigh };
-  std::vector<char> kind(size_t(net.wires), kData);
-  std::vector<int> slot(size_t(net.wires));  // logical wire -> physical slot
+  Vec<char> kind;
+  Vec<int> slot;  // logical wire -> physical slot
+  kind.assign(size_t(net.wires), kData);
+  slot.assign(size_t(net.wires), 0);
   for (int i = 0; i < net.wires; ++i) {
     slot[size_t(i)] = i;
     kind[size_t(i)] = i < net.low_pad ? kLow : i >= net.low_pad + count ? kHigh : kData;
   }
-  std::vector<std::pair<int, int>> kept;
-  for (const auto& [a, b] : all) {
-    const char ka = kind[size_t(a)], kb = kind[size_t(b)];
+  Vec<Comparator> kept;
+  for (size_t c = 0; c < all.size(); ++c) {
+    const size_t a = size_t(all[c].a), b = size_t(all[c].b);
+    const char ka = kind[a], kb = kind[b];
     if (ka == kLow || kb == kHigh) continue;
     if (ka == kHigh || kb == kLow) {
-      std::swap(kind[size_t(a)], kind[size_t(b)]);
-      std::swap(slot[size_t(a)], slot[size_t(b)]);
+      kind[a] = kb, kind[b] = ka;
+      const int sa = slot[a];
+      slot[a] = slot[b], slot[b] = sa;
       continue;
     }
-    kept.emplace_back(slot[size_t(a)], slot[size_t(b)]);
+    kept.push_back({slot[a], slot[b]});
   }
   net.out_wire = slot[size_t(net.low_pad + count / 2)];
   // Keep only comparators on which the output depends (walk the network backwards).
-  std::vector<char> needed(size_t(net.wires), 0);
+  Vec<char> needed;
+  needed.assign(size_t(net.wires), 0);
   needed[size_t(net.out_wire)] = 1;
-  for (auto it = kept.rbegin(); it != kept.rend(); ++it)
-    if (needed[size_t(it->first)] || needed[size_t(it->second)]) {
-      needed[size_t(it->first)] = needed[size_t(it->second)] = 1;
-      net.comparators.push_back(*it);
+  Vec<Comparator> backwards;
+  for (size_t c = kept.size(); c-- > 0;)
+    if (needed[size_t(kept[c].a)] || needed[size_t(kept[c].b)]) {
+      needed[size_t(kept[c].a)] = needed[size_t(kept[c].b)] = 1;
+      backwards.push_back(kept[c]);
     }
-  std::reverse(net.comparators.begin(), net.comparators.end());
+  for (size_t c = backwards.size(); c-- > 0;) net.comparators.push_back(backwards[c]);
   return net;
 }
 
@@ -147,61 +183,10 @@ __attribute__((target("avx"))) void apply_network_avx(const MedianNetwork& net, 
 
 // For the common 3x3x3 window, the same network built at compile time and unrolled, so that the
 // 32 wires live in registers instead of memory (AVX, chosen at run time).
-struct FixedNetwork {
-  int size = 0, out_wire = 0, low_pad = 0;
-  uint8_t a[200] = {}, b[200] = {};
-};
-
-constexpr void fixed_merge(int lo, int n, int r, int (&pa)[256], int (&pb)[256], int& k) {
-  const int step = r * 2;
-  if (step < n) {
-    fixed_merge(lo, n, step, pa, pb, k);
-    fixed_merge(lo + r, n, step, pa, pb, k);
-    for (int i = lo + r; i + r < lo + n; i += step) pa[k] = i, pb[k++] = i + r;
-  } else {
-    pa[k] = lo, pb[k++] = lo + r;
-  }
-}
-constexpr void fixed_sort(int lo, int n, int (&pa)[256], int (&pb)[256], int& k) {
-  if (n > 1) {
-    fixed_sort(lo, n / 2, pa, pb, k);
-    fixed_sort(lo + n / 2, n / 2, pa, pb, k);
-    fixed_merge(lo, n, 1, pa, pb, k);
-  }
-}
-
-// make_median_network(27) at compile time (same steps: Batcher, constants, pruning).
-constexpr FixedNetwork median27_network() {
-  int pa[256] = {}, pb[256] = {}, k = 0;
-  fixed_sort(0, 32, pa, pb, k);
-  const int count = 27, low_pad = 2;
-  char kind[32] = {};
-  int slot[32] = {};
-  for (int i = 0; i < 32; ++i) slot[i] = i, kind[i] = i < low_pad ? 0 : i >= low_pad + count ? 2 : 1;
-  int ka[256] = {}, kb[256] = {}, kept = 0;
-  for (int c = 0; c < k; ++c) {
-    const int a = pa[c], b = pb[c];
-    if (kind[a] == 0 || kind[b] == 2) continue;
-    if (kind[a] == 2 || kind[b] == 0) {
-      const char t = kind[a]; kind[a] = kind[b]; kind[b] = t;
-      const int u = slot[a]; slot[a] = slot[b]; slot[b] = u;
-      continue;
-    }
-    ka[kept] = slot[a], kb[kept++] = slot[b];
-  }
-  FixedNetwork net;
-  net.low_pad = low_pad;
-  net.out_wire = slot[low_pad + count / 2];
-  bool needed[32] = {};
-  needed[net.out_wire] = true;
-  int rev_a[256] = {}, rev_b[256] = {}, n = 0;
-  for (int c = kept - 1; c >= 0; --c)
-    if (needed[ka[c]] || needed[kb[c]]) needed[ka[c]] = needed[kb[c]] = true, rev_a[n] = ka[c], rev_b[n++] = kb[c];
-  for (int c = 0; c < n; ++c) net.a[c] = uint8_t(rev_a[n - 1 - c]), net.b[c] = uint8_t(rev_b[n - 1 - c]);
-  net.size = n;
-  return net;
-}
-constexpr FixedNetwork kMedian27 = median27_network();
+template <class T>
+using Vec27 = StaticVec<T, 256>;  // Batcher's network on 32 wires has 191 comparators
+constexpr BasicMedianNetwork<Vec27> kMedian27 = make_median_network<Vec27>(27);
+static_assert(kMedian27.wires == 32, "the 3x3x3 median runs on 32 wires");
 
 #if defined(__x86_64__)
 template <size_t... I>
@@ -211,19 +196,19 @@ __attribute__((target("avx"), always_inline)) inline void run_median27(__m256* w
     y = _mm256_max_ps(x, y);
     x = lo;
   };
-  (cx(w[kMedian27.a[I]], w[kMedian27.b[I]]), ...);
+  (cx(w[kMedian27.comparators[I].a], w[kMedian27.comparators[I].b]), ...);
 }
 
 // Median of the 27 neighbours of 8 consecutive voxels: rows[r] points at the padded row r
 // (r = dz*3 + dy) at the first voxel's x - 1.
 __attribute__((target("avx"))) void median27_block(const float* const* rows, int64_t x0, float* out) {
-  __m256 w[32];
-  w[0] = w[1] = _mm256_set1_ps(-std::numeric_limits<float>::infinity());
-  for (int i = 29; i < 32; ++i) w[i] = _mm256_set1_ps(std::numeric_limits<float>::infinity());
-  int wire = 2;
+  __m256 w[kMedian27.wires];
+  for (int i = 0; i < kMedian27.low_pad; ++i) w[i] = _mm256_set1_ps(-std::numeric_limits<float>::infinity());
+  for (int i = kMedian27.low_pad + 27; i < kMedian27.wires; ++i) w[i] = _mm256_set1_ps(std::numeric_limits<float>::infinity());
+  int wire = kMedian27.low_pad;
   for (int r = 0; r < 9; ++r)
     for (int dx = 0; dx < 3; ++dx) w[wire++] = _mm256_loadu_ps(rows[r] + x0 + dx);
-  run_median27(w, std::make_index_sequence<size_t(kMedian27.size)>{});
+  run_median27(w, std::make_index_sequence<kMedian27.comparators.size()>{});
   _mm256_storeu_ps(out, w[kMedian27.out_wire]);
 }
 #endif
@@ -235,7 +220,7 @@ using NetworkFn = void (*)(const MedianNetwork&, float*);
 VolumeF median_filter(const VolumeF& in, int radius) {
   const int64_t nx = in.nx(), ny = in.ny(), nz = in.nz();
   const int w = 2 * radius + 1, count = w * w * w;
-  const MedianNetwork net = make_median_network(count);
+  const MedianNetwork net = make_median_network<DynamicVec>(count);
   // The AVX kernels run from the AVX2 level of core/cpu.hpp on (so --simd generic reaches the
   // portable network too); min/max networks give the same medians on every path.
 #if defined(__x86_64__)
