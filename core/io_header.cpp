@@ -116,6 +116,30 @@ std::string dims_text(const VolumeHeader& h) {
 
 const char* kSupported = " (supported: uint8, uint16, int16, float32)";
 
+// The dimension count and sizes of a text header (MetaImage NDims/DimSize, NRRD dimension/sizes),
+// with messages in the header's own spelling: "NDims = 4", "dimension: 4".
+struct DimFields {
+  const char* count;  // "NDims", "dimension"
+  const char* sizes;  // "DimSize", "sizes"
+  const char* eq;     // " = ", ": "
+  const char* what;   // what a 2D or 3D one is: "image", "scalar image"
+  const char* missing_count;
+  const char* missing_sizes;
+};
+
+void parse_dims(const DimFields& f, const std::string* count, const std::string* sizes, VolumeHeader& h, const std::string& path) {
+  if (!count) fail(path, f.missing_count);
+  h.ndims = int(parse_int(*count, 1, 1 << 20, f.count, path));
+  if (h.ndims < 2 || h.ndims > 3)
+    fail(path, std::string(f.count) + f.eq + std::to_string(h.ndims) + ": expected a 2D or 3D " + f.what + " (" + f.count + " 2 or 3)");
+  if (!sizes) fail(path, f.missing_sizes);
+  const auto w = words(*sizes);
+  if (int(w.size()) != h.ndims)
+    fail(path, std::string(f.sizes) + f.eq + shown(*sizes) + " has " + std::to_string(w.size()) + " values, " + f.count + f.eq +
+                   std::to_string(h.ndims));
+  for (int i = 0; i < h.ndims; ++i) h.dims[i] = parse_int(w[size_t(i)], 1, kMaxDim, f.sizes, path);
+}
+
 }  // namespace
 
 // ---- MetaImage --------------------------------------------------------------------------------
@@ -166,14 +190,8 @@ VolumeHeader parse_metaimage_header(std::string_view head, const std::string& pa
     fail(path, "MetaImage header has no ElementDataFile line (a header with no data?)");
   }
   if (!objtype.empty() && lower(objtype) != "image") fail(path, "ObjectType = " + shown(objtype) + " is not Image");
-  if (!have_ndims) fail(path, "MetaImage header has no NDims");
-  h.ndims = int(parse_int(ndims, 1, 1 << 20, "NDims", path));
-  if (h.ndims < 2 || h.ndims > 3) fail(path, "NDims = " + std::to_string(h.ndims) + ": expected a 2D or 3D image (NDims 2 or 3)");
-  if (!have_dims) fail(path, "MetaImage header has no DimSize");
-  const auto dw = words(dimsize);
-  if (int(dw.size()) != h.ndims)
-    fail(path, "DimSize = " + shown(dimsize) + " has " + std::to_string(dw.size()) + " values, NDims = " + std::to_string(h.ndims));
-  for (int i = 0; i < h.ndims; ++i) h.dims[i] = parse_int(dw[size_t(i)], 1, kMaxDim, "DimSize", path);
+  parse_dims({"NDims", "DimSize", " = ", "image", "MetaImage header has no NDims", "MetaImage header has no DimSize"},
+             have_ndims ? &ndims : nullptr, have_dims ? &dimsize : nullptr, h, path);
   const std::string& sp = !spacing.empty() ? spacing : elsize;
   const char* spfield = !spacing.empty() ? "ElementSpacing" : "ElementSize";
   if (!sp.empty()) {
@@ -263,14 +281,9 @@ VolumeHeader parse_nrrd_header(std::string_view head, const std::string& path) {
     else if (field == "lineskip") lineskip = value;
     else if (field == "byteskip") byteskip = value;
   }
-  if (!have_dim) fail(path, "NRRD header has no 'dimension' field");
-  h.ndims = int(parse_int(dimension, 1, 1 << 20, "dimension", path));
-  if (h.ndims < 2 || h.ndims > 3) fail(path, "dimension: " + std::to_string(h.ndims) + ": expected a 2D or 3D scalar image (dimension 2 or 3)");
-  if (!have_sizes) fail(path, "NRRD header has no 'sizes' field");
-  const auto sw = words(sizes);
-  if (int(sw.size()) != h.ndims)
-    fail(path, "sizes: " + shown(sizes) + " has " + std::to_string(sw.size()) + " values, dimension: " + std::to_string(h.ndims));
-  for (int i = 0; i < h.ndims; ++i) h.dims[i] = parse_int(sw[size_t(i)], 1, kMaxDim, "sizes", path);
+  parse_dims({"dimension", "sizes", ": ", "scalar image", "NRRD header has no 'dimension' field",
+              "NRRD header has no 'sizes' field"},
+             have_dim ? &dimension : nullptr, have_sizes ? &sizes : nullptr, h, path);
   if (!have_type) fail(path, "NRRD header has no 'type' field");
   const std::string t = lower(type);
   if (t == "uchar" || t == "unsigned char" || t == "uint8" || t == "uint8_t") h.type = VoxelType::u8;
