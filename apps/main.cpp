@@ -8,6 +8,7 @@
 #include <iostream>
 #include <new>
 #include <stdexcept>
+#include <tuple>
 
 #include "apps/cli.hpp"
 #include "build_info.hpp"
@@ -105,7 +106,8 @@ int main(int argc, char** argv) {
   app.require_subcommand(1);
   app.fallthrough();
   auto& defs = cli::commands();
-  std::sort(defs.begin(), defs.end(), [](auto& a, auto& b) { return a.order < b.order; });
+  // By help order, then by name: commands that share an order keep one place whatever the link order.
+  std::sort(defs.begin(), defs.end(), [](auto& a, auto& b) { return std::tie(a.order, a.name) < std::tie(b.order, b.name); });
   std::vector<std::pair<CLI::App*, cli::Action>> actions;
   for (auto& d : defs) {
     CLI::App* sub = app.add_subcommand(d.name);
