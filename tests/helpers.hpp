@@ -13,6 +13,7 @@
 
 #include "core/io.hpp"
 #include "core/volume.hpp"
+#include "tests/json_files.hpp"
 
 namespace pbtest {
 
@@ -44,14 +45,8 @@ inline RunResult run_shell(const std::string& cmd) {
   const int status = std::system((cmd + " >" + o + " 2>" + e).c_str());
   RunResult r;
   r.exit_code = WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-  auto slurp = [](const std::string& p) {
-    std::ifstream f(p);
-    std::stringstream s;
-    s << f.rdbuf();
-    return s.str();
-  };
-  r.out = slurp(o);
-  r.err = slurp(e);
+  r.out = read_text(o);
+  r.err = read_text(e);
   return r;
 }
 

@@ -1,5 +1,5 @@
 #pragma once
-// Small file helpers shared by the tests that write suites and read run records.
+// Small file helpers shared by the tests: a whole file read or written as bytes, a JSON record read.
 #include <catch2/catch.hpp>
 #include <filesystem>
 #include <fstream>
@@ -10,11 +10,11 @@
 
 namespace pbtest {
 
-// Writes TEXT to PATH, creating its folder.
+// Writes TEXT to PATH as it is (bytes), creating its folder.
 inline void write_file(const std::string& path, const std::string& text) {
   const std::filesystem::path p(path);
   if (p.has_parent_path()) std::filesystem::create_directories(p.parent_path());
-  std::ofstream f(path);
+  std::ofstream f(path, std::ios::binary);
   f << text;
 }
 

@@ -6,7 +6,6 @@
 #include <catch2/catch.hpp>
 
 #include <cstdlib>
-#include <fstream>
 #include <set>
 #include <sstream>
 
@@ -23,22 +22,6 @@ using namespace pb;
 namespace {
 
 std::string source_root() { return std::string(PB_TEST_SCRIPTS) + "/../.."; }
-
-std::string read_text(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  std::stringstream s;
-  s << f.rdbuf();
-  return s.str();
-}
-
-const char* kSuiteHead = R"([[dataset]]
-name = "d"
-preset = "demo-small"
-
-[[method]]
-name = "otsu"
-
-)";
 
 }  // namespace
 
@@ -84,12 +67,12 @@ TEST_CASE("metric table: every metric is in the score record under its block and
 
 TEST_CASE("metric table: criteria take the table's names; a typo lists them", "[metrics][metric-table]") {
   for (const auto& m : metric_table()) {
-    const auto s = suite::parse_suite(std::string(kSuiteHead) + "[criteria]\nmax_" + m.name + " = 1\n", "t.toml");
+    const auto s = suite::parse_suite(std::string(pbtest::kSuiteHead) + "[criteria]\nmax_" + m.name + " = 1\n", "t.toml");
     REQUIRE(s.criteria.size() == 1);
     CHECK(s.criteria[0].metric == m.name);
   }
   try {
-    suite::parse_suite(std::string(kSuiteHead) + "[criteria]\nmax_ks_distance = 0.2\n", "t.toml");
+    suite::parse_suite(std::string(pbtest::kSuiteHead) + "[criteria]\nmax_ks_distance = 0.2\n", "t.toml");
     FAIL("an unknown criterion metric was accepted");
   } catch (const InputError& e) {
     const std::string msg = e.what();
@@ -109,11 +92,11 @@ TEST_CASE("metric table: metrics/METRICS.md is the generated table", "[metrics][
   const std::string path = source_root() + "/metrics/METRICS.md";
   const std::string want = metric_table_markdown();
   if (const char* w = std::getenv("PB_WRITE_METRICS_MD"); w && std::string(w) == "1") {
-    std::ofstream(path, std::ios::binary) << want;
+    pbtest::write_file(path, want);
     WARN("wrote " << path);
   }
   INFO("regenerate with PB_WRITE_METRICS_MD=1 ./build/porebench_tests \"[metric-table]\"");
-  CHECK(read_text(path) == want);
+  CHECK(pbtest::read_text(path) == want);
   // Every table row has the header's column count: no unescaped '|' in a cell.
   std::istringstream in(want);
   std::string line;

@@ -6,7 +6,6 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
-#include <fstream>
 
 #include "core/error.hpp"
 #include "core/json.hpp"
@@ -14,6 +13,8 @@
 #include "tests/helpers.hpp"
 
 using namespace pb;
+using pbtest::read_text;
+using pbtest::write_file;
 namespace fs = std::filesystem;
 
 namespace {
@@ -37,18 +38,6 @@ VoxelType type_of(const std::string& dtype) {
 
 double at(const AnyVolume& v, int64_t i) {
   return v.visit([&](const auto& img) { return double(img[i]); });
-}
-
-std::string slurp(const std::string& p) {
-  std::ifstream f(p, std::ios::binary);
-  std::stringstream s;
-  s << f.rdbuf();
-  return s.str();
-}
-
-void write_bytes(const std::string& p, const std::string& b) {
-  std::ofstream f(p, std::ios::binary);
-  f << b;
 }
 
 // A version 1.0 header for `dict` (padded to 64 bytes like numpy).
@@ -112,7 +101,7 @@ TEST_CASE("npy: porebench's files np.load to the same values (C order, z y x)", 
     });
     const std::string path = d / (dtype + ".npy");
     write_volume(v, path);
-    const std::string bytes = slurp(path);
+    const std::string bytes = read_text(path);
     // numpy.lib.format: the voxels start on a multiple of 64 bytes; header ends with '\n'
     CHECK(bytes.size() == 128 + size_t(v.bytes()));
     CHECK(bytes[127] == '\n');
@@ -136,7 +125,7 @@ TEST_CASE("npy: bad files are InputErrors naming file and field, before allocati
   const std::string data(2 * 3 * 4 * 2, '\x01');
   auto expect_error = [&](const std::string& name, const std::string& bytes, const std::string& fragment) {
     const std::string p = d / name;
-    write_bytes(p, bytes);
+    write_file(p, bytes);
     INFO(name);
     try {
       read_volume(p);
@@ -146,7 +135,7 @@ TEST_CASE("npy: bad files are InputErrors naming file and field, before allocati
       CHECK_THAT(e.what(), Catch::Contains(fragment));
     }
   };
-  write_bytes(d / "good.npy", good + data);
+  write_file(d / "good.npy", good + data);
   CHECK(read_volume(d / "good.npy").geometry().dims == std::array<int64_t, 3>{4, 3, 2});
   expect_error("truncated.npy", good + data.substr(1), "is truncated");
   expect_error("longer.npy", good + data + "x", "is larger than its header says");
@@ -179,7 +168,7 @@ TEST_CASE("npy: bad files are InputErrors naming file and field, before allocati
   {
     const std::string p = d / "budget.npy";
     const std::string h = v1("{'descr': '<f4', 'fortran_order': False, 'shape': (64, 128, 128), }");
-    write_bytes(p, h);
+    write_file(p, h);
     fs::resize_file(p, h.size() + 64 * 128 * 128 * 4);
     set_memory_budget_bytes(uint64_t(1) << 20);
     try {
@@ -207,8 +196,7 @@ TEST_CASE("npy: score takes a .npy prediction's geometry from the reference", "[
   INFO(r.out << r.err);
   REQUIRE(r.exit_code == 0);
   CHECK_THAT(r.err, Catch::Contains("stores no voxel size"));
-  std::ifstream js(d / "s.json");
-  const auto j = nlohmann::json::parse(js);
+  const auto j = pbtest::read_json(d / "s.json");
   CHECK(j["overlap"]["jaccard"].get<double>() == 1.0);  // identical masks
   // convert needs --spacing for .npy (it stores none), like TIFF and raw
   const auto c = pbtest::run_cli("convert " + d / "pred.npy" + " -o " + d / "pred.mha");
@@ -242,13 +230,13 @@ TEST_CASE("npy: float64 is read as float32 as numpy rounds it", "[npy]") {
   // numbers that float32 holds exactly: no note; NaN goes to the non-finite check of read_volume
   double exact[8] = {0.5, -2, 0, 1, 0.25, 3, 1024, -0.125};
   const std::string h = v1("{'descr': '<f8', 'fortran_order': False, 'shape': (2, 4), }");
-  write_bytes(d / "exact.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
+  write_file(d / "exact.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
   notes.clear();
   set_read_note([&](const std::string& m) { notes.push_back(m); });
   CHECK(at(read_volume(d / "exact.npy"), 6) == 1024.0);
   CHECK(notes.empty());
   exact[3] = NAN;
-  write_bytes(d / "nan.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
+  write_file(d / "nan.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
   CHECK_THROWS_WITH(read_volume(d / "nan.npy"), Catch::Contains("1 non-finite voxel"));
   set_read_note({});
 }

@@ -6,7 +6,6 @@
 
 #include <cstdlib>
 #include <filesystem>
-#include <fstream>
 #include <string>
 
 #include "core/parallel.hpp"
@@ -14,34 +13,28 @@
 
 using namespace pb;
 using pbtest::run_shell;
+using pbtest::write_file;
 namespace fs = std::filesystem;
-
-namespace {
-void put(const fs::path& p, const std::string& text) {
-  fs::create_directories(p.parent_path());
-  std::ofstream(p) << text;
-}
-}  // namespace
 
 TEST_CASE("cgroup CPU quota: v2 cpu.max and v1 cfs files, the smallest along the path", "[parallel]") {
   const fs::path root = fs::temp_directory_path() / "pb_test_cgroup";
   fs::remove_all(root);
   // v2: 150000 us per 100000 us = 1.5 CPUs -> 2 threads; the parent's 3 CPUs do not loosen it.
-  put(root / "v2/app/job/cpu.max", "150000 100000\n");
-  put(root / "v2/app/cpu.max", "300000 100000\n");
+  write_file(root / "v2/app/job/cpu.max", "150000 100000\n");
+  write_file(root / "v2/app/cpu.max", "300000 100000\n");
   CHECK(cgroup_cpu_limit("0::/app/job\n", (root / "v2").string()) == 2);
   // A tighter parent wins; "max" means no quota.
-  put(root / "v2/app/cpu.max", "50000 100000\n");
+  write_file(root / "v2/app/cpu.max", "50000 100000\n");
   CHECK(cgroup_cpu_limit("0::/app/job\n", (root / "v2").string()) == 1);
-  put(root / "v2/app/cpu.max", "max 100000\n");
-  put(root / "v2/app/job/cpu.max", "max 100000\n");
+  write_file(root / "v2/app/cpu.max", "max 100000\n");
+  write_file(root / "v2/app/job/cpu.max", "max 100000\n");
   CHECK(cgroup_cpu_limit("0::/app/job\n", (root / "v2").string()) == 0);
   // v1: the cpu controller's hierarchy (here mounted as cpu,cpuacct), quota -1 = none.
-  put(root / "v1/cpu,cpuacct/batch/cpu.cfs_quota_us", "200000\n");
-  put(root / "v1/cpu,cpuacct/batch/cpu.cfs_period_us", "100000\n");
+  write_file(root / "v1/cpu,cpuacct/batch/cpu.cfs_quota_us", "200000\n");
+  write_file(root / "v1/cpu,cpuacct/batch/cpu.cfs_period_us", "100000\n");
   const std::string v1 = "4:memory:/batch\n3:cpu,cpuacct:/batch\n0::/\n";
   CHECK(cgroup_cpu_limit(v1, (root / "v1").string()) == 2);
-  put(root / "v1/cpu,cpuacct/batch/cpu.cfs_quota_us", "-1\n");
+  write_file(root / "v1/cpu,cpuacct/batch/cpu.cfs_quota_us", "-1\n");
   CHECK(cgroup_cpu_limit(v1, (root / "v1").string()) == 0);
   // Nothing readable: no quota.
   CHECK(cgroup_cpu_limit("garbage\n", "/nonexistent") == 0);

@@ -23,26 +23,17 @@
 #include "report/reporter.hpp"
 #include "report/svg.hpp"
 #include "tests/helpers.hpp"
+#include "tests/metrics_helpers.hpp"
 
 using namespace pb::report;
 using pb::parse_pod_link;
+using pbtest::read_text;
 using pbtest::TempDir;
+using pbtest::write_file;
 namespace fs = std::filesystem;
 using OJson = nlohmann::ordered_json;
 
 namespace {
-
-std::string slurp(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  std::stringstream s;
-  s << f.rdbuf();
-  return s.str();
-}
-
-void spit(const std::string& path, const std::string& text) {
-  std::ofstream f(path, std::ios::binary);
-  f << text;
-}
 
 size_t count(const std::string& hay, const std::string& needle) {
   size_t n = 0;
@@ -163,17 +154,30 @@ struct TinyRun {
 const TinyRun& tiny_run() {
   static TinyRun r;
   static const bool done = [] {
-    spit(r.dir / "tiny.toml", kTinySuite);
+    write_file(r.dir / "tiny.toml", kTinySuite);
     r.out = r.dir / "out";
     const auto res = pbtest::run_cli("--quiet run " + (r.dir / "tiny.toml") + " -o " + r.out);
     r.exit_code = res.exit_code;
     r.log = res.out + res.err;
-    if (fs::exists(r.out + "/results.json")) r.results = OJson::parse(slurp(r.out + "/results.json"));
+    if (fs::exists(r.out + "/results.json")) r.results = OJson::parse(read_text(r.out + "/results.json"));
     return true;
   }();
   (void)done;
   return r;
 }
+
+// A copy of the tiny run's folder and record, re-rendered after the record is edited.
+struct RunCopy {
+  TempDir dir;
+  std::string out;
+  OJson res;
+  explicit RunCopy(const TinyRun& r) : out((dir.path / "run").string()), res(r.results) {
+    fs::copy(r.out, out, fs::copy_options::recursive);
+  }
+  void render() const {
+    for (const auto& rep : standard_reporters()) rep->write(res, out);
+  }
+};
 
 }  // namespace
 
@@ -188,6 +192,15 @@ TEST_CASE("svg escape replaces the five XML predefined entities", "[report]") {
   CHECK(pb::format_number(0.25) == "0.25");
   CHECK(pb::format_number(50000) == "50000");
   CHECK(pb::format_number(1.5e6) == "1.5e+06");
+  // missing = nullptr: C's own spelling of non-finite values (C11 7.21.6.1 %g: "inf", "nan"); at
+  // digits >= 6 the text is %.<digits>g, as the messages that quote a value had it before.
+  CHECK(pb::format_number(INFINITY, 6, nullptr) == "inf");
+  CHECK(pb::format_number(-INFINITY, 10, nullptr) == "-inf");
+  CHECK(pb::format_number(NAN, 6, nullptr) == "nan");
+  CHECK(pb::format_number(NAN, 6, "undefined") == "undefined");
+  CHECK(pb::format_number(0.123456789, 6) == "0.123457");
+  CHECK(pb::format_number(3.4e38, 10, nullptr) == "3.4e+38");
+  CHECK(pb::format_number(-1234567.0, 6) == "-1.23457e+06");
 }
 
 TEST_CASE("svg plot draws no made-up point: NaN, Inf and non-positive values on log axes are left out", "[report]") {
@@ -208,7 +221,7 @@ TEST_CASE("svg plot draws no made-up point: NaN, Inf and non-positive values on 
   CHECK(count(m[1].str(), "M") == 2);
   CHECK(count(m[1].str(), "L") == 0);
   CHECK(out.find("title with &lt;markup&gt; &amp; &quot;quotes&quot;") != std::string::npos);
-  spit(d / "p.html", "<html><body>" + out + "</body></html>");
+  write_file(d / "p.html", "<html><body>" + out + "</body></html>");
   const auto x = check_xml(d / "p.html");
   CHECK(x["svg_count"] == 1);
   CHECK(x["svg_ok"] == 1);
@@ -239,23 +252,11 @@ TEST_CASE("svg bar chart marks a missing value n/a instead of drawing a bar", "[
   CHECK(out.find(">n/a<title>otsu, scan-b: n/a porosity bias (pp)</title>") != std::string::npos);
   CHECK(count(out, "<title>") == 1 + 4);  // the chart's title and one per bar, drawn or n/a
   CHECK(out.find("m&amp;m") != std::string::npos);
-  spit(d / "b.html", "<html><body>" + out + "</body></html>");
+  write_file(d / "b.html", "<html><body>" + out + "</body></html>");
   CHECK(check_xml(d / "b.html")["svg_ok"] == 1);
 }
 
 namespace {
-
-// Hit/miss data from a known logit curve, target sizes log-uniform in [lo, hi] um (invented).
-void simulate_hits(uint64_t seed, int n, double b0, double b1, double lo, double hi, std::vector<double>& a, std::vector<int>& y) {
-  std::mt19937_64 rng(seed);
-  std::uniform_real_distribution<double> u(std::log(lo), std::log(hi)), h(0, 1);
-  a.clear(), y.clear();
-  for (int i = 0; i < n; ++i) {
-    const double x = u(rng);
-    a.push_back(std::exp(x));
-    y.push_back(h(rng) < 1 / (1 + std::exp(-(b0 + b1 * x))));
-  }
-}
 
 // A results.json cell whose test block is the score record of this hit/miss data (only the POD
 // part filled; the other figures are undefined).
@@ -289,14 +290,11 @@ std::vector<double> attr_numbers(const std::string& tag, const std::string& attr
 
 // Invented hit/miss data from the logit curve b0 = -12.3, b1 = 3 (a90 about 85 um) on n targets of
 // 15-500 um, and its cell; the fit must exist.
-struct HitMissCase {
-  std::vector<double> a;
-  std::vector<int> y;
+struct HitMissCase : pbtest::HitMiss {
   OJson cell;
 };
 HitMissCase hit_miss_case(uint64_t seed, int n, const std::string& link) {
-  HitMissCase h;
-  simulate_hits(seed, n, -12.3, 3.0, 15, 500, h.a, h.y);
+  HitMissCase h{pbtest::simulate_hit_miss(seed, n, -12.3, 3.0, 15, 500), {}};
   h.cell = pod_cell(h.a, h.y, parse_pod_link(link));
   REQUIRE(h.cell["test"]["pod"]["estimable"] == true);
   return h;
@@ -402,9 +400,7 @@ TEST_CASE("the POD panel draws pod.band, and the a90/95 line sits where the band
 TEST_CASE("an extrapolated a90 or a90/95 and the all-hit bound are marked in tables and the POD panel", "[report][pod]") {
   // a90 = 5 um on targets of 10-100 um (b1 = 2, b0 = ln 9 - 2 ln 5; invented): the fit is read below
   // its data there (MIL-HDBK-1823A warns against it, from memory).
-  std::vector<double> a;
-  std::vector<int> y;
-  simulate_hits(3, 400, std::log(9.0) - 2 * std::log(5.0), 2.0, 10, 100, a, y);
+  const auto [a, y] = pbtest::simulate_hit_miss(3, 400, std::log(9.0) - 2 * std::log(5.0), 2.0, 10, 100);
   const OJson cell = pod_cell(a, y, pb::PodLink::logit);
   const OJson& t = cell["test"];
   REQUIRE(t["pod"]["a90_extrapolated"] == true);
@@ -527,7 +523,7 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
   REQUIRE(!r.results.is_null());
 
   SECTION("a suite run writes report.html with well-formed SVG, montages and links that exist") {
-    const std::string html = slurp(r.out + "/report.html");
+    const std::string html = read_text(r.out + "/report.html");
     REQUIRE(!html.empty());
     // Self-contained: no script, nothing fetched from the network.
     CHECK(html.find("<script") == std::string::npos);
@@ -606,7 +602,7 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
     }
     // The detector itself: a page with a failing script must be caught.
     TempDir d;
-    spit(d / "bad.html", "<!DOCTYPE html><html><body><p>x</p><script>undefined_function_here();</script></body></html>");
+    write_file(d / "bad.html", "<!DOCTYPE html><html><body><p>x</p><script>undefined_function_here();</script></body></html>");
     const BrowserRun bad = chromium(d / "bad.html", "--dump-dom");
     INFO(bad.err);
     REQUIRE(bad.exit_code == 0);
@@ -659,7 +655,7 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
     // Python-Markdown's tables extension (Debian python3-markdown) splits the rows; a criterion
     // such as |porosity_bias_pp| <= 0.3 must be escaped or it adds cells (tests/ref/report_markdown.py).
     TempDir d;
-    spit(d / "bad.md", "| a | b |\n|---|---|\n| x | |y| <= 0.3 |\n");
+    write_file(d / "bad.md", "| a | b |\n|---|---|\n| x | |y| <= 0.3 |\n");
     CHECK(pbtest::run_ref_script("report_markdown.py", d / "bad.md").exit_code == 1);  // the check can fail
     const auto p = pbtest::run_ref_script("report_markdown.py", r.out + "/summary.md " + r.out + "/validation-record.md");
     INFO(p.out << p.err);
@@ -669,7 +665,7 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
     CHECK(j["tables"].get<int>() >= 3 + 1 + 5);  // 3 ranking tables + advice; record: identification, inputs, methods, results, POD
     CHECK(j["rendered_tables"] == j["tables"]);
     // The verdict cells hold the criterion text with its pipes escaped.
-    const std::string rec = slurp(r.out + "/validation-record.md");
+    const std::string rec = read_text(r.out + "/validation-record.md");
     CHECK(rec.find("jaccard >= 0.5") != std::string::npos);
   }
 
@@ -686,8 +682,8 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
     } else {
       CHECK(dec[0]["status"] == "none");
     }
-    const std::string md = slurp(r.out + "/summary.md"), html = slurp(r.out + "/report.html"),
-                      rec = slurp(r.out + "/validation-record.md");
+    const std::string md = read_text(r.out + "/summary.md"), html = read_text(r.out + "/report.html"),
+                      rec = read_text(r.out + "/validation-record.md");
     CHECK(md.find("> **Decision.**") < md.find("## "));
     CHECK(html.find("id=\"decision\"") < html.find("<h2"));
     CHECK(rec.find("> **Decision.**") < rec.find("## 1."));
@@ -701,8 +697,8 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
     // max_abs_ on the interval judges the bound of larger magnitude of the bootstrap 95 % CI
     // (suites/results.cpp judged_value; the rule is ours, issue 11). The text expected is built from
     // the cell's own interval in results.json.
-    const std::string md = slurp(r.out + "/summary.md"), html = slurp(r.out + "/report.html"),
-                      rec = slurp(r.out + "/validation-record.md");
+    const std::string md = read_text(r.out + "/summary.md"), html = read_text(r.out + "/report.html"),
+                      rec = read_text(r.out + "/validation-record.md");
     const auto cells = cells_by_id(r.results);
     int checked = 0;
     for (const auto& s : r.results["selections"]) {
@@ -725,10 +721,9 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
   }
 
   SECTION("no passing combination: the decision names the nearest miss and the banner says none passes") {
-    TempDir d;
-    fs::copy(r.out, d.path / "run", fs::copy_options::recursive);
-    const std::string out = (d.path / "run").string();
-    OJson res = r.results;
+    RunCopy copy(r);
+    OJson& res = copy.res;
+    const std::string& out = copy.out;
     for (auto& s : res["selections"]) s["passed"] = false;
     res["criteria_met"] = false;
     res["criteria"] = OJson::array({{{"key", "min_jaccard"}, {"metric", "jaccard"}, {"op", 0}, {"value", 1.5}, {"text", "jaccard >= 1.5"}}});
@@ -743,23 +738,22 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
       if (j > best) best = j, best_method = s["method"];
     }
     CHECK(res["decision"][0]["nearest_miss"]["method"] == best_method);
-    for (const auto& rep : standard_reporters()) rep->write(res, out);
-    const std::string html = slurp(out + "/report.html");
+    copy.render();
+    const std::string html = read_text(out + "/report.html");
     CHECK(html.find("No combination of method and scan recipe meets every criterion") != std::string::npos);
     CHECK(html.find("NO combination of method and scan meets the declared criteria") != std::string::npos);
     CHECK(html.find("Every combination of method and scan meets") == std::string::npos);
   }
 
   SECTION("method warnings are shown beside the cell in summary.md and report.html") {
-    TempDir d;
-    fs::copy(r.out, d.path / "run", fs::copy_options::recursive);
-    const std::string out = (d.path / "run").string();
-    OJson res = r.results;
+    RunCopy copy(r);
+    OJson& res = copy.res;
+    const std::string& out = copy.out;
     const std::string chosen = res["selections"][0]["chosen_cell"];
     for (auto& c : res["cells"])
       if (c["id"] == chosen) c["warnings"] = {"invented warning <bins | 2>"};
-    for (const auto& rep : standard_reporters()) rep->write(res, out);
-    const std::string md = slurp(out + "/summary.md"), html = slurp(out + "/report.html");
+    copy.render();
+    const std::string md = read_text(out + "/summary.md"), html = read_text(out + "/report.html");
     CHECK(md.find("(warning W1)") != std::string::npos);
     CHECK(md.find("- W1 " + res["selections"][0]["method"].get<std::string>() + ": invented warning <bins | 2>") != std::string::npos);
     CHECK(html.find("method warning: invented warning &lt;bins | 2&gt;") != std::string::npos);
@@ -770,10 +764,9 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
 
   SECTION("a failed cell is listed with its error and drawn as n/a, never as a point") {
     // Re-render a copy of the run in which the chosen otsu cell of scan-50p failed.
-    TempDir d;
-    fs::copy(r.out, d.path / "run", fs::copy_options::recursive);
-    const std::string out = (d.path / "run").string();
-    OJson res = r.results;
+    RunCopy copy(r);
+    OJson& res = copy.res;
+    const std::string& out = copy.out;
     std::string failed_id;
     for (auto& c : res["cells"])
       if (c["scan"] == "scan-50p" && c["method"] == "otsu") {
@@ -785,8 +778,8 @@ TEST_CASE("a suite run writes report.html, montages and results.csv that outside
         c.erase("montage_slice_png");
       }
     REQUIRE(!failed_id.empty());
-    for (const auto& rep : standard_reporters()) rep->write(res, out);
-    const std::string html = slurp(out + "/report.html");
+    copy.render();
+    const std::string html = read_text(out + "/report.html");
     CHECK(html.find("invented failure &lt;for the test&gt;") != std::string::npos);
     CHECK(html.find("1 of 9 cells failed") != std::string::npos);
     CHECK(html.find(svg::escape(failed_id)) != std::string::npos);
