@@ -8,23 +8,15 @@
 #include "report/compare.hpp"
 #include "suites/results.hpp"
 #include "suites/suite.hpp"
+#include "tests/metrics_helpers.hpp"
 
 using namespace pb;
 using Json = nlohmann::ordered_json;
 
 namespace {
 
-const char* kHead = R"([[dataset]]
-name = "d"
-preset = "demo-small"
-
-[[method]]
-name = "otsu"
-
-)";
-
 suite::Suite parse(const std::string& body, const std::string& suite_table = "") {
-  return suite::parse_suite(suite_table + kHead + body, "t.toml");
+  return suite::parse_suite(suite_table + pbtest::kSuiteHead + body, "t.toml");
 }
 
 // A chosen test cell as the runner writes it, with the figures the issue reports for region-grow

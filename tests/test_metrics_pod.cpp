@@ -11,34 +11,17 @@
 #include "core/json.hpp"
 #include "metrics/pod.hpp"
 #include "tests/helpers.hpp"
+#include "tests/metrics_helpers.hpp"
 
 using namespace pb;
 
-namespace {
-
-// Hit/miss data from a known logit curve, target sizes log-uniform in [lo, hi] um.
-void simulate(std::mt19937_64& rng, int n, double b0, double b1, double lo, double hi, std::vector<double>& a,
-              std::vector<int>& y) {
-  std::uniform_real_distribution<double> u(std::log(lo), std::log(hi)), h(0, 1);
-  a.resize(size_t(n));
-  y.resize(size_t(n));
-  for (int i = 0; i < n; ++i) {
-    const double x = u(rng);
-    a[size_t(i)] = std::exp(x);
-    y[size_t(i)] = h(rng) < 1 / (1 + std::exp(-(b0 + b1 * x)));
-  }
-}
-
-}  // namespace
+using pbtest::simulate_hit_miss;
 
 TEST_CASE("POD fit and covariance agree with statsmodels Logit and Probit", "[metrics][pod][ref]") {
   // Reference: statsmodels.api.Logit / Probit, Newton, tol 1e-12 (Debian python3-statsmodels);
   // cov_params() is the inverse observed information, as ours. Agreement asked: 1e-6 relative.
   const PodLink link = GENERATE(PodLink::logit, PodLink::probit);
-  std::mt19937_64 rng(42);
-  std::vector<double> a;
-  std::vector<int> y;
-  simulate(rng, 150, -12.3, 3.0, 15, 500, a, y);
+  const auto [a, y] = simulate_hit_miss(42, 150, -12.3, 3.0, 15, 500);
   pbtest::TempDir d;
   {
     std::ofstream f(d / "pod.csv");
@@ -130,10 +113,8 @@ TEST_CASE("profile-likelihood a90/95 covers the true a90 in 92-98 % of simulated
   std::mt19937_64 rng(2026);
   int estimable = 0, covered = 0, wald_covered = 0;
   const int experiments = 1000;
-  std::vector<double> a;
-  std::vector<int> y;
   for (int e = 0; e < experiments; ++e) {
-    simulate(rng, 100, b0, b1, 15, 500, a, y);
+    const auto [a, y] = simulate_hit_miss(rng, 100, b0, b1, 15, 500);
     const PodFit f = fit_pod(a, y);
     if (!f.estimable || !std::isfinite(f.a90_95_um)) continue;
     ++estimable;
@@ -153,10 +134,7 @@ TEST_CASE("the one POD band: its crossing of 0.9 is a90/95 (likelihood-ratio con
   // the profile interval of ln a90 ends, so the crossing must equal a90/95 (Venzon & Moolgavkar
   // 1988, Appl. Stat. 37:87; MIL-HDBK-1823A ch. 4 for a90/95, from memory). Asked: 0.5 %.
   const PodLink link = GENERATE(PodLink::logit, PodLink::probit);
-  std::mt19937_64 rng(7);
-  std::vector<double> a;
-  std::vector<int> y;
-  simulate(rng, 120, -12.3, 3.0, 15, 500, a, y);
+  const auto [a, y] = simulate_hit_miss(7, 120, -12.3, 3.0, 15, 500);
   const PodFit f = fit_pod(a, y, link);
   REQUIRE(f.estimable);
   REQUIRE(std::isfinite(f.a90_95_um));
@@ -190,10 +168,7 @@ TEST_CASE("a90 below the smallest target is flagged as extrapolated", "[metrics]
   // Hit/miss data drawn from a logit POD with a90 = 5 um (b1 = 2, b0 = ln 9 - 2 ln 5) on targets of
   // 10-100 um: the fitted a90 lies below every target, where the fit is read outside its data
   // (MIL-HDBK-1823A warns against reading POD outside the data range, from memory).
-  std::mt19937_64 rng(3);
-  std::vector<double> a;
-  std::vector<int> y;
-  simulate(rng, 400, std::log(9.0) - 2 * std::log(5.0), 2.0, 10, 100, a, y);
+  const auto [a, y] = simulate_hit_miss(3, 400, std::log(9.0) - 2 * std::log(5.0), 2.0, 10, 100);
   const PodFit f = fit_pod(a, y);
   REQUIRE(f.estimable);
   INFO("a90 " << f.a90_um << " um, a90/95 " << f.a90_95_um << " um, smallest " << f.smallest_target_um << " um");

@@ -28,6 +28,16 @@ Recipe small_recipe() {
   return r;
 }
 
+// A pore population of `type` with its log-normal size distribution (the rest at the defaults).
+PorePopulation population(const std::string& type, double porosity_pct, double median_diameter_um, double spread) {
+  PorePopulation p;
+  p.type = type;
+  p.porosity_pct = porosity_pct;
+  p.median_diameter_um = median_diameter_um;
+  p.spread = spread;
+  return p;
+}
+
 int64_t count_label(const Image<uint8_t>& l, uint8_t v) {
   int64_t n = 0;
   for (int64_t i = 0; i < l.size(); ++i) n += l[i] == v;
@@ -111,10 +121,7 @@ TEST_CASE("truth: cylinder and bore areas match pi r^2 h within the discretisati
 
 TEST_CASE("pores: gas sphere volumes on the voxel grid match the analytic list", "[synth][phantom]") {
   Recipe r = small_recipe();
-  PorePopulation gas;
-  gas.porosity_pct = 3.0;
-  gas.median_diameter_um = 60;
-  gas.spread = 0.25;
+  PorePopulation gas = population("gas", 3.0, 60, 0.25);
   gas.min_diameter_um = 40;
   r.pores = {gas};
   const Phantom ph = build_phantom(r);
@@ -151,18 +158,10 @@ TEST_CASE("pores: lack-of-fusion voids are flat, lie on layers; clusters gather;
   Recipe r = small_recipe();
   r.shapes[0].radius_mm = 0.28;
   r.shapes[0].height_mm = 0.56;
-  PorePopulation lof;
-  lof.type = "lack-of-fusion";
-  lof.porosity_pct = 0.5;
-  lof.median_diameter_um = 100;
-  lof.spread = 0.2;
+  PorePopulation lof = population("lack-of-fusion", 0.5, 100, 0.2);
   lof.thickness_um = 20;
   lof.layer_um = 40;
-  PorePopulation cl;
-  cl.type = "cluster";
-  cl.porosity_pct = 0.5;
-  cl.median_diameter_um = 30;
-  cl.spread = 0.1;
+  PorePopulation cl = population("cluster", 0.5, 30, 0.1);
   cl.pores_per_cluster = 6;
   cl.cluster_radius_um = 80;
   cl.open_count = 3;
@@ -212,11 +211,7 @@ TEST_CASE("pores: lack-of-fusion voids are flat, lie on layers; clusters gather;
 
 TEST_CASE("pores: an impossible porosity says what was reached", "[synth][phantom]") {
   Recipe r = small_recipe();
-  PorePopulation gas;
-  gas.porosity_pct = 35;
-  gas.median_diameter_um = 150;
-  gas.spread = 0.1;
-  r.pores = {gas};
+  r.pores = {population("gas", 35, 150, 0.1)};
   r.placement_budget = 3000;
   CHECK_THROWS_WITH(build_phantom(r), Catch::Contains("pores.0") && Catch::Contains("reached") &&
                                           Catch::Contains("35"));

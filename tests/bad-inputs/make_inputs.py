@@ -183,30 +183,26 @@ suite("suite-inf-scan.toml", scan_file="posinf.mha")
 suite("suite-truncated-scan.toml", scan_file="truncated.mha")
 suite("suite-missing-scan.toml", scan_file="no-such-scan.mha")
 suite("suite-ndims-scan.toml", scan_file="ndims-4294967296.mha")
-write("suite-synth-refproj.toml", b'''[suite]
+
+
+def synth_suite(name, overrides):
+    """A suite of one synthetic dataset (demo-small with `overrides` as its set table) and otsu."""
+    write(name, ('''[suite]
 name = "big"
 [[dataset]]
 name = "g"
 kind = "synthetic"
 preset = "demo-small"
-set = { scan = { reference_projections = 2147483647 } }
+set = %s
 [[method]]
 name = "otsu"
 [criteria]
 min_jaccard = 0.5
-''')
-write("suite-synth-4096.toml", b'''[suite]
-name = "big"
-[[dataset]]
-name = "g"
-kind = "synthetic"
-preset = "demo-small"
-set = { phantom = { dims = [4096, 4096, 4096] } }
-[[method]]
-name = "otsu"
-[criteria]
-min_jaccard = 0.5
-''')
+''' % overrides).encode())
+
+
+synth_suite("suite-synth-refproj.toml", "{ scan = { reference_projections = 2147483647 } }")
+synth_suite("suite-synth-4096.toml", "{ phantom = { dims = [4096, 4096, 4096] } }")
 write("suite-garbage.toml", bytes(range(1, 200)))
 write("existing-file", b"not a folder\n")
 # --- run folders for report ---
