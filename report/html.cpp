@@ -89,6 +89,13 @@ std::string join(const std::vector<std::string>& v, const std::string& sep) {
 double num(const Json& j) { return j.is_number() ? j.get<double>() : NAN; }
 std::string str(const Json& j) { return j.is_string() ? j.get<std::string>() : j.is_null() ? "" : j.dump(); }
 std::string f3(double v) { return format_number(v, 3); }
+// A plot axis with its label, on a log scale when said.
+svg::Axis axis(std::string label, bool log = false) {
+  svg::Axis a;
+  a.label = std::move(label);
+  a.log = log;
+  return a;
+}
 
 struct Page {
   const Json& r;
@@ -332,8 +339,7 @@ std::string metric_series(Page& p, const Json& d) {
   h << "<div class=\"grid\">";
   for (const auto& mp : plots) {
     svg::Plot pl(p.next_id("series"), 600, 320, std::string(mp.title) + " vs " + ax.label());
-    pl.x.label = ax.label();
-    pl.x.log = true;
+    pl.x = axis(ax.label(), true);
     pl.x.ticks = ticks;
     pl.y.label = mp.y_label;
     pl.y.include_zero = std::string(mp.metric) != "jaccard" && std::string(mp.metric) != "a90_95_um";
@@ -485,10 +491,8 @@ std::string sizes_section(Page& p, const Json& d) {
   h << "<div class=\"grid\">";
   for (const auto& m : method_labels(p)) {
     svg::Plot pl(p.next_id("esd"), 360, 270, m);
-    pl.x.label = "ESD (µm)";
-    pl.x.log = true;
-    pl.y.label = "pores per bin";
-    pl.y.log = true;  // false calls of a few voxels would otherwise flatten the reference
+    pl.x = axis("ESD (µm)", true);
+    pl.y = axis("pores per bin", true);  // log: false calls of a few voxels would otherwise flatten the reference
     bool ref_drawn = false;
     std::vector<std::string> missing;
     for (size_t k = 0; k < scans.size(); ++k) {
@@ -536,9 +540,8 @@ std::string pareto_section(Page& p, const Json& d) {
   h << "<div class=\"grid\">";
   for (const auto& scan : dataset_scans(d)) {
     svg::Plot pl(p.next_id("pareto"), 600, 320, "Runtime vs Jaccard: " + scan);
-    pl.x.label = "runtime (s)";
-    pl.x.log = true;
-    pl.y.label = "Jaccard";
+    pl.x = axis("runtime (s)", true);
+    pl.y = axis("Jaccard");
     struct Pt {
       double t, j;
       std::string m;
@@ -725,9 +728,8 @@ nav{margin:10px 0;font-size:13px}.links{font-size:13px}.note{color:#555}code{bac
 
 std::string pod_panel_svg(const std::string& id, const std::string& method, const std::string& colour, const Json* c) {
   svg::Plot pl(id, 360, 270, method);
-  pl.x.label = "ESD (µm)";
-  pl.x.log = true;
-  pl.y.label = "POD";
+  pl.x = axis("ESD (µm)", true);
+  pl.y = axis("POD");
   pl.y.lo = 0, pl.y.hi = 1;
   if (!c || c->value("status", "") != "ok") {
     pl.note("cell failed: " + (c ? str((*c)["error"]) : std::string("missing")));
