@@ -40,20 +40,29 @@ pb::VolumeF scan(int64_t nz) {
   return v;
 }
 
-void forward_loop(benchmark::State& state, const std::string& card, int64_t batch) {
+// Runs body(model) with the model of `card` on state.range(0) threads; a card that cannot be
+// loaded skips the benchmark with the reason.
+template <class Body>
+void with_model(benchmark::State& state, const std::string& card, Body body) {
   const int threads = int(state.range(0));
   pb::set_threads(threads);
   try {
     pb::Model m(pb::read_model_card(card), threads);
+    body(m);
+  } catch (const std::exception& e) {
+    state.SkipWithError(e.what());
+  }
+}
+
+void forward_loop(benchmark::State& state, const std::string& card, int64_t batch) {
+  with_model(state, card, [&](pb::Model& m) {
     std::vector<float> in(size_t(batch * m.card().channels() * m.tile_voxels()));
     std::mt19937 rng(3);
     std::uniform_real_distribution<float> u(0, 1);
     for (auto& x : in) x = u(rng);
     for (auto _ : state) benchmark::DoNotOptimize(m.forward(in.data(), batch));
     state.SetItemsProcessed(state.iterations() * batch * m.tile_voxels());
-  } catch (const std::exception& e) {
-    state.SkipWithError(e.what());
-  }
+  });
 }
 
 void BM_NeuralForward(benchmark::State& state) { forward_loop(state, card_2d(), 4); }
@@ -70,11 +79,8 @@ void BM_Neural3DForward(benchmark::State& state) {
 BENCHMARK(BM_Neural3DForward)->ArgName("threads")->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 void BM_NeuralHarness(benchmark::State& state) {
-  const int threads = int(state.range(0));
-  pb::set_threads(threads);
   const pb::VolumeF v = scan(8);
-  try {
-    pb::Model m(pb::read_model_card(card_2d()), threads);
+  with_model(state, card_2d(), [&](pb::Model& m) {
     for (auto _ : state) {
       const pb::VolumeF p = pb::predict_volume(m, v, nullptr, {m.card().overlap, 4});
       pb::Mask pores(v.geometry());
@@ -82,17 +88,12 @@ void BM_NeuralHarness(benchmark::State& state) {
       benchmark::DoNotOptimize(pb::air_to_pores(pores, nullptr));
     }
     state.SetItemsProcessed(state.iterations() * v.size());
-  } catch (const std::exception& e) {
-    state.SkipWithError(e.what());
-  }
+  });
 }
 BENCHMARK(BM_NeuralHarness)->ArgName("threads")->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 void BM_NeuralHarnessBare(benchmark::State& state) {
-  const int threads = int(state.range(0));
-  pb::set_threads(threads);
-  try {
-    pb::Model m(pb::read_model_card(card_2d()), threads);
+  with_model(state, card_2d(), [&](pb::Model& m) {
     const auto& c = m.card();
     const int64_t tiles = 8 * int64_t(pb::tile_origins(256, c.tile[0], c.overlap).size() *
                                       pb::tile_origins(256, c.tile[1], c.overlap).size());
@@ -100,25 +101,18 @@ void BM_NeuralHarnessBare(benchmark::State& state) {
     for (auto _ : state)
       for (int64_t t = 0; t < tiles; t += 4) benchmark::DoNotOptimize(m.forward(in.data(), std::min<int64_t>(4, tiles - t)));
     state.SetItemsProcessed(state.iterations() * 256 * 256 * 8);
-  } catch (const std::exception& e) {
-    state.SkipWithError(e.what());
-  }
+  });
 }
 BENCHMARK(BM_NeuralHarnessBare)->ArgName("threads")->Arg(1)->Arg(2)->Unit(benchmark::kMillisecond)->UseRealTime();
 
 void BM_NeuralScan256(benchmark::State& state) {
-  const int threads = int(state.range(0));
-  pb::set_threads(threads);
   const pb::VolumeF v = scan(256);
-  try {
-    pb::Model m(pb::read_model_card(card_2d()), threads);
+  with_model(state, card_2d(), [&](pb::Model& m) {
     const pb::MethodInfo& info = pb::Registry::instance().get(m.card().name);
     const pb::ParamValues p = pb::parse_params(info, {});
     for (auto _ : state) benchmark::DoNotOptimize(pb::run_method(info, p, pb::MethodInput{v}).part_voxels);
     state.SetItemsProcessed(state.iterations() * v.size());
-  } catch (const std::exception& e) {
-    state.SkipWithError(e.what());
-  }
+  });
 }
 BENCHMARK(BM_NeuralScan256)->ArgName("threads")->Arg(1)->Arg(2)->Iterations(1)->Unit(benchmark::kSecond)->UseRealTime();
 
