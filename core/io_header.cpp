@@ -116,6 +116,22 @@ std::string dims_text(const VolumeHeader& h) {
 
 const char* kSupported = " (supported: uint8, uint16, int16, float32)";
 
+// The line of a text header at pos (without its '\n'; last: no line end follows), counted in
+// line_no; pos moves past it.
+struct HeaderLine {
+  std::string_view text;
+  bool last;
+};
+HeaderLine next_line(std::string_view head, size_t& pos, size_t& line_no) {
+  size_t eol = head.find('\n', pos);
+  const bool last = eol == std::string_view::npos;
+  if (last) eol = head.size();
+  const std::string_view line = head.substr(pos, eol - pos);
+  ++line_no;
+  pos = last ? head.size() : eol + 1;
+  return {line, last};
+}
+
 // The dimension count and sizes of a text header (MetaImage NDims/DimSize, NRRD dimension/sizes),
 // with messages in the header's own spelling: "NDims = 4", "dimension: 4".
 struct DimFields {
@@ -153,12 +169,7 @@ VolumeHeader parse_metaimage_header(std::string_view head, const std::string& pa
   bool have_ndims = false, have_dims = false, have_type = false, have_file = false;
   size_t pos = 0, line_no = 0;
   while (pos < head.size()) {
-    size_t eol = head.find('\n', pos);
-    const bool last = eol == std::string_view::npos;
-    if (last) eol = head.size();
-    const std::string_view line = head.substr(pos, eol - pos);
-    ++line_no;
-    pos = last ? head.size() : eol + 1;
+    const auto [line, last] = next_line(head, pos, line_no);
     if (trim(line).empty()) continue;
     const size_t eq = line.find('=');
     if (eq == std::string_view::npos)
@@ -252,12 +263,7 @@ VolumeHeader parse_nrrd_header(std::string_view head, const std::string& path) {
   ++pos;
   size_t line_no = 1;
   while (pos < head.size()) {
-    size_t eol = head.find('\n', pos);
-    const bool last = eol == std::string_view::npos;
-    if (last) eol = head.size();
-    const std::string_view line = head.substr(pos, eol - pos);
-    ++line_no;
-    pos = last ? head.size() : eol + 1;
+    const auto [line, last] = next_line(head, pos, line_no);
     if (trim(line).empty()) {
       ended = true;
       break;
