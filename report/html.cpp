@@ -184,6 +184,11 @@ std::string figure(const std::string& svg_text, const std::string& caption = "")
   return "<figure>" + svg_text + (caption.empty() ? "" : "<figcaption>" + caption + "</figcaption>") + "</figure>\n";
 }
 
+// Panels side by side with the caption of the whole below them.
+std::string panel_grid(const std::string& figures, const std::string& caption) {
+  return "<div class=\"grid\">" + figures + "</div>\n<p class=\"caption\">" + caption + "</p>\n";
+}
+
 // Why a POD figure is undefined, for the n/a notes.
 std::string pod_reason(const Json& cell, const std::string& metric) {
   if (cell.value("status", "") != "ok") return "cell failed";
@@ -335,8 +340,7 @@ std::string metric_series(Page& p, const Json& d) {
     if (ax.on_axis(v)) ticks.push_back(ax.of(v));
     else off_axis.push_back(str(v["scan"]) + " (" + str(v["projections"]) + " projections, I0 " + format_number(num(v["i0"])) + ")");
   }
-  std::ostringstream h;
-  h << "<div class=\"grid\">";
+  std::string figures;
   for (const auto& mp : plots) {
     svg::Plot pl(p.next_id("series"), 600, 320, std::string(mp.title) + " vs " + ax.label());
     pl.x = axis(ax.label(), true);
@@ -427,11 +431,10 @@ std::string metric_series(Page& p, const Json& d) {
       if (c["op"].get<int>() == 2) pl.hline(-v, crit, "");
     }
     for (const auto& [why, list] : missing) pl.note("n/a, not plotted (" + why + "): " + join(list, ", "));
-    h << figure(pl.render());
+    figures += figure(pl.render());
   }
-  h << "</div>\n<p class=\"caption\">Selected cell of each method on each scan, test slices. The dashed grey line is the "
-       "reference recipe; red dashed lines are acceptance criteria. A line breaks where a value is not defined.</p>\n";
-  return h.str();
+  return panel_grid(figures, "Selected cell of each method on each scan, test slices. The dashed grey line is the "
+       "reference recipe; red dashed lines are acceptance criteria. A line breaks where a value is not defined.");
 }
 
 std::string bias_bars(Page& p, const Json& d) {
@@ -485,10 +488,9 @@ std::string pod_section(Page& p, const Json& d) {
 }
 
 std::string sizes_section(Page& p, const Json& d) {
-  std::ostringstream h;
+  std::string figures;
   auto by_scan = selections_of(p, d["name"]);
   const auto scans = dataset_scans(d);
-  h << "<div class=\"grid\">";
   for (const auto& m : method_labels(p)) {
     svg::Plot pl(p.next_id("esd"), 360, 270, m);
     pl.x = axis("ESD (µm)", true);
@@ -526,18 +528,16 @@ std::string sizes_section(Page& p, const Json& d) {
     }
     if (!ref_drawn) pl.note("no size distribution: every cell of this method failed");
     else if (!missing.empty()) pl.note("not shown (cell failed): " + join(missing, ", "));
-    h << figure(pl.render());
+    figures += figure(pl.render());
   }
-  h << "</div>\n<p class=\"caption\">Equivalent spherical diameter ESD = (6V/π)^(1/3) of the predicted pores (lines, one "
+  return panel_grid(figures, "Equivalent spherical diameter ESD = (6V/π)^(1/3) of the predicted pores (lines, one "
        "per scan) over that of the reference pores (grey), on the shared log-spaced bins of the scoring; test slices. "
-       "KS: Kolmogorov–Smirnov distance.</p>\n";
-  return h.str();
+       "KS: Kolmogorov–Smirnov distance.");
 }
 
 std::string pareto_section(Page& p, const Json& d) {
-  std::ostringstream h;
+  std::string figures;
   auto by_scan = selections_of(p, d["name"]);
-  h << "<div class=\"grid\">";
   for (const auto& scan : dataset_scans(d)) {
     svg::Plot pl(p.next_id("pareto"), 600, 320, "Runtime vs Jaccard: " + scan);
     pl.x = axis("runtime (s)", true);
@@ -578,11 +578,10 @@ std::string pareto_section(Page& p, const Json& d) {
     fs.marker = svg::Marker::none;
     pl.line("Pareto front", fx, fy, fs);
     if (!missing.empty()) pl.note("n/a, not plotted: " + join(missing, ", "));
-    h << figure(pl.render());
+    figures += figure(pl.render());
   }
-  h << "</div>\n<p class=\"caption\">Method runtime (segmentation only, this host) against test Jaccard. The dashed staircase "
-       "joins the Pareto-optimal methods (no other method is both faster and better); they are labelled.</p>\n";
-  return h.str();
+  return panel_grid(figures, "Method runtime (segmentation only, this host) against test Jaccard. The dashed staircase "
+       "joins the Pareto-optimal methods (no other method is both faster and better); they are labelled.");
 }
 
 std::string montage_section(Page& p, const Json& d, const std::string& out_dir) {
