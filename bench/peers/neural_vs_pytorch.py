@@ -55,7 +55,7 @@ def torch_side(kind, path, threads):
 
 
 def ours(binary, name, threads, env):
-    out = subprocess.run([binary, f"--benchmark_filter=^{name}/threads:{threads}$", "--benchmark_format=json",
+    out = subprocess.run([binary, f"--benchmark_filter=^{name}/threads:{threads}(/real_time)?$", "--benchmark_format=json",
                           "--benchmark_repetitions=5", "--benchmark_report_aggregates_only=true"],
                          check=True, capture_output=True, text=True, env=env).stdout
     for b in json.loads(out)["benchmarks"]:
