@@ -22,6 +22,7 @@
 #include <sstream>
 
 #include "core/byteorder.hpp"
+#include "core/dicom.hpp"
 #include "core/error.hpp"
 #include "core/io_header.hpp"
 #include "core/memory.hpp"
@@ -162,7 +163,7 @@ AnyVolume read_volume(const std::string& path, const ReadOptions& opt) {
   if (opt.raw) {
     v = read_raw(path, *opt.raw);
   } else if (is_dicom(path)) {
-    v = detail::itk_read_dicom(path);
+    v = detail::itk_read_dicom(path, opt.spacing_mm.has_value());  // refused without its geometry tags (core/dicom.hpp)
   } else if (fs::is_directory(path)) {
     v = detail::itk_read_tiff_folder(path);
   } else {

@@ -13,13 +13,18 @@
 #include <itkNrrdImageIO.h>
 #include <itkTIFFImageIO.h>
 
+#include <itkMetaDataObject.h>
+
 #include <algorithm>
 #include <cstring>
 #include <filesystem>
+#include <iostream>
 #include <map>
 #include <regex>
+#include <set>
 #include <sstream>
 
+#include "core/dicom.hpp"
 #include "core/error.hpp"
 #include "core/io.hpp"
 #include "core/memory.hpp"
@@ -182,8 +187,90 @@ std::vector<std::string> dicom_files(const std::string& path) {
   return names->GetFileNames(uids.front());
 }
 
+// GDCM and ITK write their warnings to std::cerr ("Warning: In FILE, line N, function F" and the
+// text on the next line); while a DICOM input is read, std::cerr goes here instead. Single-threaded
+// (the reader runs on the calling thread; nothing else logs meanwhile).
+class CerrCapture {
+ public:
+  CerrCapture() : old_(std::cerr.rdbuf(buf_.rdbuf())) {}
+  ~CerrCapture() { std::cerr.rdbuf(old_); }
+  CerrCapture(const CerrCapture&) = delete;
+  CerrCapture& operator=(const CerrCapture&) = delete;
+  // The distinct message lines (without the source-location lines), as " (GDCM: a; b)" or "".
+  std::string notes() const {
+    std::istringstream in(buf_.str());
+    std::vector<std::string> lines;
+    std::set<std::string> seen;
+    for (std::string line; std::getline(in, line);) {
+      if (line.empty() || line.rfind("Warning: In ", 0) == 0 || line.rfind("Error: In ", 0) == 0 ||
+          line.rfind("Debug: In ", 0) == 0)
+        continue;
+      if (seen.insert(line).second) lines.push_back(line);
+    }
+    std::string out;
+    for (size_t i = 0; i < lines.size() && i < 4; ++i) out += (i ? "; " : "") + lines[i];
+    return out.empty() ? out : " (GDCM: " + out + (lines.size() > 4 ? "; ..." : "") + ")";
+  }
+
+ private:
+  std::ostringstream buf_;
+  std::streambuf* old_;
+};
+
+std::string tag_text(const itk::MetaDataDictionary& d, const char* key) {
+  std::string v;
+  if (!itk::ExposeMetaData<std::string>(d, key, v)) return "";
+  const auto b = v.find_first_not_of(" \\");
+  return b == std::string::npos ? "" : v.substr(b);
+}
+
+// Refuses a DICOM input whose tags do not state its voxel size (see core/dicom.hpp): per file the
+// in-plane spacing, between the files of a series each file's position, in a multi-frame file the
+// frame spacing. `dicts[i]` is the header of `files[i]`; `x_mm`, `y_mm` the in-plane spacing GDCM
+// read. An in-plane tag counts only when GDCM took it: it picks the tag by the object's class
+// (e.g. Nominal Scanned Pixel Spacing for a Secondary Capture) and reads 1 mm when that one is missing.
+void check_geometry_tags(const std::vector<std::string>& files, const std::vector<const itk::MetaDataDictionary*>& dicts,
+                         double x_mm, double y_mm, const std::string& path, const std::string& notes) {
+  auto refuse = [&](const std::string& file, const std::string& tag, const std::string& what) {
+    throw DicomGeometryMissing((file == path ? "DICOM file " + path : "DICOM input " + path + ": " + file) + " has no " + tag + ", so its " + what +
+                               " is unknown (GDCM would read 1 mm); give the voxel size (spacing_mm in the suite file, "
+                               "--spacing X,Y,Z in mm on the command line)" + notes);
+  };
+  static const std::pair<const char*, const char*> in_plane[] = {{"0028|0030", "Pixel Spacing (0028,0030)"},
+                                                                  {"0018|1164", "Imager Pixel Spacing (0018,1164)"},
+                                                                  {"0018|2010", "Nominal Scanned Pixel Spacing (0018,2010)"}};
+  for (size_t i = 0; i < files.size() && i < dicts.size(); ++i) {
+    const itk::MetaDataDictionary& d = *dicts[i];
+    const bool frame_groups = tag_text(d, "0028|0009").find("5200,9230") != std::string::npos;
+    bool taken = frame_groups;
+    std::string ignored;  // a spacing tag present but not the one GDCM read
+    for (const auto& [key, name] : in_plane) {
+      const std::string t = tag_text(d, key);
+      if (t.empty()) continue;
+      double row = 0, col = 0;  // DICOM order: spacing between rows (y), then between columns (x)
+      char sep = 0;
+      std::istringstream in(t);
+      const bool parsed = bool(in >> row >> sep >> col) && sep == '\\';
+      if (parsed && std::abs(col - x_mm) <= 1e-6 * col && std::abs(row - y_mm) <= 1e-6 * row) taken = true;
+      else if (ignored.empty()) ignored = std::string(name) + " = " + t;
+    }
+    if (!taken)
+      refuse(files[i], ignored.empty() ? "Pixel Spacing (0028,0030)"
+                                       : "in-plane spacing GDCM takes for its object class (it has " + ignored +
+                                             ", which GDCM does not read for it)",
+             "in-plane voxel size");
+    if (files.size() > 1 && tag_text(d, "0020|0032").empty())
+      refuse(files[i], "Image Position (Patient) (0020,0032)", "slice position (the spacing between slices)");
+    const std::string frames = tag_text(d, "0028|0008");
+    if (files.size() == 1 && !frames.empty() && std::atoi(frames.c_str()) > 1 && !frame_groups &&
+        tag_text(d, "0018|0088").empty())
+      refuse(files[i], "Spacing Between Slices (0018,0088)", "frame spacing");
+  }
+}
+
 template <class T>
-AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string& path) {
+AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string& path, bool spacing_given,
+                        const CerrCapture& gdcm) {
   using Img = itk::Image<T, 3>;
   auto reader = itk::ImageSeriesReader<Img>::New();
   reader->SetImageIO(itk::GDCMImageIO::New());
@@ -195,6 +282,13 @@ AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string
                "DICOM input " + path + " (" + std::to_string(size[0]) + " x " + std::to_string(size[1]) + " x " +
                    std::to_string(size[2]) + ")");
   reader->Update();
+  if (!spacing_given) {
+    std::vector<const itk::MetaDataDictionary*> dicts;
+    if (const auto* a = reader->GetMetaDataDictionaryArray())
+      for (const auto* d : *a) dicts.push_back(d);
+    const auto sp = reader->GetOutput()->GetSpacing();
+    check_geometry_tags(files, dicts, sp[0], sp[1], path, gdcm.notes());
+  }
   typename Img::Pointer img = reader->GetOutput();
   // Orientation from the headers: our volumes are axis-aligned with x fastest. Axis flips and
   // permutations are undone exactly (OrientImageFilter to the identity direction, ITK's "RAI");
@@ -236,7 +330,10 @@ AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string
 
 }  // namespace
 
-AnyVolume itk_read_dicom(const std::string& path) {
+AnyVolume itk_read_dicom(const std::string& path) { return itk_read_dicom(path, false); }
+
+AnyVolume itk_read_dicom(const std::string& path, bool spacing_given) {
+  CerrCapture gdcm;
   try {
     const std::vector<std::string> files = dicom_files(path);
     auto io = itk::GDCMImageIO::New();
@@ -249,13 +346,13 @@ AnyVolume itk_read_dicom(const std::string& path) {
     // The voxel type after the header's rescale slope/intercept; types we do not keep are read as float.
     using C = itk::IOComponentEnum;
     switch (io->GetComponentType()) {
-      case C::UCHAR: return read_dicom_as<uint8_t>(files, path);
-      case C::USHORT: return read_dicom_as<uint16_t>(files, path);
-      case C::SHORT: return read_dicom_as<int16_t>(files, path);
-      default: return read_dicom_as<float>(files, path);
+      case C::UCHAR: return read_dicom_as<uint8_t>(files, path, spacing_given, gdcm);
+      case C::USHORT: return read_dicom_as<uint16_t>(files, path, spacing_given, gdcm);
+      case C::SHORT: return read_dicom_as<int16_t>(files, path, spacing_given, gdcm);
+      default: return read_dicom_as<float>(files, path, spacing_given, gdcm);
     }
   } catch (const itk::ExceptionObject& e) {
-    throw InputError("cannot read DICOM input " + path + ": " + e.GetDescription());
+    throw InputError("cannot read DICOM input " + path + ": " + e.GetDescription() + gdcm.notes());
   }
 }
 

@@ -11,6 +11,7 @@
 #include <set>
 #include <sstream>
 
+#include "core/dicom.hpp"
 #include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "core/io.hpp"
@@ -110,9 +111,14 @@ Geometry file_geometry(const FileSpec& f, const std::string& field, bool scan) {
     ReadOptions ro = f.read;
     ro.spacing_mm.reset();
     try {
-      const Geometry g = read_volume(f.path, ro).geometry();
-      check_spacing(g.spacing_mm);
-      return g;
+      try {
+        const Geometry g = read_volume(f.path, ro).geometry();
+        check_spacing(g.spacing_mm);
+        return g;
+      } catch (const DicomGeometryMissing&) {
+        if (!f.read.spacing_mm) throw;  // refused naming the file and the tag (core/dicom.hpp)
+        return read_volume(f.path, f.read).geometry();  // headers without a voxel size: spacing_mm is the only one
+      }
     } catch (const InputError& e) {
       if (std::string(e.what()).rfind(field, 0) == 0) throw;
       throw InputError(field + ": " + e.what());

@@ -11,11 +11,17 @@
 
 #include <catch2/catch.hpp>
 #include <filesystem>
+#include <fstream>
+#include <iostream>
+#include <sstream>
 
+#include "core/dicom.hpp"
 #include "core/error.hpp"
 #include "core/io.hpp"
 #include "core/json.hpp"
 #include "suites/layout.hpp"
+#include "suites/preflight.hpp"
+#include "suites/suite.hpp"
 #include "tests/helpers.hpp"
 #include "tests/json_files.hpp"
 #include "tests/paired_helpers.hpp"
@@ -27,11 +33,19 @@ namespace {
 
 using Img3 = itk::Image<int16_t, 3>;
 
+// std::cerr swapped for a buffer while alive: what a call printed there.
+struct CerrBuffer {
+  std::ostringstream buf;
+  std::streambuf* old = std::cerr.rdbuf(buf.rdbuf());
+  ~CerrBuffer() { std::cerr.rdbuf(old); }
+};
+
 // Writes `v` as a DICOM series of one file per z slice into `dir` (names IM0001`ext`, ...), with
 // the given direction cosines (columns: the x, y, z axes in patient mm).
 void write_series(const Image<int16_t>& v, const std::string& dir, const Img3::DirectionType& direction,
-                  const std::string& ext) {
+                  const std::string& ext, const std::vector<std::pair<std::string, std::string>>& tags = {{"0008|0060", "CT"}}) {
   fs::create_directories(dir);
+  CerrBuffer quiet;  // GDCM's warnings while writing a Secondary Capture
   auto img = Img3::New();
   Img3::SizeType size;
   Img3::SpacingType spacing;
@@ -52,10 +66,11 @@ void write_series(const Image<int16_t>& v, const std::string& dir, const Img3::D
   names->SetEndIndex(itk::SizeValueType(size[2]));
   names->SetIncrementIndex(1);
   names->SetSeriesFormat(dir + "/IM%04d" + ext);
-  // Modality CT: GDCM then writes a CT Image Storage object, which carries Image Position
-  // (Patient), Image Orientation (Patient) and Pixel Spacing (a Secondary Capture does not).
+  // Modality CT (the default `tags`): GDCM then writes a CT Image Storage object, which carries
+  // Image Position (Patient), Image Orientation (Patient) and Pixel Spacing. Without a modality it
+  // writes a Secondary Capture: Nominal Scanned Pixel Spacing (0018,2010) but no Image Position.
   auto io = itk::GDCMImageIO::New();
-  itk::EncapsulateMetaData<std::string>(io->GetMetaDataDictionary(), "0008|0060", "CT");
+  for (const auto& [key, value] : tags) itk::EncapsulateMetaData<std::string>(io->GetMetaDataDictionary(), key, value);
   itk::EncapsulateMetaData<std::string>(io->GetMetaDataDictionary(), "0028|0004", "MONOCHROME2");
   auto writer = itk::ImageSeriesWriter<Img3, itk::Image<int16_t, 2>>::New();
   writer->SetImageIO(io);
@@ -82,7 +97,165 @@ Image<int16_t> pattern(const Geometry& g) {
   return v;
 }
 
+// One DICOM Part 10 file written byte by byte (PS3.10 file meta information, PS3.5 explicit VR
+// little endian) of `cols` x `rows` uint16 voxels: a CT Image Storage object, or a Secondary
+// Capture when `sop` says so, with Pixel Spacing (0028,0030) = "ROW\\COLUMN" mm when
+// `pixel_spacing` is not empty (PS3.3: the first value is the distance between rows, i.e. along y,
+// the second between columns, along x) and without it else.
+void write_dicom_file(const std::string& path, int cols, int rows, const std::vector<uint16_t>& pixels,
+                      const std::string& pixel_spacing, const std::string& sop = "1.2.840.10008.5.1.4.1.1.2") {
+  auto element = [](uint16_t group, uint16_t elem, const char* vr, std::string value) {
+    const bool long_form = std::string(vr) == "OB" || std::string(vr) == "OW";
+    if (value.size() % 2) value += std::string(vr) == "UI" ? '\0' : ' ';
+    std::string e;
+    auto u16 = [&e](uint16_t x) { e += char(x & 0xff), e += char(x >> 8); };
+    u16(group), u16(elem), e += vr;
+    if (long_form) {
+      u16(0);
+      const uint32_t n = uint32_t(value.size());
+      for (int b = 0; b < 4; ++b) e += char((n >> (8 * b)) & 0xff);
+    } else {
+      u16(uint16_t(value.size()));
+    }
+    return e + value;
+  };
+  auto us = [](uint16_t x) { return std::string{char(x & 0xff), char(x >> 8)}; };
+  const std::string& sc = sop, uid = "1.2.826.0.1.3680043.2.1125.99.1";
+  std::string meta = element(0x0002, 0x0001, "OB", std::string{'\0', '\1'}) + element(0x0002, 0x0002, "UI", sc) +
+                     element(0x0002, 0x0003, "UI", uid) + element(0x0002, 0x0010, "UI", "1.2.840.10008.1.2.1");
+  const uint32_t n = uint32_t(meta.size());
+  std::string group_length = element(0x0002, 0x0000, "UL", std::string{char(n & 0xff), char((n >> 8) & 0xff), char((n >> 16) & 0xff), char(n >> 24)});
+  std::string data = element(0x0008, 0x0016, "UI", sc) + element(0x0008, 0x0018, "UI", uid) + element(0x0008, 0x0060, "CS", sop == "1.2.840.10008.5.1.4.1.1.2" ? "CT" : "OT") +
+                     element(0x0028, 0x0002, "US", us(1)) + element(0x0028, 0x0004, "CS", "MONOCHROME2") +
+                     element(0x0028, 0x0010, "US", us(uint16_t(rows))) + element(0x0028, 0x0011, "US", us(uint16_t(cols)));
+  if (!pixel_spacing.empty()) data += element(0x0028, 0x0030, "DS", pixel_spacing);
+  data += element(0x0028, 0x0100, "US", us(16)) + element(0x0028, 0x0101, "US", us(16)) + element(0x0028, 0x0102, "US", us(15)) +
+          element(0x0028, 0x0103, "US", us(0));
+  std::string px;
+  for (uint16_t p : pixels) px += us(p);
+  data += element(0x7fe0, 0x0010, "OW", px);
+  std::ofstream f(path, std::ios::binary);
+  f << std::string(128, '\0') << "DICM" << group_length << meta << data;
+}
+
 }  // namespace
+
+TEST_CASE("DICOM without its voxel-size tags: refused naming the file and the tag unless the spacing is given",
+          "[io][dicom][paired]") {
+  pbtest::TempDir d;
+  // Source: DICOM PS3.3 C.7.6.2.1.1 (Pixel Spacing: row spacing, then column spacing) and PS3.5
+  // explicit VR little endian, from memory; the file is written byte by byte above.
+  std::vector<uint16_t> px(6 * 4);
+  for (size_t i = 0; i < px.size(); ++i) px[i] = uint16_t(100 + 7 * i);
+  const std::string with = d / "with.dcm", without = d / "without.dcm";
+  write_dicom_file(with, 6, 4, px, "0.025\\0.02");
+  write_dicom_file(without, 6, 4, px, "");
+  {
+    const AnyVolume r = read_volume(with);
+    REQUIRE(r.type() == VoxelType::u16);
+    CHECK(r.geometry().dims == std::array<int64_t, 3>{6, 4, 1});
+    CHECK(r.geometry().spacing_mm[0] == Approx(0.02));   // between columns: x
+    CHECK(r.geometry().spacing_mm[1] == Approx(0.025));  // between rows: y
+    const uint16_t* back = static_cast<const uint16_t*>(r.raw());
+    CHECK(std::equal(px.begin(), px.end(), back));
+  }
+  {
+    CerrBuffer err;  // GDCM's own warnings do not reach stderr
+    CHECK_THROWS_MATCHES(read_volume(without), DicomGeometryMissing,
+                         Catch::Matchers::Predicate<std::exception>([&](const std::exception& e) {
+                           const std::string m = e.what();
+                           return m.find(without) != std::string::npos && m.find("Pixel Spacing (0028,0030)") != std::string::npos;
+                         }, "names the file and Pixel Spacing (0028,0030)"));
+    CHECK(err.buf.str().empty());
+  }
+  ReadOptions given;
+  given.spacing_mm = std::array<double, 3>{0.03, 0.03, 0.03};
+  CHECK(read_volume(without, given).geometry().spacing_mm[0] == 0.03);
+  // A Secondary Capture (1.2.840.10008.5.1.4.1.1.7) with Pixel Spacing: GDCM takes Nominal Scanned
+  // Pixel Spacing (0018,2010) for that class and reads 1 mm; refused naming the tag it ignored.
+  write_dicom_file(d / "sc.dcm", 6, 4, px, "0.025\\0.02", "1.2.840.10008.5.1.4.1.1.7");
+  CHECK_THROWS_WITH(read_volume(d / "sc.dcm"), Catch::Contains(d / "sc.dcm") && Catch::Contains("Pixel Spacing (0028,0030) = 0.025"));
+
+  // A series that ITK writes as a Secondary Capture (no modality): in-plane spacing in (0018,2010)
+  // but no Image Position (Patient); GDCM would stack it at 1 mm.
+  const Image<int16_t> v = pattern(kGeo);
+  write_series(v, d / "sc", axes(1, 1, 1), ".dcm", {});
+  {
+    CerrBuffer err;
+    CHECK_THROWS_WITH(read_volume(d / "sc"), Catch::Contains(d / "sc/IM0001.dcm") &&
+                                                 Catch::Contains("Image Position (Patient) (0020,0032)") &&
+                                                 Catch::Contains("spacing_mm") && Catch::Contains("--spacing"));
+    CHECK(err.buf.str().empty());
+  }
+  ReadOptions z;
+  z.spacing_mm = std::array<double, 3>{0.02, 0.025, 0.03};
+  const AnyVolume r = read_volume(d / "sc", z);
+  REQUIRE(r.geometry().dims == kGeo.dims);
+  const int16_t* back = static_cast<const int16_t*>(r.raw());
+  CHECK(std::equal(back, back + v.size(), v.data()));
+
+  // The command line: exit 2 naming file and tag, no GDCM text on stderr; --spacing reads it.
+  const auto bad = pbtest::run_cli("convert " + (d / "sc") + " -o " + (d / "sc.mha"));
+  CHECK(bad.exit_code == 2);
+  CHECK_THAT(bad.err, Catch::Contains("IM0001.dcm") && Catch::Contains("(0020,0032)"));
+  CHECK_THAT(bad.err, !Catch::Contains("Warning: In"));
+  CHECK_FALSE(fs::exists(d / "sc.mha"));
+  const auto ok = pbtest::run_cli("convert " + without + " --spacing 0.02,0.025,0.1 -o " + (d / "one.mha"));
+  INFO(ok.err);
+  CHECK(ok.exit_code == 0);
+  CHECK(read_volume(d / "one.mha").geometry().spacing_mm[2] == Approx(0.1));
+
+  // A paired suite: the reference series without spacing_mm is refused at the preflight; with it, accepted.
+  write_volume(v, d / "fast.mha");
+  const std::string head = "[[dataset]]\nname = \"sc\"\nkind = \"paired\"\nreference_method = \"otsu\"\nalign = \"none\"\n";
+  const std::string tail = "scans = [ { path = \"fast.mha\", projections = 400 } ]\n[[method]]\nname = \"otsu\"\n";
+  pbtest::expect_suite_refused(d / "bad.toml", head + "reference_scan = \"sc\"\n" + tail,
+                               {"reference_scan", "IM0001.dcm", "Image Position (Patient) (0020,0032)"});
+  pbtest::write_file(d / "good.toml", head + "reference_scan = { path = \"sc\", spacing_mm = [0.02, 0.025, 0.03] }\n" + tail);
+  CHECK_NOTHROW(suite::preflight(suite::load_suite(d / "good.toml")));
+}
+
+TEST_CASE("a DICONDE CT series and one of its files read back exactly", "[io][dicom]") {
+  // DICONDE (ASTM E2339, with a practice per method; for CT, from memory, ASTM E2767) is DICOM's
+  // file format and information objects with the patient replaced by the component under test:
+  // from memory, a CT series keeps CT Image Storage and Modality CT, the component's name and
+  // serial number take (0010,0010) and (0010,0020), and NDE-specific attributes sit in group
+  // 0x0014. We know of no NDE-specific Modality value; what makes these files DICONDE here is the
+  // component identification. Reading must not depend on any of it: the known answer is the
+  // geometry and the voxels written (a gear blank of glass-filled polyamide, invented).
+  pbtest::TempDir d;
+  const Geometry g{{9, 7, 5}, {0.0104, 0.0104, 0.012}, {-4.0, 2.5, 10.0}};
+  const Image<int16_t> v = pattern(g);
+  write_series(v, d / "diconde", axes(1, 1, 1), ".dcm",
+               {{"0008|0060", "CT"}, {"0010|0010", "GEAR BLANK PA66-GF30"}, {"0010|0020", "GB-0042"},
+                {"0008|0070", "WORKSHOP CT"}, {"0018|0060", "160"}});
+  auto header = itk::GDCMImageIO::New();
+  header->SetFileName(d / "diconde/IM0003.dcm");
+  header->ReadImageInformation();
+  std::string component, modality;
+  itk::ExposeMetaData<std::string>(header->GetMetaDataDictionary(), "0010|0010", component);
+  itk::ExposeMetaData<std::string>(header->GetMetaDataDictionary(), "0008|0060", modality);
+  CHECK_THAT(component, Catch::StartsWith("GEAR BLANK PA66-GF30"));
+  CHECK_THAT(modality, Catch::StartsWith("CT"));
+  CerrBuffer err;
+  const AnyVolume r = read_volume(d / "diconde");
+  REQUIRE(r.type() == VoxelType::i16);
+  CHECK(r.geometry().dims == g.dims);
+  for (int i = 0; i < 3; ++i) {
+    CHECK(r.geometry().spacing_mm[size_t(i)] == Approx(g.spacing_mm[size_t(i)]).epsilon(1e-6));
+    CHECK(r.geometry().origin_mm[size_t(i)] == Approx(g.origin_mm[size_t(i)]).margin(1e-6));
+  }
+  const int16_t* back = static_cast<const int16_t*>(r.raw());
+  CHECK(std::equal(back, back + v.size(), v.data()));
+  // One file of it alone: its slice (z = 2), in-plane geometry from its own header.
+  const AnyVolume one = read_volume(d / "diconde/IM0003.dcm");
+  REQUIRE(one.geometry().dims == std::array<int64_t, 3>{9, 7, 1});
+  CHECK(one.geometry().spacing_mm[0] == Approx(0.0104).epsilon(1e-6));
+  CHECK(one.geometry().origin_mm[2] == Approx(10.0 + 2 * 0.012).margin(1e-6));
+  const int16_t* slice = static_cast<const int16_t*>(one.raw());
+  CHECK(std::equal(slice, slice + 63, v.data() + 2 * 63));
+  CHECK(err.buf.str().empty());
+}
 
 TEST_CASE("DICOM series written by ITK read back with their spacing, origin and voxels", "[io][dicom][paired]") {
   const Geometry& g = kGeo;
