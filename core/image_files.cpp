@@ -1,10 +1,7 @@
 // Loader of the imgcodecs module (see image_files.hpp): dlopen once, on the first image call.
 #include "core/image_files.hpp"
 
-#include <dlfcn.h>
-#include <unistd.h>
-
-#include <stdexcept>
+#include "core/modules.hpp"
 
 namespace pb {
 namespace {
@@ -17,30 +14,13 @@ struct Codecs {
   ReadFn read = nullptr;
 };
 
-std::string exe_dir() {
-  char buf[4096];
-  const ssize_t n = ::readlink("/proc/self/exe", buf, sizeof(buf) - 1);
-  if (n <= 0) return ".";
-  std::string p(buf, size_t(n));
-  const size_t s = p.find_last_of('/');
-  return s == std::string::npos ? "." : p.substr(0, s);
-}
-
 const Codecs& codecs() {
   static const Codecs c = [] {
-    const std::string name = "/libporebench_imgcodecs.so", dir = exe_dir();
-    std::string tried, err;
-    void* h = nullptr;
-    for (const std::string& d : {dir, dir + "/../lib/porebench", std::string(PB_IMGCODECS_MODULE_DIR)}) {
-      if ((h = ::dlopen((d + name).c_str(), RTLD_NOW | RTLD_LOCAL))) break;
-      tried += (tried.empty() ? "" : ", ") + d + name;
-      if (const char* e = ::dlerror()) err = e;
-    }
-    if (!h) throw std::runtime_error("cannot load the image-file module (tried " + tried + "): " + err);
+    const std::string file = "libporebench_imgcodecs.so";
+    void* h = open_module(file, PB_IMGCODECS_MODULE_DIR, "image-file");
     Codecs k;
-    k.write = reinterpret_cast<WriteFn>(::dlsym(h, "pb_imgcodecs_write"));
-    k.read = reinterpret_cast<ReadFn>(::dlsym(h, "pb_imgcodecs_read"));
-    if (!k.write || !k.read) throw std::runtime_error("image-file module " + name + " lacks its entry points");
+    k.write = reinterpret_cast<WriteFn>(module_symbol(h, "pb_imgcodecs_write", file));
+    k.read = reinterpret_cast<ReadFn>(module_symbol(h, "pb_imgcodecs_read", file));
     return k;
   }();
   return c;

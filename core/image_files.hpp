@@ -4,7 +4,8 @@
 // executables, they were loaded at every start, also by commands that write no image (start-up
 // 0.17 s quiet, issue 16). They now live in a small module, libporebench_imgcodecs.so
 // (core/imgcodecs_module/module.cpp), opened by the first call here. Searched: next to the
-// executable, then ../lib/porebench beside it, then the build tree it was built in.
+// executable or libporebench.so, in porebench/ and ../lib/porebench from there, then the build
+// tree (core/modules.hpp).
 // Same behaviour as cv::imwrite / cv::imread (format from the file name's extension).
 #include <opencv2/core/mat.hpp>
 #include <string>
