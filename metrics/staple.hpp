@@ -26,4 +26,12 @@ struct StapleResult {
 StapleResult staple(const std::vector<const Mask*>& masks, const std::vector<std::string>& names,
                     double threshold = 0.5, int max_iterations = 200);
 
+// STAPLE's E-step alone, with the performance parameters fixed (Warfield, Zou & Wells 2004, the
+// equation for W): W = g a / (g a + (1 - g) b), a = prod_j p_j^D_j (1 - p_j)^(1 - D_j),
+// b = prod_j q_j^(1 - D_j) (1 - q_j)^D_j; returns W >= threshold. Used to fuse the raters' masks on
+// another grid by the rule estimated on the reference grid. p and q are clamped to [1e-12, 1 - 1e-12]
+// (a perfect rater would otherwise give 0/0 where two perfect raters disagree).
+Mask staple_fuse(const std::vector<const Mask*>& masks, const std::vector<double>& sensitivity,
+                 const std::vector<double>& specificity, double prior, double threshold = 0.5);
+
 }  // namespace pb

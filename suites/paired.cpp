@@ -201,18 +201,30 @@ std::vector<RaterSpec> parse_raters(const toml::node& n, const std::string& wher
   return out;
 }
 
-// The reference method again at the threshold it chose on the reference scan, for the grey
-// resampling: its pre-filters and pore options as they were, the last stage replaced by "manual".
-// No info when the method reports no threshold (local methods, region growing).
+// How a reference segmentation is made again on a fast scan's grid from the reference scan
+// resampled there linearly ("grey" resampling): a method that reports one threshold is re-applied
+// at it (its pre-filters and pore options as they were, the last stage replaced by "manual"); any
+// other (local thresholds, region growing, neural) is re-run there with its parameters, sizes in
+// voxels as given. A predictions method reads files made elsewhere and cannot be: no info (its
+// mask is resampled by nearest neighbour).
 struct Reapply {
   const MethodInfo* info = nullptr;
   ParamValues params;
-  std::string threshold_text;
+  std::string text;  // what is done, for the record
 };
-Reapply threshold_reapply(const MethodInfo& m, const ParamValues& pv, const MethodOutput& out) {
+Reapply reapply_for(const MethodInfo& m, const ParamValues& pv, const MethodOutput& out) {
   Reapply r;
+  if (m.family == "predictions") return r;
   const auto it = std::find_if(out.chosen.begin(), out.chosen.end(), [](const auto& kv) { return kv.first == "threshold"; });
-  if (it == out.chosen.end()) return r;
+  if (it == out.chosen.end()) {
+    std::string given;
+    for (const auto& [k, v] : pv.text()) given += (given.empty() ? "" : ", ") + k + "=" + v;
+    r.info = &m;
+    r.params = pv;
+    r.text = m.name + " re-run there with its parameters (" + (given.empty() ? "defaults" : given) +
+             "; sizes in voxels of that grid)";
+    return r;
+  }
   const size_t plus = m.name.rfind('+');
   const MethodInfo& manual = Registry::instance().get(plus == std::string::npos ? "manual" : m.name.substr(0, plus) + "+manual");
   std::ostringstream t;
@@ -223,15 +235,26 @@ Reapply threshold_reapply(const MethodInfo& m, const ParamValues& pv, const Meth
     if (spec.name != "threshold" && pv.text().count(spec.name)) kv.push_back(spec.name + "=" + pv.text().at(spec.name));
   r.info = &manual;
   r.params = parse_params(manual, kv);
-  r.threshold_text = "threshold " + t.str() + " (chosen on the reference scan)";
+  r.text = m.name + " re-applied there at threshold " + t.str() + " (chosen on the reference scan)";
   return r;
 }
+
+// A STAPLE consensus made again on another grid: each rater's mask there (Reapply), fused by
+// STAPLE's E-step with the performance parameters estimated on the reference grid (staple_fuse).
+struct ConsensusRule {
+  std::vector<Reapply> raters;
+  std::vector<double> sensitivity, specificity;
+  double prior = 0, threshold = 0.5;
+  bool possible() const {
+    return !raters.empty() && std::all_of(raters.begin(), raters.end(), [](const Reapply& r) { return r.info; });
+  }
+};
 
 // The consensus reference: each rater run on the reference scan, combined by STAPLE (Warfield, Zou
 // & Wells 2004, IEEE TMI 23(7):903-921) over the whole reference volume, W >= 0.5 the reference
 // pores. The record keeps each rater's STAPLE sensitivity and specificity and the iterations.
 Mask consensus_reference(const DatasetSpec& d, const VolumeF& ref_scan, const Mask* part, VoxelType type, Json& record,
-                         const LogFn& log) {
+                         ConsensusRule& rule, const LogFn& log) {
   constexpr double threshold = 0.5;
   std::vector<Mask> masks;
   Json raters = Json::array();
@@ -240,6 +263,7 @@ Mask consensus_reference(const DatasetSpec& d, const VolumeF& ref_scan, const Ma
     const ParamValues pv = parse_params(m, r.params);
     if (log) log("dataset '" + d.name + "': reference rater '" + r.label + "' (" + m.name + ") on " + d.reference_scan);
     MethodOutput out = run_method(m, pv, MethodInput{ref_scan, part, type});
+    rule.raters.push_back(reapply_for(m, pv, out));
     Json chosen = Json::object();
     for (const auto& [k, v] : out.chosen) chosen[k] = v;
     std::string given;
@@ -253,6 +277,7 @@ Mask consensus_reference(const DatasetSpec& d, const VolumeF& ref_scan, const Ma
   std::vector<std::string> names;
   for (size_t i = 0; i < masks.size(); ++i) in.push_back(&masks[i]), names.push_back("reference_consensus[" + std::to_string(i + 1) + "] (" + d.reference_consensus[i].label + ")");
   StapleResult st = staple(in, names, threshold);
+  rule.sensitivity = st.sensitivity, rule.specificity = st.specificity, rule.prior = st.prior, rule.threshold = threshold;
   for (size_t i = 0; i < masks.size(); ++i) {
     raters[i]["sensitivity"] = st.sensitivity[i];
     raters[i]["specificity"] = st.specificity[i];
@@ -496,14 +521,15 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
   Mask ref_pores;
   VolumeF ref_scan;
   Json ref_record;
-  Reapply reapply;  // the reference method at its chosen threshold, for grey resampling
+  Reapply reapply;     // the reference method made again on a fast grid (grey resampling)
+  ConsensusRule rule;  // or the consensus: its raters and STAPLE's fitted rule
   if (!d.reference_mask.empty()) {
     ref_pores = d.reference_label >= 0 ? ref_any.to_mask(d.reference_label) : ref_any.to_mask();
     ref_record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", file_sha256(d.reference_mask)},
                   {"grid", describe(ref_any.geometry())}};
   } else if (!d.reference_consensus.empty()) {
     ref_scan = ref_any.to_float();
-    ref_pores = consensus_reference(d, ref_scan, part.empty() ? nullptr : &part, ref_any.type(), ref_record, log);
+    ref_pores = consensus_reference(d, ref_scan, part.empty() ? nullptr : &part, ref_any.type(), ref_record, rule, log);
     ref_record["grid"] = describe(ref_any.geometry());
   } else {
     const MethodInfo& m = Registry::instance().get(d.reference_method);
@@ -514,7 +540,7 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
     ref_pores = out.pores;
     Json chosen = Json::object();
     for (const auto& [k, v] : out.chosen) chosen[k] = v;
-    if (d.reference_resample == "grey") reapply = threshold_reapply(m, pv, out);
+    reapply = reapply_for(m, pv, out);
     ref_record = {{"scan", d.reference_scan}, {"sha256", file_sha256(d.reference_scan)}, {"method", m.name},
                   {"params", pv.text()}, {"chosen", chosen}, {"projections", d.reference_projections},
                   {"grid", describe(ref_any.geometry())}};
@@ -522,14 +548,27 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
   const VoxelType ref_type = ref_any.type();
   ref_any = AnyVolume();
   write_volume(ref_pores, p.ref_mask_path, {true});
-  if (d.reference_resample == "grey") {
-    ref_record["resample"] = reapply.info ? "grey: the reference scan resampled linearly onto each fast scan's grid, " +
-                                                reapply.info->name + " applied there at threshold " + reapply.threshold_text
-                                          : std::string("mask: nearest neighbour (the reference has no single threshold "
-                                                        "to re-apply: a consensus or a local method)");
-  } else {
-    ref_record["resample"] = "mask: nearest neighbour (reference_resample = \"mask\")";
+  // What a fast scan on another grid or pose gets: the grey reference resampled and segmented there
+  // as on the reference grid, or (reference_resample = "mask", a reference mask, a predictions
+  // method) the reference pores by nearest neighbour.
+  const bool grey = d.reference_resample == "grey" && (reapply.info || rule.possible());
+  std::string how;  // how the pores are made on a fast grid from the resampled grey scan
+  if (grey && reapply.info) {
+    how = reapply.text;
+  } else if (grey) {
+    how = "each rater made again there (";
+    for (size_t i = 0; i < rule.raters.size(); ++i) how += (i ? "; " : "") + rule.raters[i].text;
+    how += "), fused by STAPLE's rule (W >= 0.5) with the sensitivities, specificities and prior estimated on the "
+           "reference grid";
   }
+  const std::string grey_text = "grey resampled (linear), " + how;
+  if (grey)
+    ref_record["resample"] = "grey: the reference scan resampled linearly onto each fast scan's grid where it differs, " + how;
+  else if (d.reference_resample == "grey")
+    ref_record["resample"] = std::string("mask: nearest neighbour (the reference method reads files made elsewhere: it "
+                                         "cannot be made again on a resampled scan)");
+  else
+    ref_record["resample"] = "mask: nearest neighbour (reference_resample = \"mask\")";
   // Each fast scan: the reference brought onto its grid, its own split and montage slice.
   Json variants = Json::array();
   bool first = true;
@@ -556,15 +595,21 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
         part_here = moved ? resample_nearest(part, fg, a.T) : part;
         write_volume(part_here, v.part_mask_path, {true});
       }
-      if (moved && reapply.info) {  // grey resampling: thin voids survive a sub-voxel re-mount
-        const VolumeF grey = resample_linear(ref_scan, fg, a.T);
-        a.pores = run_method(*reapply.info, reapply.params,
-                             MethodInput{grey, part_here.empty() ? nullptr : &part_here, ref_type}).pores;
-        if (a.record.contains("resampled") && a.record["resampled"].is_object())
-          a.record["resampled"]["mask"] = "grey resampled (linear), " + reapply.info->name + " at " + reapply.threshold_text;
-        else
-          a.record["resampled"] = {{"grid", "the fast scan's"}, {"mask", "grey resampled (linear), " + reapply.info->name +
-                                                                           " at " + reapply.threshold_text}};
+      if (moved && grey) {  // grey resampling: thin voids survive a sub-voxel re-mount
+        const VolumeF grey_here = resample_linear(ref_scan, fg, a.T);
+        const MethodInput in{grey_here, part_here.empty() ? nullptr : &part_here, ref_type};
+        if (reapply.info) {
+          a.pores = run_method(*reapply.info, reapply.params, in).pores;
+        } else {
+          std::vector<Mask> masks;
+          std::vector<const Mask*> ptrs;
+          for (const Reapply& r : rule.raters) masks.push_back(run_method(*r.info, r.params, in).pores);
+          for (const Mask& m : masks) ptrs.push_back(&m);
+          a.pores = staple_fuse(ptrs, rule.sensitivity, rule.specificity, rule.prior, rule.threshold);
+        }
+        if (!a.record.contains("resampled") || !a.record["resampled"].is_object())
+          a.record["resampled"] = {{"grid", "the fast scan's"}};
+        a.record["resampled"]["mask"] = grey_text;
       }
       write_volume(a.pores, v.ref_mask_path, {true});
       v.split = split_slices(p.name + "' scan '" + v.scan, part.empty() ? nullptr : &part_here, a.pores, c);

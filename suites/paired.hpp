@@ -27,10 +27,12 @@
 //                           { name = "median+otsu", label = "otsu-median", params = { "median.radius" = 1 } } ]
 //
 // reference_resample = "grey" (default) | "mask": when a fast scan's grid or pose differs, the
-// reference scan is resampled linearly onto it and the reference method re-applied there at the
-// threshold it chose on the reference scan (pre-filters and pore options as they were), or the
-// reference pores are resampled by nearest neighbour ("mask"; also what a reference mask, a
-// consensus or a method without a single threshold gets). The record says which.
+// reference scan is resampled linearly onto it and the reference made again there: a method with
+// one threshold re-applied at the threshold it chose on the reference scan (pre-filters and pore
+// options as they were), any other method (local thresholds, region growing) re-run with its
+// parameters, a consensus by making each rater so and fusing them by STAPLE's rule fitted on the
+// reference grid (metrics/staple.hpp staple_fuse). "mask" resamples the reference pores by nearest
+// neighbour, as a reference mask and a predictions method always are. The record says which.
 //
 // The older form (one `scan`, `projections`, and `raw`/`spacing_mm` for the scan and the reference
 // scan) still parses: a series of one scan labelled "scan".
