@@ -42,6 +42,7 @@ struct PairedScanSpec {
   FileSpec file;
   int projections = 0;  // for series plots and the scan-recipe advice
   double i0 = 0;        // exposure or dose, in the user's unit (optional)
+  std::string i0_unit;  // that unit as the suite file names it ("mAs", "s"), for the series axis (optional)
   std::string align;    // auto, markers, intensity, none
   std::string transform;  // a known transform (T.json of `porebench align`, fast mm -> reference mm) instead of registering
 };
