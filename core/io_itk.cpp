@@ -1,33 +1,28 @@
 // ITK-backed volume I/O. ITK's ImageIO classes are used directly (no itk::Image pipeline), reading
 // straight into our buffer; the IO class is chosen by file name, so no IO factory registration is
-// needed. DICOM (and DICONDE) series go through ITK's GDCM reader (GDCMSeriesFileNames orders the
-// slices by position, ImageSeriesReader + GDCMImageIO read them with the header geometry).
+// needed. DICOM (and DICONDE) series go through ITK's GDCM reader in the module
+// libporebench_dicom.so (core/dicom_module/module.cpp), opened here on the first DICOM input: GDCM
+// costs ~45 ms of CPU when it is loaded (issue 16).
 // This is one of the few translation units that include ITK headers.
-#include <itkGDCMImageIO.h>
-#include <itkGDCMSeriesFileNames.h>
 #include <itkImageIOBase.h>
-#include <itkImageSeriesReader.h>
-#include <itkOrientImageFilter.h>
 #include <itkMetaImageIO.h>
 #include <itkNiftiImageIO.h>
 #include <itkNrrdImageIO.h>
 #include <itkTIFFImageIO.h>
 
-#include <itkMetaDataObject.h>
-
 #include <algorithm>
 #include <cstring>
+#include <exception>
 #include <filesystem>
-#include <iostream>
 #include <map>
 #include <regex>
-#include <set>
-#include <sstream>
 
 #include "core/dicom.hpp"
+#include "core/dicom_module/dicom_abi.h"
 #include "core/error.hpp"
 #include "core/io.hpp"
 #include "core/memory.hpp"
+#include "core/modules.hpp"
 
 namespace fs = std::filesystem;
 
@@ -170,162 +165,62 @@ AnyVolume itk_read_tiff_folder(const std::string& folder) {
 
 namespace {
 
-// The files of a DICOM path: one file, or the one series of a folder ordered by slice position.
-std::vector<std::string> dicom_files(const std::string& path) {
-  if (!fs::is_directory(path)) return {path};
-  auto names = itk::GDCMSeriesFileNames::New();
-  names->SetUseSeriesDetails(false);
-  names->SetDirectory(path);
-  const auto& uids = names->GetSeriesUIDs();
-  if (uids.empty()) throw InputError("DICOM folder " + path + " holds no readable DICOM series");
-  if (uids.size() > 1) {
-    std::string list;
-    for (const auto& u : uids) list += (list.empty() ? "" : ", ") + u;
-    throw InputError("DICOM folder " + path + " holds " + std::to_string(uids.size()) + " series (" + list +
-                     "); give a folder with one series");
-  }
-  return names->GetFileNames(uids.front());
-}
-
-// GDCM and ITK write their warnings to std::cerr ("Warning: In FILE, line N, function F" and the
-// text on the next line); while a DICOM input is read, std::cerr goes here instead. Single-threaded
-// (the reader runs on the calling thread; nothing else logs meanwhile).
-class CerrCapture {
- public:
-  CerrCapture() : old_(std::cerr.rdbuf(buf_.rdbuf())) {}
-  ~CerrCapture() { std::cerr.rdbuf(old_); }
-  CerrCapture(const CerrCapture&) = delete;
-  CerrCapture& operator=(const CerrCapture&) = delete;
-  // The distinct message lines (without the source-location lines), as " (GDCM: a; b)" or "".
-  std::string notes() const {
-    std::istringstream in(buf_.str());
-    std::vector<std::string> lines;
-    std::set<std::string> seen;
-    for (std::string line; std::getline(in, line);) {
-      if (line.empty() || line.rfind("Warning: In ", 0) == 0 || line.rfind("Error: In ", 0) == 0 ||
-          line.rfind("Debug: In ", 0) == 0)
-        continue;
-      if (seen.insert(line).second) lines.push_back(line);
-    }
-    std::string out;
-    for (size_t i = 0; i < lines.size() && i < 4; ++i) out += (i ? "; " : "") + lines[i];
-    return out.empty() ? out : " (GDCM: " + out + (lines.size() > 4 ? "; ..." : "") + ")";
-  }
-
- private:
-  std::ostringstream buf_;
-  std::streambuf* old_;
+// The DICOM module's entry points, opened once (a failed open throws, naming the paths tried, and
+// is tried again on the next DICOM input).
+struct DicomApi {
+  decltype(&pb_dicom_read) read = nullptr;
+  decltype(&pb_dicom_error) error = nullptr;
 };
 
-std::string tag_text(const itk::MetaDataDictionary& d, const char* key) {
-  std::string v;
-  if (!itk::ExposeMetaData<std::string>(d, key, v)) return "";
-  const auto b = v.find_first_not_of(" \\");
-  return b == std::string::npos ? "" : v.substr(b);
+const DicomApi& dicom_api() {
+  static const DicomApi api = [] {
+    const std::string file = "libporebench_dicom.so";
+    void* h = open_module(file, PB_DICOM_MODULE_DIR, "DICOM reader");
+    const auto abi = reinterpret_cast<decltype(&pb_dicom_abi)>(module_symbol(h, "pb_dicom_abi", file));
+    if (abi() != PB_DICOM_ABI)
+      throw std::runtime_error("module " + file + " has entry points of version " + std::to_string(abi()) +
+                               ", this library expects " + std::to_string(PB_DICOM_ABI));
+    DicomApi a;
+    a.read = reinterpret_cast<decltype(&pb_dicom_read)>(module_symbol(h, "pb_dicom_read", file));
+    a.error = reinterpret_cast<decltype(&pb_dicom_error)>(module_symbol(h, "pb_dicom_error", file));
+    return a;
+  }();
+  return api;
 }
 
-// Refuses a DICOM input whose tags do not state its voxel size (see core/dicom.hpp): per file the
-// in-plane spacing, between the files of a series each file's position, in a multi-frame file the
-// frame spacing. `dicts[i]` is the header of `files[i]`; `x_mm`, `y_mm` the in-plane spacing GDCM
-// read. An in-plane tag counts only when GDCM took it: it picks the tag by the object's class
-// (e.g. Nominal Scanned Pixel Spacing for a Secondary Capture) and reads 1 mm when that one is missing.
-void check_geometry_tags(const std::vector<std::string>& files, const std::vector<const itk::MetaDataDictionary*>& dicts,
-                         double x_mm, double y_mm, const std::string& path, const std::string& notes) {
-  auto refuse = [&](const std::string& file, const std::string& tag, const std::string& what) {
-    throw DicomGeometryMissing((file == path ? "DICOM file " + path : "DICOM input " + path + ": " + file) + " has no " + tag + ", so its " + what +
-                               " is unknown (GDCM would read 1 mm); give the voxel size (spacing_mm in the suite file, "
-                               "--spacing X,Y,Z in mm on the command line)" + notes);
-  };
-  static const std::pair<const char*, const char*> in_plane[] = {{"0028|0030", "Pixel Spacing (0028,0030)"},
-                                                                  {"0018|1164", "Imager Pixel Spacing (0018,1164)"},
-                                                                  {"0018|2010", "Nominal Scanned Pixel Spacing (0018,2010)"}};
-  for (size_t i = 0; i < files.size() && i < dicts.size(); ++i) {
-    const itk::MetaDataDictionary& d = *dicts[i];
-    const bool frame_groups = tag_text(d, "0028|0009").find("5200,9230") != std::string::npos;
-    bool taken = frame_groups;
-    std::string ignored;  // a spacing tag present but not the one GDCM read
-    for (const auto& [key, name] : in_plane) {
-      const std::string t = tag_text(d, key);
-      if (t.empty()) continue;
-      double row = 0, col = 0;  // DICOM order: spacing between rows (y), then between columns (x)
-      char sep = 0;
-      std::istringstream in(t);
-      const bool parsed = bool(in >> row >> sep >> col) && sep == '\\';
-      if (parsed && std::abs(col - x_mm) <= 1e-6 * col && std::abs(row - y_mm) <= 1e-6 * row) taken = true;
-      else if (ignored.empty()) ignored = std::string(name) + " = " + t;
-    }
-    if (!taken)
-      refuse(files[i], ignored.empty() ? "Pixel Spacing (0028,0030)"
-                                       : "in-plane spacing GDCM takes for its object class (it has " + ignored +
-                                             ", which GDCM does not read for it)",
-             "in-plane voxel size");
-    if (files.size() > 1 && tag_text(d, "0020|0032").empty())
-      refuse(files[i], "Image Position (Patient) (0020,0032)", "slice position (the spacing between slices)");
-    const std::string frames = tag_text(d, "0028|0008");
-    if (files.size() == 1 && !frames.empty() && std::atoi(frames.c_str()) > 1 && !frame_groups &&
-        tag_text(d, "0018|0088").empty())
-      refuse(files[i], "Spacing Between Slices (0018,0088)", "frame spacing");
+// The host side of the module's callbacks: our memory check and our volume; an exception of ours
+// is kept here and rethrown after the module has returned (none crosses the module).
+struct DicomSink {
+  AnyVolume volume;
+  std::exception_ptr refusal;
+};
+
+int dicom_check_memory(void* ctx, const uint64_t size[3], uint64_t bytes_per_voxel, const char* what) {
+  try {
+    check_memory(saturating_product({size[0], size[1], size[2], bytes_per_voxel}), what);
+    return 0;
+  } catch (...) {
+    static_cast<DicomSink*>(ctx)->refusal = std::current_exception();
+    return 1;
   }
 }
 
-template <class T>
-AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string& path, bool spacing_given,
-                        const CerrCapture& gdcm) {
-  using Img = itk::Image<T, 3>;
-  auto reader = itk::ImageSeriesReader<Img>::New();
-  reader->SetImageIO(itk::GDCMImageIO::New());
-  reader->SetFileNames(files);
-  reader->UpdateOutputInformation();
-  const auto size = reader->GetOutput()->GetLargestPossibleRegion().GetSize();
-  // ITK's buffer and ours: twice the volume while it is copied.
-  check_memory(saturating_product({uint64_t(size[0]), uint64_t(size[1]), uint64_t(size[2]), uint64_t(2 * sizeof(T))}),
-               "DICOM input " + path + " (" + std::to_string(size[0]) + " x " + std::to_string(size[1]) + " x " +
-                   std::to_string(size[2]) + ")");
-  reader->Update();
-  if (!spacing_given) {
-    std::vector<const itk::MetaDataDictionary*> dicts;
-    if (const auto* a = reader->GetMetaDataDictionaryArray())
-      for (const auto* d : *a) dicts.push_back(d);
-    const auto sp = reader->GetOutput()->GetSpacing();
-    check_geometry_tags(files, dicts, sp[0], sp[1], path, gdcm.notes());
-  }
-  typename Img::Pointer img = reader->GetOutput();
-  // Orientation from the headers: our volumes are axis-aligned with x fastest. Axis flips and
-  // permutations are undone exactly (OrientImageFilter to the identity direction, ITK's "RAI");
-  // an oblique orientation would need resampling and is refused.
-  const auto D = img->GetDirection();
-  bool identity = true, permutation = true;
-  for (unsigned r = 0; r < 3; ++r) {
-    int nonzero = 0;
-    for (unsigned c = 0; c < 3; ++c) {
-      identity = identity && std::abs(D[r][c] - (r == c ? 1.0 : 0.0)) < 1e-6;
-      if (std::abs(D[r][c]) > 1e-6) ++nonzero, permutation = permutation && std::abs(std::abs(D[r][c]) - 1) < 1e-6;
+void* dicom_allocate(void* ctx, int type, const int64_t dims[3], const double spacing_mm[3], const double origin_mm[3]) {
+  auto& sink = *static_cast<DicomSink*>(ctx);
+  try {
+    Geometry g;
+    for (int i = 0; i < 3; ++i) g.dims[i] = dims[i], g.spacing_mm[i] = spacing_mm[i], g.origin_mm[i] = origin_mm[i];
+    switch (type) {
+      case PB_DICOM_U8: sink.volume = Image<uint8_t>(g, Uninitialized{}); break;
+      case PB_DICOM_U16: sink.volume = Image<uint16_t>(g, Uninitialized{}); break;
+      case PB_DICOM_I16: sink.volume = Image<int16_t>(g, Uninitialized{}); break;
+      default: sink.volume = Image<float>(g, Uninitialized{}); break;
     }
-    permutation = permutation && nonzero == 1;
+    return sink.volume.raw();
+  } catch (...) {
+    sink.refusal = std::current_exception();
+    return nullptr;
   }
-  if (!identity) {
-    if (!permutation) {
-      std::ostringstream m;
-      m << "DICOM input " << path << " has an oblique orientation (direction cosines " << D
-        << "); porebench reads axis-aligned volumes only: resample it onto the axes first";
-      throw InputError(m.str());
-    }
-    auto orient = itk::OrientImageFilter<Img, Img>::New();
-    orient->UseImageDirectionOn();
-    orient->SetDesiredCoordinateOrientation(itk::SpatialOrientation::ITK_COORDINATE_ORIENTATION_RAI);
-    orient->SetInput(img);
-    orient->Update();
-    img = orient->GetOutput();
-  }
-  Geometry g;
-  for (unsigned i = 0; i < 3; ++i) {
-    g.dims[i] = int64_t(img->GetLargestPossibleRegion().GetSize()[i]);
-    g.spacing_mm[i] = img->GetSpacing()[i];
-    g.origin_mm[i] = img->GetOrigin()[i];
-  }
-  Image<T> out(g, Uninitialized{});
-  std::memcpy(out.data(), img->GetBufferPointer(), size_t(g.voxels()) * sizeof(T));
-  return AnyVolume(std::move(out));
 }
 
 }  // namespace
@@ -333,26 +228,17 @@ AnyVolume read_dicom_as(const std::vector<std::string>& files, const std::string
 AnyVolume itk_read_dicom(const std::string& path) { return itk_read_dicom(path, false); }
 
 AnyVolume itk_read_dicom(const std::string& path, bool spacing_given) {
-  CerrCapture gdcm;
-  try {
-    const std::vector<std::string> files = dicom_files(path);
-    auto io = itk::GDCMImageIO::New();
-    if (!io->CanReadFile(files.front().c_str())) throw InputError("cannot read " + files.front() + ": not a DICOM file");
-    io->SetFileName(files.front());
-    io->ReadImageInformation();
-    if (io->GetNumberOfComponents() != 1)
-      throw InputError("DICOM input " + path + " has " + std::to_string(io->GetNumberOfComponents()) +
-                       " components per voxel; expected a scalar (grey-value) image");
-    // The voxel type after the header's rescale slope/intercept; types we do not keep are read as float.
-    using C = itk::IOComponentEnum;
-    switch (io->GetComponentType()) {
-      case C::UCHAR: return read_dicom_as<uint8_t>(files, path, spacing_given, gdcm);
-      case C::USHORT: return read_dicom_as<uint16_t>(files, path, spacing_given, gdcm);
-      case C::SHORT: return read_dicom_as<int16_t>(files, path, spacing_given, gdcm);
-      default: return read_dicom_as<float>(files, path, spacing_given, gdcm);
-    }
-  } catch (const itk::ExceptionObject& e) {
-    throw InputError("cannot read DICOM input " + path + ": " + e.GetDescription() + gdcm.notes());
+  const DicomApi& api = dicom_api();
+  DicomSink sink;
+  const pb_dicom_host host{&sink, dicom_check_memory, dicom_allocate};
+  switch (api.read(path.c_str(), spacing_given ? 1 : 0, &host)) {
+    case PB_DICOM_OK: return std::move(sink.volume);
+    case PB_DICOM_BAD_INPUT: throw InputError(api.error());
+    case PB_DICOM_NO_GEOMETRY: throw DicomGeometryMissing(api.error());
+    case PB_DICOM_HOST:
+      if (sink.refusal) std::rethrow_exception(sink.refusal);
+      throw std::runtime_error("the DICOM reader stopped without a reason for " + path);
+    default: throw std::runtime_error(std::string("the DICOM reader failed on ") + path + ": " + api.error());
   }
 }
 
