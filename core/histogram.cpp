@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstring>
 #include <limits>
 #include <stdexcept>
 
@@ -22,44 +23,80 @@ int Histogram::bin_of(double v) const {
   return int(f);
 }
 
-Stats compute_stats(const float* d, int64_t n, const uint8_t* mask) {
-  const int nt = omp_get_max_threads();
-  std::vector<double> mins(nt, std::numeric_limits<double>::infinity()), maxs(nt, -std::numeric_limits<double>::infinity());
-  std::vector<double> sums(nt, 0.0);
-  std::vector<int64_t> counts(nt, 0), nans(nt, 0);
-#pragma omp parallel num_threads(nt)
-  {
-    const int t = omp_get_thread_num();
-    float lo = std::numeric_limits<float>::infinity(), hi = -lo;
-    double sum = 0;
-    int64_t c = 0, nn = 0;
-#pragma omp for schedule(static)
-    for (int64_t i = 0; i < n; ++i) {
-      if (mask && !mask[i]) continue;
-      const float v = d[i];
-      if (!std::isfinite(v)) {  // NaN and +-inf: counted apart, never in min, max or mean
-        nn += std::isnan(v);
-        continue;
-      }
-      lo = std::min(lo, v);
-      hi = std::max(hi, v);
-      sum += v;
-      ++c;
-    }
-    mins[t] = lo;
-    maxs[t] = hi;
-    sums[t] = sum;
-    counts[t] = c;
-    nans[t] = nn;
+namespace {
+
+// Voxels per block: stats are reduced per block and the blocks merged in index order, so the mean
+// does not depend on the number of threads (each thread takes whole blocks).
+constexpr int64_t kBlock = int64_t(1) << 16;
+
+struct Partial {
+  float lo = std::numeric_limits<float>::infinity(), hi = -std::numeric_limits<float>::infinity();
+  double sum = 0;
+  int64_t count = 0, nan = 0;
+};
+
+// One block, four voxels at a time in SSE2 vectors (GCC vector extensions: the portable baseline),
+// lanes merged in a fixed order; non-finite and masked-out voxels add nothing.
+typedef float F4 __attribute__((vector_size(16)));
+typedef int32_t I4 __attribute__((vector_size(16)));
+typedef double D2 __attribute__((vector_size(16)));
+
+template <bool kMask>
+Partial block_stats(const float* d, const uint8_t* mask, int64_t b, int64_t e) {
+  const float inf = std::numeric_limits<float>::infinity();
+  F4 lo = {inf, inf, inf, inf}, hi = -lo;
+  D2 sum_a = {0, 0}, sum_b = {0, 0};
+  I4 count = {0, 0, 0, 0}, nan = count;
+  const int64_t m = b + (e - b) / 4 * 4;
+  for (int64_t i = b; i < m; i += 4) {
+    F4 v;
+    std::memcpy(&v, d + i, sizeof v);
+    I4 in = {-1, -1, -1, -1};
+    if constexpr (kMask) in = I4{mask[i], mask[i + 1], mask[i + 2], mask[i + 3]} != 0;
+    const I4 finite = ((v - v) == 0.0f) & in;  // false for NaN and +-inf
+    lo = finite & (v < lo) ? v : lo;
+    hi = finite & (v > hi) ? v : hi;
+    const F4 z = finite ? v : F4{0, 0, 0, 0};
+    sum_a += D2{double(z[0]), double(z[1])};
+    sum_b += D2{double(z[2]), double(z[3])};
+    count -= finite;
+    nan -= (v != v) & in;
   }
+  Partial p;
+  for (int j = 0; j < 4; ++j) {
+    p.lo = std::min(p.lo, lo[j]);
+    p.hi = std::max(p.hi, hi[j]);
+    p.count += count[j];
+    p.nan += nan[j];
+  }
+  p.sum = (sum_a[0] + sum_a[1]) + (sum_b[0] + sum_b[1]);
+  for (int64_t i = m; i < e; ++i) {
+    const float v = d[i];
+    const bool in = !kMask || mask[i];
+    if (in && v - v == 0.0f) p.lo = std::min(p.lo, v), p.hi = std::max(p.hi, v), p.sum += double(v), ++p.count;
+    p.nan += in && v != v;
+  }
+  return p;
+}
+
+}  // namespace
+
+Stats compute_stats(const float* d, int64_t n, const uint8_t* mask) {
+  const int64_t blocks = (n + kBlock - 1) / kBlock;
+  std::vector<Partial> part(size_t(std::max<int64_t>(blocks, 1)));
+#pragma omp parallel for schedule(static)
+  for (int64_t k = 0; k < blocks; ++k)
+    part[size_t(k)] = mask ? block_stats<true>(d, mask, k * kBlock, std::min(n, (k + 1) * kBlock))
+                           : block_stats<false>(d, mask, k * kBlock, std::min(n, (k + 1) * kBlock));
   Stats s;
   double sum = 0, lo = std::numeric_limits<double>::infinity(), hi = -lo;
-  for (int t = 0; t < nt; ++t) {
-    lo = std::min(lo, mins[t]);
-    hi = std::max(hi, maxs[t]);
-    sum += sums[t];
-    s.count += counts[t];
-    s.nan_count += nans[t];
+  for (int64_t k = 0; k < blocks; ++k) {  // in block order: the same sum for any thread count
+    const Partial& p = part[size_t(k)];
+    lo = std::min(lo, double(p.lo));
+    hi = std::max(hi, double(p.hi));
+    sum += p.sum;
+    s.count += p.count;
+    s.nan_count += p.nan;
   }
   if (s.count > 0) {
     s.min = lo;
@@ -69,35 +106,128 @@ Stats compute_stats(const float* d, int64_t n, const uint8_t* mask) {
   return s;
 }
 
-Histogram compute_histogram(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask) {
+namespace {
+
+// The bin of a value, in float as compute_histogram has always counted: monotone non-decreasing in
+// v (rounding, a positive scale and the clamps all are), NaN in bin 0.
+struct Binner {
+  float flo, scale, last;
+  explicit Binner(const Histogram& h)
+      : flo(float(h.lo)), scale(float(double(h.bins()) / (h.hi - h.lo))), last(float(h.bins() - 1)) {}
+  int operator()(float v) const {
+    float f = (v - flo) * scale;  // +-inf stay +-inf (scale is finite and > 0)
+    f = f > 0.0f ? f : 0.0f;      // below lo, -inf and NaN: the first bin
+    f = f < last ? f : last;      // above hi and +inf: the last bin
+    return int(f);
+  }
+};
+
+// Counting: the bins of 64 voxels are computed together (a loop that vectorises), then counted
+// into four interleaved tables of 32-bit counters, so that runs of one bin do not wait on each
+// other's increments. NaN and masked-out voxels go to a spare bin past the last. With `codes`,
+// every voxel's bin is also written there (NaN: 255); the mask only decides what is counted.
+constexpr int kTables = 4;
+constexpr int kChunk = 64;
+constexpr int64_t kFlush = int64_t(1) << 30;  // voxels counted before the 32-bit tables are emptied
+
+template <bool kMask, bool kCodes>
+void count_range(const float* d, const uint8_t* mask, int64_t b, int64_t e, const Binner& bin, int spare,
+                 uint32_t* tables, size_t stride, uint8_t* codes) {
+  alignas(64) int32_t idx[kChunk];
+  int64_t i = b;
+  for (; i + kChunk <= e; i += kChunk) {
+    for (int j = 0; j < kChunk; ++j) {
+      const float v = d[i + j];
+      const int k = bin(v);
+      if constexpr (kCodes) codes[i + j] = uint8_t(v != v ? 255 : k);
+      bool skip = v != v;
+      if constexpr (kMask) skip = skip || !mask[i + j];
+      idx[j] = skip ? spare : k;
+    }
+    for (int j = 0; j < kChunk; j += kTables)
+      for (int t = 0; t < kTables; ++t) ++tables[size_t(t) * stride + size_t(idx[j + t])];
+  }
+  for (; i < e; ++i) {
+    const float v = d[i];
+    const int k = bin(v);
+    if constexpr (kCodes) codes[i] = uint8_t(v != v ? 255 : k);
+    bool skip = v != v;
+    if constexpr (kMask) skip = skip || !mask[i];
+    ++tables[skip ? size_t(spare) : size_t(k)];
+  }
+}
+
+Histogram histogram_impl(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask,
+                         uint8_t* codes) {
   if (!std::isfinite(lo) || !std::isfinite(hi) || bins < 1)
     throw std::invalid_argument("compute_histogram: the range must be finite and bins >= 1");
   Histogram h;
   h.lo = lo;
   h.hi = hi > lo ? hi : lo + 1.0;  // a constant volume still gets a valid bin width
   h.counts.assign(size_t(bins), 0);
+  const Binner bin(h);
+  const size_t stride = (size_t(bins) + 1 + 15) & ~size_t(15);  // the spare bin; tables 64-byte apart
   const int nt = omp_get_max_threads();
-  std::vector<std::vector<uint64_t>> local(size_t(nt), std::vector<uint64_t>(size_t(bins), 0));
-  const float flo = float(h.lo);
-  const float scale = float(double(bins) / (h.hi - h.lo));
-  const int last = bins - 1;
+  std::vector<std::vector<uint64_t>> local(static_cast<size_t>(nt));
 #pragma omp parallel num_threads(nt)
   {
-    uint64_t* c = local[size_t(omp_get_thread_num())].data();
-#pragma omp for schedule(static)
-    for (int64_t i = 0; i < n; ++i) {
-      if (mask && !mask[i]) continue;
-      const float v = d[i];
-      if (std::isnan(v)) continue;
-      float f = (v - flo) * scale;  // +-inf stay +-inf (scale is finite and > 0)
-      f = f > 0.0f ? f : 0.0f;       // below lo and -inf: the first bin
-      f = f < float(last) ? f : float(last);  // above hi and +inf: the last bin
-      ++c[int(f)];
+    const int t = omp_get_thread_num(), used = omp_get_num_threads();
+    std::vector<uint64_t>& out = local[size_t(t)];
+    out.assign(size_t(bins), 0);
+    std::vector<uint32_t> tables(stride * kTables, 0);
+    const int64_t b = n * t / used, e = n * (t + 1) / used;
+    for (int64_t c = b; c < e; c += kFlush) {
+      const int64_t ce = std::min(e, c + kFlush);
+      if (mask && codes) count_range<true, true>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
+      else if (mask) count_range<true, false>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
+      else if (codes) count_range<false, true>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
+      else count_range<false, false>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
+      for (int k = 0; k < kTables; ++k)
+        for (int b2 = 0; b2 < bins; ++b2) out[size_t(b2)] += tables[size_t(k) * stride + size_t(b2)];
+      std::fill(tables.begin(), tables.end(), 0u);
     }
   }
-  for (const auto& l : local)
-    for (int b = 0; b < bins; ++b) h.counts[size_t(b)] += l[size_t(b)];
+  for (const auto& l : local)  // integer counts: the same for any thread count
+    for (size_t b = 0; b < l.size(); ++b) h.counts[b] += l[b];
   return h;
+}
+
+}  // namespace
+
+Histogram compute_histogram(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask) {
+  return histogram_impl(d, n, lo, hi, bins, mask, nullptr);
+}
+
+Histogram compute_histogram_codes(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask,
+                                  uint8_t* codes) {
+  if (bins > 256) throw std::invalid_argument("compute_histogram_codes: at most 256 bins fit a byte");
+  return histogram_impl(d, n, lo, hi, bins, mask, codes);
+}
+
+int histogram_bin(const Histogram& h, float v) { return Binner(h)(v); }
+
+void below_from_codes(uint8_t* codes, const float* d, int64_t n, const Histogram& h, float t, const uint8_t* mask) {
+  const int k = histogram_bin(h, t);  // NaN threshold: bin 0, and v < NaN is false
+  const int64_t chunks = (n + kChunk - 1) / kChunk;
+#pragma omp parallel for schedule(static)
+  for (int64_t q = 0; q < chunks; ++q) {
+    const int64_t b = q * kChunk, m = std::min<int64_t>(kChunk, n - b);
+    uint8_t* c = codes + b;
+    // Bins are monotone in v: a lower bin is below t, a higher one is not; only the voxels of t's
+    // own bin are decided by their value (NaN voxels carry 255 and compare false).
+    uint8_t below[kChunk], own = 0;
+    for (int64_t j = 0; j < m; ++j) {
+      below[j] = c[j] < k;
+      own |= c[j] == k;
+    }
+    if (own)
+      for (int64_t j = 0; j < m; ++j)
+        if (c[j] == k) below[j] = d[b + j] < t;
+    if (mask)
+      for (int64_t j = 0; j < m; ++j) c[j] = below[j] & (mask[b + j] != 0);
+    else
+      for (int64_t j = 0; j < m; ++j) c[j] = below[j];
+  }
 }
 
 double histogram_quantile(const Histogram& h, double fraction) {

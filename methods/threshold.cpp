@@ -36,7 +36,11 @@ GreyRange grey_range(const VolumeF& v, const uint8_t* roi, const Stats& s, doubl
   return {histogram_quantile(fine, clip_pct / 100.0), histogram_quantile(fine, 1.0 - clip_pct / 100.0)};
 }
 
-Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
+namespace {
+
+// method_histogram; with `codes` and at most 256 bins, each voxel's bin is written there too, so
+// that the air mask comes from the codes (below_from_codes) instead of a third read of the volume.
+Histogram method_histogram_codes(const MethodInput& in, const ParamValues& p, Mask* codes) {
   const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
   const Stats s = compute_stats(in.volume.data(), in.volume.size(), roi);
   if (s.count == 0) throw InputError(roi ? "no finite voxels inside the region of interest" : "no finite voxels in the volume");
@@ -50,8 +54,16 @@ Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
   int bins = automatic ? kAutoBins : int(p.integer("bins"));
   if (automatic && integer_type(in.stored_type) && grey_levels(lo, hi) <= kAutoMaxLevels)
     bins = std::max(2, int(grey_levels(lo, hi)));
+  if (codes && bins <= 256) {
+    *codes = Mask(in.volume.geometry(), Uninitialized{});  // every voxel written
+    return compute_histogram_codes(in.volume.data(), in.volume.size(), lo, hi, bins, roi, codes->data());
+  }
   return compute_histogram(in.volume.data(), in.volume.size(), lo, hi, bins, roi);
 }
+
+}  // namespace
+
+Histogram method_histogram(const MethodInput& in, const ParamValues& p) { return method_histogram_codes(in, p, nullptr); }
 
 bool single_occupied_bin(const Histogram& h) {
   int occupied = 0;
@@ -69,12 +81,37 @@ MethodOutput pores_from_air(Mask air, const MethodInput& in, const std::string& 
   return out;
 }
 
-MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, const std::string& method) {
-  const std::string t = format_number(c.threshold, 6);
-  MethodOutput out = pores_from_air(air_below(in.volume, c.threshold, in.roi), in, method, std::string("threshold ") + t);
+namespace {
+
+MethodOutput threshold_output(Mask air, const MethodInput& in, const ThresholdChoice& c, const std::string& method) {
+  MethodOutput out = pores_from_air(std::move(air), in, method, "threshold " + format_number(c.threshold, 6));
   out.chosen.emplace_back("threshold", c.threshold);
   out.warnings.insert(out.warnings.begin(), c.warnings.begin(), c.warnings.end());
   return out;
+}
+
+}  // namespace
+
+MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, const std::string& method) {
+  return threshold_output(air_below(in.volume, c.threshold, in.roi), in, c, method);
+}
+
+ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const ThresholdCalculator& calc) {
+  ThresholdAir a;
+  Mask codes;
+  a.histogram = method_histogram_codes(in, p, &codes);
+  if (single_occupied_bin(a.histogram))  // a constant volume has nothing to split: no voxel is called air
+    a.choice = {a.histogram.lo, {"the grey-value histogram has a single occupied bin (constant volume): no pores"}};
+  else
+    a.choice = calc(a.histogram, p);
+  if (codes.empty()) {  // more than 256 bins: the codes do not fit a byte
+    a.air = air_below(in.volume, a.choice.threshold, in.roi);
+  } else {  // the same voxels as air_below: v < float(threshold), inside the ROI, NaN never air
+    below_from_codes(codes.data(), in.volume.data(), in.volume.size(), a.histogram, float(a.choice.threshold),
+                     in.roi ? in.roi->data() : nullptr);
+    a.air = std::move(codes);
+  }
+  return a;
 }
 
 MethodInfo histogram_method(std::string name, std::string doc, std::string citation, ThresholdCalculator calc,
@@ -87,13 +124,8 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
   m.params = histogram_params();
   m.params.insert(m.params.end(), extra.begin(), extra.end());
   m.run = [calc = std::move(calc), name = m.name](const MethodInput& in, const ParamValues& p) {
-    const Histogram h = method_histogram(in, p);
-    if (single_occupied_bin(h)) {
-      // A constant volume has nothing to split: no voxel is called air.
-      ThresholdChoice c{h.lo, {"the grey-value histogram has a single occupied bin (constant volume): no pores"}};
-      return apply_threshold(in, c, name);
-    }
-    return apply_threshold(in, calc(h, p), name);
+    ThresholdAir a = threshold_air(in, p, calc);
+    return threshold_output(std::move(a.air), in, a.choice, name);
   };
   return m;
 }

@@ -56,6 +56,17 @@ using ThresholdCalculator = std::function<ThresholdChoice(const Histogram&, cons
 MethodInfo histogram_method(std::string name, std::string doc, std::string citation, ThresholdCalculator calc,
                             std::vector<ParamSpec> extra_params = {});
 
+// The air mask of a histogram method, before pore extraction: its histogram, the calculator's
+// choice (a constant volume: the lowest grey, no air, with a warning) and air = v < threshold inside
+// the ROI. Reads the volume twice (stats; histogram writing each voxel's bin, from which the air
+// mask is made: core/histogram.hpp below_from_codes), three times above 256 bins.
+struct ThresholdAir {
+  Histogram histogram;
+  ThresholdChoice choice;
+  Mask air;
+};
+ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const ThresholdCalculator& calc);
+
 // True when fewer than two bins are occupied (constant volume): no threshold can split it.
 bool single_occupied_bin(const Histogram& h);
 
