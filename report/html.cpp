@@ -125,9 +125,11 @@ struct SeriesAxis {
   bool usable = false;  // at least two scans on the axis
   double reference = NAN, fixed = NAN;  // the reference recipe's axis value; the series' other setting
   bool user_units = false;  // a paired dataset: i0 is the exposure or dose the suite file gives, in its own unit
+  std::string unit;          // that unit when the suite file names it (i0_unit)
   std::string label() const {
     if (!by_dose) return "projections";
-    return user_units ? "i0 (exposure or dose as given in the suite file)" : "dose I0 (photons per detector pixel)";
+    if (!user_units) return "dose I0 (photons per detector pixel)";
+    return unit.empty() ? "i0 (exposure or dose as given in the suite file)" : "i0 (" + unit + ")";
   }
   double of(const Json& s) const { return by_dose ? num(s["i0"]) : num(s["projections"]); }
   bool on_axis(const Json& s) const {
@@ -146,6 +148,7 @@ SeriesAxis series_axis(const Json& d) {
   }
   a.by_dose = proj.size() == 1 && dose.size() > 1;
   a.user_units = d.value("kind", std::string()) == "paired";  // synthetic i0 is the simulation's photon count
+  if (a.user_units && d.contains("i0_unit") && d["i0_unit"].is_string()) a.unit = d["i0_unit"].get<std::string>();
   if (a.by_dose) a.fixed = *proj.begin();
   else if (dose.size() == 1) a.fixed = *dose.begin();
   for (const auto& v : d["variants"]) {

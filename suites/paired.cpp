@@ -433,7 +433,7 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
       const std::string w = where + " scans[" + std::to_string(i + 1) + "]";
       PairedScanSpec s;
       try {
-        s.file = parse_file_entry(e, base, w, false, {"label", "projections", "i0", "align", "transform"});
+        s.file = parse_file_entry(e, base, w, false, {"label", "projections", "i0", "i0_unit", "align", "transform"});
       } catch (const InputError& err) {
         fail(e.source(), err.what());
       }
@@ -446,6 +446,16 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
           const auto v = n->value<double>();
           if (!v || !(*v > 0) || !std::isfinite(*v)) fail(n->source(), w + ": 'i0' (exposure or dose) must be a positive number");
           s.i0 = *v;
+        }
+        if (const toml::node* n = st->get("i0_unit")) {
+          const std::string u = str_at(*st, "i0_unit", w, fail);
+          const auto b = u.find_first_not_of(" \t"), e2 = u.find_last_not_of(" \t");
+          s.i0_unit = b == std::string::npos ? "" : u.substr(b, e2 - b + 1);
+          if (s.i0_unit.empty())
+            fail(n->source(), w + ": 'i0_unit' = '" + u + "' is empty: name the unit of 'i0' (e.g. \"mAs\") or leave the key out");
+          if (s.i0_unit.size() > 32 || std::any_of(s.i0_unit.begin(), s.i0_unit.end(), [](unsigned char c) { return c < 0x20 || c == 0x7f; }))
+            fail(n->source(), w + ": 'i0_unit' = '" + s.i0_unit + "' must be a short unit name (at most 32 characters, no control characters)");
+          if (!st->get("i0")) fail(n->source(), w + ": 'i0_unit' = '" + s.i0_unit + "' without 'i0' (the exposure or dose it is the unit of)");
         }
         if (const toml::node* n = st->get("align")) {
           s.align = str_at(*st, "align", w, fail);
@@ -463,6 +473,12 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
       if (!labels.insert(s.label).second)
         fail(e.source(), w + ": label '" + s.label + "' is used twice in the dataset (give each scan a 'label')");
       s.file.where = "scans[" + std::to_string(i + 1) + "] (" + s.label + ", line " + std::to_string(e.source().begin.line) + ")";
+      // The dose axis has one unit: every scan that gives 'i0' gives the same 'i0_unit' (or none does).
+      if (s.i0 > 0)
+        for (const PairedScanSpec& o : d.scans)
+          if (o.i0 > 0 && o.i0_unit != s.i0_unit)
+            fail(e.source(), w + ": i0_unit = '" + s.i0_unit + "' but " + o.file.where + " has i0_unit = '" + o.i0_unit +
+                                 "': the scans of a dataset share one unit of 'i0'");
       d.scans.push_back(s);
     }
     d.scan = d.scans.front().file.path;
@@ -579,7 +595,7 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
     const Geometry& fg = fast.geometry();
     const AlignMode mode = parse_align_mode(s.align, s.file.where);
     Json rec = {{"scan", v.scan}, {"path", v.path}, {"sha256", file_sha256(v.path)}, {"grid", describe(fg)},
-                {"projections", v.projections}, {"i0", v.i0}, {"reference", false},
+                {"projections", v.projections}, {"i0", v.i0}, {"i0_unit", s.i0_unit}, {"reference", false},
                 {"reference_projections", v.reference_projections}, {"reference_i0", v.reference_i0}};
     const std::string png = "data/" + token + "/montage-" + file_token(v.scan) + ".png";
     const std::string ref_png = "data/" + token + "/montage-reference-" + file_token(v.scan) + ".png";
@@ -642,7 +658,9 @@ void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir
     rec["montage_reference_png"] = ref_png;
     variants.push_back(rec);
   }
-  Json rec = {{"name", d.name}, {"kind", "paired"}, {"reference", ref_record}, {"part_mask", d.part_mask},
+  std::string i0_unit;  // one per dataset (parse_paired_dataset): the series axis unit
+  for (const auto& s : d.scans) if (!s.i0_unit.empty()) i0_unit = s.i0_unit;
+  Json rec = {{"name", d.name}, {"kind", "paired"}, {"i0_unit", i0_unit}, {"reference", ref_record}, {"part_mask", d.part_mask},
               {"scan", d.scan}, {"scan_sha256", file_sha256(d.scan)}, {"grid", "each scan's own (the reference resampled onto it)"}};
   for (auto it = p.record.begin(); it != p.record.end(); ++it) rec[it.key()] = it.value();
   if (!rec.contains("slices")) {  // every registration failed

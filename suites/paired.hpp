@@ -12,7 +12,7 @@
 //   part_mask = "part.mha"          # optional, on the reference's grid (carried along with it)
 //   align = "auto"                  # auto | markers | intensity | none (default: auto with a
 //                                   # reference scan, none with a reference mask)
-//   scans = [ { path = "fast-400p.mha", projections = 400 },
+//   scans = [ { path = "fast-400p.mha", projections = 400, i0 = 2.5, i0_unit = "mAs" },
 //             { path = "fast-200p.raw", projections = 200, label = "200p-raw", align = "intensity",
 //               spacing_mm = [0.0104, 0.0104, 0.0104], raw = { dims = [96, 96, 96], type = "uint16" } } ]
 //

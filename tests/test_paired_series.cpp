@@ -13,6 +13,7 @@
 #include "suites/results.hpp"
 #include "tests/helpers.hpp"
 #include "tests/json_files.hpp"
+#include "tests/paired_helpers.hpp"
 
 using namespace pb;
 namespace fs = std::filesystem;
@@ -118,4 +119,39 @@ TEST_CASE("export-patches takes every scan of a paired series with its own geome
   const NpyArray b = read_npy_f32((d.path / "p" / "blank-b-scans.npy").string());
   CHECK(a.shape == b.shape);
   CHECK(a.data == b.data);
+}
+
+TEST_CASE("i0_unit labels the dose axis of a paired series; a bad unit is exit 2 naming file, key and value",
+          "[paired][suite]") {
+  pbtest::TempDir d;
+  const Image<uint16_t> v = blank();
+  for (const char* f : {"ref.mha", "fast-a.mha", "fast-b.mha"}) write_volume(v, d / f);
+  const std::string head = "[suite]\nname = \"dose\"\n[[dataset]]\nname = \"blank\"\nkind = \"paired\"\n"
+                           "reference_scan = \"ref.mha\"\nreference_method = \"otsu\"\nalign = \"none\"\n";
+  const std::string tail = "[[method]]\nname = \"otsu\"\n[calibration]\nfraction = 0.3\ngap_slices = 2\n";
+  auto scans = [](const std::string& a, const std::string& b) {
+    return "scans = [ { path = \"fast-a.mha\", projections = 400, label = \"a\"" + a + " },\n"
+           "          { path = \"fast-b.mha\", projections = 400, label = \"b\"" + b + " } ]\n";
+  };
+  pbtest::write_file(d / "s.toml", head + scans(", i0 = 2.5, i0_unit = \"mAs\"", ", i0 = 5.0, i0_unit = \"mAs\"") + tail);
+  const auto r = pbtest::run_cli("run " + (d / "s.toml") + " -o " + (d / "out"));
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  const auto res = pbtest::read_json((d.path / "out" / "results.json").string());
+  CHECK(res["datasets"][0]["i0_unit"] == "mAs");
+  CHECK(res["datasets"][0]["variants"][1]["i0_unit"] == "mAs");
+  const std::string html = pbtest::read_text((d.path / "out" / "report.html").string());
+  CHECK_THAT(html, Catch::Contains("vs i0 (mAs)"));
+  CHECK(html.find("as given in the suite file") == std::string::npos);
+  // Refused at parse, naming the suite file, the key and the value.
+  pbtest::expect_suite_refused(d / "empty.toml", head + scans(", i0 = 2.5, i0_unit = \"  \"", ", i0 = 5.0") + tail,
+                               {"scans[1]", "'i0_unit' = '  ' is empty"});
+  pbtest::expect_suite_refused(d / "typo.toml", head + scans(", i0 = 2.5, i0_units = \"mAs\"", "") + tail,
+                               {"scans[1]", "unknown key 'i0_units'", "i0_unit"});
+  pbtest::expect_suite_refused(d / "alone.toml", head + scans(", i0_unit = \"mAs\"", "") + tail,
+                               {"scans[1]", "'i0_unit' = 'mAs' without 'i0'"});
+  pbtest::expect_suite_refused(d / "mixed.toml", head + scans(", i0 = 2.5, i0_unit = \"mAs\"", ", i0 = 5.0, i0_unit = \"s\"") + tail,
+                               {"scans[2]", "i0_unit = 's'", "i0_unit = 'mAs'", "share one unit"});
+  pbtest::expect_suite_refused(d / "number.toml", head + scans(", i0 = 2.5, i0_unit = 5", "") + tail,
+                               {"scans[1]", "'i0_unit' must be a string"});
 }
