@@ -36,6 +36,24 @@ VoxelType type_of(const std::string& dtype) {
   return VoxelType::f32;
 }
 
+// A volume of `dtype`'s voxel type holding expected() at every voxel.
+AnyVolume expected_volume(const std::string& dtype, const Geometry& g) {
+  AnyVolume v;
+  switch (type_of(dtype)) {
+    case VoxelType::u8: v = AnyVolume(Image<uint8_t>(g)); break;
+    case VoxelType::u16: v = AnyVolume(Image<uint16_t>(g)); break;
+    case VoxelType::i16: v = AnyVolume(Image<int16_t>(g)); break;
+    case VoxelType::f32: v = AnyVolume(Image<float>(g)); break;
+  }
+  v.visit([&](auto& img) {
+    using T = typename std::decay_t<decltype(img)>::value_type;
+    for (int64_t z = 0; z < g.dims[2]; ++z)
+      for (int64_t y = 0; y < g.dims[1]; ++y)
+        for (int64_t x = 0; x < g.dims[0]; ++x) img(x, y, z) = T(expected(dtype, x, y, z));
+  });
+  return v;
+}
+
 double at(const AnyVolume& v, int64_t i) {
   return v.visit([&](const auto& img) { return double(img[i]); });
 }
@@ -86,19 +104,7 @@ TEST_CASE("npy: porebench's files np.load to the same values (C order, z y x)", 
     Geometry g;
     g.dims = {3, 4, 5};
     g.spacing_mm = {0.05, 0.05, 0.05};
-    AnyVolume v;
-    switch (type_of(dtype)) {
-      case VoxelType::u8: v = AnyVolume(Image<uint8_t>(g)); break;
-      case VoxelType::u16: v = AnyVolume(Image<uint16_t>(g)); break;
-      case VoxelType::i16: v = AnyVolume(Image<int16_t>(g)); break;
-      case VoxelType::f32: v = AnyVolume(Image<float>(g)); break;
-    }
-    v.visit([&](auto& img) {
-      using T = typename std::decay_t<decltype(img)>::value_type;
-      for (int64_t z = 0; z < 5; ++z)
-        for (int64_t y = 0; y < 4; ++y)
-          for (int64_t x = 0; x < 3; ++x) img(x, y, z) = T(expected(dtype, x, y, z));
-    });
+    const AnyVolume v = expected_volume(dtype, g);
     const std::string path = d / (dtype + ".npy");
     write_volume(v, path);
     const std::string bytes = read_text(path);
@@ -239,4 +245,36 @@ TEST_CASE("npy: float64 is read as float32 as numpy rounds it", "[npy]") {
   write_file(d / "nan.npy", h + std::string(reinterpret_cast<const char*>(exact), sizeof(exact)));
   CHECK_THROWS_WITH(read_volume(d / "nan.npy"), Catch::Contains("1 non-finite voxel"));
   set_read_note({});
+}
+
+TEST_CASE("npy: convert -o x.npy writes what numpy loads; the round trip gives the voxels back", "[npy][cli]") {
+  // Source: numpy.load (tests/ref/npy_numpy.py check), the format's own implementation.
+  pbtest::TempDir d;
+  for (const std::string dtype : {"u1", "u2", "i2", "f4"}) {
+    INFO(dtype);
+    const Geometry g{{3, 4, 5}, {0.0104, 0.0104, 0.012}, {1.0, 2.0, 3.0}};
+    const AnyVolume v = expected_volume(dtype, g);
+    write_volume(v, d / (dtype + ".mha"));
+    const std::string npy = d / (dtype + ".npy");
+    const auto c = pbtest::run_cli("convert " + (d / (dtype + ".mha")) + " -o " + npy);
+    INFO(c.out << c.err);
+    REQUIRE(c.exit_code == 0);
+    CHECK_THAT(c.out, Catch::Contains("--spacing 0.0104,0.0104,0.012"));
+    const auto r = pbtest::run_ref_script("npy_numpy.py", "check " + npy + " " + dtype + " 5 4 3");
+    INFO(r.out << r.err);
+    CHECK(r.out == "ok\n");
+    // Back through convert: .npy in needs the spacing; the voxels come back unchanged.
+    CHECK(pbtest::run_cli("convert " + npy + " -o " + (d / (dtype + "-back.mha"))).exit_code == 2);
+    REQUIRE(pbtest::run_cli("convert " + npy + " --spacing 0.0104,0.0104,0.012 -o " + (d / (dtype + "-back.mha"))).exit_code == 0);
+    const AnyVolume back = read_volume(d / (dtype + "-back.mha"));
+    CHECK(back.type() == v.type());
+    CHECK(back.geometry().dims == g.dims);
+    CHECK(back.geometry().spacing_mm == g.spacing_mm);
+    CHECK(std::memcmp(back.raw(), v.raw(), v.bytes()) == 0);
+  }
+  const auto z = pbtest::run_cli("convert " + (d / "u1.mha") + " --compress -o " + (d / "z.npy"));
+  CHECK(z.exit_code == 2);
+  CHECK_THAT(z.err, Catch::Contains("z.npy") && Catch::Contains("--compress"));
+  const auto help = pbtest::run_cli("convert --help");
+  CHECK_THAT(help.out, Catch::Contains(".npy"));
 }
