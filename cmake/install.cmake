@@ -6,12 +6,12 @@
 # The package's target is written by hand (cmake/porebenchConfig.cmake.in): the library's own
 # dependencies (ITK, OpenCV, ...) are linked into libporebench.so, and its headers need only
 # nlohmann_json (found by the package) besides the standard library. The modules opened on first
-# use (LibTorch's engine, OpenCV's imgcodecs, the GDCM reader: core/modules.hpp) go to P/lib/porebench, where
+# use (the LibTorch and OpenCV dnn engines, OpenCV's imgcodecs, the GDCM reader: core/modules.hpp) go to P/lib/porebench, where
 # libporebench.so looks for them. tests/install/ builds a consumer against an install tree.
 include(GNUInstallDirs)
 include(CMakePackageConfigHelpers)
 install(TARGETS porebench_shared LIBRARY DESTINATION ${CMAKE_INSTALL_LIBDIR})
-install(TARGETS porebench_torch porebench_imgcodecs porebench_dicom LIBRARY DESTINATION ${CMAKE_INSTALL_LIBDIR}/porebench)
+install(TARGETS porebench_torch porebench_onnx porebench_imgcodecs porebench_dicom LIBRARY DESTINATION ${CMAKE_INSTALL_LIBDIR}/porebench)
 foreach(layer core methods metrics synthetic suites report)
   install(DIRECTORY ${CMAKE_SOURCE_DIR}/${layer}/ DESTINATION ${CMAKE_INSTALL_INCLUDEDIR}/porebench/${layer}
           FILES_MATCHING PATTERN "*.hpp" PATTERN "*.inc" PATTERN "*_itk.hpp" EXCLUDE PATTERN "itk_bridge.hpp" EXCLUDE)

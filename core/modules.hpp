@@ -1,9 +1,9 @@
 #pragma once
 // Modules opened on first use with dlopen: parts of the library whose dependencies are costly to
 // load (OpenCV's imgcodecs: ~115 shared libraries; LibTorch: ~285; GDCM: ~45 ms of CPU building its
-// dictionaries), kept out of the executables and of libporebench.so so that commands which do not
-// use them start fast (issue 16): libporebench_imgcodecs.so, libporebench_torch.so,
-// libporebench_dicom.so.
+// dictionaries; OpenCV dnn with protobuf: ~17 ms), kept out of the executables and of
+// libporebench.so so that commands which do not use them start fast (issue 16):
+// libporebench_imgcodecs.so, libporebench_torch.so, libporebench_dicom.so, libporebench_onnx.so.
 // A module is looked for, in order:
 //   1. beside the binary that holds this library's code: the executable (porebench, the tests,
 //      the benchmarks) or libporebench.so (a consumer, the Python module), found with dladdr;

@@ -3,8 +3,9 @@
 // described by a model card (our JSON format, beside the model file), run tile by tile with
 // overlap and cosine blending into a pore-probability map, binarised at the card's
 // pore_threshold, then the shared pore extraction (methods/pores.hpp).
-// Each engine's headers live in one translation unit: neural_onnx.cpp (OpenCV dnn) and
-// neural_torch.cpp (LibTorch); this header and neural.cpp see neither.
+// Each engine lives in a module opened with its first model (methods/neural_engines.cpp):
+// engine_modules/onnx.cpp (OpenCV dnn) and engine_modules/torch.cpp (LibTorch) are the only files
+// that see their headers; this header and neural.cpp see neither.
 #include <cstdint>
 #include <memory>
 #include <string>
@@ -56,8 +57,8 @@ class Engine {
 
 // Engine factories, one per translation unit. Errors (missing/corrupt file, unsupported layer)
 // are InputErrors naming the card and the model file.
-std::unique_ptr<Engine> open_onnx_engine(const ModelCard& c, int threads);   // neural_onnx.cpp
-std::unique_ptr<Engine> open_torch_engine(const ModelCard& c, int threads);  // neural_torch.cpp
+std::unique_ptr<Engine> open_onnx_engine(const ModelCard& c, int threads);   // neural_engines.cpp
+std::unique_ptr<Engine> open_torch_engine(const ModelCard& c, int threads);  // neural_engines.cpp
 
 // A loaded, validated model: the engine is probed with one zero tile at the card's shape, and
 // the output shape is checked against the card ([1, >channel, tile...]).

@@ -46,17 +46,20 @@ TEST_CASE("a missing module is an error naming it and every path tried", "[modul
   }
   // Both real modules are found from the test program (the build tree).
   CHECK(open_module("libporebench_torch.so", build, "LibTorch") != nullptr);
+  CHECK(open_module("libporebench_onnx.so", build, "OpenCV dnn") != nullptr);
   CHECK(open_module("libporebench_imgcodecs.so", build, "image-file") != nullptr);
   CHECK(open_module("libporebench_dicom.so", build, "DICOM reader") != nullptr);
 }
 
-TEST_CASE("the command line links neither LibTorch, imgcodecs nor GDCM", "[modules]") {
+TEST_CASE("the command line links neither LibTorch, OpenCV dnn, imgcodecs nor GDCM", "[modules]") {
   // ldd lists what the loader maps at start-up (the executable's needs, recursively).
   const auto r = pbtest::run_shell("ldd " + std::string(PB_CLI_PATH));
   REQUIRE(r.exit_code == 0);
   CHECK(r.out.find("libc.so") != std::string::npos);
   CHECK(r.out.find("libtorch") == std::string::npos);
   CHECK(r.out.find("libc10") == std::string::npos);
+  CHECK(r.out.find("libopencv_dnn") == std::string::npos);
+  CHECK(r.out.find("libprotobuf") == std::string::npos);
   CHECK(r.out.find("libopencv_imgcodecs") == std::string::npos);
   CHECK(r.out.find("libgdcm") == std::string::npos);
   CHECK(r.out.find("ITKIOGDCM") == std::string::npos);

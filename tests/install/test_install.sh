@@ -9,7 +9,7 @@ here=$(cd "$(dirname "$0")" && pwd)
 rm -rf "$work"
 mkdir -p "$work"
 cmake --install "$build" --prefix "$work/prefix" >"$work/install.log"
-for f in lib/libporebench.so lib/porebench/libporebench_torch.so lib/porebench/libporebench_imgcodecs.so lib/porebench/libporebench_dicom.so include/porebench/metrics/score.hpp include/porebench/core/volume.hpp \
+for f in lib/libporebench.so lib/porebench/libporebench_torch.so lib/porebench/libporebench_onnx.so lib/porebench/libporebench_imgcodecs.so lib/porebench/libporebench_dicom.so include/porebench/metrics/score.hpp include/porebench/core/volume.hpp \
          lib/cmake/porebench/porebenchConfig.cmake lib/cmake/porebench/porebenchConfigVersion.cmake; do
   [ -e "$work/prefix/$f" ] || { echo "test_install: $f not installed" >&2; exit 1; }
 done
