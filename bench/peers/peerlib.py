@@ -8,7 +8,8 @@ is (max - min) / median over its runs; when either side's spread is wider than M
 is refused (printed as such, exit status 3) rather than printed as if it were a measurement.
 Every report line carries the load average (1 min) before and after.
 
-Used by: bench_ratio.py, ccl_vs_scipy.py, sauvola_vs_skimage.py, otsu_vs_itk.sh.
+Used by: bench_ratio.py, ccl_vs_scipy.py, sauvola_vs_skimage.py, otsu_vs_itk.sh, score_python_vs_cli.sh
+(which also calls settle_memory before every timed run).
 """
 import json
 import os
@@ -80,13 +81,29 @@ def alternate(sides, rounds):
     return {"times": times, "extra": extra, "load": (before, load())}
 
 
+def settle_memory(nbytes=2 << 30):
+    """Touches and frees `nbytes` of fresh memory, untimed, just before a timed run.
+
+    This machine is a VM whose kernel reports free memory back to the hypervisor
+    (page_reporting.page_reporting_order=11 on its command line): a page freed for a few seconds
+    goes back to the host, and the next process to touch it waits for the host to back it again.
+    That wait varies tenfold from run to run (touching the same 1.7 GB: 0.1 to 4 s of system time)
+    and lands hardest on a side that starts a new process and touches much fresh memory. Touching
+    memory just before each timed run (every side alike) leaves recently backed pages on the free
+    lists for the run; the kernel still zeroes every page the run touches (that cost stays in)."""
+    import numpy as np
+    a = np.ones(nbytes, np.uint8)
+    del a
+
+
 def spread(ts):
     m = statistics.median(ts)
     return (max(ts) - min(ts)) / m if m > 0 else float("inf")
 
 
 def summary(label, ts):
-    return f"{label} median {statistics.median(ts) * 1e3:.2f} ms (n={len(ts)}, spread {spread(ts) * 100:.0f} %)"
+    runs = ", ".join(f"{t * 1e3:.0f}" for t in ts)
+    return f"{label} median {statistics.median(ts) * 1e3:.2f} ms (n={len(ts)}, spread {spread(ts) * 100:.0f} %: {runs})"
 
 
 def ratio(run, slow, fast, goal=None, higher_is="faster", what=None):

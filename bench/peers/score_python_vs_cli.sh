@@ -6,7 +6,12 @@
 # hashing, scoring, writing) and, in one running interpreter, by np.load of the three files then
 # porebench.score on the arrays (read in place: no copy). Prints the medians and CLI / Python; the
 # goal is Python <= 1.10 x CLI, i.e. CLI / Python >= 0.909. The two records are compared too. One
-# untimed round of each side first.
+# untimed round of each side first (page cache, the interpreter's first allocations), discarded.
+# Before every timed run, of either side, 2 GiB of memory are touched and freed, untimed
+# (peerlib.settle_memory): on this VM freed memory goes back to the hypervisor within seconds and
+# re-backing it cost the command line (a new process touching ~0.9 GB each run) from 0.3 to 2 s of
+# system time per run: its spread was 97 % on a quiet machine. Each run's time is printed, and the
+# CLI's CPU time (user + system, from the kernel's child accounting) beside it.
 # Both sides wait passively in OpenMP: the command line sets OMP_WAIT_POLICY=passive itself
 # (core/omp_preinit.cpp), a shared library cannot, so the interpreter gets it from the environment.
 # Usage: bench/peers/score_python_vs_cli.sh [BUILD_DIR] [N] [ROUNDS]   (exit 0 met, 1 not, 3 refused)
@@ -50,9 +55,14 @@ for k, v in (("pred", pred), ("ref", ref), ("part", part.astype(np.uint8))):
     np.save(files[k], v)
 del z, y, x, part, ref, pred
 
+cli_cpu = []  # user + system seconds of each CLI run
 def cli_side():
+    import resource
+    r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
     subprocess.run([cli, "score", "--pred", files["pred"], "--ref", files["ref"], "--roi", files["part"],
                     "--json", f"{tmp}/cli.json"], check=True, capture_output=True)
+    r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cli_cpu.append((r1.ru_utime - r0.ru_utime, r1.ru_stime - r0.ru_stime))
     return 0.0
 
 records = {}
@@ -63,10 +73,18 @@ def python_side():
         records["python"] = porebench.score(p, r, roi=o)
     return 0.0
 
-sides = {"cli": lambda: peerlib.wall(cli_side)[0], "python": lambda: peerlib.wall(python_side)[0]}
-for f in sides.values():  # one untimed round: page cache, and the interpreter's first allocations
+def settled(side):
+    def run():
+        peerlib.settle_memory()  # untimed, before every timed run of either side
+        return peerlib.wall(side)[0]
+    return run
+
+sides = {"cli": settled(cli_side), "python": settled(python_side)}
+for f in sides.values():  # one untimed round, discarded: page cache, the interpreter's first allocations
     f()
+del cli_cpu[:]
 run = peerlib.alternate(sides, rounds)
+print("  CLI CPU per run (user + system s): " + ", ".join(f"{u:.2f}+{s:.2f}" for u, s in cli_cpu))
 cli_rec = json.load(open(f"{tmp}/cli.json"))
 strip = lambda rec: {k: v for k, v in rec.items() if k not in ("context", "inputs")}
 same = strip(cli_rec) == strip(records["python"])
