@@ -13,8 +13,14 @@ namespace pb::report {
 static std::string paired_alignment_md(const Json& d) {
   if (!d.contains("variants")) return "";
   std::ostringstream md;
-  md << "\nThe reference is scored on each fast scan's grid (the grid the decision is about): its pores resampled by "
-        "nearest neighbour (grey values, where needed, by linear interpolation) under the registration below.\n\n"
+  // How the reference is made on a fast grid that differs: the record's own words (suites/paired.cpp).
+  const Json& ref = d.value("reference", Json::object());
+  const std::string how = ref.contains("resample") && ref["resample"].is_string()
+                              ? ref["resample"].get<std::string>()
+                              : "its pores resampled by nearest neighbour";
+  md << "\nThe reference is scored on each fast scan's grid (the grid the decision is about), under the registration "
+        "below; where that grid or pose differs from the reference's: "
+     << md_cell(how) << ".\n\n"
         "| scan | align | method | converged | rotation (°) | translation (mm) | scale | marker RMS (mm) | residual shift (voxel) | note |\n"
         "|---|---|---|---|---|---|---|---|---|---|\n";
   auto n3 = [](const Json& a) {

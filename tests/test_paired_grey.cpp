@@ -113,6 +113,10 @@ TEST_CASE("grey resampling for a consensus and a local-method reference, against
     const Mask nearest = resample_nearest(read_volume((d.path / "out/data/consensus/reference-pores.mha").string()).to_mask(),
                                           kFast, SimilarityTransform());
     CHECK(differing(nearest, want) > 10);
+    // The validation record says what was done, not "nearest neighbour".
+    const std::string record = pbtest::read_text((d.path / "out" / "validation-record.md").string());
+    CHECK_THAT(record, Catch::Contains("where that grid or pose differs from the reference's: grey: the reference scan "
+                                       "resampled linearly") && Catch::Contains("sauvola re-run there"));
   }
   SECTION("local method: sauvola re-run on the resampled scan") {
     const Json& ds = res["datasets"][1];
