@@ -10,6 +10,7 @@
 #include "core/error.hpp"
 #include "core/format.hpp"
 #include "metrics/score_record.hpp"
+#include "metrics/score_slabs.hpp"
 
 namespace pb::cli {
 namespace {
@@ -19,7 +20,8 @@ std::string fmt(double v) { return format_number(v, 6, "undefined"); }
 Action setup_score(CLI::App& app) {
   app.description("score a predicted pore mask against a reference mask");
   struct Args : ScoreArgs {
-    std::string pred, ref, roi, json, csv;
+    std::string pred, ref, roi, json, csv, memory_limit;
+    int64_t slab_slices = 0;
   };
   auto a = std::make_shared<Args>();
   app.add_option("--pred", a->pred, "predicted pore mask: 0/1 mask, label volume (--pred-label) or float probability map (--pred-threshold)")->required();
@@ -42,6 +44,11 @@ Action setup_score(CLI::App& app) {
   app.add_flag("--no-surface", a->no_surface, "skip the surface distances (hd95, assd)");
   app.add_option("--json", a->json, "write the full result record as JSON");
   app.add_option("--csv", a->csv, "write one row per pore (ref and pred) as CSV");
+  app.add_option("--memory-limit", a->memory_limit,
+                 "memory for the inputs (bytes, or e.g. 12G): above it the masks are read and scored by slabs, or "
+                 "refused when they cannot be (default: half the machine's memory)");
+  app.add_option("--slab-slices", a->slab_slices, "slices per slab when scoring by slabs (default: about 256 MiB of voxels)")
+      ->check(CLI::Range(int64_t(1), int64_t(1) << 40));
   return [a, thr] {
     a->pred_threshold_given = thr->count() > 0;
     const ScoreSetup setup = score_setup(*a);
@@ -49,13 +56,20 @@ Action setup_score(CLI::App& app) {
     if (!a->json.empty()) check_writable(a->json);
     if (!a->csv.empty()) check_writable(a->csv);
 
-    AnyVolume pv = read_volume(a->pred), rv = read_volume(a->ref);
-    AnyVolume ov;
-    if (!a->roi.empty()) ov = read_volume(a->roi);
-    adopt_npy_geometry(pv, a->pred, rv, a->ref, ov, a->roi, [](const std::string& m) { log(m); });
-    const ScoreInput roi_in{view_of(ov), a->roi, a->roi};
-    const ScoreRecord rec = score_record(setup, {view_of(pv), a->pred, a->pred}, {view_of(rv), a->ref, a->ref},
-                                         a->roi.empty() ? nullptr : &roi_in, !a->json.empty());
+    const uint64_t limit = a->memory_limit.empty() ? default_memory_limit() : parse_memory_limit(a->memory_limit, "--memory-limit");
+    const ScoreRecord rec = [&] {
+      if (plan_score_by_slabs(a->pred, a->ref, a->roi, setup, limit)) {
+        log("porebench: --pred " + a->pred + " and --ref " + a->ref + " scored by slabs (above --memory-limit)");
+        return score_record_by_slabs(setup, SlabFile(a->pred, {}), SlabFile(a->ref, {}), !a->json.empty(), a->slab_slices);
+      }
+      AnyVolume pv = read_volume(a->pred), rv = read_volume(a->ref);
+      AnyVolume ov;
+      if (!a->roi.empty()) ov = read_volume(a->roi);
+      adopt_npy_geometry(pv, a->pred, rv, a->ref, ov, a->roi, [](const std::string& m) { log(m); });
+      const ScoreInput roi_in{view_of(ov), a->roi, a->roi};
+      return score_record(setup, {view_of(pv), a->pred, a->pred}, {view_of(rv), a->ref, a->ref},
+                          a->roi.empty() ? nullptr : &roi_in, !a->json.empty());
+    }();
     log("porebench: --pred " + a->pred + ": " + rec.pred_how);
     log("porebench: --ref " + a->ref + ": " + rec.ref_how);
     const ScoreResult& r = rec.result;

@@ -12,17 +12,31 @@
 #include "core/io_atomic.hpp"
 #include "core/json.hpp"
 #include "core/sha256.hpp"
+#include "core/slabs.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"
 #include "methods/segment_record.hpp"
+#include "methods/streaming.hpp"
 
 namespace pb::cli {
 namespace {
 
+void print_summary(const MethodInfo& m, const MethodOutput& out, int64_t pore_voxels, const std::string& output,
+                   const std::string& json) {
+  for (const auto& w : out.warnings) log("porebench: warning: " + w);
+  const double porosity = out.part_voxels > 0 ? 100.0 * double(pore_voxels) / double(out.part_voxels) : NAN;
+  std::cout << m.name << ": ";
+  for (const auto& [k, v] : out.chosen) std::cout << k << " " << v << "  ";
+  std::cout << "pores " << pore_voxels << " voxels of " << out.part_voxels << " part voxels, porosity " << porosity
+            << " %, " << out.runtime_s << " s\n"
+            << "wrote " << output << (json.empty() ? "" : " and " + json) << '\n';
+}
+
 Action setup_segment(CLI::App& app) {
   app.description("segment the pores of one volume with one method");
   struct Args {
-    std::string method, input, output, roi, json, probability;
+    std::string method, input, output, roi, json, probability, memory_limit;
+    int64_t slab_slices = 0;
     std::vector<std::string> sets;
     bool allow_nan = false, compress = false;
     ReadArgs read;
@@ -37,6 +51,11 @@ Action setup_segment(CLI::App& app) {
   app.add_option("--save-probability", a->probability, "write the pore-probability map (float32; neural methods)");
   app.add_flag("--allow-nan", a->allow_nan, "same as --allow-nonfinite (kept for old scripts)");
   app.add_flag("--compress", a->compress, "compress the output mask");
+  app.add_option("--memory-limit", a->memory_limit,
+                 "memory for the volume (bytes, or e.g. 12G): above it the volume is read and segmented by slabs, or "
+                 "refused when the input or method cannot be (default: half the machine's memory)");
+  app.add_option("--slab-slices", a->slab_slices, "slices per slab when segmenting by slabs (default: about 256 MiB of voxels)")
+      ->check(CLI::Range(int64_t(1), int64_t(1) << 40));
   a->read.add_to(&app);
   return [a] {
     // Validate everything that can be validated before any work.
@@ -54,6 +73,22 @@ Action setup_segment(CLI::App& app) {
       throw InputError("--json " + a->json + " is the same file as -o " + a->output);
     ReadOptions ro = a->read.options(a->input);
     ro.allow_nonfinite = ro.allow_nonfinite || a->allow_nan;
+    const uint64_t limit = a->memory_limit.empty() ? default_memory_limit() : parse_memory_limit(a->memory_limit, "--memory-limit");
+    if (plan_segment(a->input, ro, a->method, !a->roi.empty(), limit).by_slabs) {
+      if (a->compress) throw InputError("--compress: a mask written by slabs is uncompressed (" + a->output + ")");
+      check_slab_output(a->output, "-o");
+      const SlabFile in(a->input, ro);
+      const std::string sha = a->json.empty() ? std::string() : in.sha256();
+      const SlabSegmentResult r = segment_by_slabs(a->method, params, in, a->output, {a->slab_slices});
+      MethodOutput out;
+      out.chosen = r.chosen, out.warnings = r.warnings, out.part_voxels = r.part_voxels, out.runtime_s = r.runtime_s;
+      log("porebench: " + a->input + " segmented by slabs of " + std::to_string(r.slab_slices) + " slices (above --memory-limit)");
+      if (!a->json.empty())
+        write_text_atomic(a->json, segment_record(m, params, out, in.geometry().voxels(),
+                                                  {a->input, sha, std::nullopt, a->output}, r.pore_voxels).dump(2) + "\n");
+      print_summary(m, out, r.pore_voxels, a->output, a->json);
+      return 0;
+    }
     // The part mask first: it is small, and an empty or mismatched one is known before any work.
     Mask roi;
     if (!a->roi.empty()) {
@@ -71,10 +106,8 @@ Action setup_segment(CLI::App& app) {
     if (!a->roi.empty()) check_same_geometry(geometry, a->input, roi.geometry(), a->roi);
     MethodInput in{vol, a->roi.empty() ? nullptr : &roi, stored_type};
     MethodOutput out = run_method(m, params, in);
-    for (const auto& w : out.warnings) log("porebench: warning: " + w);
 
     const int64_t pore_voxels = count_nonzero(out.pores);
-    const double porosity = out.part_voxels > 0 ? 100.0 * double(pore_voxels) / double(out.part_voxels) : NAN;
     WriteOptions wo;
     wo.compress = a->compress;
     // The JSON is rendered before the mask is written, so that both are written or neither is.
@@ -96,11 +129,7 @@ Action setup_segment(CLI::App& app) {
     if (!a->probability.empty()) write_volume(out.probability, a->probability, wo);
     write_volume(out.pores, a->output, wo);
     if (json_out) json_out->commit(json_text.size());
-    std::cout << m.name << ": ";
-    for (const auto& [k, v] : out.chosen) std::cout << k << " " << v << "  ";
-    std::cout << "pores " << pore_voxels << " voxels of " << out.part_voxels << " part voxels, porosity "
-              << porosity << " %, " << out.runtime_s << " s\n"
-              << "wrote " << a->output << (a->json.empty() ? "" : " and " + a->json) << '\n';
+    print_summary(m, out, pore_voxels, a->output, a->json);
     return 0;
   };
 }

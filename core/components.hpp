@@ -30,6 +30,24 @@ struct LabelRuns {
 
 // Labels the voxels that are non-zero in m (and in roi, unless nullptr).
 LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity);
+// The same labelling for a mask given slab by slab in z order (volumes larger than memory): add()
+// keeps the runs of each slab, finish() unites them across the slab faces, so that a component
+// crossing a face is one component, and labels them exactly as label_runs() labels the whole mask
+// (same runs, labels, sizes). Memory: the runs and one row offset per row, not the mask.
+class RunCollector {
+ public:
+  explicit RunCollector(const Geometry& g);  // of the whole mask
+  // The next nslices slices (nslices * nx * ny bytes, non-zero = foreground).
+  void add(const uint8_t* slices, int64_t nslices);
+  int64_t next_z() const { return z_; }
+  LabelRuns finish(int connectivity);  // after the last slice; the collector is then spent
+
+ private:
+  LabelRuns runs_;
+  int64_t z_ = 0;
+};
+// The runs of c labelled anew with another connectivity (e.g. 6-connected air runs as 26-connected pores).
+LabelRuns relabel_runs(LabelRuns c, int connectivity);
 // The label volume of runs (0 = background).
 Image<uint32_t> label_volume(const LabelRuns& r);
 

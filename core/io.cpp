@@ -89,7 +89,9 @@ AnyVolume allocate(VoxelType t, const Geometry& g) {
   throw InputError("unsupported voxel type");
 }
 
-AnyVolume read_raw(const std::string& path, const RawSpec& spec) {
+}  // namespace
+
+uint64_t check_raw_file(const std::string& path, const RawSpec& spec) {
   for (int i = 0; i < 3; ++i)
     if (spec.dims[i] <= 0)
       throw InputError("raw file " + path + ": dims must be positive, got " + std::to_string(spec.dims[i]) +
@@ -100,9 +102,6 @@ AnyVolume read_raw(const std::string& path, const RawSpec& spec) {
   std::error_code ec;
   const auto actual = fs::file_size(path, ec);
   if (ec) throw InputError("cannot read " + path + ": " + ec.message());
-  Geometry g;
-  g.dims = spec.dims;
-  g.spacing_mm = spec.spacing_mm;
   const int width = voxel_type_bytes(spec.type);
   const uint64_t data_bytes =
       saturating_product({uint64_t(spec.dims[0]), uint64_t(spec.dims[1]), uint64_t(spec.dims[2]), uint64_t(width)});
@@ -115,6 +114,17 @@ AnyVolume read_raw(const std::string& path, const RawSpec& spec) {
       << actual << "; check the raw dims, voxel type and header bytes";
     throw InputError(s.str());
   }
+  return data_bytes;
+}
+
+namespace {
+
+AnyVolume read_raw(const std::string& path, const RawSpec& spec) {
+  const uint64_t data_bytes = check_raw_file(path, spec);
+  Geometry g;
+  g.dims = spec.dims;
+  g.spacing_mm = spec.spacing_mm;
+  const int width = voxel_type_bytes(spec.type);
   check_memory(data_bytes, "raw file " + path);
   std::ifstream in(path, std::ios::binary);
   if (!in) throw InputError("cannot read " + path + ": " + std::strerror(errno));

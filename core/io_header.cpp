@@ -165,7 +165,7 @@ VolumeHeader parse_metaimage_header(std::string_view head, const std::string& pa
   VolumeHeader h;
   h.format = "MetaImage";
   std::string ndims, dimsize, spacing, elsize, type, channels = "1", compressed = "False", csize, binary = "True",
-                                                    hsize = "0", datafile, objtype;
+                                                    hsize = "0", datafile, objtype, msb = "False", offset;
   bool have_ndims = false, have_dims = false, have_type = false, have_file = false;
   size_t pos = 0, line_no = 0;
   while (pos < head.size()) {
@@ -188,6 +188,8 @@ VolumeHeader parse_metaimage_header(std::string_view head, const std::string& pa
     else if (key == "binarydata") binary = value;
     else if (key == "headersize") hsize = value;
     else if (key == "objecttype") objtype = value;
+    else if (key == "binarydatabyteordermsb" || key == "elementbyteordermsb") msb = value;
+    else if (key == "offset" || key == "origin" || key == "position") offset = value;
     else if (key == "elementdatafile") {
       datafile = value;
       have_file = true;
@@ -214,6 +216,12 @@ VolumeHeader parse_metaimage_header(std::string_view head, const std::string& pa
       check_spacing(h.spacing_mm[i], i, spfield, path);
     }
   }
+  if (!offset.empty()) {
+    const auto ow = words(offset);
+    if (int(ow.size()) < h.ndims)
+      fail(path, "Offset = " + shown(offset) + " has " + std::to_string(ow.size()) + " values, NDims = " + std::to_string(h.ndims));
+    for (int i = 0; i < h.ndims; ++i) h.origin_mm[i] = parse_real(ow[size_t(i)], "Offset", path);
+  }
   if (!have_type) fail(path, "MetaImage header has no ElementType");
   if (type == "MET_UCHAR") h.type = VoxelType::u8;
   else if (type == "MET_USHORT") h.type = VoxelType::u16;
@@ -228,6 +236,9 @@ VolumeHeader parse_metaimage_header(std::string_view head, const std::string& pa
   const std::string c = lower(compressed);
   if (c == "true" || c == "1") h.compressed = true;
   else if (c != "false" && c != "0") fail(path, "CompressedData = " + shown(compressed) + " is neither True nor False");
+  const std::string order = lower(msb);
+  if (order == "true" || order == "1") h.big_endian = true;
+  else if (order != "false" && order != "0") fail(path, "BinaryDataByteOrderMSB = " + shown(msb) + " is neither True nor False");
   if (!csize.empty()) h.compressed_bytes = uint64_t(parse_int(csize, 0, INT64_MAX, "CompressedDataSize", path));
   const int64_t hs = parse_int(hsize, -1, INT64_MAX / 2, "HeaderSize", path);
   if (hs == -1) {
@@ -256,7 +267,8 @@ VolumeHeader parse_nrrd_header(std::string_view head, const std::string& path) {
   h.format = "NRRD";
   if (head.size() < 8 || head.substr(0, 7) != "NRRD000" || head[7] < '1' || head[7] > '9')
     fail(path, "does not start with the NRRD magic 'NRRD000x' (not a NRRD file)");
-  std::string dimension, sizes, type, encoding, spacings, directions, datafile, lineskip = "0", byteskip = "0";
+  std::string dimension, sizes, type, encoding, spacings, directions, datafile, lineskip = "0", byteskip = "0",
+                                                                                 endian = "little", origin;
   bool have_dim = false, have_sizes = false, have_type = false, have_enc = false, ended = false;
   size_t pos = head.find('\n');
   if (pos == std::string_view::npos) fail(path, "the header ends after its first line (no fields, no data)");
@@ -286,6 +298,8 @@ VolumeHeader parse_nrrd_header(std::string_view head, const std::string& path) {
     else if (field == "datafile") datafile = value;
     else if (field == "lineskip") lineskip = value;
     else if (field == "byteskip") byteskip = value;
+    else if (field == "endian") endian = value;
+    else if (field == "spaceorigin") origin = value;
   }
   parse_dims({"dimension", "sizes", ": ", "scalar image", "NRRD header has no 'dimension' field",
               "NRRD header has no 'sizes' field"},
@@ -300,6 +314,9 @@ VolumeHeader parse_nrrd_header(std::string_view head, const std::string& path) {
   else if (t == "float") h.type = VoxelType::f32;
   else fail(path, "type: " + shown(type) + " is not supported" + kSupported);
   h.type_bytes = voxel_type_bytes(h.type);
+  const std::string en = lower(endian);
+  if (en == "big") h.big_endian = h.type_bytes > 1;
+  else if (en != "little") fail(path, "endian: " + shown(endian) + " is neither little nor big");
   if (!have_enc) fail(path, "NRRD header has no 'encoding' field");
   const std::string e = lower(encoding);
   if (e == "gzip" || e == "gz") h.compressed = true;
@@ -334,6 +351,16 @@ VolumeHeader parse_nrrd_header(std::string_view head, const std::string& path) {
       h.spacing_mm[i] = std::sqrt(sq);
       check_spacing(h.spacing_mm[i], i, "space directions", path);
     }
+  }
+  if (!origin.empty()) {
+    // "(x,y,z)": one value per spatial axis.
+    std::string o = origin;
+    if (o.size() < 2 || o.front() != '(' || o.back() != ')') fail(path, "space origin: " + shown(origin) + " is not a vector '(x,y,z)'");
+    o = o.substr(1, o.size() - 2);
+    std::replace(o.begin(), o.end(), ',', ' ');
+    const auto ow = words(o);
+    if (int(ow.size()) < h.ndims) fail(path, "space origin: " + shown(origin) + " has " + std::to_string(ow.size()) + " values, dimension: " + std::to_string(h.ndims));
+    for (int i = 0; i < h.ndims; ++i) h.origin_mm[i] = parse_real(ow[size_t(i)], "space origin", path);
   }
   h.line_skip = parse_int(lineskip, 0, 1 << 30, "line skip", path);
   const int64_t bs = parse_int(byteskip, -1, INT64_MAX / 2, "byte skip", path);
@@ -533,7 +560,7 @@ bool has_checked_header(const std::string& path) {
   return e == ".mha" || e == ".mhd" || e == ".nrrd" || e == ".nhdr" || e == ".nii" || e == ".nii.gz";
 }
 
-VolumeHeader check_volume_file(const std::string& path) {
+VolumeHeader check_volume_file(const std::string& path, bool within_budget) {
   const std::string ext = lower_extension(path);
   errno = 0;
   std::ifstream f(path, std::ios::binary);
@@ -564,7 +591,7 @@ VolumeHeader check_volume_file(const std::string& path) {
   f.read(head.data(), std::streamsize(head.size()));
   if (uint64_t(f.gcount()) != head.size()) throw InputError("cannot read " + path + ": short read of its header");
   const VolumeHeader h = parse_by_ext(head, path, ext);
-  check_memory(h.expected_bytes, "input " + path + " (" + dims_text(h) + ")");
+  if (within_budget) check_memory(h.expected_bytes, "input " + path + " (" + dims_text(h) + ")");
   if (h.data_file.empty()) {
     f.clear();
     check_data(h, f, size, path, path);

@@ -21,9 +21,11 @@ struct VolumeHeader {
   int ndims = 0;
   std::array<int64_t, 3> dims{1, 1, 1};
   std::array<double, 3> spacing_mm{1, 1, 1};
+  std::array<double, 3> origin_mm{0, 0, 0};  // MetaImage Offset/Origin/Position, NRRD space origin
   VoxelType type = VoxelType::u8;
   int type_bytes = 1;
   bool compressed = false;          // zlib (MetaImage), gzip (NRRD, .nii.gz)
+  bool big_endian = false;          // MetaImage BinaryDataByteOrderMSB/ElementByteOrderMSB, NRRD endian
   std::string data_file;            // empty: the data follows the header in the same file
   uint64_t data_offset = 0;         // where the data starts in the data file (after skips)
   bool data_at_end = false;         // MetaImage HeaderSize = -1 / NRRD byte skip -1: the data ends the file
@@ -44,7 +46,13 @@ bool has_checked_header(const std::string& path);
 
 // Reads and parses the header of `path`, checks the memory budget, then the data size against the
 // data file (inflating compressed data in blocks). Throws InputError; returns the parsed header.
-VolumeHeader check_volume_file(const std::string& path);
+// within_budget = false leaves out the memory budget check (a volume read by slabs, core/slabs.hpp).
+VolumeHeader check_volume_file(const std::string& path, bool within_budget = true);
+
+// Raw files: dims and spacing positive, and the file size = header bytes + voxel bytes (InputError
+// with both sizes otherwise). Returns the voxel bytes. No memory budget check (read_volume adds it).
+struct RawSpec;
+uint64_t check_raw_file(const std::string& path, const RawSpec& spec);
 
 // The same checks on a whole file held in memory (data in the same file only; a named data file is
 // not looked at). For the fuzzer and tests; `path` gives the format by its extension.

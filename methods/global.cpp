@@ -521,27 +521,27 @@ Choice percentile(const Histogram& h, const ParamValues& p) {
 
 // Warnings on the resolution of a histogram of integer data with bins set by the user (see the
 // file header); bins=auto is one bin per level where it can be.
-std::vector<std::string> resolution_warnings(const MethodInput& in, const ParamValues& p, const Histogram& h) {
-  if (!integer_type(in.stored_type) || p.is_word("bins")) return {};
+std::vector<std::string> resolution_warnings(VoxelType stored, const ParamValues& p, const Histogram& h) {
+  if (!integer_type(stored) || p.is_word("bins")) return {};
   const double levels = grey_levels(h.lo, h.hi);
   const int bins = h.bins();
   const std::string one_per_level = levels <= kAutoMaxLevels ? "bins=auto or bins=" + format_number(levels, 6) : "bins=" + format_number(std::min(levels, 65536.0), 6);
   if (levels > bins)
-    return {std::string(voxel_type_name(in.stored_type)) + " data span " + format_number(levels, 6) + " grey levels over the histogram range [" +
+    return {std::string(voxel_type_name(stored)) + " data span " + format_number(levels, 6) + " grey levels over the histogram range [" +
             format_number(h.lo, 6) + ", " + format_number(h.hi, 6) + "] but bins=" + std::to_string(bins) + ": some bins hold more than one level (bin width " +
             format_number(h.width(), 6) + " grey levels), so the threshold is resolved to that; set " + one_per_level +
             " for one bin per grey level"};
   if (levels >= 2 && levels < bins)
-    return {std::string(voxel_type_name(in.stored_type)) + " data span only " + format_number(levels, 6) + " grey levels but bins=" +
+    return {std::string(voxel_type_name(stored)) + " data span only " + format_number(levels, 6) + " grey levels but bins=" +
             std::to_string(bins) + ": bins are narrower than one grey level and some are empty by construction, which "
             "misleads peak-based methods; set " + one_per_level};
   return {};
 }
 
 // The threshold below every voxel in the ROI: no air.
-double no_air_threshold(const MethodInput& in, const Histogram& h, const ParamValues& p) {
+double no_air_threshold(const std::function<double()>& lowest, const Histogram& h, const ParamValues& p) {
   if (p.num("clip_pct") <= 0) return h.lo;
-  return compute_stats(in.volume, in.roi).min;
+  return lowest();
 }
 
 // What a method needs of the histogram's shape (the two-mode guard of the file header).
@@ -560,18 +560,18 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
                                     return ThresholdChoice{calc(h, p).threshold, {}};
                                   },
                                   std::move(extra));
-  m.run = [calc, shape, name](const MethodInput& in, const ParamValues& p) {
-    const Histogram h = method_histogram(in, p);
-    std::vector<std::string> warnings = resolution_warnings(in, p, h);
+  HistogramDecider decide = [calc, shape, name](const Histogram& h, VoxelType stored, const std::function<double()>& lowest,
+                                                 const ParamValues& p) {
+    std::vector<std::string> warnings = resolution_warnings(stored, p, h);
     Choice c;
     auto no_air = [&](const std::string& why) {
-      c = Choice{no_air_threshold(in, h, p), {}};
+      c = Choice{no_air_threshold(lowest, h, p), {}};
       warnings.push_back(why + ": no voxel is called air (threshold " + format_number(c.threshold, 6) +
                          " = the lowest grey value); if the part has pores, include surrounding air in the volume or "
                          "use manual or percentile");
     };
     const bool single_mode = shape != Shape::any && h.bins() >= 3 &&
-                             significant_modes(h, p.num("clip_pct") > 0, integer_type(in.stored_type)) < 2;
+                             significant_modes(h, p.num("clip_pct") > 0, integer_type(stored)) < 2;
     if (single_occupied_bin(h)) {
       no_air(name + ": the grey-value histogram has a single occupied bin (constant volume)");
     } else if (shape == Shape::two_modes && single_mode) {
@@ -594,10 +594,16 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
         no_air(e.what());
       }
     }
-    MethodOutput out = apply_threshold(in, ThresholdChoice{c.threshold, std::move(warnings)}, name);
-    out.chosen.emplace_back("bin_width", h.width());
-    out.chosen.emplace_back("bins", h.bins());
-    out.chosen.insert(out.chosen.end(), c.extra.begin(), c.extra.end());
+    HistogramDecision d{ThresholdChoice{c.threshold, std::move(warnings)}, {{"bin_width", h.width()}, {"bins", h.bins()}}};
+    d.chosen.insert(d.chosen.end(), c.extra.begin(), c.extra.end());
+    return d;
+  };
+  set_histogram_decider(name, decide);
+  m.run = [decide, name](const MethodInput& in, const ParamValues& p) {
+    const Histogram h = method_histogram(in, p);
+    HistogramDecision d = decide(h, in.stored_type, [&in] { return compute_stats(in.volume, in.roi).min; }, p);
+    MethodOutput out = apply_threshold(in, d.choice, name);
+    out.chosen.insert(out.chosen.end(), d.chosen.begin(), d.chosen.end());
     return out;
   };
   return m;

@@ -23,14 +23,13 @@ namespace {
 
 // Window sums over x and y of slice z, channels d = v - c and (Std) d^2, into s1 and s2 (one thread).
 template <bool Std>
-void plane_sums(const VolumeF& v, int64_t z, int64_t h, double c, double* s1, double* s2, std::vector<double>& scratch) {
-  const int64_t nx = v.nx(), ny = v.ny(), m = nx + 2 * h;
+void plane_sums(const float* sl, int64_t nx, int64_t ny, int64_t h, double c, double* s1, double* s2, std::vector<double>& scratch) {
+  const int64_t m = nx + 2 * h;
   scratch.resize(size_t(2 * nx * ny + 2 * m));
   double* x1 = scratch.data();
   double* x2 = x1 + nx * ny;
   double* p1 = x2 + nx * ny;
   double* p2 = p1 + m;
-  const float* sl = v.slice(z);
   // x: each row mirrored into p1/p2 (position i is x = i - h), then a running sum.
   for (int64_t y = 0; y < ny; ++y) {
     const float* row = sl + y * nx;
@@ -89,16 +88,19 @@ struct PlaneJob {
   double *s1, *s2;  // s2 unused without Std
 };
 
-// Computes the jobs' plane sums in parallel, one plane per thread at a time.
+// Computes the jobs' plane sums in parallel, one plane per thread at a time. The slices are looked
+// up first, in job order, from this thread (a SliceOf need not be thread-safe).
 template <bool Std>
-void run_plane_jobs(const VolumeF& v, int64_t h, double c, const std::vector<PlaneJob>& jobs) {
+void run_plane_jobs(const Geometry& g, const SliceOf& slice, int64_t h, double c, const std::vector<PlaneJob>& jobs) {
   const int64_t n = int64_t(jobs.size());
+  std::vector<const float*> src(jobs.size());
+  for (size_t j = 0; j < jobs.size(); ++j) src[j] = slice(jobs[j].z);
 #pragma omp parallel
   {
     std::vector<double> scratch;
 #pragma omp for schedule(static)
     for (int64_t j = 0; j < n; ++j)
-      plane_sums<Std>(v, jobs[size_t(j)].z, h, c, jobs[size_t(j)].s1, jobs[size_t(j)].s2, scratch);
+      plane_sums<Std>(src[size_t(j)], g.dims[0], g.dims[1], h, c, jobs[size_t(j)].s1, jobs[size_t(j)].s2, scratch);
   }
 }
 
@@ -108,8 +110,12 @@ void run_plane_jobs(const VolumeF& v, int64_t h, double c, const std::vector<Pla
 // Z(0) = P(0) + 2 (P(1) + ... + P(h)). Planes are computed in parallel a batch at a time; the
 // recurrence itself is serial and in fixed order.
 SliceMoments::SliceMoments(const VolumeF& v, int64_t window, double centre, bool with_std)
-    : v_(v), h_(window / 2), batch_(std::clamp<int64_t>(v.nz() / 16, 1, 8)), c_(centre), with_std_(with_std) {
-  const size_t nxy = size_t(v.geometry().slice_voxels()), channels = with_std ? 2 : 1;
+    : SliceMoments(v.geometry(), [&v](int64_t z) { return v.slice(z); }, window, centre, with_std) {}
+
+SliceMoments::SliceMoments(const Geometry& g, SliceOf slice, int64_t window, double centre, bool with_std)
+    : g_(g), slice_(std::move(slice)), h_(window / 2), batch_(std::clamp<int64_t>(g.dims[2] / 16, 1, 8)), c_(centre),
+      with_std_(with_std) {
+  const size_t nxy = size_t(g.slice_voxels()), channels = with_std ? 2 : 1;
   z1_.assign(nxy, 0.0);
   if (with_std) z2_.assign(nxy, 0.0);
   e_.assign(nxy * channels * size_t(batch_), 0.0);
@@ -122,7 +128,7 @@ int64_t SliceMoments::next(double* mean, double* stdev) {
 
 template <bool Std>
 int64_t SliceMoments::next_slices(double* mean, double* stdev) {
-  const int64_t nz = v_.nz(), h = h_, nxy = v_.geometry().slice_voxels();
+  const int64_t nz = g_.dims[2], h = h_, nxy = g_.slice_voxels();
   const int64_t n = std::min(batch_, nz - z_);
   if (n <= 0) return 0;
   constexpr int64_t channels = Std ? 2 : 1;
@@ -135,7 +141,7 @@ int64_t SliceMoments::next_slices(double* mean, double* stdev) {
     for (int64_t j0 = 0; j0 <= h; j0 += batch_) {
       std::vector<PlaneJob> jobs;
       for (int64_t j = j0; j <= std::min(h, j0 + batch_ - 1); ++j) jobs.push_back({j, e1(j - j0), second(e1(j - j0))});
-      run_plane_jobs<Std>(v_, h, c_, jobs);
+      run_plane_jobs<Std>(g_, slice_, h, c_, jobs);
       const int64_t nj = int64_t(jobs.size());
 #pragma omp parallel for schedule(static)
       for (int64_t i = 0; i < nxy; ++i)
@@ -158,7 +164,7 @@ int64_t SliceMoments::next_slices(double* mean, double* stdev) {
     jobs.push_back({e, e1(t), second(e1(t))});
     jobs.push_back({l, l1(t), second(l1(t))});
   }
-  run_plane_jobs<Std>(v_, h, c_, jobs);
+  run_plane_jobs<Std>(g_, slice_, h, c_, jobs);
   const double w = double(2 * h + 1), inv = 1.0 / (w * w * w), c = c_;
   // Serial in z, parallel over the slice: each thread keeps the same band of voxels for every
   // slice (static schedule over the same range), so no barrier is needed between slices.

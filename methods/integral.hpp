@@ -6,10 +6,12 @@
 // weighted mean by a separable FIR. Borders: mirrored without repeating the edge voxel
 // (numpy.pad mode 'reflect', as scikit-image's threshold_sauvola: index -1 reads voxel 1).
 #include <cstdint>
+#include <functional>
 #include <vector>
 
 #include "core/volume.hpp"
 #include "methods/registry.hpp"
+#include "methods/threshold.hpp"
 
 namespace pb {
 
@@ -22,9 +24,17 @@ namespace pb {
 // form, as scikit-image). The z recurrence runs in one fixed order: results do not depend on the
 // thread count. With with_std = false only the mean is computed (no squared sums: about half the
 // work and memory); the means are the same to the bit.
+// Slices of a float volume by index: a volume in memory, or slices read by slabs in z order
+// (methods/streaming.cpp). Called from one thread; a slice must stay valid while the slices of
+// the next 2 * (window/2) + 2 * batch() + 2 calls to it are served (SliceMoments asks in z order,
+// never further back than that).
+using SliceOf = std::function<const float*(int64_t z)>;
+
 class SliceMoments {
  public:
   SliceMoments(const VolumeF& v, int64_t window, double centre, bool with_std = true);
+  // The same over the volume of geometry g whose slice z is slice(z), asked in z order.
+  SliceMoments(const Geometry& g, SliceOf slice, int64_t window, double centre, bool with_std = true);
   int64_t next_z() const { return z_; }
   int64_t batch() const { return batch_; }  // slices per call: 1..8, from nz only
   // Fills mean and (with_std) std of slices next_z() .. next_z()+n-1 (batch() * nx * ny values
@@ -35,7 +45,8 @@ class SliceMoments {
   template <bool Std>
   int64_t next_slices(double* mean, double* std);
 
-  const VolumeF& v_;
+  Geometry g_;
+  SliceOf slice_;
   int64_t h_, batch_, z_ = 0;
   double c_;
   bool with_std_;
@@ -57,5 +68,14 @@ struct LocalAir {
   std::vector<std::string> warnings;
 };
 LocalAir local_air(const std::string& method, const MethodInput& in, const std::vector<std::string>& key_values);
+
+// A local method over slices served in z order (a volume read by slabs, methods/streaming.hpp), no
+// ROI: what the method takes from the whole volume comes from `all` (statistics of every voxel) and
+// `hist` (their histograms, for the grey range); the air slices go to `out` in z order, a batch at
+// a time (z0, n slices, n * nx * ny bytes), the same voxels as local_air on the volume in memory.
+// Returns what it chose and its warnings (air empty). Methods: sauvola; InputError for the others.
+using AirOut = std::function<void(int64_t z0, int64_t n, const uint8_t* air)>;
+LocalAir local_air_by_slices(const std::string& method, const ParamValues& p, const Geometry& g, const Stats& all,
+                             const HistogramOf& hist, const SliceOf& slice, const AirOut& out);
 
 }  // namespace pb

@@ -22,16 +22,16 @@ namespace pb {
 namespace {
 
 // Window: odd and no larger than the volume along any axis (the mirror needs window/2 < dim).
-int64_t checked_window(const std::string& method, const VolumeF& v, const ParamValues& p) {
+int64_t checked_window(const std::string& method, const Geometry& g, const ParamValues& p) {
   const int64_t w = p.integer("window");
   if (w % 2 == 0)
     throw InputError("method " + method + ": parameter 'window': even value " + std::to_string(w) +
                      " (voxels); the window must be odd (3, 5, 7, ...) so that it is centred on the voxel");
   const char* axis = "xyz";
   for (int a = 0; a < 3; ++a)
-    if (w > v.geometry().dims[size_t(a)])
+    if (w > g.dims[size_t(a)])
       throw InputError("method " + method + ": parameter 'window': value " + std::to_string(w) +
-                       " is larger than the volume along " + axis[a] + " (" + describe(v.geometry()) + ")");
+                       " is larger than the volume along " + axis[a] + " (" + describe(g) + ")");
   return w;
 }
 
@@ -52,13 +52,19 @@ struct Context {
   std::vector<std::string> warnings;
 };
 
-Context context(const MethodInput& in, double clip_pct, bool need_range) {
+// The context's statistics of every voxel, refused when none is finite.
+Context context_start(const Stats& all) {
   Context c;
-  c.all = compute_stats(in.volume);
+  c.all = all;
   if (c.all.count == 0) throw InputError("the volume has no finite voxels");
   if (c.all.nan_count > 0)
     c.warnings.push_back(std::to_string(c.all.nan_count) +
                          " NaN voxels: read as the volume mean in window statistics, never air");
+  return c;
+}
+
+Context context(const MethodInput& in, double clip_pct, bool need_range) {
+  Context c = context_start(compute_stats(in.volume));
   if (need_range) {
     const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
     const Stats s = roi ? compute_stats(in.volume.data(), in.volume.size(), roi) : c.all;
@@ -86,32 +92,48 @@ bool constant_volume(const MethodInput& in, const Context& c, LocalAir& out) {
   return true;
 }
 
-// Air mask from the window mean and std: air where v < thr(mean, std) (and inside the ROI). A
-// threshold of the mean alone, thr(mean), is served without the std sums.
+// Air from the window mean and std over the slices of g served in z order: air where
+// v < thr(mean, std) (and inside roi). A threshold of the mean alone, thr(mean), is served without
+// the std sums. Each batch of air slices is written to dest(z0, n), then handed to done (if any).
+template <class Thr>
+void moments_air(const Geometry& g, const SliceOf& slice, const uint8_t* roi, int64_t window, double centre, Thr thr,
+                 const std::function<uint8_t*(int64_t z0, int64_t n)>& dest, const AirOut& done) {
+  constexpr bool with_std = std::is_invocable_v<Thr, double, double>;
+  const int64_t nxy = g.slice_voxels();
+  SliceMoments mom(g, slice, window, centre, with_std);
+  std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(with_std ? mean.size() : 0);
+  for (;;) {
+    const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data());
+    if (n == 0) break;
+    uint8_t* air = dest(z0, n);
+    for (int64_t t = 0; t < n; ++t) {
+      const float* s = slice(z0 + t);
+      uint8_t* a = air + t * nxy;
+      const double* m = mean.data() + t * nxy;
+      const double* sdev = with_std ? sd.data() + t * nxy : nullptr;
+      const uint8_t* r = roi ? roi + (z0 + t) * nxy : nullptr;
+#pragma omp parallel for schedule(static)
+      for (int64_t i = 0; i < nxy; ++i) {
+        double threshold;
+        if constexpr (with_std)
+          threshold = thr(m[i], sdev[i]);
+        else
+          threshold = thr(m[i]);
+        a[i] = double(s[i]) < threshold && (!r || r[i]);
+      }
+    }
+    if (done) done(z0, n, air);
+  }
+}
+
+// Air mask of a volume in memory from the window mean and std (moments_air).
 template <class Thr>
 Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr thr) {
-  constexpr bool with_std = std::is_invocable_v<Thr, double, double>;
   const VolumeF& v = in.volume;
   Mask air(v.geometry(), Uninitialized{});  // every slice written below
-  const int64_t nxy = v.geometry().slice_voxels();
-  SliceMoments mom(v, window, centre, with_std);
-  std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(with_std ? mean.size() : 0);
-  auto threshold = [&](int64_t i) {
-    if constexpr (with_std)
-      return thr(mean[size_t(i)], sd[size_t(i)]);
-    else
-      return thr(mean[size_t(i)]);
-  };
-  const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
-  for (;;) {
-    const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data()) * nxy;
-    if (n == 0) break;
-    const float* s = v.slice(z0);
-    uint8_t* a = air.slice(z0);
-    const uint8_t* r = roi ? roi + z0 * nxy : nullptr;
-#pragma omp parallel for schedule(static)
-    for (int64_t i = 0; i < n; ++i) a[i] = double(s[i]) < threshold(i) && (!r || r[i]);
-  }
+  moments_air(
+      v.geometry(), [&v](int64_t z) { return v.slice(z); }, in.roi ? in.roi->data() : nullptr, window, centre, thr,
+      [&air](int64_t z0, int64_t) { return air.slice(z0); }, nullptr);
   return air;
 }
 
@@ -170,7 +192,7 @@ MethodInfo niblack_info() {
       {{"k", ParamType::Float, "0.2", -1, 1, {}, "",
         "weight of the window std; Niblack's T = m + k's with k' = -0.2 is k = 0.2 here"}},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("niblack", in.volume, p);
+        const int64_t w = checked_window("niblack", in.volume.geometry(), p);
         const double k = p.num("k");
         Context c = context(in, 0, false);
         LocalAir out;
@@ -182,6 +204,24 @@ MethodInfo niblack_info() {
 }
 
 // ---- sauvola ------------------------------------------------------------------------------------
+// T = m (1 + k (s/R - 1)).
+struct SauvolaRule {
+  double k, r;
+  double operator()(double m, double s) const { return m * (1 + k * (s / r - 1)); }
+};
+
+// R = r, or (r = 0) half the grey range (hi - lo)/2, or half the whole volume's range when that is 0;
+// a warning for grey values below 0.
+SauvolaRule sauvola_rule(const ParamValues& p, Context& c) {
+  double r = p.num("r");
+  if (r == 0) r = 0.5 * (c.hi - c.lo);
+  if (!(r > 0)) r = 0.5 * (c.all.max - c.all.min);  // ROI constant: fall back to the whole volume
+  if (c.lo < 0)
+    c.warnings.push_back("grey values below 0 (low " + format_number(c.lo, 8) +
+                         "): Sauvola's T = m(1 + k(s/R - 1)) assumes non-negative grey values");
+  return {p.num("k"), r};
+}
+
 MethodInfo sauvola_info() {
   return local_info(
       "sauvola",
@@ -194,22 +234,15 @@ MethodInfo sauvola_info() {
         "for float images is 1 (half the float dtype range -1..1), not data-derived"},
        clip_param()},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("sauvola", in.volume, p);
-        const double k = p.num("k");
+        const int64_t w = checked_window("sauvola", in.volume.geometry(), p);
         Context c = context(in, p.num("clip_pct"), true);
-        double r = p.num("r");
         LocalAir out;
+        SauvolaRule rule{p.num("k"), p.num("r")};
         if (!constant_volume(in, c, out)) {
-          if (r == 0) r = 0.5 * (c.hi - c.lo);
-          if (!(r > 0)) r = 0.5 * (c.all.max - c.all.min);  // ROI constant: fall back to the whole volume
-          if (c.lo < 0)
-            c.warnings.push_back("grey values below 0 (low " + format_number(c.lo, 8) +
-                                 "): Sauvola's T = m(1 + k(s/R - 1)) assumes non-negative grey values");
-          out = finish(air_from_moments(in, w, c.all.mean,
-                                            [k, r](double m, double s) { return m * (1 + k * (s / r - 1)); }),
-                       c);
+          rule = sauvola_rule(p, c);
+          out = finish(air_from_moments(in, w, c.all.mean, rule), c);
         }
-        out.chosen = {{"window", double(w)}, {"k", k}, {"r", r}};
+        out.chosen = {{"window", double(w)}, {"k", rule.k}, {"r", rule.r}};
         return out;
       });
 }
@@ -227,7 +260,7 @@ MethodInfo phansalkar_info() {
        {"r", ParamType::Float, "0.5", 1e-6, 1, {}, "normalised grey", "R on the normalised scale (paper 0.5)"},
        clip_param()},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("phansalkar", in.volume, p);
+        const int64_t w = checked_window("phansalkar", in.volume.geometry(), p);
         const double k = p.num("k"), pp = p.num("p"), q = p.num("q"), r = p.num("r");
         Context c = context(in, p.num("clip_pct"), true);
         LocalAir out;
@@ -258,7 +291,7 @@ MethodInfo wolf_info() {
       "Pattern Analysis and Applications 6(4):309-326",
       {{"k", ParamType::Float, "0.5", 0, 1, {}, "", "weight (paper 0.5)"}, clip_param()},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("wolf", in.volume, p);
+        const int64_t w = checked_window("wolf", in.volume.geometry(), p);
         const double k = p.num("k");
         Context c = context(in, p.num("clip_pct"), true);
         double r = 0;
@@ -293,7 +326,7 @@ MethodInfo bernsen_info() {
         "levels of 8-bit data)"},
        clip_param()},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("bernsen", in.volume, p);
+        const int64_t w = checked_window("bernsen", in.volume.geometry(), p);
         Context c = context(in, p.num("clip_pct"), true);
         double contrast = p.num("contrast");
         if (contrast == 0) contrast = (c.hi - c.lo) * 15.0 / 255.0;
@@ -336,7 +369,7 @@ MethodInfo local_mean_info() {
         "a voxel is air when darker than its window mean by more than offset (at 0 about half of a noisy "
         "uniform material is below its mean: take a few noise sigmas)"}},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("local-mean", in.volume, p);
+        const int64_t w = checked_window("local-mean", in.volume.geometry(), p);
         const double off = p.num("offset");
         Context c = context(in, 0, false);
         LocalAir out;
@@ -358,7 +391,7 @@ MethodInfo local_gaussian_info() {
         "noisy uniform material is below its mean: take a few noise sigmas)"},
        {"sigma", ParamType::Float, "0", 0, 1e4, {}, "voxels", "Gaussian sigma; 0 = (window - 1)/6 as scikit-image"}},
       [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("local-gaussian", in.volume, p);
+        const int64_t w = checked_window("local-gaussian", in.volume.geometry(), p);
         const double off = p.num("offset");
         double sigma = p.num("sigma");
         if (sigma == 0) sigma = double(w - 1) / 6.0;
@@ -389,6 +422,34 @@ LocalAir local_air(const std::string& method, const MethodInput& in, const std::
   auto it = air_functions().find(method);
   if (it == air_functions().end()) throw InputError("method " + method + " is not a local method");
   return it->second(in, parse_params(m, key_values));
+}
+
+LocalAir local_air_by_slices(const std::string& method, const ParamValues& p, const Geometry& g, const Stats& all,
+                             const HistogramOf& hist, const SliceOf& slice, const AirOut& out) {
+  if (method != "sauvola")
+    throw InputError("method " + method + " is not read by slabs (of the local methods, sauvola is)");
+  const int64_t w = checked_window(method, g, p);
+  Context c = context_start(all);
+  const GreyRange range = grey_range(all, p.num("clip_pct"), hist);
+  c.lo = range.lo;
+  c.hi = range.hi;
+  SauvolaRule rule{p.num("k"), p.num("r")};
+  std::vector<uint8_t> buf;
+  auto dest = [&](int64_t, int64_t n) {
+    buf.assign(size_t(n * g.slice_voxels()), 0);
+    return buf.data();
+  };
+  LocalAir res;
+  if (c.all.max > c.all.min) {
+    rule = sauvola_rule(p, c);
+    moments_air(g, slice, nullptr, w, c.all.mean, rule, dest, out);
+  } else {  // constant volume (as constant_volume): no air
+    c.warnings.push_back("constant volume (every voxel " + format_number(c.all.min, 8) + "): no local contrast, no pores");
+    for (int64_t z = 0; z < g.dims[2]; ++z) out(z, 1, dest(z, 1));
+  }
+  res.warnings = std::move(c.warnings);
+  res.chosen = {{"window", double(w)}, {"k", rule.k}, {"r", rule.r}};
+  return res;
 }
 
 PB_REGISTER_METHOD(niblack_info());

@@ -8,15 +8,15 @@ namespace pb {
 
 Mask air_below(const VolumeF& v, double threshold, const Mask* roi) {
   Mask air(v.geometry(), Uninitialized{});  // every voxel written below
+  air_below(v.data(), v.size(), threshold, roi ? roi->data() : nullptr, air.data());
+  return air;
+}
+
+void air_below(const float* d, int64_t n, double threshold, const uint8_t* r, uint8_t* a) {
   const float t = float(threshold);
-  const float* d = v.data();
-  uint8_t* a = air.data();
-  const uint8_t* r = roi ? roi->data() : nullptr;
-  const int64_t n = v.size();
   // Note: in float, v < t with t rounded to float; NaN compares false, so NaN is never air.
 #pragma omp parallel for schedule(static)
   for (int64_t i = 0; i < n; ++i) a[i] = (d[i] < t) && (!r || r[i]);
-  return air;
 }
 
 int64_t air_to_pores(Mask& m, const Mask* roi) {
@@ -24,7 +24,7 @@ int64_t air_to_pores(Mask& m, const Mask* roi) {
   // reaches the volume border or holds an outside voxel is background. The same as a flood fill
   // from the outside through air, but parallel, and on runs instead of a label volume.
   const Geometry& g = m.geometry();
-  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2], n = m.size();
+  const int64_t nx = g.dims[0], n = m.size();
   uint8_t* a = m.data();
   const uint8_t* r = roi ? roi->data() : nullptr;
   Mask open(g, Uninitialized{});
@@ -33,6 +33,27 @@ int64_t air_to_pores(Mask& m, const Mask* roi) {
   for (int64_t i = 0; i < n; ++i) o[i] = a[i] || (r && !r[i]);
   const LabelRuns c = label_runs(open, nullptr, 6);
   const int64_t nrows = c.rows();
+  const std::vector<uint8_t> outside = outside_components(c, r);
+  // Background runs leave the air; the part is the ROI minus its background voxels.
+  int64_t background_in_part = 0;
+#pragma omp parallel for schedule(static) reduction(+ : background_in_part)
+  for (int64_t row = 0; row < nrows; ++row) {
+    const int64_t base = row * nx;
+    for (int64_t i = c.row_begin[size_t(row)]; i < c.row_begin[size_t(row) + 1]; ++i) {
+      if (!outside[c.label[size_t(i)]]) continue;
+      const Run& u = c.runs[size_t(i)];
+      for (int64_t x = u.x0; x < u.x1; ++x) {
+        background_in_part += !r || r[base + x];
+        a[base + x] = 0;
+      }
+    }
+  }
+  return (r ? count_nonzero(*roi) : n) - background_in_part;
+}
+
+std::vector<uint8_t> outside_components(const LabelRuns& c, const uint8_t* r) {
+  const Geometry& g = c.geometry;
+  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2], nrows = c.rows();
   // Per run: on the volume border (border rows, x = 0 or nx - 1) or holding a voxel outside the ROI.
   std::vector<uint8_t> run_out(c.runs.size(), 0);
 #pragma omp parallel for schedule(static)
@@ -50,21 +71,7 @@ int64_t air_to_pores(Mask& m, const Mask* roi) {
   std::vector<uint8_t> outside(size_t(c.count) + 1, 0);
   for (size_t i = 0; i < run_out.size(); ++i)
     if (run_out[i]) outside[c.label[i]] = 1;
-  // Background runs leave the air; the part is the ROI minus its background voxels.
-  int64_t background_in_part = 0;
-#pragma omp parallel for schedule(static) reduction(+ : background_in_part)
-  for (int64_t row = 0; row < nrows; ++row) {
-    const int64_t base = row * nx;
-    for (int64_t i = c.row_begin[size_t(row)]; i < c.row_begin[size_t(row) + 1]; ++i) {
-      if (!outside[c.label[size_t(i)]]) continue;
-      const Run& u = c.runs[size_t(i)];
-      for (int64_t x = u.x0; x < u.x1; ++x) {
-        background_in_part += !r || r[base + x];
-        a[base + x] = 0;
-      }
-    }
-  }
-  return (r ? count_nonzero(*roi) : n) - background_in_part;
+  return outside;
 }
 
 int64_t count_nonzero(const Mask& m) {

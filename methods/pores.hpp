@@ -2,16 +2,26 @@
 // Shared pore extraction. Pores are dark: a voxel is air when its grey value is below the
 // threshold. Air 6-connected to the volume border, or to air outside the part mask (ROI), is
 // background; the rest of the air inside the ROI is pores.
+#include <cstdint>
+#include <vector>
+
+#include "core/components.hpp"
 #include "core/volume.hpp"
 
 namespace pb {
 
 // 1 where v < threshold (and inside roi, when given); NaN voxels are never air.
 Mask air_below(const VolumeF& v, double threshold, const Mask* roi);
+// The same into a caller's buffer of n bytes (a slab, methods/streaming.cpp); roi may be nullptr.
+void air_below(const float* v, int64_t n, double threshold, const uint8_t* roi, uint8_t* air);
 
 // Turns an air mask into a pore mask in place (see above). Returns the number of part voxels:
 // voxels inside the ROI that are not outside air (material plus pores), the porosity denominator.
 int64_t air_to_pores(Mask& air, const Mask* roi);
+
+// Per label of c (the 6-connected components of air plus the outside of the ROI, roi nullptr: none):
+// 1 when the component reaches the volume border or holds a voxel outside the ROI (background).
+std::vector<uint8_t> outside_components(const LabelRuns& c, const uint8_t* roi);
 
 int64_t count_nonzero(const Mask& m);
 

@@ -9,8 +9,8 @@
 namespace pb {
 
 nlohmann::ordered_json segment_record(const MethodInfo& m, const ParamValues& params, const MethodOutput& out,
-                                      int64_t voxels, const SegmentRecordInputs& io) {
-  const int64_t pore_voxels = count_nonzero(out.pores);
+                                      int64_t voxels, const SegmentRecordInputs& io, std::optional<int64_t> counted) {
+  const int64_t pore_voxels = counted ? *counted : count_nonzero(out.pores);
   const double porosity = out.part_voxels > 0 ? 100.0 * double(pore_voxels) / double(out.part_voxels) : NAN;
   nlohmann::ordered_json j;
   j["context"] = run_context();

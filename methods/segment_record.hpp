@@ -18,7 +18,9 @@ struct SegmentRecordInputs {
   nlohmann::ordered_json output;       // the mask file, or null
 };
 
+// pore_voxels: counted from out.pores unless given (a mask written by slabs is not in out.pores).
 nlohmann::ordered_json segment_record(const MethodInfo& m, const ParamValues& params, const MethodOutput& out,
-                                      int64_t voxels, const SegmentRecordInputs& io);
+                                      int64_t voxels, const SegmentRecordInputs& io,
+                                      std::optional<int64_t> pore_voxels = std::nullopt);
 
 }  // namespace pb

@@ -5,6 +5,7 @@
 #include "methods/threshold.hpp"
 
 #include <cmath>
+#include <map>
 
 #include "core/error.hpp"
 #include "core/format.hpp"
@@ -30,10 +31,35 @@ bool integer_type(VoxelType t) { return t == VoxelType::u8 || t == VoxelType::u1
 
 double grey_levels(double lo, double hi) { return std::floor(hi) - std::ceil(lo) + 1; }
 
-GreyRange grey_range(const VolumeF& v, const uint8_t* roi, const Stats& s, double clip_pct) {
+namespace {
+HistogramOf histogram_of(const VolumeF& v, const uint8_t* roi) {
+  return [&v, roi](double lo, double hi, int bins) { return compute_histogram(v.data(), v.size(), lo, hi, bins, roi); };
+}
+}  // namespace
+
+GreyRange grey_range(const Stats& s, double clip_pct, const HistogramOf& hist) {
   if (!(clip_pct > 0 && s.max > s.min)) return {s.min, s.max};
-  const Histogram fine = compute_histogram(v.data(), v.size(), s.min, s.max, 65536, roi);
+  const Histogram fine = hist(s.min, s.max, 65536);
   return {histogram_quantile(fine, clip_pct / 100.0), histogram_quantile(fine, 1.0 - clip_pct / 100.0)};
+}
+
+GreyRange grey_range(const VolumeF& v, const uint8_t* roi, const Stats& s, double clip_pct) {
+  return grey_range(s, clip_pct, histogram_of(v, roi));
+}
+
+Histogram method_histogram(const Stats& s, bool roi, VoxelType stored_type, const ParamValues& p, const HistogramOf& hist) {
+  if (s.count == 0) throw InputError(roi ? "no finite voxels inside the region of interest" : "no finite voxels in the volume");
+  const double clip = p.num("clip_pct");
+  const bool automatic = p.is_word("bins");
+  auto [lo, hi] = grey_range(s, clip, hist);
+  if (clip > 0 && s.max > s.min && automatic && integer_type(stored_type)) {
+    lo = std::floor(lo);  // whole levels at both ends, so that bins fall on levels
+    hi = std::ceil(hi);
+  }
+  int bins = automatic ? kAutoBins : int(p.integer("bins"));
+  if (automatic && integer_type(stored_type) && grey_levels(lo, hi) <= kAutoMaxLevels)
+    bins = std::max(2, int(grey_levels(lo, hi)));
+  return hist(lo, hi, bins);
 }
 
 namespace {
@@ -43,22 +69,15 @@ namespace {
 Histogram method_histogram_codes(const MethodInput& in, const ParamValues& p, Mask* codes) {
   const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
   const Stats s = compute_stats(in.volume.data(), in.volume.size(), roi);
-  if (s.count == 0) throw InputError(roi ? "no finite voxels inside the region of interest" : "no finite voxels in the volume");
-  const double clip = p.num("clip_pct");
-  const bool automatic = p.is_word("bins");
-  auto [lo, hi] = grey_range(in.volume, roi, s, clip);
-  if (clip > 0 && s.max > s.min && automatic && integer_type(in.stored_type)) {
-    lo = std::floor(lo);  // whole levels at both ends, so that bins fall on levels
-    hi = std::ceil(hi);
-  }
-  int bins = automatic ? kAutoBins : int(p.integer("bins"));
-  if (automatic && integer_type(in.stored_type) && grey_levels(lo, hi) <= kAutoMaxLevels)
-    bins = std::max(2, int(grey_levels(lo, hi)));
-  if (codes && bins <= 256) {
-    *codes = Mask(in.volume.geometry(), Uninitialized{});  // every voxel written
-    return compute_histogram_codes(in.volume.data(), in.volume.size(), lo, hi, bins, roi, codes->data());
-  }
-  return compute_histogram(in.volume.data(), in.volume.size(), lo, hi, bins, roi);
+  const HistogramOf plain = histogram_of(in.volume, roi);
+  return method_histogram(s, roi != nullptr, in.stored_type, p, [&](double lo, double hi, int bins) {
+    // grey_range's fine histogram has 65,536 bins: only the method's own can take the codes
+    if (codes && bins <= 256) {
+      *codes = Mask(in.volume.geometry(), Uninitialized{});  // every voxel written
+      return compute_histogram_codes(in.volume.data(), in.volume.size(), lo, hi, bins, roi, codes->data());
+    }
+    return plain(lo, hi, bins);
+  });
 }
 
 }  // namespace
@@ -75,10 +94,12 @@ MethodOutput pores_from_air(Mask air, const MethodInput& in, const std::string& 
   MethodOutput out;
   out.pores = std::move(air);
   out.part_voxels = air_to_pores(out.pores, in.roi);
-  if (out.part_voxels == 0)
-    out.warnings.push_back(method + ": every voxel is air connected to the outside at " + setting +
-                           ": no part voxels, porosity undefined (all air?)");
+  if (out.part_voxels == 0) out.warnings.push_back(no_part_voxels_warning(method, setting));
   return out;
+}
+
+std::string no_part_voxels_warning(const std::string& method, const std::string& setting) {
+  return method + ": every voxel is air connected to the outside at " + setting + ": no part voxels, porosity undefined (all air?)";
 }
 
 namespace {
@@ -100,10 +121,7 @@ ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const Th
   ThresholdAir a;
   Mask codes;
   a.histogram = method_histogram_codes(in, p, &codes);
-  if (single_occupied_bin(a.histogram))  // a constant volume has nothing to split: no voxel is called air
-    a.choice = {a.histogram.lo, {"the grey-value histogram has a single occupied bin (constant volume): no pores"}};
-  else
-    a.choice = calc(a.histogram, p);
+  a.choice = choose_threshold(a.histogram, calc, p);
   if (codes.empty()) {  // more than 256 bins: the codes do not fit a byte
     a.air = air_below(in.volume, a.choice.threshold, in.roi);
   } else {  // the same voxels as air_below: v < float(threshold), inside the ROI, NaN never air
@@ -114,6 +132,13 @@ ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const Th
   return a;
 }
 
+namespace {
+std::map<std::string, HistogramDecider>& deciders() {
+  static std::map<std::string, HistogramDecider> d;
+  return d;
+}
+}  // namespace
+
 MethodInfo histogram_method(std::string name, std::string doc, std::string citation, ThresholdCalculator calc,
                             std::vector<ParamSpec> extra) {
   MethodInfo m;
@@ -123,11 +148,27 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
   m.citation = std::move(citation);
   m.params = histogram_params();
   m.params.insert(m.params.end(), extra.begin(), extra.end());
+  set_histogram_decider(m.name, [calc](const Histogram& h, VoxelType, const std::function<double()>&, const ParamValues& p) {
+    return HistogramDecision{choose_threshold(h, calc, p), {}};
+  });
   m.run = [calc = std::move(calc), name = m.name](const MethodInput& in, const ParamValues& p) {
     ThresholdAir a = threshold_air(in, p, calc);
     return threshold_output(std::move(a.air), in, a.choice, name);
   };
   return m;
+}
+
+ThresholdChoice choose_threshold(const Histogram& h, const ThresholdCalculator& calc, const ParamValues& p) {
+  // A constant volume has nothing to split: no voxel is called air.
+  if (single_occupied_bin(h)) return {h.lo, {"the grey-value histogram has a single occupied bin (constant volume): no pores"}};
+  return calc(h, p);
+}
+
+void set_histogram_decider(const std::string& method, HistogramDecider d) { deciders()[method] = std::move(d); }
+
+const HistogramDecider* histogram_decider(const std::string& method) {
+  const auto it = deciders().find(method);
+  return it == deciders().end() ? nullptr : &it->second;
 }
 
 }  // namespace pb

@@ -27,12 +27,19 @@ struct GreyRange {
   double lo = 0, hi = 0;
 };
 GreyRange grey_range(const VolumeF& v, const uint8_t* roi, const Stats& s, double clip_pct);
+// The same from any source of histograms: hist(lo, hi, bins) is the histogram of the voxels over
+// [lo, hi] (compute_histogram over a volume in memory, or summed over the slabs of a volume read by
+// slabs, methods/streaming.hpp).
+using HistogramOf = std::function<Histogram(double lo, double hi, int bins)>;
+GreyRange grey_range(const Stats& s, double clip_pct, const HistogramOf& hist);
 
 // Histogram of the voxels of the volume (histogram=volume, the default) or of the ROI
 // (histogram=roi) over [min, max] or, with clip_pct > 0, over the [clip_pct, 100 - clip_pct]
 // percentile range (values outside go to the end bins; with bins=auto on integer data the range
 // is widened to whole grey levels). Its bins() is the resolved bin count.
 Histogram method_histogram(const MethodInput& in, const ParamValues& p);
+// The same from the statistics of the voxels that form the histogram and a source of histograms of them.
+Histogram method_histogram(const Stats& s, bool roi, VoxelType stored_type, const ParamValues& p, const HistogramOf& hist);
 
 // Voxel types stored as whole numbers (uint8, uint16, int16), and the grey levels in [lo, hi].
 bool integer_type(VoxelType t);
@@ -47,6 +54,7 @@ struct ThresholdChoice {
 // degenerate-input policy: when no part voxel remains (all air connected to the outside),
 // porosity is undefined and a warning says so, naming `method` and its `setting`.
 MethodOutput pores_from_air(Mask air, const MethodInput& in, const std::string& method, const std::string& setting);
+std::string no_part_voxels_warning(const std::string& method, const std::string& setting);  // its warning
 
 // Pore mask from a threshold (pores_from_air of air below it), recording it as chosen["threshold"].
 MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, const std::string& method);
@@ -66,6 +74,25 @@ struct ThresholdAir {
   Mask air;
 };
 ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const ThresholdCalculator& calc);
+
+// The threshold the histogram method `calc` chooses on h, with the one constant-volume policy (a
+// single occupied bin: no voxel is called air, and a warning says so).
+ThresholdChoice choose_threshold(const Histogram& h, const ThresholdCalculator& calc, const ParamValues& p);
+
+// All that a histogram method decides from its histogram, apart from the volume: the threshold and
+// its warnings, and what it reports as chosen after "threshold". `stored` is the voxel type the
+// method sees; lowest() the lowest grey value of the classified voxels (asked only when needed).
+// A volume read by slabs (methods/streaming.cpp) gives the same histogram and gets the same decision.
+struct HistogramDecision {
+  ThresholdChoice choice;
+  std::vector<std::pair<std::string, double>> chosen;
+};
+using HistogramDecider = std::function<HistogramDecision(const Histogram& h, VoxelType stored,
+                                                         const std::function<double()>& lowest, const ParamValues& p)>;
+// histogram_method registers choose_threshold with its calculator; a method with its own policy
+// (methods/global.cpp) registers its decider after it. nullptr for other methods.
+void set_histogram_decider(const std::string& method, HistogramDecider d);
+const HistogramDecider* histogram_decider(const std::string& method);
 
 // True when fewer than two bins are occupied (constant volume): no threshold can split it.
 bool single_occupied_bin(const Histogram& h);

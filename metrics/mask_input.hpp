@@ -8,6 +8,7 @@
 // (a grey scan) or NaN are refused. Every refusal is an InputError naming the file and the option.
 #include <cstdint>
 #include <string>
+#include <vector>
 
 #include "core/volume.hpp"
 #include "core/volume_view.hpp"
@@ -28,6 +29,18 @@ struct MaskReading {
   Mask mask;
   std::string how;  // one line: how the volume was read, e.g. "synthetic truth labels 0/1/2: pores = label 2"
 };
+
+// The rule read_mask_volume applies to an integer volume, from its value counts alone (hist[v - lowest]
+// for every value of type t: 256 for uint8, 65536 for uint16/int16), for masks read by slabs
+// (metrics/score_slabs.hpp): pores = voxels != 0 (nonzero) or == label, and the `how` line.
+struct IntegerMaskRule {
+  bool nonzero = true;
+  int64_t label = 0;
+  std::string how;
+};
+IntegerMaskRule integer_mask_rule(VoxelType t, const std::vector<int64_t>& hist, const MaskSpec& spec,
+                                  const std::string& file, const std::string& label_option,
+                                  const std::string& threshold_option);
 
 // file: the path, for messages; label_option / threshold_option: the options that set spec
 // (e.g. "--pred-label", "--pred-threshold").

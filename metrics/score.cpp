@@ -517,27 +517,43 @@ void detection_and_sizes(const ScoreOptions& opt, const LabelRuns& cp, const Lab
 }  // namespace
 
 // ---------------------------------------------------------------------------------------------
-ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, const ScoreOptions& opt) {
-  opt.validate();
-  ScoredInputs in;
-  restrict_z(pred_in, ref_in, roi_in, opt, in);
+namespace {
+
+// Everything score() computes once both sides are labelled (runs of the scored slices; z0: the
+// first scored slice of the input, for bounding boxes).
+ScoreResult score_labelled(const LabelRuns& cp, const LabelRuns& cr, const Mask* roi, int64_t z0, const ScoreOptions& opt) {
   ScoreResult r;
   r.options = opt;
-  r.geometry = in.ref->geometry();
-  const LabelRuns cp = label_runs(*in.pred, in.roi, opt.connectivity);
-  const LabelRuns cr = label_runs(*in.ref, in.roi, opt.connectivity);
-  overlap_pass(cp, cr, in.roi, r);
+  r.geometry = cr.geometry;
+  overlap_pass(cp, cr, roi, r);
   slice_jaccards(opt, r);
   porosity(r);
   pooled_cis(opt, r);
   const Directions D = lattice_directions(r.geometry.spacing_mm);
-  r.pores_ref = pore_geometry(cr, in.roi, D, in.z0);
-  r.pores_pred = pore_geometry(cp, in.roi, D, in.z0);
+  r.pores_ref = pore_geometry(cr, roi, D, z0);
+  r.pores_pred = pore_geometry(cp, roi, D, z0);
   match_pores(opt.match, opt.max_volume_ratio, r);
   false_call_ci(r);
   detection_and_sizes(opt, cp, cr, r);
   if (r.roi_voxels == 0) r.warnings.push_back("the ROI holds no voxels: every metric is undefined");
   return r;
+}
+
+}  // namespace
+
+ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, const ScoreOptions& opt) {
+  opt.validate();
+  ScoredInputs in;
+  restrict_z(pred_in, ref_in, roi_in, opt, in);
+  const LabelRuns cp = label_runs(*in.pred, in.roi, opt.connectivity);
+  const LabelRuns cr = label_runs(*in.ref, in.roi, opt.connectivity);
+  return score_labelled(cp, cr, in.roi, in.z0, opt);
+}
+
+ScoreResult score_runs(const LabelRuns& pred, const LabelRuns& ref, int64_t z0, const ScoreOptions& opt) {
+  opt.validate();
+  check_same_geometry(pred.geometry, "pred", ref.geometry, "ref");
+  return score_labelled(pred, ref, nullptr, z0, opt);
 }
 
 }  // namespace pb

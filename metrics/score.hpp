@@ -112,6 +112,12 @@ struct ScoreResult {
 // (InputError otherwise).
 ScoreResult score(const Mask& pred, const Mask& ref, const Mask* roi, const ScoreOptions& opt = {});
 
+// The same score from both sides labelled (label_runs with opt.connectivity, no ROI) over the scored
+// slices, z0 being the first of them in the input (bounding boxes are in input slice indices): for
+// masks read by slabs (metrics/score_slabs.hpp). opt.z_begin/z_end are not applied here.
+struct LabelRuns;
+ScoreResult score_runs(const LabelRuns& pred, const LabelRuns& ref, int64_t z0, const ScoreOptions& opt);
+
 // Mean of the defined values and its percentile bootstrap 95 % CI (Efron & Tibshirani 1993, ch. 13).
 // NaN entries are skipped; all NaN when fewer than 2 values are defined.
 std::array<double, 3> bootstrap_mean_ci(const std::vector<double>& v, int samples, uint64_t seed);

@@ -64,20 +64,24 @@ ScoreRecord score_record(const ScoreSetup& s, const ScoreInput& pred, const Scor
     rec.probability = probability_metrics(static_cast<const float*>(pred.volume.data), ref_read.mask,
                                           roi ? &roi_mask : nullptr, s.options.z_begin, s.options.z_end, s.pred.threshold);
   if (!with_json) return rec;
-  nlohmann::ordered_json& j = rec.json;
-  j["context"] = run_context();
-  j["command"] = "score";
   auto input = [](const ScoreInput& in) {
     return nlohmann::ordered_json{{"path", in.path}, {"sha256_voxels", sha256_hex(in.volume.data, in.volume.bytes())}};
   };
-  j["inputs"] = {{"pred", input(pred)}, {"ref", input(ref)}};
-  j["inputs"]["roi"] = roi ? input(*roi) : nlohmann::ordered_json();
+  fill_score_json(rec, input(pred), input(ref), roi ? input(*roi) : nlohmann::ordered_json());
+  return rec;
+}
+
+void fill_score_json(ScoreRecord& rec, nlohmann::ordered_json pred, nlohmann::ordered_json ref, nlohmann::ordered_json roi) {
+  nlohmann::ordered_json& j = rec.json;
+  j["context"] = run_context();
+  j["command"] = "score";
+  j["inputs"] = {{"pred", std::move(pred)}, {"ref", std::move(ref)}};
+  j["inputs"]["roi"] = std::move(roi);
   j["inputs"]["pred"]["read_as"] = rec.pred_how;
   j["inputs"]["ref"]["read_as"] = rec.ref_how;
   const nlohmann::ordered_json body = to_json(rec.result);
   for (auto it = body.begin(); it != body.end(); ++it) j[it.key()] = *it;
   if (rec.probability) j["probability"] = to_json(*rec.probability);
-  return rec;
 }
 
 void adopt_npy_geometry(AnyVolume& pv, const std::string& pred, AnyVolume& rv, const std::string& ref, AnyVolume& ov,

@@ -58,6 +58,9 @@ struct ScoreRecord {
 ScoreRecord score_record(const ScoreSetup& s, const ScoreInput& pred, const ScoreInput& ref, const ScoreInput* roi,
                          bool with_json);
 
+// rec.json from rec and the inputs' {"path", "sha256_voxels"} objects (roi: null when none).
+void fill_score_json(ScoreRecord& rec, nlohmann::ordered_json pred, nlohmann::ordered_json ref, nlohmann::ordered_json roi);
+
 // Inputs read from files: a .npy (no voxel size stored) takes the spacing and origin of an input
 // that has them (the reference first, then the prediction, then the ROI); when every input is .npy,
 // 1 mm stays and a warning says so. `say` gets one line per adoption or warning. roi may be empty.

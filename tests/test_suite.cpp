@@ -161,12 +161,12 @@ TEST_CASE("a run: cells, calibration on held-out slices, criteria and exit codes
   CHECK_THAT(r.err, Catch::Contains("--resume"));
 }
 
-TEST_CASE("SIGKILL mid-run, then --resume: same results as an uninterrupted run", "[suite][run]") {
-  TempDir d;
-  write_file(d / "tiny.toml", tiny_suite(0.0));
-  REQUIRE(run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "whole")).exit_code == 0);
-  // Start a run and kill it once a few cells are written.
-  const std::string cmd = std::string(PB_CLI_PATH) + " --quiet run " + (d / "tiny.toml") + " -o " + (d / "cut");
+namespace {
+
+// Starts `args` of porebench, SIGKILLs it once `dir`/cells holds at least `cells` cell records (or
+// after 120 s), and returns how many it held then.
+int kill_after_cells(const std::string& args, const fs::path& dir, int cells) {
+  const std::string cmd = std::string(PB_CLI_PATH) + " " + args;
   const pid_t pid = fork();
   if (pid == 0) {
     execl("/bin/sh", "sh", "-c", ("exec " + cmd + " >/dev/null 2>&1").c_str(), (char*)nullptr);
@@ -175,16 +175,39 @@ TEST_CASE("SIGKILL mid-run, then --resume: same results as an uninterrupted run"
   const auto t0 = std::chrono::steady_clock::now();
   auto count_cells = [&] {
     int n = 0;
-    if (fs::exists(d.path / "cut/cells"))
-      for (auto& e : fs::directory_iterator(d.path / "cut/cells")) n += e.path().extension() == ".json";
+    std::error_code ec;
+    if (fs::exists(dir / "cells"))
+      for (auto& e : fs::directory_iterator(dir / "cells", ec)) n += e.path().extension() == ".json";
     return n;
   };
-  while (count_cells() < 4 && std::chrono::steady_clock::now() - t0 < std::chrono::seconds(120))
+  while (count_cells() < cells && std::chrono::steady_clock::now() - t0 < std::chrono::seconds(120))
     std::this_thread::sleep_for(std::chrono::milliseconds(20));
   kill(pid, SIGKILL);
   int status = 0;
   waitpid(pid, &status, 0);
-  const int before = count_cells();
+  return count_cells();
+}
+
+// The interrupted run `cut` holds the cells of the uninterrupted run `whole` (none lost or
+// duplicated; same figures, timings aside) and no temporary files.
+void check_same_run(const fs::path& whole, const fs::path& cut) {
+  const Json a = regression_record(read_json((whole / "results.json").string()));
+  const Json b = regression_record(read_json((cut / "results.json").string()));
+  REQUIRE(b["cells"].size() == 15);
+  CHECK(a["cells"].dump() == b["cells"].dump());
+  CHECK(a["selections"].dump() == b["selections"].dump());
+  for (auto& e : fs::recursive_directory_iterator(cut))
+    CHECK(e.path().filename().string().find(".partial-") == std::string::npos);
+}
+
+}  // namespace
+
+TEST_CASE("SIGKILL mid-run, then --resume: same results as an uninterrupted run", "[suite][run]") {
+  TempDir d;
+  write_file(d / "tiny.toml", tiny_suite(0.0));
+  REQUIRE(run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "whole")).exit_code == 0);
+  // Start a run and kill it once a few cells are written.
+  const int before = kill_after_cells("--quiet run " + (d / "tiny.toml") + " -o " + (d / "cut"), d.path / "cut", 4);
   INFO("cells before the kill: " << before);
   // Really interrupted, and after some cells were written (a kill before the first cell would
   // turn this into a fresh run and test nothing of resuming).
@@ -194,15 +217,7 @@ TEST_CASE("SIGKILL mid-run, then --resume: same results as an uninterrupted run"
   INFO(r.err);
   REQUIRE(r.exit_code == 0);
   CHECK_THAT(r.out, Catch::Contains(std::to_string(before) + " already done"));
-  // Same cells, none lost or duplicated; same figures, timings aside.
-  const Json a = regression_record(read_json(d / "whole/results.json"));
-  const Json b = regression_record(read_json(d / "cut/results.json"));
-  REQUIRE(b["cells"].size() == 15);
-  CHECK(a["cells"].dump() == b["cells"].dump());
-  CHECK(a["selections"].dump() == b["selections"].dump());
-  // No temporary files left behind.
-  for (auto& e : fs::recursive_directory_iterator(d.path / "cut"))
-    CHECK(e.path().filename().string().find(".partial-") == std::string::npos);
+  check_same_run(d.path / "whole", d.path / "cut");
 }
 
 TEST_CASE("compare: identical runs show no difference; a worse candidate is a regression", "[suite][compare]") {
@@ -328,4 +343,30 @@ TEST_CASE("a run record with missing or mistyped fields is refused before any re
   CHECK_THAT(r.err, Catch::Contains("field 'criteria'") && Catch::Contains("an array") && Catch::Contains("wrong type"));
   CHECK_FALSE(fs::exists(run / "results.json"));
   CHECK_FALSE(fs::exists(run / "report.html"));
+}
+
+TEST_CASE("a shard SIGKILLed and resubmitted gives the results of a single-process run", "[suite][run][slurm]") {
+  // What a cluster does when a job-array task is killed (node failure, time limit) and resubmitted:
+  // the same `run --shard K/N --resume` again. Reference: the single-process run of the suite.
+  TempDir d;
+  write_file(d / "tiny.toml", tiny_suite(0.0));
+  REQUIRE(run_cli("--quiet run " + (d / "tiny.toml") + " -o " + (d / "whole")).exit_code == 0);
+  const std::string sharded = "--quiet run " + (d / "tiny.toml") + " -o " + (d / "sharded");
+  REQUIRE(run_cli(sharded + " --shard 2/2").exit_code == 0);
+  int shard2 = 0;
+  for (auto& e : fs::directory_iterator(d.path / "sharded/cells")) shard2 += e.path().extension() == ".json";
+  REQUIRE(shard2 > 0);
+  REQUIRE(shard2 < 15);
+  // Shard 1/2 killed after two of its cells: interrupted, with some of its work on disk.
+  const int before = kill_after_cells(sharded + " --shard 1/2 --resume", d.path / "sharded", shard2 + 2);
+  INFO("cells before the kill: " << before << " (shard 2/2 wrote " << shard2 << ")");
+  REQUIRE(before >= shard2 + 2);
+  REQUIRE(before < 15);
+  CHECK_FALSE(fs::exists(d.path / "sharded/results.json"));
+  // Resubmitted: it finds its cells done, runs the rest, and (the last shard) writes the reports.
+  const auto r = run_cli(sharded + " --shard 1/2 --resume");
+  INFO(r.out << r.err);
+  REQUIRE(r.exit_code == 0);
+  REQUIRE(fs::exists(d.path / "sharded/results.json"));
+  check_same_run(d.path / "whole", d.path / "sharded");
 }

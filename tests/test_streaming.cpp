@@ -1,0 +1,293 @@
+// Volumes larger than memory (issue 17): the slab pipeline against the in-memory path, voxel for
+// voxel, with forced small slabs. Reference: the in-memory path of the same method, which is itself
+// checked against scikit-image/scipy (test_global.cpp: Otsu; test_prefilter.cpp: scipy.ndimage
+// median; test_local.cpp: scikit-image threshold_sauvola; test_pores.cpp: scipy.ndimage.label).
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <random>
+
+#include "core/components.hpp"
+#include "core/io.hpp"
+#include "core/slabs.hpp"
+#include "methods/pores.hpp"
+#include "methods/registry.hpp"
+#include "methods/streaming.hpp"
+#include "metrics/score_slabs.hpp"
+#include "tests/helpers.hpp"
+
+using namespace pb;
+
+namespace {
+
+// A part (a block of material inside an air margin) holding dark spherical pores and an air
+// channel from the outside, with Gaussian noise (invented data: a glass-filled polyamide blank).
+template <class T>
+Image<T> part_volume(const Geometry& g, unsigned seed, double offset = 0) {
+  Image<T> v(g);
+  std::mt19937_64 rng(seed);
+  std::normal_distribution<double> noise(0, 6);
+  std::uniform_real_distribution<double> u(0, 1);
+  struct Ball {
+    double x, y, z, r;
+  };
+  std::vector<Ball> balls;
+  for (int k = 0; k < 14; ++k)
+    balls.push_back({4 + u(rng) * double(g.dims[0] - 8), 4 + u(rng) * double(g.dims[1] - 8),
+                     4 + u(rng) * double(g.dims[2] - 8), 0.8 + 2.2 * u(rng)});
+  for (int64_t z = 0; z < g.dims[2]; ++z)
+    for (int64_t y = 0; y < g.dims[1]; ++y)
+      for (int64_t x = 0; x < g.dims[0]; ++x) {
+        const bool inside = x >= 2 && y >= 2 && z >= 2 && x < g.dims[0] - 2 && y < g.dims[1] - 2 && z < g.dims[2] - 2;
+        bool dark = !inside || (y == g.dims[1] / 2 && x < g.dims[0] / 2 && z == g.dims[2] / 3);  // channel
+        for (const Ball& b : balls)
+          dark = dark || std::hypot(x - b.x, y - b.y, z - b.z) <= b.r;
+        const double grey = (dark ? 60.0 : 180.0) + noise(rng) + offset;
+        v(x, y, z) = T(std::round(grey));
+      }
+  return v;
+}
+
+Geometry geometry(int64_t nx, int64_t ny, int64_t nz) {
+  Geometry g;
+  g.dims = {nx, ny, nz};
+  g.spacing_mm = {0.05, 0.05, 0.06};
+  g.origin_mm = {1.5, -2.0, 3.25};
+  return g;
+}
+
+struct Outcome {
+  Mask pores;
+  std::vector<std::pair<std::string, double>> chosen;
+  std::vector<std::string> warnings;
+  int64_t part_voxels = 0;
+};
+
+Outcome in_memory(const std::string& path, const std::string& method, const std::vector<std::string>& sets,
+                  const ReadOptions& ro = {}) {
+  const AnyVolume raw = read_volume(path, ro);
+  const VolumeF v = raw.to_float();
+  const MethodInfo& m = Registry::instance().get(method);
+  MethodOutput out = run_method(m, parse_params(m, sets), MethodInput{v, nullptr, raw.type()});
+  return {std::move(out.pores), out.chosen, out.warnings, out.part_voxels};
+}
+
+Outcome by_slabs(const std::string& path, const std::string& method, const std::vector<std::string>& sets,
+                 int64_t slab, const std::string& out_path, const ReadOptions& ro = {}) {
+  const MethodInfo& m = Registry::instance().get(method);
+  const SlabSegmentResult r = segment_by_slabs(method, parse_params(m, sets), SlabFile(path, ro), out_path, {slab});
+  Outcome o{read_volume(out_path).to_mask(), r.chosen, r.warnings, r.part_voxels};
+  CHECK(r.pore_voxels == count_nonzero(o.pores));
+  return o;
+}
+
+void check_same(const Outcome& a, const Outcome& b) {
+  REQUIRE(a.pores.geometry().dims == b.pores.geometry().dims);
+  CHECK(a.pores.buffer() == b.pores.buffer());  // bit for bit
+  CHECK(a.part_voxels == b.part_voxels);
+  CHECK(a.chosen == b.chosen);
+  CHECK(a.warnings == b.warnings);
+}
+
+}  // namespace
+
+TEST_CASE("slab segmentation equals the in-memory path, every streaming method family", "[streaming]") {
+  pbtest::TempDir d;
+  const Geometry g = geometry(37, 33, 29);
+  write_volume(part_volume<uint16_t>(g, 7), d / "scan.mha");
+  const std::string scan = d / "scan.mha";
+  struct Case {
+    std::string method;
+    std::vector<std::string> sets;
+  };
+  const std::vector<Case> cases = {
+      {"otsu", {}},
+      {"otsu", {"bins=64", "clip_pct=1", "min_pore_voxels=4"}},
+      {"triangle", {}},
+      {"median+otsu", {}},
+      {"median+otsu", {"median.radius=2"}},
+      {"sauvola", {"window=7"}},
+      {"sauvola", {"window=9", "k=0.3", "clip_pct=2", "min_pore_voxels=3"}},
+  };
+  for (const Case& c : cases)
+    for (int64_t slab : {1, 3, 7, 29}) {
+      INFO(c.method << " " << (c.sets.empty() ? "" : c.sets[0]) << ", slabs of " << slab << " slices");
+      const Outcome ref = in_memory(scan, c.method, c.sets);
+      REQUIRE(count_nonzero(ref.pores) > 0);  // the case has pores to compare
+      check_same(by_slabs(scan, c.method, c.sets, slab, d / "pores.mha"), ref);
+    }
+}
+
+TEST_CASE("slab segmentation reads int16, float32, big-endian NRRD and raw as read_volume does", "[streaming]") {
+  pbtest::TempDir d;
+  const Geometry g = geometry(31, 28, 23);
+  SECTION("int16 MetaImage with negative grey values") {
+    write_volume(part_volume<int16_t>(g, 11, -120), d / "s.mha");
+    check_same(by_slabs(d / "s.mha", "otsu", {}, 3, d / "p.nrrd"), in_memory(d / "s.mha", "otsu", {}));
+    check_same(by_slabs(d / "s.mha", "median+otsu", {}, 4, d / "p.mha"), in_memory(d / "s.mha", "median+otsu", {}));
+  }
+  SECTION("float32 (global methods; sauvola's mean is summed in another order)") {
+    write_volume(part_volume<float>(g, 12), d / "s.nrrd");
+    check_same(by_slabs(d / "s.nrrd", "otsu", {}, 3, d / "p.mha"), in_memory(d / "s.nrrd", "otsu", {}));
+  }
+  SECTION("big-endian raw with a header") {
+    const AnyVolume v(part_volume<uint16_t>(g, 13));
+    write_raw(v, d / "s.raw", true, 100);
+    ReadOptions ro;
+    ro.raw = RawSpec{g.dims, VoxelType::u16, true, 100, g.spacing_mm};
+    check_same(by_slabs(d / "s.raw", "sauvola", {"window=5"}, 3, d / "p.mha", ro), in_memory(d / "s.raw", "sauvola", {"window=5"}, ro));
+  }
+  SECTION("big-endian NRRD (endian: big)") {
+    const AnyVolume v(part_volume<uint16_t>(g, 14));
+    write_raw(v, d / "s.raw", true, 0);
+    pbtest::write_file(d / "s.nhdr", "NRRD0004\ntype: uint16\ndimension: 3\nsizes: 31 28 23\nspacings: 0.05 0.05 0.06\n"
+                                     "endian: big\nencoding: raw\ndata file: s.raw\n\n");
+    ReadOptions ro;
+    ro.raw = RawSpec{g.dims, VoxelType::u16, true, 0, {0.05, 0.05, 0.06}};
+    check_same(by_slabs(d / "s.nhdr", "otsu", {}, 3, d / "p.mha"), in_memory(d / "s.raw", "otsu", {}, ro));
+  }
+}
+
+TEST_CASE("run labelling by slabs equals label_runs on the whole mask", "[streaming][components]") {
+  // Reference: label_runs on the whole mask (itself checked against scipy.ndimage.label, test_components.cpp).
+  Geometry g;
+  g.dims = {45, 17, 23};
+  Mask m(g);
+  std::mt19937 rng(5);
+  std::bernoulli_distribution on(0.35);
+  for (int64_t i = 0; i < m.size(); ++i) m[i] = on(rng);
+  for (int conn : {6, 18, 26}) {
+    const LabelRuns whole = label_runs(m, nullptr, conn);
+    for (int64_t slab : {1, 2, 3, 5, 23}) {
+      INFO("connectivity " << conn << ", slabs of " << slab);
+      RunCollector c(g);
+      for (int64_t z = 0; z < g.dims[2]; z += slab) c.add(m.slice(z), std::min(slab, g.dims[2] - z));
+      const LabelRuns s = c.finish(conn);
+      CHECK(s.count == whole.count);
+      CHECK(s.row_begin == whole.row_begin);
+      CHECK(std::equal(s.label.begin(), s.label.end(), whole.label.begin(), whole.label.end()));
+      CHECK(s.sizes == whole.sizes);
+    }
+  }
+}
+
+TEST_CASE("a pore crossing slab faces is one pore, and air reaching the outside only past a face is no pore",
+          "[streaming]") {
+  // Analytic case: one U-shaped pore whose two arms meet only in the last slab, and an air channel
+  // that reaches the volume border only in a later slab than where it passes the part. Slabs of 3
+  // slices put faces at z = 3, 6, 9.
+  pbtest::TempDir d;
+  Geometry g;
+  g.dims = {20, 16, 12};
+  Image<uint8_t> v(g, uint8_t(200));
+  for (int64_t z = 2; z <= 9; ++z) {
+    v(5, 5, z) = 10;  // arm 1
+    v(9, 5, z) = 10;  // arm 2
+  }
+  for (int64_t x = 5; x <= 9; ++x) v(x, 5, 9) = 10;  // the bottom of the U, in slab 3
+  // Channel: from (14, 10, 1) down to z = 10, then along x to the border at z = 10.
+  for (int64_t z = 1; z <= 10; ++z) v(14, 10, z) = 10;
+  for (int64_t x = 14; x < 20; ++x) v(x, 10, 10) = 10;
+  write_volume(v, d / "u.mha");
+  const Outcome ref = in_memory(d / "u.mha", "otsu", {});
+  const Outcome s = by_slabs(d / "u.mha", "otsu", {}, 3, d / "p.mha");
+  check_same(s, ref);
+  CHECK(count_nonzero(s.pores) == 8 + 8 + 3);  // the U: two arms of 8 voxels and 3 between them
+  CHECK(label_components(s.pores, 26).count == 1);
+  CHECK(s.pores(14, 10, 5) == 0);  // the channel is outside air
+}
+
+TEST_CASE("segment refuses what cannot stream above --memory-limit, naming file, size and limit", "[streaming][cli]") {
+  pbtest::TempDir d;
+  const Geometry g = geometry(24, 20, 18);
+  write_volume(part_volume<uint16_t>(g, 3), d / "scan.mha");
+  SECTION("a method that does not stream") {
+    const auto r = pbtest::run_cli("segment niblack " + d / "scan.mha" + " -o " + d / "p.mha" + " --memory-limit 4K");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains(d / "scan.mha") && Catch::Contains("24 x 20 x 18 voxels of uint16, 17280 bytes") &&
+                          Catch::Contains("--memory-limit 4096 bytes") && Catch::Contains("method niblack"));
+    CHECK_FALSE(pbtest::fs::exists(d / "p.mha"));
+  }
+  SECTION("a compressed input") {
+    WriteOptions wo;
+    wo.compress = true;
+    write_volume(part_volume<uint16_t>(g, 3), d / "z.mha", wo);
+    const auto r = pbtest::run_cli("segment otsu " + d / "z.mha" + " -o " + d / "p.mha" + " --memory-limit 4K");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains("compressed") && Catch::Contains("17280 bytes"));
+  }
+  SECTION("a bad limit") {
+    const auto r = pbtest::run_cli("segment otsu " + d / "scan.mha" + " -o " + d / "p.mha" + " --memory-limit 12Q");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains("--memory-limit '12Q'"));
+  }
+  SECTION("above the limit by slabs, below it in memory: the same mask") {
+    const auto a = pbtest::run_cli("segment median+otsu " + d / "scan.mha" + " -o " + d / "a.mha" +
+                                   " --memory-limit 4K --slab-slices 3 --json " + d / "a.json");
+    const auto b = pbtest::run_cli("segment median+otsu " + d / "scan.mha" + " -o " + d / "b.mha" + " --json " + d / "b.json");
+    REQUIRE(a.exit_code == 0);
+    REQUIRE(b.exit_code == 0);
+    CHECK_THAT(a.err, Catch::Contains("by slabs of 3 slices"));
+    CHECK(read_volume(d / "a.mha").to_mask().buffer() == read_volume(d / "b.mha").to_mask().buffer());
+    const auto ja = pbtest::read_json(d / "a.json"), jb = pbtest::read_json(d / "b.json");
+    CHECK(ja["input"]["sha256_voxels"] == jb["input"]["sha256_voxels"]);
+    CHECK(ja["pore_voxels"] == jb["pore_voxels"]);
+    CHECK(ja["chosen"] == jb["chosen"]);
+  }
+}
+
+TEST_CASE("scoring by slabs equals score() on the masks in memory", "[streaming][metrics]") {
+  // Reference: score() in memory (its figures are checked against scipy/scikit-learn in test_metrics_*.cpp).
+  pbtest::TempDir d;
+  const Geometry g = geometry(34, 30, 26);
+  const Image<uint16_t> a = part_volume<uint16_t>(g, 21), b = part_volume<uint16_t>(g, 22);
+  // Pred: dark voxels of one scan; ref: synthetic truth labels 0/1/2 (pores = 2) of the other.
+  Image<uint8_t> pred(g), ref(g);
+  for (int64_t i = 0; i < pred.size(); ++i) {
+    pred[i] = a[i] < 120;
+    ref[i] = b[i] < 120 ? 2 : 1;
+  }
+  write_volume(pred, d / "pred.mha");
+  write_volume(ref, d / "ref.nrrd");
+  ScoreArgs args;
+  args.bootstrap = 200;
+  for (const std::string z : {"", "5:19"}) {
+    args.z_range = z;
+    const ScoreSetup s = score_setup(args);
+    const AnyVolume pv = read_volume(d / "pred.mha"), rv = read_volume(d / "ref.nrrd");
+    const ScoreRecord mem = score_record(s, {view_of(pv), d / "pred.mha", d / "pred.mha"}, {view_of(rv), d / "ref.nrrd", d / "ref.nrrd"},
+                                         nullptr, true);
+    REQUIRE(mem.result.pores_ref.size() > 3);
+    for (int64_t slab : {1, 3, 26}) {
+      INFO("z range '" << z << "', slabs of " << slab);
+      const ScoreRecord sl = score_record_by_slabs(s, SlabFile(d / "pred.mha", {}), SlabFile(d / "ref.nrrd", {}), true, slab);
+      CHECK(sl.ref_how == mem.ref_how);
+      CHECK(sl.pred_how == mem.pred_how);
+      nlohmann::ordered_json jm = mem.json, js = sl.json;
+      jm.erase("context"), js.erase("context");  // run time and host
+      CHECK(js.dump() == jm.dump());
+    }
+  }
+}
+
+TEST_CASE("score refuses what cannot stream above --memory-limit", "[streaming][cli]") {
+  pbtest::TempDir d;
+  Geometry g = geometry(20, 16, 12);
+  Image<uint8_t> m(g);
+  m(5, 5, 5) = 1;
+  write_volume(m, d / "p.mha");
+  write_volume(m, d / "r.mha");
+  SECTION("with an ROI") {
+    const auto r = pbtest::run_cli("score --pred " + d / "p.mha" + " --ref " + d / "r.mha" + " --roi " + d / "r.mha" + " --memory-limit 1K");
+    CHECK(r.exit_code == 2);
+    CHECK_THAT(r.err, Catch::Contains(d / "p.mha") && Catch::Contains("20 x 16 x 12 voxels of uint8, 3840 bytes") &&
+                          Catch::Contains("--memory-limit 1024 bytes") && Catch::Contains("ROI"));
+  }
+  SECTION("without: scored by slabs, the figures of the in-memory run") {
+    const auto a = pbtest::run_cli("score --pred " + d / "p.mha" + " --ref " + d / "r.mha" + " --memory-limit 1K --slab-slices 2");
+    const auto b = pbtest::run_cli("score --pred " + d / "p.mha" + " --ref " + d / "r.mha");
+    REQUIRE(a.exit_code == 0);
+    CHECK_THAT(a.err, Catch::Contains("scored by slabs"));
+    CHECK(a.out == b.out);
+  }
+}
