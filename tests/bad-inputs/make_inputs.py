@@ -234,4 +234,28 @@ os.remove(p("npy-full.npy"))
 huge = scan(8, np.float64)  # float64 is read as float32; 1e300 does not fit (float32 max ~3.4e38)
 huge[4, 4, 4] = 1e300
 np.save(p("float64-huge.npy"), huge)
+
+
+def dicom_ct(name, rows, cols, pixel_spacing=None):
+    """One DICOM Part 10 file, CT Image Storage, explicit VR little endian (DICOM PS3.10 file meta,
+    PS3.5 encoding; from memory), uint16 voxels; Pixel Spacing (0028,0030) only when given."""
+    def el(group, elem, vr, value):
+        if len(value) % 2:
+            value += b"\0" if vr == b"UI" else b" "
+        if vr in (b"OB", b"OW"):
+            return struct.pack("<HH", group, elem) + vr + b"\0\0" + struct.pack("<I", len(value)) + value
+        return struct.pack("<HH", group, elem) + vr + struct.pack("<H", len(value)) + value
+    us = lambda v: struct.pack("<H", v)
+    ct, uid = b"1.2.840.10008.5.1.4.1.1.2", b"1.2.826.0.1.3680043.2.1125.99.2"
+    meta = el(2, 1, b"OB", b"\0\1") + el(2, 2, b"UI", ct) + el(2, 3, b"UI", uid) + el(2, 0x10, b"UI", b"1.2.840.10008.1.2.1")
+    data = (el(8, 0x16, b"UI", ct) + el(8, 0x18, b"UI", uid) + el(8, 0x60, b"CS", b"CT") + el(0x28, 2, b"US", us(1)) +
+            el(0x28, 4, b"CS", b"MONOCHROME2") + el(0x28, 0x10, b"US", us(rows)) + el(0x28, 0x11, b"US", us(cols)))
+    if pixel_spacing:
+        data += el(0x28, 0x30, b"DS", pixel_spacing.encode())
+    data += (el(0x28, 0x100, b"US", us(16)) + el(0x28, 0x101, b"US", us(16)) + el(0x28, 0x102, b"US", us(15)) +
+             el(0x28, 0x103, b"US", us(0)) + el(0x7FE0, 0x10, b"OW", scan(rows)[0, :, :cols].astype("<u2").tobytes()))
+    write(name, b"\0" * 128 + b"DICM" + el(2, 0, b"UL", struct.pack("<I", len(meta))) + meta + data)
+
+
+dicom_ct("dicom-no-spacing.dcm", 16, 16)  # GDCM would read it at 1 mm
 print("wrote the bad-input catalogue inputs into", W)
