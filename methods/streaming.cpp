@@ -4,12 +4,17 @@
 // that the mask is the in-memory mask voxel for voxel.
 #include "methods/streaming.hpp"
 
+#include <fcntl.h>
 #include <omp.h>
+#include <unistd.h>
 
 #include <algorithm>
+#include <array>
+#include <cerrno>
 #include <chrono>
 #include <cmath>
 #include <cstring>
+#include <filesystem>
 #include <map>
 #include <memory>
 #include <sstream>
@@ -89,6 +94,99 @@ class MedianSlabs : public Slabs {
   const Slabs& in_;
   int r_;
   mutable VolumeF src_;  // the slab with its halo, reused
+};
+
+// The slabs of a pre-filter kept after their first pass, so that the filter runs once although
+// the method reads the volume twice (histogram, then air): slabs read in z order are written to an
+// unlinked temporary file beside the output as whole grey levels of the stored type (the median of
+// integer data is one of its values), and read back from there. The file lives in the page cache
+// or on disk, not in the process's memory, and vanishes with the process however it ends.
+class KeptSlabs : public Slabs {
+ public:
+  KeptSlabs(const Slabs& in, VoxelType stored, const std::string& dir) : in_(in), type_(stored) {
+    fd_ = ::open(dir.c_str(), O_TMPFILE | O_RDWR | O_CLOEXEC, 0600);
+    if (fd_ < 0) {  // no O_TMPFILE on this file system: a named file, unlinked at once
+      std::string tmpl = (dir.empty() ? std::string(".") : dir) + "/.porebench-slabs-XXXXXX";
+      fd_ = ::mkstemp(tmpl.data());
+      if (fd_ >= 0) ::unlink(tmpl.c_str());
+    }
+  }
+  ~KeptSlabs() override {
+    if (fd_ >= 0) ::close(fd_);
+  }
+  const Geometry& geometry() const override { return in_.geometry(); }
+  void read(int64_t z0, int64_t z1, VolumeF& out) const override {
+    const int64_t nxy = geometry().slice_voxels(), width = voxel_type_bytes(type_);
+    if (z1 <= kept_) {  // read back
+      if (out.geometry().dims != slab_dims(z0, z1)) out = VolumeF(slab_geometry(z0, z1), Uninitialized{});
+      out.set_geometry_keep_dims(slab_geometry(z0, z1));
+      buf_.resize(size_t((z1 - z0) * nxy * width));
+      if (!pread_all(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width)))
+        throw InputError("cannot read back the filtered slabs: " + std::string(std::strerror(errno)));
+      with_type([&](auto zero) {
+        using T = decltype(zero);
+        const T* v = reinterpret_cast<const T*>(buf_.data());
+        float* o = out.data();
+        const int64_t n = out.size();
+#pragma omp parallel for schedule(static)
+        for (int64_t i = 0; i < n; ++i) o[i] = float(v[i]);
+      });
+      return;
+    }
+    in_.read(z0, z1, out);
+    if (fd_ < 0 || z0 != kept_) return;  // not in order: not kept
+    buf_.resize(size_t((z1 - z0) * nxy * width));
+    with_type([&](auto zero) {
+      using T = decltype(zero);
+      T* v = reinterpret_cast<T*>(buf_.data());
+      const float* f = out.data();
+      const int64_t n = out.size();
+#pragma omp parallel for schedule(static)
+      for (int64_t i = 0; i < n; ++i) v[i] = T(f[i]);
+    });
+    if (pwrite_all(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width))) kept_ = z1;
+  }
+
+ private:
+  template <class F> void with_type(F&& f) const {
+    switch (type_) {
+      case VoxelType::u8: return f(uint8_t{});
+      case VoxelType::u16: return f(uint16_t{});
+      case VoxelType::i16: return f(int16_t{});
+      case VoxelType::f32: return f(float{});
+    }
+  }
+  std::array<int64_t, 3> slab_dims(int64_t z0, int64_t z1) const { return slab_geometry(z0, z1).dims; }
+  Geometry slab_geometry(int64_t z0, int64_t z1) const {
+    Geometry g = geometry();
+    g.dims[2] = z1 - z0;
+    g.origin_mm[2] += double(z0) * g.spacing_mm[2];
+    return g;
+  }
+  bool pread_all(uint8_t* p, size_t n, uint64_t off) const {
+    while (n > 0) {
+      const ssize_t r = ::pread(fd_, p, n, off_t(off));
+      if (r < 0 && errno == EINTR) continue;
+      if (r <= 0) return false;
+      p += r, n -= size_t(r), off += uint64_t(r);
+    }
+    return true;
+  }
+  bool pwrite_all(const uint8_t* p, size_t n, uint64_t off) const {  // false (disk full...): not kept
+    while (n > 0) {
+      const ssize_t w = ::pwrite(fd_, p, n, off_t(off));
+      if (w < 0 && errno == EINTR) continue;
+      if (w <= 0) return false;
+      p += w, n -= size_t(w), off += uint64_t(w);
+    }
+    return true;
+  }
+
+  const Slabs& in_;
+  VoxelType type_;
+  int fd_ = -1;
+  mutable int64_t kept_ = 0;  // slices [0, kept_) are in the file
+  mutable std::vector<uint8_t> buf_;
 };
 
 template <class F>
@@ -363,6 +461,12 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
     const ParamValues fp = stage_params(f.params, f.name + ".", params);
     medians.push_back(std::make_unique<MedianSlabs>(*src, int(fp.integer("radius"))));
     src = medians.back().get();
+  }
+  std::unique_ptr<KeptSlabs> kept;
+  if (parts.size() > 1) {
+    const std::string dir = std::filesystem::path(output).parent_path().string();
+    kept = std::make_unique<KeptSlabs>(*src, in.type(), dir.empty() ? "." : dir);
+    src = kept.get();
   }
   // Composed methods see float data (Registry::compose); the grey levels stay whole numbers.
   const VoxelType hist_type = parts.size() > 1 ? VoxelType::f32 : in.type();
