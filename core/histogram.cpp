@@ -134,16 +134,21 @@ template <bool kMask, bool kCodes>
 void count_range(const float* d, const uint8_t* mask, int64_t b, int64_t e, const Binner& bin, int spare,
                  uint32_t* tables, size_t stride, uint8_t* codes) {
   alignas(64) int32_t idx[kChunk];
+  alignas(64) uint8_t code[kChunk];
   int64_t i = b;
   for (; i + kChunk <= e; i += kChunk) {
+    // Local arrays only (a store through `codes`, a byte pointer, could alias anything and keeps
+    // the loop from vectorising): the codes are copied out after.
     for (int j = 0; j < kChunk; ++j) {
       const float v = d[i + j];
       const int k = bin(v);
-      if constexpr (kCodes) codes[i + j] = uint8_t(v != v ? 255 : k);
-      bool skip = v != v;
-      if constexpr (kMask) skip = skip || !mask[i + j];
-      idx[j] = skip ? spare : k;
+      const bool nan = v != v;
+      int in = 1;
+      if constexpr (kMask) in = mask[i + j];
+      idx[j] = nan | (in == 0) ? spare : k;
+      if constexpr (kCodes) code[j] = uint8_t(nan ? 255 : k);
     }
+    if constexpr (kCodes) std::memcpy(codes + i, code, kChunk);
     for (int j = 0; j < kChunk; j += kTables)
       for (int t = 0; t < kTables; ++t) ++tables[size_t(t) * stride + size_t(idx[j + t])];
   }
@@ -220,9 +225,8 @@ void below_from_codes(uint8_t* codes, const float* d, int64_t n, const Histogram
       below[j] = c[j] < k;
       own |= c[j] == k;
     }
-    if (own)
-      for (int64_t j = 0; j < m; ++j)
-        if (c[j] == k) below[j] = d[b + j] < t;
+    if (own)  // branch-free, so that it vectorises: the chunk's values are read once
+      for (int64_t j = 0; j < m; ++j) below[j] = uint8_t(below[j] | ((c[j] == k) & (d[b + j] < t)));
     if (mask)
       for (int64_t j = 0; j < m; ++j) c[j] = below[j] & (mask[b + j] != 0);
     else
