@@ -231,7 +231,7 @@ VolumeF median_filter(const VolumeF& in, int radius) {
   const NetworkFn run_network = apply_network;
 #endif
   constexpr int L = kLanes;
-  VolumeF out(in.geometry());
+  VolumeF out(in.geometry(), Uninitialized{});  // every voxel written below (no serial zero-fill)
   const int64_t padded = nx + 2 * radius + L;
 #pragma omp parallel
   {

@@ -121,7 +121,7 @@ class KeptSlabs : public Slabs {
       if (out.geometry().dims != slab_dims(z0, z1)) out = VolumeF(slab_geometry(z0, z1), Uninitialized{});
       out.set_geometry_keep_dims(slab_geometry(z0, z1));
       buf_.resize(size_t((z1 - z0) * nxy * width));
-      if (!pread_all(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width)))
+      if (!transfer(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width), false))
         throw InputError("cannot read back the filtered slabs: " + std::string(std::strerror(errno)));
       with_type([&](auto zero) {
         using T = decltype(zero);
@@ -144,7 +144,7 @@ class KeptSlabs : public Slabs {
 #pragma omp parallel for schedule(static)
       for (int64_t i = 0; i < n; ++i) v[i] = T(f[i]);
     });
-    if (pwrite_all(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width))) kept_ = z1;
+    if (transfer(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width), true)) kept_ = z1;
   }
 
  private:
@@ -163,21 +163,13 @@ class KeptSlabs : public Slabs {
     g.origin_mm[2] += double(z0) * g.spacing_mm[2];
     return g;
   }
-  bool pread_all(uint8_t* p, size_t n, uint64_t off) const {
+  // All n bytes at off, read or written; false on an error or a full disk.
+  bool transfer(uint8_t* p, size_t n, uint64_t off, bool write) const {
     while (n > 0) {
-      const ssize_t r = ::pread(fd_, p, n, off_t(off));
+      const ssize_t r = write ? ::pwrite(fd_, p, n, off_t(off)) : ::pread(fd_, p, n, off_t(off));
       if (r < 0 && errno == EINTR) continue;
       if (r <= 0) return false;
       p += r, n -= size_t(r), off += uint64_t(r);
-    }
-    return true;
-  }
-  bool pwrite_all(const uint8_t* p, size_t n, uint64_t off) const {  // false (disk full...): not kept
-    while (n > 0) {
-      const ssize_t w = ::pwrite(fd_, p, n, off_t(off));
-      if (w < 0 && errno == EINTR) continue;
-      if (w <= 0) return false;
-      p += w, n -= size_t(w), off += uint64_t(w);
     }
     return true;
   }
