@@ -4,7 +4,6 @@
 #include <algorithm>
 #include <cstdio>
 #include <filesystem>
-#include <fstream>
 #include <iostream>
 #include <new>
 #include <stdexcept>
@@ -17,6 +16,7 @@
 #include "core/names.hpp"
 #include "core/npy.hpp"
 #include "core/parallel.hpp"
+#include "core/text_file.hpp"
 #include "suites/preflight.hpp"
 
 namespace pb::cli {
@@ -79,11 +79,12 @@ ReadOptions ReadArgs::options(const std::string& input) const {
 
 nlohmann::ordered_json load_results(const std::string& dir) {
   const std::string path = dir + "/results.json";
-  std::ifstream f(path);
-  if (!f) throw InputError("no results.json in " + dir + " (run the suite there first)");
+  std::error_code ec;
+  if (!std::filesystem::exists(path, ec)) throw InputError("no results.json in " + dir + " (run the suite there first)");
+  const std::string text = read_text_file(path, "results", kMaxRecordFileBytes);
   nlohmann::ordered_json j;
   try {
-    j = nlohmann::ordered_json::parse(f);
+    j = nlohmann::ordered_json::parse(text);
   } catch (const std::exception& e) {
     throw InputError("cannot parse " + path + ": " + e.what());
   }

@@ -22,6 +22,7 @@
 #include "core/error.hpp"
 #include "core/io.hpp"
 #include "core/parallel.hpp"
+#include "core/text_file.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"
 
@@ -96,11 +97,7 @@ struct CardReader {
 }  // namespace
 
 ModelCard read_model_card(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  if (!f) throw InputError("model card " + path + ": cannot be opened (missing or unreadable)");
-  std::stringstream ss;
-  ss << f.rdbuf();
-  return parse_model_card(ss.str(), path);
+  return parse_model_card(read_text_file(path, "model card"), path);
 }
 
 ModelCard parse_model_card(const std::string& text, const std::string& path) {

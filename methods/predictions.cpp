@@ -13,13 +13,13 @@
 
 #include <cmath>
 #include <filesystem>
-#include <fstream>
 
 #include "core/error.hpp"
 #include "core/format.hpp"
 #include "core/io.hpp"
 #include "core/json.hpp"
 #include "core/npy.hpp"
+#include "core/text_file.hpp"
 #include "methods/pores.hpp"
 #include "methods/registry.hpp"
 
@@ -80,10 +80,10 @@ double read_runtime_sidecar(const std::string& path, bool* found) {
   for (const auto& c : candidates) {
     std::error_code ec;
     if (c == p || !fs::is_regular_file(c, ec)) continue;
-    std::ifstream f(c);
+    const std::string text = read_text_file(c.string(), "prediction sidecar");
     nlohmann::json j;
     try {
-      j = nlohmann::json::parse(f);
+      j = nlohmann::json::parse(text);
     } catch (const std::exception& e) {
       throw InputError("prediction sidecar " + c.string() + " is not valid JSON: " + e.what());
     }

@@ -96,9 +96,10 @@ Json assemble_results(const std::string& out_dir) {
   return results;
 }
 
-bool write_results(const std::string& out_dir) {
+Json write_results(const std::string& out_dir) {
   // The cells and suite.json are files a user may have edited: a field they lack is named, not
-  // undefined behaviour in a renderer (core/json.hpp).
+  // undefined behaviour in a renderer (core/json.hpp). The cells are checked only for their shape
+  // (suites/preflight), so the renderers, which read deeper fields, are inside the wrap too.
   return reading_records("run folder " + out_dir + " (suite.json, cells/)", [&] {
     const Json results = assemble_results(out_dir);
     // results.json is the mark of a complete pass: an earlier one goes first and the new one is
@@ -117,7 +118,7 @@ bool write_results(const std::string& out_dir) {
       r->write(results, out_dir);
     }
     if (last) last->write(results, out_dir);
-    return results["criteria_met"].get<bool>();
+    return results;
   });
 }
 

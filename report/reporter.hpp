@@ -32,8 +32,8 @@ std::string report_files_text();
 Json assemble_results(const std::string& out_dir);
 
 // assemble_results, then every standard reporter, results.json last (an earlier results.json is
-// removed first): results.json present means every file of the pass is complete. Returns whether
-// every criterion passed.
-bool write_results(const std::string& out_dir);
+// removed first): results.json present means every file of the pass is complete. Returns the
+// record it wrote (its "criteria_met" says whether every criterion passed).
+Json write_results(const std::string& out_dir);
 
 }  // namespace pb::report

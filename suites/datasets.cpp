@@ -2,15 +2,14 @@
 #include "suites/datasets.hpp"
 
 #include <filesystem>
-#include <fstream>
 #include <opencv2/core.hpp>
-#include <sstream>
 
 #include "core/error.hpp"
 #include "core/histogram.hpp"
 #include "core/image_files.hpp"
 #include "core/io.hpp"
 #include "core/sha256.hpp"
+#include "core/text_file.hpp"
 #include "methods/registry.hpp"
 #include "suites/layout.hpp"
 #include "suites/paired.hpp"
@@ -40,19 +39,12 @@ void write_mask_png(const Mask& m, int64_t z, const std::string& path) {
 
 namespace {
 
-std::string read_text(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  std::stringstream ss;
-  ss << f.rdbuf();
-  return ss.str();
-}
-
 void prepare_synthetic(Dataset& p, const LogFn& log) {
   const DatasetSpec& d = *p.spec;
   const std::string manifest = p.data_dir + "/manifest.json";
   bool fresh = true;
   if (fs::exists(manifest) && fs::exists(p.data_dir + "/recipe.toml"))
-    fresh = read_text(p.data_dir + "/recipe.toml") != p.recipe_text;
+    fresh = read_text_file(p.data_dir + "/recipe.toml", "dataset recipe") != p.recipe_text;
   if (fresh) {
     fs::create_directories(p.data_dir);
     if (log) log("synthesising dataset '" + d.name + "' into " + p.data_dir);

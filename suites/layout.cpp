@@ -2,9 +2,9 @@
 #include "suites/layout.hpp"
 
 #include <cctype>
-#include <fstream>
 
 #include "core/error.hpp"
+#include "core/text_file.hpp"
 
 namespace pb::suite {
 
@@ -15,10 +15,9 @@ std::string file_token(std::string s) {
 }
 
 nlohmann::ordered_json read_json_file(const std::string& path) {
-  std::ifstream f(path);
-  if (!f) throw InputError("cannot read " + path);
+  const std::string text = read_text_file(path, "record", kMaxRecordFileBytes);
   try {
-    return nlohmann::ordered_json::parse(f);
+    return nlohmann::ordered_json::parse(text);
   } catch (const std::exception& e) {
     throw InputError("cannot parse " + path + ": " + e.what());
   }

@@ -7,12 +7,12 @@
 #include <cmath>
 #include <cstring>
 #include <filesystem>
-#include <fstream>
 
 #include "core/error.hpp"
 #include "core/format.hpp"
 #include "core/io.hpp"
 #include "core/io_header.hpp"
+#include "core/text_file.hpp"
 #include "metrics/score.hpp"
 #include "suites/paired.hpp"
 #include "suites/predictions.hpp"
@@ -34,12 +34,9 @@ void check_readable_file(const std::string& path, const std::string& what) {
 std::string num(double v) { return format_number(v, 6, nullptr); }
 
 Json read_json_named(const std::string& path, const std::string& what) {
-  std::error_code ec;
-  if (!fs::exists(path, ec)) throw InputError(what + " " + path + " is missing");
-  std::ifstream f(path);
-  if (!f) throw InputError("cannot read " + what + " " + path + ": " + std::strerror(errno));
+  const std::string text = read_text_file(path, what, kMaxRecordFileBytes);
   try {
-    return Json::parse(f);
+    return Json::parse(text);
   } catch (const std::exception& e) {
     throw InputError(what + " " + path + " is not valid JSON (damaged or cut short?): " + e.what());
   }

@@ -13,6 +13,8 @@
 #include "core/format.hpp"
 #include "core/histogram.hpp"
 #include "core/io.hpp"
+#include "core/sha256.hpp"
+#include "core/text_file.hpp"
 #include "methods/registry.hpp"
 #include "metrics/probability.hpp"
 #include "metrics/score.hpp"
@@ -121,13 +123,13 @@ int prepare_needed(std::vector<Dataset>& data, const std::vector<const CellPlan*
 
 // The suite record: all that the reports need besides the cells.
 void write_suite_record(const Suite& s, const std::vector<Dataset>& data, const std::string& path) {
-  std::ifstream f(s.path, std::ios::binary);
-  std::stringstream ss;
-  ss << f.rdbuf();
+  const std::string text = read_text_file(s.path, "suite file");
+  if (sha256_hex(text.data(), text.size()) != s.text_sha256)
+    throw InputError("suite file " + s.path + " changed while the run was starting; run again");
   Json rec;
   rec["suite"] = {{"name", s.name}, {"description", s.description}, {"path", s.path}, {"validation", s.validation}};
   rec["suite_sha256"] = s.text_sha256;
-  rec["suite_text"] = ss.str();
+  rec["suite_text"] = text;
   rec["calibration"] = {{"objective", s.calibration.objective}, {"fraction", s.calibration.fraction},
                         {"gap_slices", s.calibration.gap_slices}};
   // Everything of the scoring that can change a verdict: the hit rule (match, connectivity, volume

@@ -3,7 +3,6 @@
 
 #include <cmath>
 #include <filesystem>
-#include <fstream>
 #include <set>
 #include <sstream>
 #include <toml++/toml.h>
@@ -12,6 +11,7 @@
 #include "core/names.hpp"
 #include "core/toml_keys.hpp"
 #include "core/sha256.hpp"
+#include "core/text_file.hpp"
 #include "metrics/metric_table.hpp"
 #include "methods/registry.hpp"
 #include "suites/paired.hpp"
@@ -349,12 +349,6 @@ Suite parse_suite(const std::string& text, const std::string& path) {
   return s;
 }
 
-Suite load_suite(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  if (!f) throw InputError("suite file not found: " + path);
-  std::stringstream ss;
-  ss << f.rdbuf();
-  return parse_suite(ss.str(), path);
-}
+Suite load_suite(const std::string& path) { return parse_suite(read_text_file(path, "suite file"), path); }
 
 }  // namespace pb::suite

@@ -6,7 +6,6 @@
 
 #include <algorithm>
 #include <cmath>
-#include <fstream>
 #include <iomanip>
 #include <limits>
 #include <sstream>
@@ -17,6 +16,7 @@
 #include "core/format.hpp"
 #include "core/memory.hpp"
 #include "core/names.hpp"
+#include "core/text_file.hpp"
 #include "core/toml_keys.hpp"
 #include "synthetic/fbp.hpp"
 #include "synthetic/presets.hpp"
@@ -335,13 +335,7 @@ Recipe parse_recipe(const std::string& text, const std::string& source) {
   return from_table(parse_table(text, source), source);
 }
 
-Recipe load_recipe(const std::string& path) {
-  std::ifstream f(path);
-  if (!f) throw InputError("recipe " + path + " cannot be read");
-  std::stringstream s;
-  s << f.rdbuf();
-  return parse_recipe(s.str(), "recipe " + path);
-}
+Recipe load_recipe(const std::string& path) { return parse_recipe(read_text_file(path, "recipe"), "recipe " + path); }
 
 Recipe apply_overrides(const Recipe& r, const std::vector<std::string>& key_values) {
   if (key_values.empty()) return r;

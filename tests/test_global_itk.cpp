@@ -22,8 +22,9 @@ using namespace pbtest;
 
 
 TEST_CASE("global thresholds agree with ITK's histogram threshold calculators within one bin", "[global][ref][itk]") {
-  for (const auto& [name, v] : global_test_volumes()) {
+  for (const auto& [name, volume] : global_test_volumes()) {
     INFO(name);
+    const auto& v = volume;  // a structured binding cannot be captured by a lambda in C++17 (clang refuses)
     const Histogram h = full_histogram(v);
     auto ours = [&](const char* m) { return split_index(h, chosen(run_named(m, v), "threshold")); };
     // Source: ITK 5.2 itk::*ThresholdCalculator (ports of ImageJ's auto-threshold methods).
@@ -50,8 +51,9 @@ TEST_CASE("global thresholds agree with ITK's histogram threshold calculators wi
 
 TEST_CASE("kittler-illingworth minimises the minimum-error criterion over all splits", "[global][property]") {
   // Kittler & Illingworth (1986) eq. 15 (tests/global_helpers.hpp).
-  for (const auto& [name, v] : global_test_volumes()) {
+  for (const auto& [name, volume] : global_test_volumes()) {
     INFO(name);
+    const auto& v = volume;  // a structured binding cannot be captured by a lambda in C++17 (clang refuses)
     const Histogram h = full_histogram(v);
     const int k = split_index(h, chosen(run_named("kittler-illingworth", v), "threshold"));
     auto J = [&](int t) { return minimum_error_criterion(h, t); };

@@ -79,7 +79,10 @@ std::vector<IntVolume> integer_volumes() {
 
 TEST_CASE("histogram methods agree with scikit-image and ITK at bins = levels - 1, levels, levels + 1 on 8- and 16-bit data",
           "[global][ref][itk][levels]") {
-  for (const auto& [name, v, type, bimodal] : integer_volumes()) {
+  for (const auto& [name, volume, voxel_type, bimodal] : integer_volumes()) {
+    // Plain references: a structured binding cannot be captured by a lambda in C++17 (clang refuses).
+    const auto& v = volume;
+    const auto& type = voxel_type;
     INFO(name);
     const Stats s = compute_stats(v);
     const int levels = int(s.max - s.min) + 1;
