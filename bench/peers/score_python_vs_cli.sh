@@ -13,7 +13,7 @@
 # system time per run: its spread was 97 % on a quiet machine. Each run's time is printed, and the
 # CLI's CPU time (user + system, from the kernel's child accounting) beside it.
 # Both sides wait passively in OpenMP: the command line sets OMP_WAIT_POLICY=passive itself
-# (core/omp_preinit.cpp), a shared library cannot, so the interpreter gets it from the environment.
+# (core/omp_env/omp_env.cpp, linked into executables only), so the interpreter gets it from the environment.
 # Usage: bench/peers/score_python_vs_cli.sh [BUILD_DIR] [N] [ROUNDS]   (exit 0 met, 1 not, 3 refused)
 set -eu
 export OMP_WAIT_POLICY="${OMP_WAIT_POLICY:-passive}"
