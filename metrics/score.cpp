@@ -157,22 +157,30 @@ Directions lattice_directions(const std::array<double, 3>& sp) {
   return D;
 }
 
+// Sums of one pore from the runs a thread visits: voxel coordinate sums (centroid), bounding box
+// (x0 y0 z0 x1 y1 z1), crossings per direction, touches the border.
 struct Acc {
-  int64_t sx = 0, sy = 0, sz = 0;
-  int32_t lo[3] = {INT32_MAX, INT32_MAX, INT32_MAX}, hi[3] = {-1, -1, -1};
-  int64_t cross[13] = {};
+  std::array<int64_t, 3> sum{0, 0, 0};
+  std::array<int64_t, 6> bbox{INT64_MAX, INT64_MAX, INT64_MAX, -1, -1, -1};
+  std::array<int64_t, 13> cross{};
   bool touch = false;
 };
 
 // Geometry of every component from its runs: sums for centroids, bounding boxes, boundary
 // crossings along the 13 directions (a voxel and its neighbour along +-d differ in label, or the
 // neighbour is outside the volume), and whether a voxel is 6-adjacent to the outside of the ROI
-// or of the volume. Crossings count, per run and neighbour offset, the run's voxels whose
-// neighbour lies in a run of the same label: interval overlaps, no voxel visits.
-std::vector<Pore> pore_geometry(const LabelRuns& c, const Mask* roi, const Directions& D, int64_t z_offset) {
+// (R: non-zero = inside, nullptr = no ROI) or of the volume. Crossings count, per run and
+// neighbour offset, the run's voxels whose neighbour lies in a run of the same label: interval
+// overlaps, no voxel visits.
+// Memory: one accumulator per pore, not per pore and thread. Thread t takes the slices
+// [nz t / T, nz (t + 1) / T) and owns the labels that start there (labels are in raster order of
+// first voxels, so these are the labels above every label of the slices before): it adds into
+// their Pore directly. Labels that started in an earlier chunk (few: they cross the chunk's first
+// slice) go to a small per-thread map, added in afterwards. Every sum is an integer sum, a min or
+// a max: the result does not depend on the thread count.
+std::vector<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Directions& D, int64_t z_offset) {
   const Geometry& g = c.geometry;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
-  const uint8_t* R = roi ? roi->data() : nullptr;
   // Direction index of each of the 26 offsets (dx, dy, dz) in 0..2 each (+1 shifted).
   std::array<int, 27> dir_of{};
   for (int k = 0; k < 13; ++k) {
@@ -180,14 +188,30 @@ std::vector<Pore> pore_geometry(const LabelRuns& c, const Mask* roi, const Direc
     dir_of[size_t((d[2] + 1) * 9 + (d[1] + 1) * 3 + d[0] + 1)] = k;
     dir_of[size_t((1 - d[2]) * 9 + (1 - d[1]) * 3 + 1 - d[0])] = k;
   }
-  const int nt = omp_get_max_threads();
-  std::vector<std::vector<Acc>> acc(static_cast<size_t>(nt));
+  std::vector<Pore> pores(c.count);
+  std::vector<std::array<int64_t, 3>> sums(c.count);
+  const int nt = int(std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads())));
+  std::vector<uint32_t> chunk_max(size_t(nt) + 1, 0);
+  std::vector<std::unordered_map<uint32_t, Acc>> carried(static_cast<size_t>(nt));
 #pragma omp parallel num_threads(nt)
   {
-    auto& A = acc[size_t(omp_get_thread_num())];
-    A.assign(size_t(c.count) + 1, Acc{});
-#pragma omp for schedule(static)
-    for (int64_t z = 0; z < nz; ++z)
+    const int T = omp_get_num_threads(), t = omp_get_thread_num();
+    const int64_t z0 = nz * t / T, z1 = nz * (t + 1) / T;
+    const int64_t r0 = c.row_begin[size_t(c.row_of(0, z0))], r1 = c.row_begin[size_t(c.row_of(0, z1))];
+    uint32_t m = 0;
+    for (int64_t i = r0; i < r1; ++i) m = std::max(m, c.label[size_t(i)]);
+    chunk_max[size_t(t) + 1] = m;
+#pragma omp barrier
+    uint32_t own_from = 1;  // labels >= own_from start in this chunk
+    for (int k = 0; k <= t; ++k) own_from = std::max(own_from, chunk_max[size_t(k)] + 1);
+    for (uint32_t l = own_from; l <= m; ++l) {
+      pores[l - 1].bbox = Acc{}.bbox;
+      sums[l - 1] = {0, 0, 0};
+    }
+    auto& carry = carried[size_t(t)];
+    uint32_t carry_label = 0;
+    Acc* carry_acc = nullptr;
+    for (int64_t z = z0; z < z1; ++z)
       for (int64_t y = 0; y < ny; ++y) {
         const int64_t row = c.row_of(y, z), i0 = c.row_begin[size_t(row)], i1 = c.row_begin[size_t(row) + 1];
         if (i0 == i1) continue;
@@ -209,11 +233,22 @@ std::vector<Pore> pore_geometry(const LabelRuns& c, const Mask* roi, const Direc
           const int32_t a = c.runs[size_t(i)].x0, b = c.runs[size_t(i)].x1;
           const uint32_t l = c.label[size_t(i)];
           const int64_t len = b - a;
-          Acc& t = A[l];
-          t.sx += (int64_t(a) + b - 1) * len / 2, t.sy += y * len, t.sz += z * len;
-          t.lo[0] = std::min(t.lo[0], a), t.hi[0] = std::max(t.hi[0], b - 1);
-          t.lo[1] = std::min(t.lo[1], int32_t(y)), t.hi[1] = std::max(t.hi[1], int32_t(y));
-          t.lo[2] = std::min(t.lo[2], int32_t(z)), t.hi[2] = std::max(t.hi[2], int32_t(z));
+          std::array<int64_t, 3>* sum;
+          std::array<int64_t, 6>* bbox;
+          std::array<int64_t, 13>* cross;
+          bool* touch;
+          if (l >= own_from) {
+            Pore& p = pores[l - 1];
+            sum = &sums[l - 1], bbox = &p.bbox, cross = &p.crossings, touch = &p.touches_border;
+          } else {
+            if (l != carry_label) carry_acc = &carry[l], carry_label = l;
+            sum = &carry_acc->sum, bbox = &carry_acc->bbox, cross = &carry_acc->cross, touch = &carry_acc->touch;
+          }
+          (*sum)[0] += (int64_t(a) + b - 1) * len / 2, (*sum)[1] += y * len, (*sum)[2] += z * len;
+          auto& bb = *bbox;
+          bb[0] = std::min<int64_t>(bb[0], a), bb[3] = std::max<int64_t>(bb[3], b - 1);
+          bb[1] = std::min(bb[1], y), bb[4] = std::max(bb[4], y);
+          bb[2] = std::min(bb[2], z), bb[5] = std::max(bb[5], z);
           int64_t same[27] = {};
           for (int n = 0; n < 9; ++n) {
             int64_t& j = cur[n];
@@ -228,49 +263,53 @@ std::vector<Pore> pore_geometry(const LabelRuns& c, const Mask* roi, const Direc
             }
           }
           for (int o = 0; o < 27; ++o)
-            if (o != 13) t.cross[dir_of[size_t(o)]] += len - same[o];
-          if (edge_row || a == 0 || b == nx) t.touch = true;
-          if (R && !t.touch) {  // a 6-neighbour outside the ROI (x-neighbours: only the ends)
+            if (o != 13) (*cross)[size_t(dir_of[size_t(o)])] += len - same[o];
+          bool& tt = *touch;
+          if (edge_row || a == 0 || b == nx) tt = true;
+          if (R && !tt) {  // a 6-neighbour outside the ROI (x-neighbours: only the ends)
             const int64_t base = (z * ny + y) * nx;
-            if ((a > 0 && !R[base + a - 1]) || (b < nx && !R[base + b])) t.touch = true;
+            if ((a > 0 && !R[base + a - 1]) || (b < nx && !R[base + b])) tt = true;
             const int64_t offs[4] = {-nx, nx, -nx * ny, nx * ny};
-            for (int q = 0; q < 4 && !t.touch; ++q)
+            for (int q = 0; q < 4 && !tt; ++q)
               for (int64_t x = a; x < b; ++x)
                 if (!R[base + offs[q] + x]) {
-                  t.touch = true;
+                  tt = true;
                   break;
                 }
           }
         }
       }
   }
-  std::vector<Pore> pores(c.count);
+  // Labels carried into later chunks: integer sums, mins and maxes, in any order.
+  for (auto& carry : carried)
+    for (auto& [l, a] : carry) {
+      Pore& p = pores[l - 1];
+      for (int i = 0; i < 3; ++i) sums[l - 1][size_t(i)] += a.sum[size_t(i)];
+      for (int i = 0; i < 3; ++i)
+        p.bbox[size_t(i)] = std::min(p.bbox[size_t(i)], a.bbox[size_t(i)]),
+        p.bbox[size_t(i) + 3] = std::max(p.bbox[size_t(i) + 3], a.bbox[size_t(i) + 3]);
+      for (int k = 0; k < 13; ++k) p.crossings[size_t(k)] += a.cross[size_t(k)];
+      p.touches_border = p.touches_border || a.touch;
+    }
   const auto& sp = g.spacing_mm;
   const double vv = g.voxel_volume_mm3();
-  for (uint32_t l = 1; l <= c.count; ++l) {
-    Acc t;
-    for (auto& A : acc) {
-      const Acc& a = A[l];
-      t.sx += a.sx, t.sy += a.sy, t.sz += a.sz;
-      for (int i = 0; i < 3; ++i) t.lo[i] = std::min(t.lo[i], a.lo[i]), t.hi[i] = std::max(t.hi[i], a.hi[i]);
-      for (int k = 0; k < 13; ++k) t.cross[k] += a.cross[k];
-      t.touch = t.touch || a.touch;
-    }
-    Pore& p = pores[l - 1];
-    p.label = l;
-    p.voxels = c.sizes[l];
+  const int64_t np = int64_t(c.count);
+#pragma omp parallel for schedule(static)
+  for (int64_t k = 0; k < np; ++k) {
+    Pore& p = pores[size_t(k)];
+    const auto& t = sums[size_t(k)];
+    p.label = uint32_t(k + 1);
+    p.voxels = c.sizes[size_t(k) + 1];
     p.volume_mm3 = double(p.voxels) * vv;
     p.esd_um = 1000.0 * std::cbrt(6 * p.volume_mm3 / M_PI);
     const double n = double(p.voxels);
-    p.centroid_mm = {g.origin_mm[0] + sp[0] * double(t.sx) / n, g.origin_mm[1] + sp[1] * double(t.sy) / n,
-                     g.origin_mm[2] + sp[2] * double(t.sz) / n};
-    p.bbox = {t.lo[0], t.lo[1], t.lo[2] + z_offset, t.hi[0], t.hi[1], t.hi[2] + z_offset};
+    p.centroid_mm = {g.origin_mm[0] + sp[0] * double(t[0]) / n, g.origin_mm[1] + sp[1] * double(t[1]) / n,
+                     g.origin_mm[2] + sp[2] * double(t[2]) / n};
+    p.bbox[2] += z_offset, p.bbox[5] += z_offset;
     double s = 0;
-    for (int k = 0; k < 13; ++k) s += D.weight[size_t(k)] * double(t.cross[k]) * D.line_area_mm2[size_t(k)];
-    for (int k = 0; k < 13; ++k) p.crossings[size_t(k)] = t.cross[k];
+    for (int q = 0; q < 13; ++q) s += D.weight[size_t(q)] * double(p.crossings[size_t(q)]) * D.line_area_mm2[size_t(q)];
     p.surface_mm2 = 2 * s;
     p.sphericity = std::cbrt(M_PI) * std::pow(6 * p.volume_mm3, 2.0 / 3.0) / p.surface_mm2;
-    p.touches_border = t.touch;
   }
   return pores;
 }
@@ -530,8 +569,8 @@ ScoreResult score_labelled(const LabelRuns& cp, const LabelRuns& cr, const Mask*
   porosity(r);
   pooled_cis(opt, r);
   const Directions D = lattice_directions(r.geometry.spacing_mm);
-  r.pores_ref = pore_geometry(cr, roi, D, z0);
-  r.pores_pred = pore_geometry(cp, roi, D, z0);
+  r.pores_ref = pore_geometry(cr, roi ? roi->data() : nullptr, D, z0);
+  r.pores_pred = pore_geometry(cp, roi ? roi->data() : nullptr, D, z0);
   match_pores(opt.match, opt.max_volume_ratio, r);
   false_call_ci(r);
   detection_and_sizes(opt, cp, cr, r);

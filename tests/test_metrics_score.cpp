@@ -292,8 +292,10 @@ TEST_CASE("mismatched geometry is an input error naming the field", "[metrics][s
 TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "[metrics][score]") {
   // Scoring works on runs (interval overlaps); this recomputes every quantity voxel by voxel from
   // the definitions in metrics/score.hpp, on the label volumes (labels checked against scipy in
-  // test_metrics_ccl.cpp). Rows wider than 64 voxels and a part mask with holes included.
+  // test_metrics_ccl.cpp). Rows wider than 64 voxels and a part mask with holes included. 1 and 3
+  // threads: pores crossing a thread's first slice are summed apart and added in afterwards.
   const int conn = GENERATE(6, 18, 26);
+  const int threads = GENERATE(1, 3);
   Geometry g;
   g.dims = {70, 23, 17};
   g.spacing_mm = {0.01, 0.012, 0.015};
@@ -302,7 +304,10 @@ TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "
   ScoreOptions o;
   o.connectivity = conn;
   o.surface_distances = false;
+  const int before = omp_get_max_threads();
+  omp_set_num_threads(threads);
   const ScoreResult r = score(pred, ref, &roi, o);
+  omp_set_num_threads(before);
   const Components cr = label_components(ref, &roi, conn), cp = label_components(pred, &roi, conn);
   REQUIRE(r.pores_ref.size() == cr.count);
   REQUIRE(r.pores_pred.size() == cp.count);
@@ -348,7 +353,7 @@ TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "
     for (uint32_t l = 1; l <= c.count && bad < 5; ++l) {
       const Pore& p = pores[l - 1];
       const Want& a = w[l];
-      INFO(side << " label " << l << " connectivity " << conn);
+      INFO(side << " label " << l << " connectivity " << conn << " threads " << threads);
       const bool ok = p.voxels == a.n && p.crossings == a.cross && p.touches_border == a.touch &&
                       p.bbox == a.bbox &&
                       p.centroid_mm[0] == Approx(g.spacing_mm[0] * double(a.sx) / double(a.n)) &&

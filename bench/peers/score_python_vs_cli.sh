@@ -28,32 +28,17 @@ sys.path.insert(0, sys.argv[5])
 import numpy as np
 import peerlib
 import porebench
+import score_pair
 
 cli, n, rounds, tmp = sys.argv[1], int(sys.argv[2]), int(sys.argv[3]), sys.argv[4]
 rng = np.random.default_rng(14)
-# A cylinder part with ~3000 spherical pores (radius 1.5-7 voxels); the prediction moves each pore by
-# up to one voxel, misses one in ten and adds 3000 single-voxel false calls.
-z, y, x = np.ogrid[:n, :n, :n]
-part = ((y - n / 2) ** 2 + (x - n / 2) ** 2 < (0.45 * n) ** 2) & (z > 4) & (z < n - 5)
-ref = np.zeros((n, n, n), np.uint8)
-pred = np.zeros((n, n, n), np.uint8)
-for _ in range(3000 * n ** 3 // 512 ** 3):
-    r = rng.uniform(1.5, 7)
-    c = rng.uniform(0.1 * n, 0.9 * n, 3)
-    lo = np.maximum(np.floor(c - r - 2).astype(int), 0)
-    hi = np.minimum(np.ceil(c + r + 2).astype(int), n)
-    zz, yy, xx = np.ogrid[lo[0]:hi[0], lo[1]:hi[1], lo[2]:hi[2]]
-    ball = lambda d: (zz - c[0] - d[0]) ** 2 + (yy - c[1] - d[1]) ** 2 + (xx - c[2] - d[2]) ** 2 <= r * r
-    ref[lo[0]:hi[0], lo[1]:hi[1], lo[2]:hi[2]] |= ball((0, 0, 0))
-    if rng.random() > 0.1:
-        pred[lo[0]:hi[0], lo[1]:hi[1], lo[2]:hi[2]] |= ball(rng.integers(-1, 2, 3))
-pred[tuple(rng.integers(0, n, (3, 3000)))] = 1
-ref &= part
-pred &= part
+# The pair (bench/peers/score_pair.py): a cylinder part with ~3000 spherical pores, the prediction
+# moves each pore by up to one voxel, misses one in ten and adds 3000 single-voxel false calls.
+part, ref, pred = score_pair.make_pair(n, rng)
 files = {k: f"{tmp}/{k}.npy" for k in ("pred", "ref", "part")}
 for k, v in (("pred", pred), ("ref", ref), ("part", part.astype(np.uint8))):
     np.save(files[k], v)
-del z, y, x, part, ref, pred
+del part, ref, pred
 
 cli_cpu = []  # user + system seconds of each CLI run
 def cli_side():
