@@ -76,64 +76,75 @@ RowBits surface_bits(const RowBits& F) {
   return S;
 }
 
-// The set bits as points, in raster order.
-std::vector<Point> points_of(const RowBits& S) {
-  const int nt = omp_get_max_threads();
-  std::vector<std::vector<Point>> part(static_cast<size_t>(nt));
-#pragma omp parallel num_threads(nt)
-  {
-    auto& pts = part[size_t(omp_get_thread_num())];
-#pragma omp for schedule(static)
-    for (int64_t z = 0; z < S.nz; ++z)
-      for (int64_t y = 0; y < S.ny; ++y) {
-        const uint64_t* r = S.row(y, z);
-        for (int64_t k = 0; k < S.nw; ++k)
-          for (uint64_t m = r[k]; m; m &= m - 1) pts.push_back({int32_t(k * 64 + __builtin_ctzll(m)), int32_t(y), int32_t(z)});
-      }
-  }
-  size_t n = 0;
-  for (auto& p : part) n += p.size();
-  std::vector<Point> all;
-  all.reserve(n);
-  for (auto& p : part) all.insert(all.end(), p.begin(), p.end());  // static schedule: raster order
-  return all;
-}
-
-// Surface voxels of a labelled mask (only foreground vs background matters), as bits and points.
+// Surface voxels of a labelled mask (only foreground vs background matters) as bits, and as points
+// grouped by cells of kCell^3 voxels (a uniform grid): the cells in raster order of (cx, cy, cz),
+// within a cell the points in raster order. The grid is built from the bits directly (a count pass
+// and a fill pass per row of cells), and an occupancy bit per cell, one row of words per (cy, cz),
+// lets the ring search skip empty cells a word at a time.
 struct Surface {
   RowBits bits;
-  std::vector<Point> pts;
-  explicit Surface(const LabelRuns& L) : bits(surface_bits(foreground_bits(L))), pts(points_of(bits)) {}
-};
-
-struct Grid {
-  std::array<int64_t, 3> n{0, 0, 0};
-  std::vector<int64_t> begin;
-  std::vector<Point> pts;
+  std::array<int64_t, 3> n{0, 0, 0};  // cells along x, y, z
+  int64_t ow = 0;                      // occupancy words per row of cells
+  Buffer<int64_t> begin;               // points of cell c: [begin[c], begin[c + 1])
+  Buffer<Point> pts;
+  Buffer<uint64_t> occ;                // bit cx of word row (cy, cz): cell holds points
   int64_t cell(int64_t cx, int64_t cy, int64_t cz) const { return (cz * n[1] + cy) * n[0] + cx; }
+  const uint64_t* occ_row(int64_t cy, int64_t cz) const { return occ.data() + (cz * n[1] + cy) * ow; }
+  explicit Surface(const LabelRuns& L);
 };
 
-Grid make_grid(const std::vector<Point>& pts, const Geometry& g) {
-  Grid G;
-  for (int i = 0; i < 3; ++i) G.n[i] = (g.dims[i] + kCell - 1) / kCell;
-  G.begin.assign(size_t(G.n[0] * G.n[1] * G.n[2]) + 1, 0);
-  auto cid = [&](const Point& p) { return G.cell(p[0] / kCell, p[1] / kCell, p[2] / kCell); };
-  for (auto& p : pts) ++G.begin[size_t(cid(p)) + 1];
-  for (size_t c = 1; c < G.begin.size(); ++c) G.begin[c] += G.begin[c - 1];
-  G.pts.resize(pts.size());
-  for (auto& p : pts) G.pts[size_t(G.begin[size_t(cid(p))]++)] = p;  // begin[c] now ends cell c
-  std::copy_backward(G.begin.begin(), G.begin.end() - 1, G.begin.end());
-  G.begin[0] = 0;
-  return G;
+Surface::Surface(const LabelRuns& L) : bits(surface_bits(foreground_bits(L))) {
+  for (int i = 0; i < 3; ++i) n[size_t(i)] = (L.geometry.dims[size_t(i)] + kCell - 1) / kCell;
+  ow = (n[0] + 63) / 64;
+  const int64_t ncells = n[0] * n[1] * n[2], nrows = n[1] * n[2];
+  begin.resize(size_t(ncells) + 1);
+  occ = zeroed_buffer<uint64_t>(size_t(ow * nrows));
+  begin[0] = 0;
+  // Visits the voxel rows of cell row (cy, cz) in raster order, giving f(x, y, z) for each set bit.
+  auto each_point = [&](int64_t cy, int64_t cz, auto&& f) {
+    for (int64_t z = cz * kCell; z < std::min(bits.nz, (cz + 1) * kCell); ++z)
+      for (int64_t y = cy * kCell; y < std::min(bits.ny, (cy + 1) * kCell); ++y) {
+        const uint64_t* r = bits.row(y, z);
+        for (int64_t k = 0; k < bits.nw; ++k)
+          for (uint64_t m = r[k]; m; m &= m - 1) f(k * 64 + __builtin_ctzll(m), y, z);
+      }
+  };
+  // Counts per cell (into begin[c + 1]), then offsets, then the points.
+#pragma omp parallel for schedule(static)
+  for (int64_t row = 0; row < nrows; ++row) {
+    const int64_t cy = row % n[1], cz = row / n[1];
+    int64_t* cnt = begin.data() + cell(0, cy, cz) + 1;
+    std::fill(cnt, cnt + n[0], 0);
+    each_point(cy, cz, [&](int64_t x, int64_t, int64_t) { ++cnt[x / kCell]; });
+    uint64_t* o = occ.data() + row * ow;
+    for (int64_t cx = 0; cx < n[0]; ++cx)
+      if (cnt[cx]) o[cx >> 6] |= uint64_t(1) << (cx & 63);
+  }
+  for (int64_t c = 0; c < ncells; ++c) begin[size_t(c) + 1] += begin[size_t(c)];
+  pts.resize(size_t(begin[size_t(ncells)]));
+#pragma omp parallel
+  {
+    std::vector<int64_t> cur(static_cast<size_t>(n[0]));
+#pragma omp for schedule(static)
+    for (int64_t row = 0; row < nrows; ++row) {
+      const int64_t cy = row % n[1], cz = row / n[1];
+      std::copy(begin.data() + cell(0, cy, cz), begin.data() + cell(0, cy, cz) + n[0], cur.begin());
+      each_point(cy, cz, [&](int64_t x, int64_t y, int64_t z) {
+        pts[size_t(cur[size_t(x / kCell)]++)] = {int32_t(x), int32_t(y), int32_t(z)};
+      });
+    }
+  }
 }
 
 // Exact nearest target surface voxel for every query point: first the 3x3x3 neighbourhood (exact
 // when something there is within 2 x the smallest spacing: anything outside it is farther), else
-// rings of grid cells until no unsearched cell can hold a closer point.
-std::vector<double> distances(const std::vector<Point>& from, const Grid& G, const RowBits& bits,
-                              const std::array<double, 3>& sp) {
+// rings of grid cells until no unsearched cell can hold a closer point. On a ring, a row of cells
+// (cy, cz) is either a whole run of cells (the ring's faces, tested a word of occupancy bits at a
+// time) or its two end cells. The minimum does not depend on the order cells are visited in.
+std::vector<double> distances(const Buffer<Point>& from, const Surface& G, const std::array<double, 3>& sp) {
   std::vector<double> d(from.size(), kMetricNaN);
   if (G.pts.empty()) return d;
+  const RowBits& bits = G.bits;
   const double min_sp = std::min({sp[0], sp[1], sp[2]});
   const int64_t rmax = std::max({G.n[0], G.n[1], G.n[2]});
   const int64_t nq = int64_t(from.size());
@@ -158,25 +169,34 @@ std::vector<double> distances(const std::vector<Point>& from, const Grid& G, con
       continue;
     }
     const int64_t c[3] = {p[0] / kCell, p[1] / kCell, p[2] / kCell};
+    auto scan_cell = [&](int64_t x, int64_t y, int64_t z) {
+      const int64_t cell = G.cell(x, y, z);
+      for (int64_t k = G.begin[size_t(cell)]; k < G.begin[size_t(cell) + 1]; ++k) {
+        const auto& t = G.pts[size_t(k)];
+        const double ex = (t[0] - p[0]) * sp[0], ey = (t[1] - p[1]) * sp[1], ez = (t[2] - p[2]) * sp[2];
+        best = std::min(best, ex * ex + ey * ey + ez * ez);
+      }
+    };
     for (int64_t r = 0; r <= rmax; ++r) {
+      const int64_t x0 = std::max<int64_t>(0, c[0] - r), x1 = std::min<int64_t>(G.n[0] - 1, c[0] + r);
       for (int64_t dz = -r; dz <= r; ++dz) {
         const int64_t z = c[2] + dz;
         if (z < 0 || z >= G.n[2]) continue;
         for (int64_t dy = -r; dy <= r; ++dy) {
           const int64_t y = c[1] + dy;
           if (y < 0 || y >= G.n[1]) continue;
-          const bool inner = std::abs(dz) < r && std::abs(dy) < r;
-          for (int64_t dx = -r; dx <= r; dx += (inner ? 2 * r : 1)) {
-            const int64_t x = c[0] + dx;
-            if (x >= 0 && x < G.n[0]) {
-              const int64_t cell = G.cell(x, y, z);
-              for (int64_t k = G.begin[size_t(cell)]; k < G.begin[size_t(cell) + 1]; ++k) {
-                const auto& t = G.pts[size_t(k)];
-                const double ex = (t[0] - p[0]) * sp[0], ey = (t[1] - p[1]) * sp[1], ez = (t[2] - p[2]) * sp[2];
-                best = std::min(best, ex * ex + ey * ey + ez * ez);
-              }
-            }
-            if (r == 0) break;
+          const uint64_t* o = G.occ_row(y, z);
+          auto occupied = [&](int64_t x) { return (o[x >> 6] >> (x & 63)) & 1; };
+          if (std::abs(dz) < r && std::abs(dy) < r) {  // inside the ring's faces: the two end cells
+            if (c[0] - r >= 0 && occupied(c[0] - r)) scan_cell(c[0] - r, y, z);
+            if (c[0] + r < G.n[0] && occupied(c[0] + r)) scan_cell(c[0] + r, y, z);
+            continue;
+          }
+          for (int64_t w = x0 >> 6; w <= x1 >> 6; ++w) {  // cells x0..x1 of the row
+            uint64_t m = o[w];
+            if (w == x0 >> 6) m &= ~uint64_t(0) << (x0 & 63);
+            if (w == x1 >> 6 && (x1 & 63) != 63) m &= (uint64_t(1) << ((x1 & 63) + 1)) - 1;
+            for (; m; m &= m - 1) scan_cell(w * 64 + __builtin_ctzll(m), y, z);
           }
         }
       }
@@ -214,8 +234,8 @@ SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref) 
   s.surface_voxels_ref = int64_t(sr.pts.size());
   if (sp.pts.empty() || sr.pts.empty()) return s;
   const auto& spacing = pred.geometry.spacing_mm;
-  const auto d_pr = distances(sp.pts, make_grid(sr.pts, ref.geometry), sr.bits, spacing);
-  const auto d_rp = distances(sr.pts, make_grid(sp.pts, pred.geometry), sp.bits, spacing);
+  const auto d_pr = distances(sp.pts, sr, spacing);
+  const auto d_rp = distances(sr.pts, sp, spacing);
   double sum = 0;
   for (double v : d_pr) sum += v;
   for (double v : d_rp) sum += v;

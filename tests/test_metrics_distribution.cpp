@@ -78,8 +78,8 @@ TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metric
   // (python3-scipy). Random balls, independently for the two sides (surfaces far apart: ring
   // searches), or the second side = the first moved one voxel along x plus a few balls (nearly
   // coincident surfaces: the 3x3x3 first look). Rows of 40 and of 130 voxels (two 64-voxel words
-  // and a tail).
-  const int nx = GENERATE(40, 130);
+  // and a tail), and of 300 (75 grid cells a row: two words of cell occupancy bits).
+  const int nx = GENERATE(40, 130, 300);
   const bool near = GENERATE(false, true);
   Geometry g;
   g.dims = {nx, 33, 27};
