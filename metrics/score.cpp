@@ -178,7 +178,7 @@ struct Acc {
 // their Pore directly. Labels that started in an earlier chunk (few: they cross the chunk's first
 // slice) go to a small per-thread map, added in afterwards. Every sum is an integer sum, a min or
 // a max: the result does not depend on the thread count.
-std::vector<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Directions& D, int64_t z_offset) {
+Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Directions& D, int64_t z_offset) {
   const Geometry& g = c.geometry;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   // Direction index of each of the 26 offsets (dx, dy, dz) in 0..2 each (+1 shifted).
@@ -188,8 +188,8 @@ std::vector<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Dire
     dir_of[size_t((d[2] + 1) * 9 + (d[1] + 1) * 3 + d[0] + 1)] = k;
     dir_of[size_t((1 - d[2]) * 9 + (1 - d[1]) * 3 + 1 - d[0])] = k;
   }
-  std::vector<Pore> pores(c.count);
-  std::vector<std::array<int64_t, 3>> sums(c.count);
+  Buffer<Pore> pores(c.count);
+  Buffer<std::array<int64_t, 3>> sums(c.count);
   const int nt = int(std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads())));
   std::vector<uint32_t> chunk_max(size_t(nt) + 1, 0);
   std::vector<std::unordered_map<uint32_t, Acc>> carried(static_cast<size_t>(nt));

@@ -92,7 +92,9 @@ struct ScoreResult {
   int64_t slices_defined = 0;
   double porosity_ref_pct = kMetricNaN, porosity_pred_pct = kMetricNaN, porosity_bias_pp = kMetricNaN,
          porosity_rel_bias = kMetricNaN;
-  std::vector<Pore> pores_ref, pores_pred;  // index k = label k + 1
+  // Index k = label k + 1. A noisy prediction has 10^5-10^6 pores: the project's buffer (large ones
+  // on huge pages, core/volume.hpp), like the voxel buffers.
+  Buffer<Pore> pores_ref, pores_pred;
   std::vector<PairOverlap> pairs;           // sorted by (ref, pred)
   int64_t hits = 0, misses = 0, false_calls = 0, split = 0, merged = 0;
   int64_t oversized_false_calls = 0;  // of false_calls: pred pores overlapping ref pores but oversized

@@ -28,12 +28,15 @@ struct RowBits {
       : nx(d[0]), ny(d[1]), nz(d[2]), nw((d[0] + 63) / 64), w(zeroed_buffer<uint64_t>(size_t(nw * ny * nz))) {}
   const uint64_t* row(int64_t y, int64_t z) const { return w.data() + (z * ny + y) * nw; }
   uint64_t* row(int64_t y, int64_t z) { return w.data() + (z * ny + y) * nw; }
-  // Bits x-1, x, x+1 of row (y, z) as bits 0..2 (zero outside the volume).
+  // Bits x-1, x, x+1 of row (y, z) as bits 0..2 (zero outside the volume; bits past nx are zero).
   unsigned three(int64_t x, int64_t y, int64_t z) const {
     if (y < 0 || z < 0 || y >= ny || z >= nz) return 0;
     const uint64_t* r = row(y, z);
-    auto bit = [&](int64_t i) -> unsigned { return i >= 0 && i < nx ? unsigned((r[i >> 6] >> (i & 63)) & 1) : 0u; };
-    return bit(x - 1) | bit(x) << 1 | bit(x + 1) << 2;
+    if (x == 0) return unsigned(r[0] << 1) & 7u;
+    const int64_t b = x - 1, k = b >> 6, s = b & 63;
+    uint64_t v = r[k] >> s;
+    if (s > 61 && k + 1 < nw) v |= r[k + 1] << (64 - s);
+    return unsigned(v) & 7u;
   }
 };
 
@@ -141,11 +144,23 @@ Surface::Surface(const LabelRuns& L) : bits(surface_bits(foreground_bits(L))) {
 // rings of grid cells until no unsearched cell can hold a closer point. On a ring, a row of cells
 // (cy, cz) is either a whole run of cells (the ring's faces, tested a word of occupancy bits at a
 // time) or its two end cells. The minimum does not depend on the order cells are visited in.
-std::vector<double> distances(const Buffer<Point>& from, const Surface& G, const std::array<double, 3>& sp) {
-  std::vector<double> d(from.size(), kMetricNaN);
-  if (G.pts.empty()) return d;
+Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std::array<double, 3>& sp) {
+  Buffer<double> d(from.size());
+  if (G.pts.empty()) {
+    std::fill(d.begin(), d.end(), kMetricNaN);
+    return d;
+  }
   const RowBits& bits = G.bits;
   const double min_sp = std::min({sp[0], sp[1], sp[2]});
+  // The 26 neighbour offsets, bit (dz + 1) 9 + (dy + 1) 3 + dx + 1 of the 3x3x3 look, by squared
+  // length (ties in any order: only the length is used).
+  std::array<std::pair<double, int>, 26> near;
+  for (int o = 0, k = 0; o < 27; ++o)
+    if (o != 13) {
+      const double ex = (o % 3 - 1) * sp[0], ey = (o / 3 % 3 - 1) * sp[1], ez = (o / 9 - 1) * sp[2];
+      near[size_t(k++)] = {ex * ex + ey * ey + ez * ez, o};
+    }
+  std::sort(near.begin(), near.end());
   const int64_t rmax = std::max({G.n[0], G.n[1], G.n[2]});
   const int64_t nq = int64_t(from.size());
 #pragma omp parallel for schedule(static)
@@ -156,14 +171,14 @@ std::vector<double> distances(const Buffer<Point>& from, const Surface& G, const
       d[size_t(q)] = 0;
       continue;
     }
+    uint32_t look = 0;
     for (int dz = -1; dz <= 1; ++dz)
-      for (int dy = -1; dy <= 1; ++dy)
-        if (const unsigned t = bits.three(p[0], p[1] + dy, p[2] + dz))
-          for (int dx = -1; dx <= 1; ++dx)
-            if (t >> (dx + 1) & 1) {
-              const double ex = dx * sp[0], ey = dy * sp[1], ez = dz * sp[2];
-              best = std::min(best, ex * ex + ey * ey + ez * ez);
-            }
+      for (int dy = -1; dy <= 1; ++dy) look |= uint32_t(bits.three(p[0], p[1] + dy, p[2] + dz)) << ((dz + 1) * 9 + (dy + 1) * 3);
+    for (const auto& [len2, o] : near)
+      if (look >> o & 1) {
+        best = len2;
+        break;
+      }
     if (best <= 4 * min_sp * min_sp) {
       d[size_t(q)] = std::sqrt(best);
       continue;
@@ -216,15 +231,25 @@ std::vector<double> distances(const Buffer<Point>& from, const Surface& G, const
 
 }  // namespace
 
-double percentile_linear(std::vector<double> v, double q_pct) {
-  if (v.empty()) return kMetricNaN;
-  const double pos = q_pct / 100.0 * double(v.size() - 1);
+namespace {
+
+// percentile_linear on [b, e), reordering it.
+double percentile_in_place(double* b, double* e, double q_pct) {
+  if (b == e) return kMetricNaN;
+  const size_t n = size_t(e - b);
+  const double pos = q_pct / 100.0 * double(n - 1);
   const size_t lo = size_t(std::floor(pos));
   // Order statistics lo and lo + 1 by selection (linear time) instead of a full sort.
-  std::nth_element(v.begin(), v.begin() + lo, v.end());
-  const double v_lo = v[lo];
-  const double v_hi = lo + 1 < v.size() ? *std::min_element(v.begin() + lo + 1, v.end()) : v_lo;
+  std::nth_element(b, b + lo, e);
+  const double v_lo = b[lo];
+  const double v_hi = lo + 1 < n ? *std::min_element(b + lo + 1, e) : v_lo;
   return v_lo + (pos - double(lo)) * (v_hi - v_lo);
+}
+
+}  // namespace
+
+double percentile_linear(std::vector<double> v, double q_pct) {
+  return percentile_in_place(v.data(), v.data() + v.size(), q_pct);
 }
 
 SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref) {
@@ -234,13 +259,14 @@ SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref) 
   s.surface_voxels_ref = int64_t(sr.pts.size());
   if (sp.pts.empty() || sr.pts.empty()) return s;
   const auto& spacing = pred.geometry.spacing_mm;
-  const auto d_pr = distances(sp.pts, sr, spacing);
-  const auto d_rp = distances(sr.pts, sp, spacing);
+  Buffer<double> d_pr = distances(sp.pts, sr, spacing);
+  Buffer<double> d_rp = distances(sr.pts, sp, spacing);
   double sum = 0;
   for (double v : d_pr) sum += v;
   for (double v : d_rp) sum += v;
   s.assd_mm = sum / double(d_pr.size() + d_rp.size());
-  s.hd95_mm = std::max(percentile_linear(d_pr, 95), percentile_linear(d_rp, 95));
+  s.hd95_mm = std::max(percentile_in_place(d_pr.data(), d_pr.data() + d_pr.size(), 95),
+                       percentile_in_place(d_rp.data(), d_rp.data() + d_rp.size(), 95));
   return s;
 }
 

@@ -321,7 +321,7 @@ TEST_CASE("pore geometry and pair overlaps equal their per-voxel definitions", "
       }
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   auto inside = [&](int64_t x, int64_t y, int64_t z) { return x >= 0 && y >= 0 && z >= 0 && x < nx && y < ny && z < nz; };
-  auto check_side = [&](const Components& c, const std::vector<Pore>& pores, const char* side) {
+  auto check_side = [&](const Components& c, const Buffer<Pore>& pores, const char* side) {
     struct Want {
       int64_t n = 0, sx = 0, sy = 0, sz = 0;
       std::array<int64_t, 6> bbox{INT64_MAX, INT64_MAX, INT64_MAX, -1, -1, -1};
