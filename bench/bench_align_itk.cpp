@@ -70,6 +70,6 @@ void BM_AlignPhaseCorrelation(benchmark::State& st) {
 
 }  // namespace
 
-BENCHMARK(BM_AlignIntensity3Levels)->Arg(128)->Arg(512)->Unit(benchmark::kSecond)->Iterations(1)->UseRealTime();
-BENCHMARK(BM_AlignIntensity1Level)->Arg(128)->Arg(512)->Unit(benchmark::kSecond)->Iterations(1)->UseRealTime();
-BENCHMARK(BM_AlignPhaseCorrelation)->Arg(128)->Arg(512)->Unit(benchmark::kSecond)->Iterations(1)->UseRealTime();
+BENCHMARK(BM_AlignIntensity3Levels)->Arg(128)->Arg(256)->Arg(512)->Unit(benchmark::kSecond)->Iterations(1)->UseRealTime();
+BENCHMARK(BM_AlignIntensity1Level)->Arg(128)->Arg(256)->Arg(512)->Unit(benchmark::kSecond)->Iterations(1)->UseRealTime();
+BENCHMARK(BM_AlignPhaseCorrelation)->Arg(128)->Arg(256)->Arg(512)->Unit(benchmark::kSecond)->Iterations(1)->UseRealTime();
