@@ -66,9 +66,11 @@ Action setup_score(CLI::App& app) {
       AnyVolume ov;
       if (!a->roi.empty()) ov = read_volume(a->roi);
       adopt_npy_geometry(pv, a->pred, rv, a->ref, ov, a->roi, [](const std::string& m) { log(m); });
-      const ScoreInput roi_in{view_of(ov), a->roi, a->roi};
-      return score_record(setup, {view_of(pv), a->pred, a->pred}, {view_of(rv), a->ref, a->ref},
-                          a->roi.empty() ? nullptr : &roi_in, !a->json.empty());
+      const ScoreInput roi_in{view_of(ov), a->roi, a->roi, {}};
+      // pred and ref are freed as soon as their pores are labelled (peak memory: issue 16).
+      return score_record(setup, {view_of(pv), a->pred, a->pred, [&pv] { pv = AnyVolume(); }},
+                          {view_of(rv), a->ref, a->ref, [&rv] { rv = AnyVolume(); }}, a->roi.empty() ? nullptr : &roi_in,
+                          !a->json.empty());
     }();
     log("porebench: --pred " + a->pred + ": " + rec.pred_how);
     log("porebench: --ref " + a->ref + ": " + rec.ref_how);

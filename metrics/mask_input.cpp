@@ -4,6 +4,7 @@
 #include <cmath>
 #include <limits>
 #include <sstream>
+#include <stdexcept>
 #include <type_traits>
 #include <vector>
 
@@ -178,6 +179,51 @@ MaskReading read_mask_volume(const VolumeView& v, const MaskSpec& spec, const st
       return read_float(s, v.geometry, spec, file, label_option, threshold_option);
     else
       return read_integer(s, v.geometry, spec, file, label_option, threshold_option);
+  });
+}
+
+IntegerMaskRule integer_mask_rule(const VolumeView& v, const MaskSpec& spec, const std::string& file,
+                                  const std::string& label_option, const std::string& threshold_option) {
+  return v.visit([&](const auto* s, int64_t n) -> IntegerMaskRule {
+    using T = std::remove_cv_t<std::remove_pointer_t<decltype(s)>>;
+    if constexpr (std::is_same_v<T, float>) {
+      throw std::logic_error("integer_mask_rule: " + file + " holds float voxels");
+    } else {
+      // Value counts per thread, added up (integer sums: any order).
+      const size_t bins = size_t(1) << (8 * sizeof(T));
+      const int64_t shift = std::is_signed<T>::value ? int64_t(1) << (8 * sizeof(T) - 1) : 0;
+      std::vector<int64_t> hist(bins, 0);
+#pragma omp parallel
+      {
+        std::vector<int64_t> h(bins, 0);
+#pragma omp for schedule(static) nowait
+        for (int64_t i = 0; i < n; ++i) ++h[size_t(int64_t(s[i]) + shift)];
+#pragma omp critical
+        for (size_t k = 0; k < bins; ++k) hist[k] += h[k];
+      }
+      return integer_mask_rule(VoxelTraits<T>::type, hist, spec, file, label_option, threshold_option);
+    }
+  });
+}
+
+void apply_mask_rule(const VolumeView& v, const IntegerMaskRule& rule, int64_t i0, int64_t n, const uint8_t* roi, uint8_t* out) {
+  v.visit([&](const auto* s, int64_t) {
+    using T = std::remove_cv_t<std::remove_pointer_t<decltype(s)>>;
+    if constexpr (std::is_same_v<T, float>) {
+      throw std::logic_error("apply_mask_rule: float voxels");
+    } else {
+      const T* a = s + i0;
+      const T want = T(rule.label);
+      if (rule.nonzero && roi) {
+        for (int64_t k = 0; k < n; ++k) out[k] = (a[k] != 0) & (roi[k] != 0);
+      } else if (rule.nonzero) {
+        for (int64_t k = 0; k < n; ++k) out[k] = a[k] != 0;
+      } else if (roi) {
+        for (int64_t k = 0; k < n; ++k) out[k] = (a[k] == want) & (roi[k] != 0);
+      } else {
+        for (int64_t k = 0; k < n; ++k) out[k] = a[k] == want;
+      }
+    }
   });
 }
 

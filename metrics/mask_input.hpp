@@ -42,6 +42,12 @@ IntegerMaskRule integer_mask_rule(VoxelType t, const std::vector<int64_t>& hist,
                                   const std::string& file, const std::string& label_option,
                                   const std::string& threshold_option);
 
+// The same rule from an integer volume's voxels (its value counts), and the rule applied to voxels
+// [i0, i0 + n) of it: out[k] = pore, and inside roi when roi is given (roi[k], non-zero = inside).
+IntegerMaskRule integer_mask_rule(const VolumeView& v, const MaskSpec& spec, const std::string& file,
+                                  const std::string& label_option, const std::string& threshold_option);
+void apply_mask_rule(const VolumeView& v, const IntegerMaskRule& rule, int64_t i0, int64_t n, const uint8_t* roi, uint8_t* out);
+
 // file: the path, for messages; label_option / threshold_option: the options that set spec
 // (e.g. "--pred-label", "--pred-threshold").
 MaskReading read_mask_volume(const AnyVolume& v, const MaskSpec& spec, const std::string& file,

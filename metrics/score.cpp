@@ -338,10 +338,7 @@ void restrict_z(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, con
   check_same_geometry(pred_in.geometry(), "pred", ref_in.geometry(), "ref");
   if (roi_in) check_same_geometry(roi_in->geometry(), "roi", ref_in.geometry(), "ref");
   const int64_t nz_in = ref_in.nz();
-  const int64_t z0 = opt.z_begin, z1 = opt.z_end < 0 ? nz_in : opt.z_end;
-  if (z1 > nz_in || (nz_in > 0 && z0 >= nz_in))
-    throw InputError("z range [" + std::to_string(z0) + ", " + std::to_string(z1) + ") is outside the " +
-                     std::to_string(nz_in) + " slices");
+  const auto [z0, z1] = scored_slices(nz_in, opt);
   in.z0 = z0;
   in.pred = &pred_in, in.ref = &ref_in, in.roi = roi_in;
   if (z0 == 0 && z1 == nz_in) return;
@@ -353,7 +350,7 @@ void restrict_z(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, con
 
 // The overlap pass: per row, a sweep over the ref and pred runs gives the per-slice tp/fp/fn, the
 // ROI voxels per slice and the overlap of every (ref pore, pred pore) pair.
-void overlap_pass(const LabelRuns& cp, const LabelRuns& cr, const Mask* roi, ScoreResult& r) {
+void overlap_pass(const LabelRuns& cp, const LabelRuns& cr, const uint8_t* roi, ScoreResult& r) {
   const Geometry& g = r.geometry;
   const int64_t ny = g.dims[1], nz = g.dims[2], sxy = g.dims[0] * ny;
   r.slice_tp.assign(size_t(nz), 0);
@@ -362,7 +359,7 @@ void overlap_pass(const LabelRuns& cp, const LabelRuns& cr, const Mask* roi, Sco
   std::vector<int64_t> slice_in(size_t(nz), 0);
   const int nt = omp_get_max_threads();
   std::vector<std::unordered_map<uint64_t, int64_t>> pair_maps(static_cast<size_t>(nt));
-  const uint8_t* O = roi ? roi->data() : nullptr;
+  const uint8_t* O = roi;
 #pragma omp parallel num_threads(nt)
   {
     auto& pm = pair_maps[size_t(omp_get_thread_num())];
@@ -560,7 +557,7 @@ namespace {
 
 // Everything score() computes once both sides are labelled (runs of the scored slices; z0: the
 // first scored slice of the input, for bounding boxes).
-ScoreResult score_labelled(const LabelRuns& cp, const LabelRuns& cr, const Mask* roi, int64_t z0, const ScoreOptions& opt) {
+ScoreResult score_labelled(const LabelRuns& cp, const LabelRuns& cr, const uint8_t* roi, int64_t z0, const ScoreOptions& opt) {
   ScoreResult r;
   r.options = opt;
   r.geometry = cr.geometry;
@@ -569,8 +566,8 @@ ScoreResult score_labelled(const LabelRuns& cp, const LabelRuns& cr, const Mask*
   porosity(r);
   pooled_cis(opt, r);
   const Directions D = lattice_directions(r.geometry.spacing_mm);
-  r.pores_ref = pore_geometry(cr, roi ? roi->data() : nullptr, D, z0);
-  r.pores_pred = pore_geometry(cp, roi ? roi->data() : nullptr, D, z0);
+  r.pores_ref = pore_geometry(cr, roi, D, z0);
+  r.pores_pred = pore_geometry(cp, roi, D, z0);
   match_pores(opt.match, opt.max_volume_ratio, r);
   false_call_ci(r);
   detection_and_sizes(opt, cp, cr, r);
@@ -586,13 +583,21 @@ ScoreResult score(const Mask& pred_in, const Mask& ref_in, const Mask* roi_in, c
   restrict_z(pred_in, ref_in, roi_in, opt, in);
   const LabelRuns cp = label_runs(*in.pred, in.roi, opt.connectivity);
   const LabelRuns cr = label_runs(*in.ref, in.roi, opt.connectivity);
-  return score_labelled(cp, cr, in.roi, in.z0, opt);
+  return score_labelled(cp, cr, in.roi ? in.roi->data() : nullptr, in.z0, opt);
 }
 
-ScoreResult score_runs(const LabelRuns& pred, const LabelRuns& ref, int64_t z0, const ScoreOptions& opt) {
+ScoreResult score_runs(const LabelRuns& pred, const LabelRuns& ref, int64_t z0, const ScoreOptions& opt, const uint8_t* roi) {
   opt.validate();
   check_same_geometry(pred.geometry, "pred", ref.geometry, "ref");
-  return score_labelled(pred, ref, nullptr, z0, opt);
+  return score_labelled(pred, ref, roi, z0, opt);
+}
+
+std::array<int64_t, 2> scored_slices(int64_t nz, const ScoreOptions& opt) {
+  const int64_t z0 = opt.z_begin, z1 = opt.z_end < 0 ? nz : opt.z_end;
+  if (z1 > nz || (nz > 0 && z0 >= nz))
+    throw InputError("z range [" + std::to_string(z0) + ", " + std::to_string(z1) + ") is outside the " +
+                     std::to_string(nz) + " slices");
+  return {z0, z1};
 }
 
 }  // namespace pb

@@ -114,11 +114,16 @@ struct ScoreResult {
 // (InputError otherwise).
 ScoreResult score(const Mask& pred, const Mask& ref, const Mask* roi, const ScoreOptions& opt = {});
 
-// The same score from both sides labelled (label_runs with opt.connectivity, no ROI) over the scored
-// slices, z0 being the first of them in the input (bounding boxes are in input slice indices): for
-// masks read by slabs (metrics/score_slabs.hpp). opt.z_begin/z_end are not applied here.
+// The same score from both sides labelled (label_runs with opt.connectivity, inside the ROI when
+// one is given) over the scored slices, z0 being the first of them in the input (bounding boxes are
+// in input slice indices): for masks read by slabs (metrics/score_slabs.hpp) or converted slab by
+// slab (metrics/score_record.hpp). roi: the part mask's voxels of the scored slices (non-zero =
+// inside), nullptr = none. opt.z_begin/z_end are not applied here.
 struct LabelRuns;
-ScoreResult score_runs(const LabelRuns& pred, const LabelRuns& ref, int64_t z0, const ScoreOptions& opt);
+ScoreResult score_runs(const LabelRuns& pred, const LabelRuns& ref, int64_t z0, const ScoreOptions& opt,
+                       const uint8_t* roi = nullptr);
+// The scored slices [z0, z1) of a volume of nz slices under opt's z range; InputError when outside.
+std::array<int64_t, 2> scored_slices(int64_t nz, const ScoreOptions& opt);
 
 // Mean of the defined values and its percentile bootstrap 95 % CI (Efron & Tibshirani 1993, ch. 13).
 // NaN entries are skipped; all NaN when fewer than 2 values are defined.

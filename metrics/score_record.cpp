@@ -1,9 +1,11 @@
 // The record of `porebench score --json` (metrics/score_record.hpp).
 #include "metrics/score_record.hpp"
 
+#include <algorithm>
 #include <stdexcept>
 #include <type_traits>
 
+#include "core/components.hpp"
 #include "core/context.hpp"
 #include "core/error.hpp"
 #include "core/npy.hpp"
@@ -46,16 +48,79 @@ ScoreSetup score_setup(const ScoreArgs& a) {
   return s;
 }
 
+namespace {
+
+// Pores of an integer volume under `rule` (and inside roi, the part mask's voxels of the scored
+// slices, when given) over slices [z0, z1), labelled as label_runs labels the whole mask: converted
+// and collected a few slices at a time (core/components.hpp RunCollector), so that no whole-volume
+// mask is made.
+LabelRuns runs_by_rule(const VolumeView& v, const IntegerMaskRule& rule, const uint8_t* roi, int64_t z0, int64_t z1,
+                       int connectivity) {
+  Geometry g = v.geometry;
+  g.dims[2] = z1 - z0;
+  g.origin_mm[2] += double(z0) * g.spacing_mm[2];
+  RunCollector c(g);
+  const int64_t sxy = g.slice_voxels();
+  // Slabs of up to 64 slices and 4 MiB.
+  const int64_t slab = std::clamp<int64_t>(std::min<int64_t>(64, (int64_t(4) << 20) / std::max<int64_t>(1, sxy)), 1,
+                                           std::max<int64_t>(1, z1 - z0));
+  std::vector<uint8_t> m(size_t(std::min(slab, z1 - z0) * sxy));
+  for (int64_t z = z0; z < z1; z += slab) {
+    const int64_t k = std::min(z1, z + slab) - z;
+#pragma omp parallel for schedule(static)
+    for (int64_t j = 0; j < k; ++j)
+      apply_mask_rule(v, rule, (z + j) * sxy, sxy, roi ? roi + (z - z0 + j) * sxy : nullptr, m.data() + j * sxy);
+    c.add(m.data(), k);
+  }
+  return c.finish(connectivity);
+}
+
+}  // namespace
+
 ScoreRecord score_record(const ScoreSetup& s, const ScoreInput& pred, const ScoreInput& ref, const ScoreInput* roi,
                          bool with_json) {
   check_same_geometry(pred.volume.geometry, pred.name, ref.volume.geometry, ref.name);
   if (roi) check_same_geometry(roi->volume.geometry, roi->name, ref.volume.geometry, ref.name);
+  auto input = [](const ScoreInput& in) {
+    return nlohmann::ordered_json{{"path", in.path}, {"sha256_voxels", sha256_hex(in.volume.data, in.volume.bytes())}};
+  };
+  ScoreRecord rec;
+  if (pred.volume.type != VoxelType::f32 && ref.volume.type != VoxelType::f32) {
+    // Integer masks: labelled slab by slab from the inputs as they are (no mask copies); each input
+    // is hashed, then released (ScoreInput::release) once its runs are made.
+    const IntegerMaskRule pr = integer_mask_rule(pred.volume, s.pred, pred.name, s.pred_option, "--pred-threshold");
+    const IntegerMaskRule rr =
+        integer_mask_rule(ref.volume, s.ref, ref.name, s.ref_option, "the reference threshold (fixed at 0.5)");
+    rec.pred_how = pr.how;
+    rec.ref_how = rr.how;
+    s.options.validate();
+    const auto [z0, z1] = scored_slices(ref.volume.geometry.dims[2], s.options);
+    Mask roi_mask;  // a part mask stored wider than uint8, as 0/1
+    const uint8_t* R = nullptr;
+    if (roi && roi->volume.type == VoxelType::u8) R = static_cast<const uint8_t*>(roi->volume.data);
+    else if (roi) roi_mask = to_mask(roi->volume), R = roi_mask.data();
+    const uint8_t* R0 = R ? R + z0 * ref.volume.geometry.slice_voxels() : nullptr;
+    nlohmann::ordered_json jp, jr;
+    auto runs = [&](const ScoreInput& in, const IntegerMaskRule& rule, nlohmann::ordered_json& j) {
+      LabelRuns c = runs_by_rule(in.volume, rule, R0, z0, z1, s.options.connectivity);
+      if (with_json) j = input(in);
+      if (in.release) in.release();
+      return c;
+    };
+    {
+      const LabelRuns cp = runs(pred, pr, jp);
+      const LabelRuns cr = runs(ref, rr, jr);
+      rec.result = score_runs(cp, cr, z0, s.options, R0);
+    }
+    if (!with_json) return rec;
+    fill_score_json(rec, std::move(jp), std::move(jr), roi ? input(*roi) : nlohmann::ordered_json());
+    return rec;
+  }
   const MaskReading pred_read = read_mask_volume(pred.volume, s.pred, pred.name, s.pred_option, "--pred-threshold");
   const MaskReading ref_read =
       read_mask_volume(ref.volume, s.ref, ref.name, s.ref_option, "the reference threshold (fixed at 0.5)");
   Mask roi_mask;
   if (roi) roi_mask = to_mask(roi->volume);
-  ScoreRecord rec;
   rec.pred_how = pred_read.how;
   rec.ref_how = ref_read.how;
   rec.result = score(pred_read.mask, ref_read.mask, roi ? &roi_mask : nullptr, s.options);
@@ -64,9 +129,6 @@ ScoreRecord score_record(const ScoreSetup& s, const ScoreInput& pred, const Scor
     rec.probability = probability_metrics(static_cast<const float*>(pred.volume.data), ref_read.mask,
                                           roi ? &roi_mask : nullptr, s.options.z_begin, s.options.z_end, s.pred.threshold);
   if (!with_json) return rec;
-  auto input = [](const ScoreInput& in) {
-    return nlohmann::ordered_json{{"path", in.path}, {"sha256_voxels", sha256_hex(in.volume.data, in.volume.bytes())}};
-  };
   fill_score_json(rec, input(pred), input(ref), roi ? input(*roi) : nlohmann::ordered_json());
   return rec;
 }

@@ -44,6 +44,9 @@ struct ScoreInput {
   VolumeView volume;
   std::string name;             // in messages: the file, or what stands for it
   nlohmann::ordered_json path;  // the record's inputs.<role>.path: the file, or null
+  // Called once score_record has read (and hashed) pred or ref and no longer needs its voxels, so
+  // that the owner can free them before the scoring proper (the command line does); may be empty.
+  std::function<void()> release;
 };
 
 struct ScoreRecord {
@@ -55,6 +58,8 @@ struct ScoreRecord {
 
 // Checks the geometries (InputError naming both inputs), reads pred and ref as masks and roi as a
 // part mask (nullptr: the whole volume), scores; with_json also hashes the inputs and renders.
+// Integer pred and ref are labelled a few slices at a time from the inputs (no mask copies; a uint8
+// roi is read in place) and released after; a float volume is read as a whole mask.
 ScoreRecord score_record(const ScoreSetup& s, const ScoreInput& pred, const ScoreInput& ref, const ScoreInput* roi,
                          bool with_json);
 

@@ -84,10 +84,7 @@ ScoreRecord score_record_by_slabs(const ScoreSetup& s, const SlabFile& pred, con
     throw InputError("score by slabs: " + (pred.type() == VoxelType::f32 ? pred.path() : ref.path()) +
                      " holds float voxels; masks read by slabs are integer volumes (probability maps are scored in memory)");
   const ScoreOptions& o = s.options;
-  const int64_t nz = ref.geometry().dims[2], z0 = o.z_begin, z1 = o.z_end < 0 ? nz : o.z_end;
-  if (z1 > nz || (nz > 0 && z0 >= nz))
-    throw InputError("z range [" + std::to_string(z0) + ", " + std::to_string(z1) + ") is outside the " +
-                     std::to_string(nz) + " slices");
+  const auto [z0, z1] = scored_slices(ref.geometry().dims[2], o);
   const int64_t slab = slabs_of(ref.geometry(), slab_slices);
   const IntegerMaskRule pr = integer_mask_rule(pred.type(), value_counts(pred, slab), s.pred, pred.path(), s.pred_option, "--pred-threshold");
   const IntegerMaskRule rr = integer_mask_rule(ref.type(), value_counts(ref, slab), s.ref, ref.path(), s.ref_option,

@@ -233,11 +233,11 @@ py::dict py_score(const py::handle& pred, const py::handle& ref, const py::handl
   if (!roi.is_none()) o = input(roi, "roi");
   std::vector<std::string> notes;
   set_geometry({&r, &p, o ? &*o : nullptr}, spacing, origin, notes);
-  const ScoreInput roi_in = o ? ScoreInput{o->view, o->name, o->path} : ScoreInput{};
+  const ScoreInput roi_in = o ? ScoreInput{o->view, o->name, o->path, {}} : ScoreInput{};
   ScoreRecord rec;
   {
     py::gil_scoped_release free;
-    rec = score_record(setup, {p.view, p.name, p.path}, {r.view, r.name, r.path}, o ? &roi_in : nullptr, true);
+    rec = score_record(setup, {p.view, p.name, p.path, {}}, {r.view, r.name, r.path, {}}, o ? &roi_in : nullptr, true);
   }
   for (const auto& w : rec.result.warnings) notes.push_back("warning: " + w);
   warn(notes);

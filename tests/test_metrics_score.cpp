@@ -11,6 +11,7 @@
 #include "core/error.hpp"
 #include "core/json.hpp"
 #include "metrics/score.hpp"
+#include "metrics/score_record.hpp"
 #include "tests/helpers.hpp"
 #include "tests/metrics_helpers.hpp"
 
@@ -441,4 +442,54 @@ TEST_CASE("a bad volume-ratio cap is an input error naming the field", "[metrics
   } catch (const InputError& e) {
     CHECK_THAT(std::string(e.what()), Catch::Contains("max_volume_ratio"));
   }
+}
+
+TEST_CASE("score_record labels integer inputs slab by slab like score() on whole masks (issue 16)", "[metrics][score]") {
+  // Reference: score() on masks made voxel by voxel by the rules of metrics/mask_input.hpp (its
+  // figures are checked against scipy/scikit-learn above and in test_metrics_*.cpp). The record
+  // converts the inputs a few slices at a time (RunCollector), reads a uint8 part mask in place and
+  // releases pred and ref once labelled. Inputs: pred uint16 label volume (pores = 7), ref synthetic
+  // truth labels 0/1/2 (pores = 2), a part mask of 0/255 (uint8) or 0/1 (int16); z ranges; 1 and 3
+  // threads. Slabs hold 64 slices: the 300-slice volume crosses slab faces.
+  const int nz = GENERATE(19, 300);
+  const int threads = GENERATE(1, 3);
+  Geometry g;
+  g.dims = {70, 61, nz};
+  g.spacing_mm = {0.01, 0.012, 0.015};
+  const Mask a = random_mask(g, 0.2, 31), b = random_mask(g, 0.2, 32), part = random_mask(g, 0.9, 33);
+  int64_t pred_voxels = 0;
+  for (int64_t i = 0; i < a.size(); ++i) pred_voxels += a[i];
+  Image<uint16_t> pv(g);
+  Image<uint8_t> rv(g), ov8(g);
+  Image<int16_t> ov16(g);
+  for (int64_t i = 0; i < pv.size(); ++i) {
+    pv[i] = a[i] ? 7 : uint16_t(3 * (i % 2));
+    rv[i] = b[i] ? 2 : 1;
+    ov8[i] = part[i] ? 255 : 0;
+    ov16[i] = part[i];
+  }
+  ScoreArgs args;
+  args.bootstrap = 100;
+  args.pred_label = "7";
+  const int before = omp_get_max_threads();
+  omp_set_num_threads(threads);
+  for (const std::string z : {"", "2:17"}) {
+    for (int roi_kind = 0; roi_kind < 3; ++roi_kind) {
+      INFO("slices " << nz << ", threads " << threads << ", z range '" << z << "', roi " << roi_kind);
+      args.z_range = z;
+      const ScoreSetup s = score_setup(args);
+      const AnyVolume o8(ov8), o16(ov16);
+      const ScoreInput roi_in{roi_kind == 1 ? view_of(o8) : view_of(o16), "part", "part", {}};
+      int released = 0;
+      const AnyVolume p(pv), r(rv);
+      const ScoreRecord rec = score_record(s, {view_of(p), "pred", "pred", [&] { ++released; }},
+                                           {view_of(r), "ref", "ref", [&] { ++released; }},
+                                           roi_kind ? &roi_in : nullptr, false);
+      CHECK(released == 2);
+      const ScoreResult want = score(a, b, roi_kind ? &part : nullptr, s.options);
+      CHECK(rec.pred_how == "label volume: pores = voxels equal to 7 (--pred-label), " + std::to_string(pred_voxels) + " voxels");
+      CHECK(to_json(rec.result).dump() == to_json(want).dump());
+    }
+  }
+  omp_set_num_threads(before);
 }
