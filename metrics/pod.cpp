@@ -312,9 +312,14 @@ void lr_band(PodLink link, const Groups& groups, double llmax, PodFit& f) {
   for (int k = 0; k < n; ++k) sizes.push_back(a0 * std::pow(a1 / a0, double(k) / (n - 1)));
   if (bounded && std::find(sizes.begin(), sizes.end(), f.a90_95_um) == sizes.end())
     sizes.insert(std::upper_bound(sizes.begin(), sizes.end(), f.a90_95_um), f.a90_95_um);
-  for (double a : sizes) {
-    const double x0 = std::log(a);
-    f.band.push_back({a, inverse_link(link, f.b0 + f.b1 * x0), inverse_link(link, lower_eta_lr(link, groups, llmax, f, x0))});
+  // Each size's bound is its own search (no state shared between sizes): computed in parallel,
+  // stored in order, the same for any thread count.
+  f.band.resize(sizes.size());
+  const int64_t ns = int64_t(sizes.size());
+#pragma omp parallel for schedule(dynamic, 1)
+  for (int64_t k = 0; k < ns; ++k) {
+    const double a = sizes[size_t(k)], x0 = std::log(a);
+    f.band[size_t(k)] = {a, inverse_link(link, f.b0 + f.b1 * x0), inverse_link(link, lower_eta_lr(link, groups, llmax, f, x0))};
   }
 }
 
