@@ -184,7 +184,15 @@ Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std:
       continue;
     }
     const int64_t c[3] = {p[0] / kCell, p[1] / kCell, p[2] / kCell};
+    // A cell none of whose voxels can be closer than the best so far is skipped: the per-axis gaps
+    // to its box give, in the same arithmetic as a point's distance, a bound no point beats.
+    auto gap = [](int64_t cell_index, int32_t v) -> int64_t {
+      const int64_t lo = cell_index * kCell, hi = lo + kCell - 1;
+      return v < lo ? lo - v : (v > hi ? v - hi : 0);
+    };
     auto scan_cell = [&](int64_t x, int64_t y, int64_t z) {
+      const double gx = double(gap(x, p[0])) * sp[0], gy = double(gap(y, p[1])) * sp[1], gz = double(gap(z, p[2])) * sp[2];
+      if (gx * gx + gy * gy + gz * gz >= best) return;
       const int64_t cell = G.cell(x, y, z);
       for (int64_t k = G.begin[size_t(cell)]; k < G.begin[size_t(cell) + 1]; ++k) {
         const auto& t = G.pts[size_t(k)];
