@@ -158,7 +158,7 @@ Directions lattice_directions(const std::array<double, 3>& sp) {
 }
 
 // Sums of one pore from the runs a thread visits: voxel coordinate sums (centroid), bounding box
-// (x0 y0 z0 x1 y1 z1), crossings per direction, touches the border.
+// (x0 y0 z0 x1 y1 z1), voxel pairs per direction (see pore_geometry), touches the border.
 struct Acc {
   std::array<int64_t, 3> sum{0, 0, 0};
   std::array<int64_t, 6> bbox{INT64_MAX, INT64_MAX, INT64_MAX, -1, -1, -1};
@@ -169,9 +169,12 @@ struct Acc {
 // Geometry of every component from its runs: sums for centroids, bounding boxes, boundary
 // crossings along the 13 directions (a voxel and its neighbour along +-d differ in label, or the
 // neighbour is outside the volume), and whether a voxel is 6-adjacent to the outside of the ROI
-// (R: non-zero = inside, nullptr = no ROI) or of the volume. Crossings count, per run and
-// neighbour offset, the run's voxels whose neighbour lies in a run of the same label: interval
-// overlaps, no voxel visits.
+// (R: non-zero = inside, nullptr = no ROI) or of the volume. Crossings along d_k for a pore of N
+// voxels are 2 (N - P_k), P_k the voxels v of the pore with v + d_k in the pore too (as many as
+// those with v - d_k in it): so only the forward neighbour rows (y-1..y+1, z+1) and (y+1, z) are
+// visited, and the run's own row gives len - 1 pairs along +x. P_k counts, per run and forward
+// offset, the run's voxels whose neighbour lies in a run of the same label: interval overlaps,
+// no voxel visits; the pass sums P_k in Pore::crossings, turned into crossings at the end.
 // Memory: one accumulator per pore, not per pore and thread. Thread t takes the slices
 // [nz t / T, nz (t + 1) / T) and owns the labels that start there (labels are in raster order of
 // first voxels, so these are the labels above every label of the slices before): it adds into
@@ -181,12 +184,15 @@ struct Acc {
 Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Directions& D, int64_t z_offset) {
   const Geometry& g = c.geometry;
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
-  // Direction index of each of the 26 offsets (dx, dy, dz) in 0..2 each (+1 shifted).
-  std::array<int, 27> dir_of{};
+  // The forward neighbour rows (dy, dz) and the direction index of each (row, dx + 1); the +x
+  // direction within the row itself.
+  const int fwd_dy[4] = {-1, 0, 1, 1}, fwd_dz[4] = {1, 1, 1, 0};
+  int fwd_dir[4][3], plus_x = 0;
   for (int k = 0; k < 13; ++k) {
     const auto& d = D.d[size_t(k)];
-    dir_of[size_t((d[2] + 1) * 9 + (d[1] + 1) * 3 + d[0] + 1)] = k;
-    dir_of[size_t((1 - d[2]) * 9 + (1 - d[1]) * 3 + 1 - d[0])] = k;
+    for (int n = 0; n < 4; ++n)
+      if (d[1] == fwd_dy[n] && d[2] == fwd_dz[n]) fwd_dir[n][d[0] + 1] = k;
+    if (d[0] == 1 && d[1] == 0 && d[2] == 0) plus_x = k;
   }
   Buffer<Pore> pores(c.count);
   Buffer<std::array<int64_t, 3>> sums(c.count);
@@ -215,19 +221,17 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
       for (int64_t y = 0; y < ny; ++y) {
         const int64_t row = c.row_of(y, z), i0 = c.row_begin[size_t(row)], i1 = c.row_begin[size_t(row) + 1];
         if (i0 == i1) continue;
-        // The nine neighbour rows (dy, dz) with a cursor each; absent rows hold no runs.
-        int64_t cur[9], end[9];
-        for (int dz = -1; dz <= 1; ++dz)
-          for (int dy = -1; dy <= 1; ++dy) {
-            const int n = (dz + 1) * 3 + dy + 1;
-            const int64_t yy = y + dy, zz = z + dz;
-            if (yy < 0 || zz < 0 || yy >= ny || zz >= nz) {
-              cur[n] = end[n] = 0;
-            } else {
-              cur[n] = c.row_begin[size_t(c.row_of(yy, zz))];
-              end[n] = c.row_begin[size_t(c.row_of(yy, zz)) + 1];
-            }
+        // The four forward neighbour rows with a cursor each; absent rows hold no runs.
+        int64_t cur[4], end[4];
+        for (int n = 0; n < 4; ++n) {
+          const int64_t yy = y + fwd_dy[n], zz = z + fwd_dz[n];
+          if (yy < 0 || yy >= ny || zz >= nz) {
+            cur[n] = end[n] = 0;
+          } else {
+            cur[n] = c.row_begin[size_t(c.row_of(yy, zz))];
+            end[n] = c.row_begin[size_t(c.row_of(yy, zz)) + 1];
           }
+        }
         const bool edge_row = y == 0 || z == 0 || y + 1 == ny || z + 1 == nz;
         for (int64_t i = i0; i < i1; ++i) {
           const int32_t a = c.runs[size_t(i)].x0, b = c.runs[size_t(i)].x1;
@@ -249,8 +253,9 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
           bb[0] = std::min<int64_t>(bb[0], a), bb[3] = std::max<int64_t>(bb[3], b - 1);
           bb[1] = std::min(bb[1], y), bb[4] = std::max(bb[4], y);
           bb[2] = std::min(bb[2], z), bb[5] = std::max(bb[5], z);
-          int64_t same[27] = {};
-          for (int n = 0; n < 9; ++n) {
+          auto& P = *cross;
+          P[size_t(plus_x)] += len - 1;  // the next run of the row is at least one voxel away
+          for (int n = 0; n < 4; ++n) {
             int64_t& j = cur[n];
             while (j < end[n] && c.runs[size_t(j)].x1 <= a - 1) ++j;  // runs before [a-1, b+1)
             for (int64_t k = j; k < end[n] && c.runs[size_t(k)].x0 < b + 1; ++k) {
@@ -258,12 +263,10 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
               const int32_t e0 = c.runs[size_t(k)].x0, e1 = c.runs[size_t(k)].x1;
               for (int dx = -1; dx <= 1; ++dx) {  // voxels x in [a, b) with x + dx in [e0, e1)
                 const int64_t o = std::min<int64_t>(b, e1 - dx) - std::max<int64_t>(a, e0 - dx);
-                if (o > 0) same[n * 3 + dx + 1] += o;
+                if (o > 0) P[size_t(fwd_dir[n][dx + 1])] += o;
               }
             }
           }
-          for (int o = 0; o < 27; ++o)
-            if (o != 13) (*cross)[size_t(dir_of[size_t(o)])] += len - same[o];
           bool& tt = *touch;
           if (edge_row || a == 0 || b == nx) tt = true;
           if (R && !tt) {  // a 6-neighbour outside the ROI (x-neighbours: only the ends)
@@ -306,6 +309,7 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
     p.centroid_mm = {g.origin_mm[0] + sp[0] * double(t[0]) / n, g.origin_mm[1] + sp[1] * double(t[1]) / n,
                      g.origin_mm[2] + sp[2] * double(t[2]) / n};
     p.bbox[2] += z_offset, p.bbox[5] += z_offset;
+    for (auto& x : p.crossings) x = 2 * (p.voxels - x);  // pairs P_k -> crossings
     double s = 0;
     for (int q = 0; q < 13; ++q) s += D.weight[size_t(q)] * double(p.crossings[size_t(q)]) * D.line_area_mm2[size_t(q)];
     p.surface_mm2 = 2 * s;
