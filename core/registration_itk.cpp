@@ -1,38 +1,39 @@
 // Intensity-based registration with ITK's v4 framework: Mattes mutual information (Mattes et al.
 // (2003) "PET-CT image registration in the chest using free-form deformations", IEEE TMI
-// 22(1):120-128), regular-step gradient descent, multi-resolution (shrink 2^(L-1)..1, Gaussian
-// smoothing sigma = shrink/2 voxels, none at full resolution: common practice, no source), versor
-// rigid (6 DOF) or similarity (7 DOF). Parameter scales from the physical shift each parameter
-// causes (ITK's RegistrationParameterScalesFromPhysicalShift); the first step of each level is at
-// most one voxel of that level, and a level stops when the relaxed step falls below min_step of
-// that first step.
-// Each level is its own ITK registration on a real pyramid: the scans smoothed and subsampled
-// (ImageRegistrationMethodv4's own levels subsample only the sample grid and interpolate the
-// smoothed full-size scans, whose random reads dominate the time), and the moving scan's gradient
-// is the analytic gradient of its trilinear interpolant (core/linear_gradient_itk.hpp) instead of
-// six more interpolations per sample. ITK estimates the maximum step once, from the coarsest
-// level's voxel, and keeps it for every later level; here it is set per level (issue 12: at 256^3
-// the full-resolution level's first step of 4 voxels threw the rotation 0.4 deg off).
+// 22(1):120-128), multi-resolution (shrink 2^(L-1)..1), versor rigid (6 DOF) or similarity (7
+// DOF), moments or markers to start.
+// - Each level is its own ITK registration (ImageRegistrationMethodv4, one level) on a real
+//   pyramid: the scans reduced by Burt & Adelson's REDUCE (core/pyramid.hpp; sigma about shrink/2
+//   voxels, none at full resolution: common practice, no source). ITK's own levels smooth the
+//   full-size scans with a recursive Gaussian and subsample only the sample grid: the smoothing and
+//   the random reads into full-size scans were most of the time (issue 12).
+// - The moving scan's gradient at each sample is the analytic gradient of its trilinear
+//   interpolant (core/linear_gradient_itk.hpp), not six more interpolations per sample.
+// - The optimiser is iRprop- (below) in mm of physical shift (ITK's
+//   RegistrationParameterScalesFromPhysicalShift). ITK's regular-step gradient descent was used
+//   before: it estimates its maximum step once, from the coarsest level's voxel, and kept it for
+//   the finer levels (at 256^3 the last level's first step of 4 voxels threw the rotation 0.4 deg
+//   off); and one step length for all parameters left the rotation about a nearly symmetric
+//   part's axis crawling for hundreds of iterations at the step the others had shrunk to.
 #include <itkCenteredTransformInitializer.h>
-#include <itkCommand.h>
+#include <itkGradientDescentOptimizerBasev4.h>
 #include <itkImageRegistrationMethodv4.h>
 #include <itkMattesMutualInformationImageToImageMetricv4.h>
 #include <itkMultiThreaderBase.h>
 #include <itkRegistrationParameterScalesFromPhysicalShift.h>
-#include <itkRegularStepGradientDescentOptimizerv4.h>
-#include <itkShrinkImageFilter.h>
-#include <itkSmoothingRecursiveGaussianImageFilter.h>
 #include <itkSimilarity3DTransform.h>
 #include <itkVersorRigid3DTransform.h>
 
 #include <algorithm>
 #include <cmath>
 #include <string>
+#include <vector>
 
 #include "core/error.hpp"
 #include "core/itk_bridge.hpp"
 #include "core/linear_gradient_itk.hpp"
 #include "core/parallel.hpp"
+#include "core/pyramid.hpp"
 #include "core/registration.hpp"
 
 namespace pb {
@@ -40,89 +41,105 @@ namespace pb {
 namespace {
 
 using ImageF = itk::Image<float, 3>;
-using Optimizer = itk::RegularStepGradientDescentOptimizerv4<double>;
 using Metric = itk::MattesMutualInformationImageToImageMetricv4<ImageF, ImageF>;
 
-// Counts iterations, sets each level's stop step relative to its first (estimated) step, and lets
-// the step grow again. Regular-step gradient descent halves the step at every reversal of the
-// gradient direction and never lengthens it: after the well-determined parameters have settled,
-// a weakly determined one (the rotation about a nearly symmetric part's axis) is left to crawl at
-// the halved step for hundreds of iterations. Here the step grows by 1.5 after two successive
-// steps in a consistent direction (up to the level's first step): the "bold driver" rule (Battiti
-// 1989, "Accelerated backpropagation learning: two optimization methods", Complex Systems 3:331-342;
-// from memory), applied to the optimiser's relaxation. A halving still follows every reversal, so
-// a level still ends when the step falls below min_step.
-class LevelObserver : public itk::Command {
+// Resilient propagation, iRprop- (Riedmiller & Braun (1993) "A direct adaptive method for faster
+// backpropagation learning: the RPROP algorithm", Proc. IEEE ICNN, 586-591; the variant of Igel &
+// Huesken (2000) "Improving the Rprop learning algorithm", Proc. NC 2000, 115-121; both from
+// memory). Each parameter has its own step, moved by the sign of its derivative alone: the step
+// grows by 1.2 while the sign holds and halves when it flips (that parameter then rests one
+// iteration). A weakly determined parameter (the rotation about a nearly symmetric part's axis)
+// is not held at the step that the well-determined ones have shrunk to. Steps are kept in mm of
+// the largest shift they cause (ITK's physical-shift scales: shift per unit = sqrt(scale)): each
+// starts at first_step_mm and never exceeds max_step_mm (a voxel of the level); the level ends
+// when every step is below rel_min_step of that.
+class RpropOptimizer : public itk::GradientDescentOptimizerBasev4Template<double> {
  public:
-  using Self = LevelObserver;
+  using Self = RpropOptimizer;
+  using Superclass = itk::GradientDescentOptimizerBasev4Template<double>;
   using Pointer = itk::SmartPointer<Self>;
   itkNewMacro(Self);
-  int total = 0;
-  double rel_min_step = 1e-3;
-  static constexpr double kGrow = 1.5;
-  static constexpr int kConsistentSteps = 2;
-  void Execute(itk::Object* caller, const itk::EventObject& event) override {
-    Execute(static_cast<const itk::Object*>(caller), event);
+  itkTypeMacro(RpropOptimizer, GradientDescentOptimizerBasev4Template);
+
+  double first_step_mm = 1;  // every parameter's first step, mm of shift
+  double max_step_mm = 1;    // no step grows beyond this
+  double rel_min_step = 1e-4;  // stop: every step below this fraction of max_step_mm
+
+  void StartOptimization(bool only_initialise = false) override {
+    Superclass::StartOptimization(only_initialise);  // estimates the scales
+    this->m_CurrentIteration = 0;
+    if (!only_initialise) ResumeOptimization();
   }
-  void Execute(const itk::Object* caller, const itk::EventObject& event) override {
-    if (!itk::IterationEvent().CheckEvent(&event)) return;
-    auto* opt = const_cast<Optimizer*>(dynamic_cast<const Optimizer*>(caller));
-    if (!opt) return;
-    ++total;
-    const auto& g = opt->GetGradient();
-    if (opt->GetCurrentIteration() == 0) {
-      opt->SetMinimumStepLength(opt->GetLearningRate() * rel_min_step);
-      previous_ = g;
-      consistent_ = 0;
-      return;
-    }
-    double dot = 0;
-    for (unsigned i = 0; i < g.Size(); ++i) dot += g[i] * previous_[i];
-    previous_ = g;
-    consistent_ = dot > 0 ? consistent_ + 1 : 0;
-    if (consistent_ == kConsistentSteps) {
-      opt->SetCurrentLearningRateRelaxation(std::min(1.0, opt->GetCurrentLearningRateRelaxation() * kGrow));
-      consistent_ = 0;
+
+  void ResumeOptimization() override {
+    this->m_StopConditionDescription.str("");
+    this->m_StopConditionDescription << "Rprop: ";
+    this->InvokeEvent(itk::StartEvent());
+    const unsigned n = this->m_Metric->GetNumberOfParameters();
+    std::vector<double> mm_per_unit(n), step_mm(n, first_step_mm);
+    std::vector<int> last_sign(n, 0);
+    for (unsigned i = 0; i < n; ++i) mm_per_unit[i] = std::sqrt(std::max(this->m_Scales[i], 1e-300));
+    DerivativeType update(n);
+    this->m_Stop = false;
+    while (!this->m_Stop) {
+      if (this->m_CurrentIteration >= this->m_NumberOfIterations) {
+        this->m_StopConditionDescription << "maximum number of iterations (" << this->m_NumberOfIterations
+                                         << ") reached";
+        this->m_StopCondition = itk::StopConditionObjectToObjectOptimizerEnum::MAXIMUM_NUMBER_OF_ITERATIONS;
+        this->StopOptimization();
+        break;
+      }
+      // ITK's v4 metrics return the direction that improves the metric as the "derivative".
+      this->m_Metric->GetValueAndDerivative(this->m_CurrentMetricValue, this->m_Gradient);
+      double largest_mm = 0;
+      for (unsigned i = 0; i < n; ++i) {
+        int sign = this->m_Gradient[i] > 0 ? 1 : this->m_Gradient[i] < 0 ? -1 : 0;
+        if (sign * last_sign[i] > 0) {
+          step_mm[i] = std::min(step_mm[i] * 1.2, max_step_mm);
+        } else if (sign * last_sign[i] < 0) {
+          step_mm[i] *= 0.5;
+          sign = 0;  // iRprop-: no move after a flip
+        }
+        last_sign[i] = sign;
+        update[i] = double(sign) * step_mm[i] / mm_per_unit[i];
+        largest_mm = std::max(largest_mm, step_mm[i]);
+      }
+      if (largest_mm < rel_min_step * max_step_mm) {
+        this->m_StopConditionDescription << "every step below " << rel_min_step << " of the first after "
+                                         << this->m_CurrentIteration << " iterations";
+        this->m_StopCondition = itk::StopConditionObjectToObjectOptimizerEnum::STEP_TOO_SMALL;
+        this->StopOptimization();
+        break;
+      }
+      this->m_Metric->UpdateTransformParameters(update);
+      ++this->m_CurrentIteration;
+      this->InvokeEvent(itk::IterationEvent());
     }
   }
 
- private:
-  Optimizer::DerivativeType previous_;
-  int consistent_ = 0;
+ protected:
+  RpropOptimizer() = default;
+  void ModifyGradientByScalesOverSubRange(const IndexRangeType&) override {}
+  void ModifyGradientByLearningRateOverSubRange(const IndexRangeType&) override {}
 };
 
-// Shrink factor of pyramid level l of `levels` (coarsest first): 2^(levels-1-l), halved while a
-// scan would have fewer than 8 voxels along an axis at that level.
-int level_shrink(const Geometry& a, const Geometry& b, int levels, int l) {
-  int s = 1 << (levels - 1 - l);
+// Pyramid step (halvings) of level l of `levels` (coarsest first): levels-1-l, fewer while a scan
+// would have fewer than 8 voxels along an axis at that level.
+int level_halvings(const Geometry& a, const Geometry& b, int levels, int l) {
+  int k = levels - 1 - l;
   const int64_t smallest = std::min({a.dims[0], a.dims[1], a.dims[2], b.dims[0], b.dims[1], b.dims[2]});
-  while (s > 1 && smallest / s < 8) s /= 2;
-  return s;
+  while (k > 0 && (smallest >> k) < 8) --k;
+  return k;
 }
 
-// A pyramid level: the scan smoothed with a Gaussian of sigma = shrink/2 voxels (ITK's recursive
-// Gaussian) and subsampled every `shrink` voxels (ITK's ShrinkImageFilter). The shrink filter
-// centres the output grid on the input's and takes the nearest input voxel, up to half an input
-// voxel away; the origin is set to the voxel it really took, so the level's geometry is exact.
-ImageF::ConstPointer pyramid_level(const ImageF* full, int shrink) {
-  using Smooth = itk::SmoothingRecursiveGaussianImageFilter<ImageF, ImageF>;
-  auto smooth = Smooth::New();
-  smooth->SetInput(full);
-  typename Smooth::SigmaArrayType sigma;
-  for (unsigned d = 0; d < 3; ++d) sigma[d] = 0.5 * shrink * full->GetSpacing()[d];
-  smooth->SetSigmaArray(sigma);
-  auto sub = itk::ShrinkImageFilter<ImageF, ImageF>::New();
-  sub->SetInput(smooth->GetOutput());
-  sub->SetShrinkFactors(unsigned(shrink));
-  sub->Update();
-  ImageF::Pointer out = sub->GetOutput();
-  out->DisconnectPipeline();
-  ImageF::PointType first;
-  out->TransformIndexToPhysicalPoint(out->GetLargestPossibleRegion().GetIndex(), first);
-  const auto taken = full->TransformPhysicalPointToIndex(first);
-  ImageF::PointType taken_mm;
-  full->TransformIndexToPhysicalPoint(taken, taken_mm);
-  out->SetOrigin(out->GetOrigin() + (taken_mm - first));
+// The scan and its REDUCE steps (core/pyramid.hpp) down to `halvings`; [0] is the scan itself.
+std::vector<const VolumeF*> pyramid(const VolumeF& full, int halvings, std::vector<VolumeF>& keep) {
+  keep.reserve(size_t(halvings));
+  std::vector<const VolumeF*> out{&full};
+  for (int k = 1; k <= halvings; ++k) {
+    keep.push_back(reduce2(*out.back()));
+    out.push_back(&keep.back());
+  }
   return out;
 }
 
@@ -130,8 +147,10 @@ template <class Transform>
 RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const RegistrationOptions& opt,
                        const SimilarityTransform* init) {
   itk::MultiThreaderBase::SetGlobalDefaultNumberOfThreads(unsigned(std::max(1, thread_count())));
-  const auto fimg = itk_view(fixed);
-  const auto mimg = itk_view(moving);
+  const int levels = std::clamp(opt.levels, 1, 6);
+  const int top = level_halvings(fixed.geometry(), moving.geometry(), levels, 0);
+  std::vector<VolumeF> fkeep, mkeep;
+  const std::vector<const VolumeF*> fpyr = pyramid(fixed, top, fkeep), mpyr = pyramid(moving, top, mkeep);
 
   auto transform = Transform::New();
   RegistrationResult res;
@@ -158,25 +177,23 @@ RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const Regist
     using Init = itk::CenteredTransformInitializer<Transform, ImageF, ImageF>;
     auto ini = Init::New();
     ini->SetTransform(transform);
-    ini->SetFixedImage(fimg);
-    ini->SetMovingImage(mimg);
+    // Image moments of the coarsest level: the same centroid and axes, 1/8^top of the reads.
+    ini->SetFixedImage(itk_view(*fpyr.back()));
+    ini->SetMovingImage(itk_view(*mpyr.back()));
     ini->MomentsOn();
     ini->InitializeTransform();
     res.initialisation = "moments";
   }
 
-  const int levels = std::clamp(opt.levels, 1, 6);
   const auto& sp = fixed.geometry().spacing_mm;
   const double voxel_mm = std::min({sp[0], sp[1], sp[2]});
-  auto observer = LevelObserver::New();
-  observer->rel_min_step = opt.min_step;
   res.method = "intensity";
   res.metric_name = "Mattes mutual information (negated; lower is better)";
-  typename Optimizer::Pointer optimizer;
+  RpropOptimizer::Pointer optimizer;
   for (int l = 0; l < levels; ++l) {
-    const int s = level_shrink(fixed.geometry(), moving.geometry(), levels, l);
-    const ImageF::ConstPointer F = s > 1 ? pyramid_level(fimg, s) : ImageF::ConstPointer(fimg);
-    const ImageF::ConstPointer M = s > 1 ? pyramid_level(mimg, s) : ImageF::ConstPointer(mimg);
+    const int k = level_halvings(fixed.geometry(), moving.geometry(), levels, l);
+    const double level_voxel_mm = double(1 << k) * voxel_mm;
+    const ImageF::ConstPointer F = itk_view(*fpyr[size_t(k)]), M = itk_view(*mpyr[size_t(k)]);
 
     auto metric = Metric::New();
     metric->SetNumberOfHistogramBins(unsigned(opt.histogram_bins));
@@ -184,19 +201,18 @@ RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const Regist
     metric->SetUseFixedImageGradientFilter(false);
     metric->SetMovingImageGradientCalculator(LinearGradientImageFunction<ImageF>::New());
 
-    optimizer = Optimizer::New();
-    optimizer->SetLearningRate(1.0);
-    optimizer->SetRelaxationFactor(0.5);
+    optimizer = RpropOptimizer::New();
     optimizer->SetNumberOfIterations(itk::SizeValueType(opt.max_iterations));
-    optimizer->SetGradientMagnitudeTolerance(1e-8);
-    optimizer->SetDoEstimateLearningRateOnce(true);
-    optimizer->SetDoEstimateLearningRateAtEachIteration(false);
-    optimizer->SetReturnBestParametersAndValue(false);
-    optimizer->SetMaximumStepSizeInPhysicalUnits(double(s) * voxel_mm);  // one voxel of this level
+    // The first level starts from moments or markers: steps of a voxel of that level. A later level
+    // starts within a fraction of its voxel (the level before is twice as coarse): a quarter of a
+    // voxel, so that the first moves do not throw the pose out of the basin it is in (at 512^3 a
+    // full voxel left the rotation 0.1 deg off; common practice for coarse-to-fine, no source).
+    optimizer->first_step_mm = (l == 0 ? 1.0 : 0.25) * level_voxel_mm;
+    optimizer->max_step_mm = level_voxel_mm;
+    optimizer->rel_min_step = opt.min_step;
     auto scales = itk::RegistrationParameterScalesFromPhysicalShift<Metric>::New();
     scales->SetMetric(metric);
     optimizer->SetScalesEstimator(scales);
-    optimizer->AddObserver(itk::IterationEvent(), observer);
 
     using Registration = itk::ImageRegistrationMethodv4<ImageF, ImageF, Transform>;
     auto reg = Registration::New();
@@ -223,9 +239,10 @@ RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const Regist
     } catch (const itk::ExceptionObject& e) {
       res.converged = false;
       res.stop_reason = std::string("ITK stopped: ") + e.GetDescription();
-      res.iterations = observer->total;
+      res.iterations += int(optimizer->GetCurrentIteration());
       return res;
     }
+    res.iterations += int(optimizer->GetCurrentIteration());
   }
   const auto* final_t = transform.GetPointer();
   const auto M = final_t->GetMatrix();
@@ -238,10 +255,8 @@ RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const Regist
   }
   res.T.scale = scale;
   res.metric = optimizer->GetValue();
-  res.iterations = observer->total;
-  const auto stop = optimizer->GetStopCondition();
-  res.converged = stop == itk::StopConditionObjectToObjectOptimizerEnum::STEP_TOO_SMALL ||
-                  stop == itk::StopConditionObjectToObjectOptimizerEnum::GRADIENT_MAGNITUDE_TOLEARANCE;
+  // The last (full-resolution) level decides: its steps all fell below min_step.
+  res.converged = optimizer->GetStopCondition() == itk::StopConditionObjectToObjectOptimizerEnum::STEP_TOO_SMALL;
   res.stop_reason = optimizer->GetStopConditionDescription();
   return res;
 }

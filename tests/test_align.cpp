@@ -13,6 +13,7 @@
 #include "core/io.hpp"
 #include "core/json.hpp"
 #include "core/markers.hpp"
+#include "core/pyramid.hpp"
 #include "core/registration.hpp"
 #include "core/resample.hpp"
 #include "suites/pairs.hpp"
@@ -29,6 +30,16 @@ std::vector<Eigen::Vector3d> random_points(int n, unsigned seed) {
   std::vector<Eigen::Vector3d> p;
   for (int i = 0; i < n; ++i) p.emplace_back(u(rng), u(rng), u(rng));
   return p;
+}
+
+// A float32 raw volume written by a reference script.
+VolumeF read_f32_raw(const std::string& path, const std::array<int64_t, 3>& dims) {
+  ReadOptions ro;
+  RawSpec rs;
+  rs.dims = dims;
+  rs.type = VoxelType::f32;
+  ro.raw = rs;
+  return read_volume(path, ro).to_float();
 }
 
 pb::Geometry grid(int64_t n, double spacing) {
@@ -249,12 +260,7 @@ TEST_CASE("resampling matches scipy.ndimage.affine_transform", "[align][resample
   for (int order : {1, 0}) {
     const RunResult r = run_ref_script("align_scipy.py", args(order));
     REQUIRE(r.exit_code == 0);
-    ReadOptions ro;
-    RawSpec rs;
-    rs.dims = gf.dims;
-    rs.type = VoxelType::f32;
-    ro.raw = rs;
-    const VolumeF ref = read_volume(d / "ref.raw", ro).to_float();
+    const VolumeF ref = read_f32_raw(d / "ref.raw", gf.dims);
     VolumeF ours;
     if (order == 1) {
       ours = resample_linear(moving, gf, T);
@@ -265,7 +271,7 @@ TEST_CASE("resampling matches scipy.ndimage.affine_transform", "[align][resample
       for (int64_t i = 0; i < mm.size(); ++i) mf[i] = mm[i];
       write_raw(AnyVolume(mf), d / "m.raw");
       REQUIRE(run_ref_script("align_scipy.py", args(0)).exit_code == 0);
-      const VolumeF ref0 = read_volume(d / "ref.raw", ro).to_float();
+      const VolumeF ref0 = read_f32_raw(d / "ref.raw", gf.dims);
       const Mask o = resample_nearest(mm, gf, T);
       int64_t n = 0, bad = 0;
       for (int64_t z = 0; z < gf.dims[2]; ++z)
@@ -292,6 +298,37 @@ TEST_CASE("resampling matches scipy.ndimage.affine_transform", "[align][resample
     INFO("largest difference " << worst << " over " << n << " voxels");
     CHECK(n > 20000);
     CHECK(worst < 1e-4);
+  }
+}
+
+TEST_CASE("a pyramid REDUCE step matches scipy.ndimage.correlate1d with the binomial kernel", "[align][pyramid]") {
+  // Source: scipy.ndimage.correlate1d([1 4 6 4 1]/16, mode "nearest") along x, y, z, then every
+  // second voxel (tests/ref/align_scipy.py reduce); odd and even sizes, and an axis one voxel thick.
+  TempDir d;
+  for (const std::array<int64_t, 3> dims : {std::array<int64_t, 3>{17, 12, 9}, std::array<int64_t, 3>{6, 1, 5}}) {
+    Geometry g;
+    g.dims = dims;
+    g.spacing_mm = {0.01, 0.02, 0.03};
+    g.origin_mm = {1.0, -2.0, 0.5};
+    VolumeF v(g);
+    std::mt19937_64 rng(5);
+    std::normal_distribution<float> nd(0.0f, 1.0f);
+    for (int64_t i = 0; i < v.size(); ++i) v[i] = nd(rng);
+    write_raw(AnyVolume(v), d / "in.raw");
+    std::ostringstream args;
+    args << "reduce " << d / "in.raw" << ' ' << dims[0] << ' ' << dims[1] << ' ' << dims[2] << ' ' << d / "out.raw";
+    REQUIRE(run_ref_script("align_scipy.py", args.str()).exit_code == 0);
+    const VolumeF r = reduce2(v);
+    const Geometry& go = r.geometry();
+    // Output voxel i is input voxel 2i: ceil(n/2) voxels, twice the spacing, the same origin.
+    CHECK(go.dims == std::array<int64_t, 3>{(dims[0] + 1) / 2, (dims[1] + 1) / 2, (dims[2] + 1) / 2});
+    CHECK(go.spacing_mm == std::array<double, 3>{0.02, 0.04, 0.06});
+    CHECK(go.origin_mm == g.origin_mm);
+    const VolumeF ref = read_f32_raw(d / "out.raw", go.dims);
+    double worst = 0;
+    for (int64_t i = 0; i < r.size(); ++i) worst = std::max(worst, double(std::abs(r[i] - ref[i])));
+    INFO("dims " << dims[0] << " x " << dims[1] << " x " << dims[2] << ": largest difference " << worst);
+    CHECK(worst < 1e-5);
   }
 }
 

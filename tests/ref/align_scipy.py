@@ -10,6 +10,10 @@
                             or 1 (linear), constant 0 outside.
   shift A.raw B.raw NX NY NZ  skimage.registration.phase_cross_correlation(A, B, upsample 10):
                             prints the shift of B's content relative to A as x y z voxels.
+  reduce IN.raw NX NY NZ OUT.raw
+                            one Gaussian-pyramid REDUCE step (Burt & Adelson 1983, a = 3/8):
+                            scipy.ndimage.correlate1d with [1 4 6 4 1]/16, mode "nearest", along
+                            each axis, then every second voxel from the first (float64 inside).
 """
 import sys
 
@@ -54,6 +58,16 @@ def shift(args):
     print(-s[2], -s[1], -s[0])
 
 
+def reduce(args):
+    from scipy import ndimage
+    src, nx, ny, nz, out = args[0], int(args[1]), int(args[2]), int(args[3]), args[4]
+    vol = np.fromfile(src, dtype="<f4").reshape(nz, ny, nx).astype(np.float64)
+    w = np.array([1, 4, 6, 4, 1], dtype=np.float64) / 16
+    for axis in range(3):
+        vol = ndimage.correlate1d(vol, w, axis=axis, mode="nearest")
+    vol[::2, ::2, ::2].astype("<f4").tofile(out)
+
+
 if __name__ == "__main__":
     cmd = sys.argv[1]
     if cmd == "rotation":
@@ -62,5 +76,7 @@ if __name__ == "__main__":
         resample(sys.argv[2:])
     elif cmd == "shift":
         shift(sys.argv[2:])
+    elif cmd == "reduce":
+        reduce(sys.argv[2:])
     else:
         sys.exit("unknown command " + cmd)
