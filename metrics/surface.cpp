@@ -40,42 +40,57 @@ struct RowBits {
   }
 };
 
-RowBits foreground_bits(const LabelRuns& L) {
-  RowBits F(L.geometry.dims);
-  const int64_t nrows = L.rows();
-#pragma omp parallel for schedule(static)
-  for (int64_t r = 0; r < nrows; ++r) {
-    uint64_t* w = F.w.data() + r * F.nw;
-    for (int64_t i = L.row_begin[size_t(r)]; i < L.row_begin[size_t(r) + 1]; ++i)
-      for (int32_t x = L.runs[size_t(i)].x0; x < L.runs[size_t(i)].x1; ++x) w[x >> 6] |= uint64_t(1) << (x & 63);
-  }
-  return F;
-}
-
-// Surface voxels: foreground with a background (or outside) 6-neighbour, 64 voxels at a time.
-RowBits surface_bits(const RowBits& F) {
-  RowBits S({F.nx, F.ny, F.nz});
-  const int64_t nw = F.nw;
-  const uint64_t last_mask = F.nx % 64 ? (uint64_t(1) << (F.nx % 64)) - 1 : ~uint64_t(0);
-#pragma omp parallel for schedule(static)
-  for (int64_t z = 0; z < F.nz; ++z)
-    for (int64_t y = 0; y < F.ny; ++y) {
-      const uint64_t* c = F.row(y, z);
-      bool any = false;
-      for (int64_t k = 0; k < nw && !any; ++k) any = c[k] != 0;
-      if (!any) continue;
-      const uint64_t* nb[4] = {y > 0 ? F.row(y - 1, z) : nullptr, y + 1 < F.ny ? F.row(y + 1, z) : nullptr,
-                               z > 0 ? F.row(y, z - 1) : nullptr, z + 1 < F.nz ? F.row(y, z + 1) : nullptr};
-      uint64_t* out = S.row(y, z);
-      for (int64_t k = 0; k < nw; ++k) {
-        const uint64_t left = (c[k] << 1) | (k > 0 ? c[k - 1] >> 63 : 0);  // bit x: voxel x - 1
-        uint64_t right = (c[k] >> 1) | (k + 1 < nw ? c[k + 1] << 63 : 0);  // bit x: voxel x + 1
-        if (k + 1 == nw) right &= last_mask >> 1;                           // past the row: outside
-        uint64_t inner = left & right;
-        for (const uint64_t* n : nb) inner &= n ? n[k] : 0;
-        out[k] = c[k] & ~inner;
+// Surface voxels: foreground with a background (or outside) 6-neighbour, 64 voxels at a time. The
+// foreground of each thread's slices (and one more on either side) is drawn from the runs into a
+// ring of three slices of bits, so no foreground volume is made.
+RowBits surface_bits(const LabelRuns& L) {
+  RowBits S(L.geometry.dims);
+  const int64_t nw = S.nw, ny = S.ny, nz = S.nz, plane = ny * nw;
+  const uint64_t last_mask = S.nx % 64 ? (uint64_t(1) << (S.nx % 64)) - 1 : ~uint64_t(0);
+#pragma omp parallel
+  {
+    const int T = omp_get_num_threads(), t = omp_get_thread_num();
+    const int64_t z0 = nz * t / T, z1 = nz * (t + 1) / T;
+    std::vector<uint64_t> ring(size_t(3 * plane));
+    auto slice = [&](int64_t z) { return ring.data() + (z + 3) % 3 * plane; };  // z >= -1
+    auto draw = [&](int64_t z) {  // foreground bits of slice z (zero outside the volume)
+      uint64_t* P = slice(z);
+      std::fill(P, P + plane, 0);
+      if (z < 0 || z >= nz) return;
+      for (int64_t y = 0; y < ny; ++y) {
+        uint64_t* w = P + y * nw;
+        const int64_t r = L.row_of(y, z);
+        for (int64_t i = L.row_begin[size_t(r)]; i < L.row_begin[size_t(r) + 1]; ++i) {
+          const int64_t x0 = L.runs[size_t(i)].x0, x1 = L.runs[size_t(i)].x1;  // bits [x0, x1)
+          for (int64_t k = x0 >> 6; k <= (x1 - 1) >> 6; ++k) {
+            const int64_t lo = std::max<int64_t>(x0, k * 64) - k * 64, hi = std::min<int64_t>(x1, k * 64 + 64) - k * 64;
+            w[k] |= (hi == 64 ? ~uint64_t(0) : (uint64_t(1) << hi) - 1) & ~((uint64_t(1) << lo) - 1);
+          }
+        }
+      }
+    };
+    if (z0 < z1) draw(z0 - 1), draw(z0);
+    for (int64_t z = z0; z < z1; ++z) {
+      draw(z + 1);
+      const uint64_t *below = slice(z - 1), *here = slice(z), *above = slice(z + 1);
+      for (int64_t y = 0; y < ny; ++y) {
+        const uint64_t* c = here + y * nw;
+        bool any = false;
+        for (int64_t k = 0; k < nw && !any; ++k) any = c[k] != 0;
+        if (!any) continue;
+        const uint64_t* nb[4] = {y > 0 ? c - nw : nullptr, y + 1 < ny ? c + nw : nullptr, below + y * nw, above + y * nw};
+        uint64_t* out = S.row(y, z);
+        for (int64_t k = 0; k < nw; ++k) {
+          const uint64_t left = (c[k] << 1) | (k > 0 ? c[k - 1] >> 63 : 0);  // bit x: voxel x - 1
+          uint64_t right = (c[k] >> 1) | (k + 1 < nw ? c[k + 1] << 63 : 0);  // bit x: voxel x + 1
+          if (k + 1 == nw) right &= last_mask >> 1;                           // past the row: outside
+          uint64_t inner = left & right;
+          for (const uint64_t* n : nb) inner &= n ? n[k] : 0;
+          out[k] = c[k] & ~inner;
+        }
       }
     }
+  }
   return S;
 }
 
@@ -98,7 +113,7 @@ struct Surface {
   explicit Surface(const LabelRuns& L);
 };
 
-Surface::Surface(const LabelRuns& L) : bits(surface_bits(foreground_bits(L))) {
+Surface::Surface(const LabelRuns& L) : bits(surface_bits(L)) {
   for (int i = 0; i < 3; ++i) n[size_t(i)] = (L.geometry.dims[size_t(i)] + kCell - 1) / kCell;
   ow = (n[0] + 63) / 64;
   const int64_t ncells = n[0] * n[1] * n[2], nrows = n[1] * n[2];
