@@ -16,7 +16,7 @@
 namespace pb {
 namespace {
 
-constexpr int kCell = 8;
+constexpr int kCell = 8;  // Surface::at unpacks offsets of 3 bits per axis
 
 using Point = std::array<int32_t, 3>;
 
@@ -96,7 +96,8 @@ RowBits surface_bits(const LabelRuns& L) {
 
 // Surface voxels of a labelled mask (only foreground vs background matters) as bits, and as points
 // grouped by cells of kCell^3 voxels (a uniform grid): the cells in raster order of (cx, cy, cz),
-// within a cell the points in raster order. The grid is built from the bits directly (a count pass
+// within a cell the points in raster order, each stored as its offset in the cell (x + 8 y + 64 z,
+// two bytes a point). The grid is built from the bits directly (a count pass
 // and a fill pass per row of cells), and an occupancy bit per cell, one row of words per (cy, cz),
 // lets the ring search skip empty cells a word at a time.
 struct Surface {
@@ -104,11 +105,15 @@ struct Surface {
   std::array<int64_t, 3> n{0, 0, 0};  // cells along x, y, z
   int64_t ow = 0;                      // occupancy words per row of cells
   Buffer<int64_t> begin;               // points of cell c: [begin[c], begin[c + 1])
-  Buffer<Point> pts;
+  Buffer<uint16_t> off;                // the points: offsets in their cells
   Buffer<uint64_t> occ;                // bit cx of word row (cy, cz): cell holds points
   // Of an occupied cell: the bounding box of its points, offsets in the cell (x0 y0 z0 x1 y1 z1).
   Buffer<std::array<uint8_t, 6>> box;
   int64_t cell(int64_t cx, int64_t cy, int64_t cz) const { return (cz * n[1] + cy) * n[0] + cx; }
+  int64_t points() const { return begin[size_t(n[0] * n[1] * n[2])]; }
+  static Point at(int64_t cx, int64_t cy, int64_t cz, uint16_t o) {
+    return {int32_t(cx * kCell + (o & 7)), int32_t(cy * kCell + (o >> 3 & 7)), int32_t(cz * kCell + (o >> 6))};
+  }
   const uint64_t* occ_row(int64_t cy, int64_t cz) const { return occ.data() + (cz * n[1] + cy) * ow; }
   explicit Surface(const LabelRuns& L);
 };
@@ -149,7 +154,7 @@ Surface::Surface(const LabelRuns& L) : bits(surface_bits(L)) {
       if (cnt[cx]) o[cx >> 6] |= uint64_t(1) << (cx & 63);
   }
   for (int64_t c = 0; c < ncells; ++c) begin[size_t(c) + 1] += begin[size_t(c)];
-  pts.resize(size_t(begin[size_t(ncells)]));
+  off.resize(size_t(begin[size_t(ncells)]));
 #pragma omp parallel
   {
     std::vector<int64_t> cur(static_cast<size_t>(n[0]));
@@ -158,7 +163,7 @@ Surface::Surface(const LabelRuns& L) : bits(surface_bits(L)) {
       const int64_t cy = row % n[1], cz = row / n[1];
       std::copy(begin.data() + cell(0, cy, cz), begin.data() + cell(0, cy, cz) + n[0], cur.begin());
       each_point(cy, cz, [&](int64_t x, int64_t y, int64_t z) {
-        pts[size_t(cur[size_t(x / kCell)]++)] = {int32_t(x), int32_t(y), int32_t(z)};
+        off[size_t(cur[size_t(x / kCell)]++)] = uint16_t(x % kCell + kCell * (y % kCell) + kCell * kCell * (z % kCell));
       });
     }
   }
@@ -169,9 +174,10 @@ Surface::Surface(const LabelRuns& L) : bits(surface_bits(L)) {
 // rings of grid cells until no unsearched cell can hold a closer point. On a ring, a row of cells
 // (cy, cz) is either a whole run of cells (the ring's faces, tested a word of occupancy bits at a
 // time) or its two end cells. The minimum does not depend on the order cells are visited in.
-Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std::array<double, 3>& sp) {
-  Buffer<double> d(from.size());
-  if (G.pts.empty()) {
+// Query points: the surface points of `from`, in its order (cell by cell).
+Buffer<double> distances(const Surface& from, const Surface& G, const std::array<double, 3>& sp) {
+  Buffer<double> d(size_t(from.points()));
+  if (G.points() == 0) {
     std::fill(d.begin(), d.end(), kMetricNaN);
     return d;
   }
@@ -187,15 +193,9 @@ Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std:
     }
   std::sort(near.begin(), near.end());
   const int64_t rmax = std::max({G.n[0], G.n[1], G.n[2]});
-  const int64_t nq = int64_t(from.size());
-#pragma omp parallel for schedule(static)
-  for (int64_t q = 0; q < nq; ++q) {
-    const auto& p = from[size_t(q)];
+  auto nearest = [&](const Point& p) -> double {
     double best = INFINITY;
-    if (bits.three(p[0], p[1], p[2]) & 2) {
-      d[size_t(q)] = 0;
-      continue;
-    }
+    if (bits.three(p[0], p[1], p[2]) & 2) return 0;
     uint32_t look = 0;
     for (int dz = -1; dz <= 1; ++dz)
       for (int dy = -1; dy <= 1; ++dy) look |= uint32_t(bits.three(p[0], p[1] + dy, p[2] + dz)) << ((dz + 1) * 9 + (dy + 1) * 3);
@@ -204,10 +204,7 @@ Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std:
         best = len2;
         break;
       }
-    if (best <= 4 * min_sp * min_sp) {
-      d[size_t(q)] = std::sqrt(best);
-      continue;
-    }
+    if (best <= 4 * min_sp * min_sp) return std::sqrt(best);
     const int64_t c[3] = {p[0] / kCell, p[1] / kCell, p[2] / kCell};
     // A cell none of whose points can be closer than the best so far is skipped: the per-axis gaps
     // to the box of its points give, in the same arithmetic (and order of additions) as a point's
@@ -223,7 +220,7 @@ Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std:
       for (int i = 0; i < 3; ++i) g[i] = double(gap_to(at[i] + b[size_t(i)], at[i] + b[size_t(i) + 3], p[i])) * sp[size_t(i)];
       if (g[0] * g[0] + g[1] * g[1] + g[2] * g[2] >= best) return;  // the points' box is no closer
       for (int64_t k = G.begin[size_t(cell)]; k < G.begin[size_t(cell) + 1]; ++k) {
-        const auto& t = G.pts[size_t(k)];
+        const Point t = Surface::at(x, y, z, G.off[size_t(k)]);
         const double ex = (t[0] - p[0]) * sp[0], ey = (t[1] - p[1]) * sp[1], ez = (t[2] - p[2]) * sp[2];
         best = std::min(best, ex * ex + ey * ey + ez * ez);
       }
@@ -264,7 +261,14 @@ Buffer<double> distances(const Buffer<Point>& from, const Surface& G, const std:
       }
       if (best <= reach * reach) break;
     }
-    d[size_t(q)] = std::sqrt(best);
+    return std::sqrt(best);
+  };
+  const int64_t ncells = from.n[0] * from.n[1] * from.n[2];
+#pragma omp parallel for schedule(dynamic, 64)
+  for (int64_t cell = 0; cell < ncells; ++cell) {
+    const int64_t cx = cell % from.n[0], cy = cell / from.n[0] % from.n[1], cz = cell / (from.n[0] * from.n[1]);
+    for (int64_t k = from.begin[size_t(cell)]; k < from.begin[size_t(cell) + 1]; ++k)
+      d[size_t(k)] = nearest(Surface::at(cx, cy, cz, from.off[size_t(k)]));
   }
   return d;
 }
@@ -295,12 +299,12 @@ double percentile_linear(std::vector<double> v, double q_pct) {
 SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref) {
   SurfaceDistances s;
   const Surface sp(pred), sr(ref);
-  s.surface_voxels_pred = int64_t(sp.pts.size());
-  s.surface_voxels_ref = int64_t(sr.pts.size());
-  if (sp.pts.empty() || sr.pts.empty()) return s;
+  s.surface_voxels_pred = sp.points();
+  s.surface_voxels_ref = sr.points();
+  if (sp.points() == 0 || sr.points() == 0) return s;
   const auto& spacing = pred.geometry.spacing_mm;
-  Buffer<double> d_pr = distances(sp.pts, sr, spacing);
-  Buffer<double> d_rp = distances(sr.pts, sp, spacing);
+  Buffer<double> d_pr = distances(sp, sr, spacing);
+  Buffer<double> d_rp = distances(sr, sp, spacing);
   double sum = 0;
   for (double v : d_pr) sum += v;
   for (double v : d_rp) sum += v;
