@@ -33,9 +33,10 @@ struct Terms {
 
 inline Terms obs_terms(PodLink link, int y, double eta) {
   if (link == PodLink::logit) {
-    // ll = y eta - log(1 + e^eta), computed stably.
-    const double log1pexp = eta > 0 ? eta + std::log1p(std::exp(-eta)) : std::log1p(std::exp(eta));
-    const double p = 1 / (1 + std::exp(-eta));
+    // ll = y eta - log(1 + e^eta), computed stably (e^-eta computed once where both use it).
+    const double em = eta > 0 ? std::exp(-eta) : 0;
+    const double log1pexp = eta > 0 ? eta + std::log1p(em) : std::log1p(std::exp(eta));
+    const double p = 1 / (1 + (eta > 0 ? em : std::exp(-eta)));
     return {y * eta - log1pexp, y - p, -p * (1 - p)};
   }
   // probit: ll = log Phi(q eta), q = 2y - 1; lambda = q phi(q eta) / Phi(q eta).
