@@ -174,13 +174,9 @@ Surface::Surface(const LabelRuns& L) : bits(surface_bits(L)) {
 // rings of grid cells until no unsearched cell can hold a closer point. On a ring, a row of cells
 // (cy, cz) is either a whole run of cells (the ring's faces, tested a word of occupancy bits at a
 // time) or its two end cells. The minimum does not depend on the order cells are visited in.
-// Query points: the surface points of `from`, in its order (cell by cell).
-Buffer<double> distances(const Surface& from, const Surface& G, const std::array<double, 3>& sp) {
-  Buffer<double> d(size_t(from.points()));
-  if (G.points() == 0) {
-    std::fill(d.begin(), d.end(), kMetricNaN);
-    return d;
-  }
+// Query points: the surface points of `from`, in its order (cell by cell); d[k] for point k (d
+// holds at least from.points() values).
+void distances(const Surface& from, const Surface& G, const std::array<double, 3>& sp, double* d) {
   const RowBits& bits = G.bits;
   const double min_sp = std::min({sp[0], sp[1], sp[2]});
   // The 26 neighbour offsets, bit (dz + 1) 9 + (dy + 1) 3 + dx + 1 of the 3x3x3 look, by squared
@@ -270,7 +266,6 @@ Buffer<double> distances(const Surface& from, const Surface& G, const std::array
     for (int64_t k = from.begin[size_t(cell)]; k < from.begin[size_t(cell) + 1]; ++k)
       d[size_t(k)] = nearest(Surface::at(cx, cy, cz, from.off[size_t(k)]));
   }
-  return d;
 }
 
 }  // namespace
@@ -303,14 +298,19 @@ SurfaceDistances surface_distances(const LabelRuns& pred, const LabelRuns& ref) 
   s.surface_voxels_ref = sr.points();
   if (sp.points() == 0 || sr.points() == 0) return s;
   const auto& spacing = pred.geometry.spacing_mm;
-  Buffer<double> d_pr = distances(sp, sr, spacing);
-  Buffer<double> d_rp = distances(sr, sp, spacing);
+  // One buffer for both directions (fresh memory is slow to come by): pred -> ref, its sum and
+  // 95th percentile, then ref -> pred.
+  const int64_t n_pr = sp.points(), n_rp = sr.points();
+  Buffer<double> d(size_t(std::max(n_pr, n_rp)));
   double sum = 0;
-  for (double v : d_pr) sum += v;
-  for (double v : d_rp) sum += v;
-  s.assd_mm = sum / double(d_pr.size() + d_rp.size());
-  s.hd95_mm = std::max(percentile_in_place(d_pr.data(), d_pr.data() + d_pr.size(), 95),
-                       percentile_in_place(d_rp.data(), d_rp.data() + d_rp.size(), 95));
+  distances(sp, sr, spacing, d.data());
+  for (int64_t k = 0; k < n_pr; ++k) sum += d[size_t(k)];
+  const double p_pr = percentile_in_place(d.data(), d.data() + n_pr, 95);
+  distances(sr, sp, spacing, d.data());
+  for (int64_t k = 0; k < n_rp; ++k) sum += d[size_t(k)];
+  const double p_rp = percentile_in_place(d.data(), d.data() + n_rp, 95);
+  s.assd_mm = sum / double(n_pr + n_rp);
+  s.hd95_mm = std::max(p_pr, p_rp);
   return s;
 }
 
