@@ -106,6 +106,14 @@ RegistrationResult register_volumes(const VolumeF& moving, const VolumeF& fixed,
 RegistrationResult register_intensity_itk(const VolumeF& moving, const VolumeF& fixed,
                                           const RegistrationOptions& opt, const SimilarityTransform* init);
 
+// The reference the issue 12 benchmark compares with, not used by the tool: ITK's own
+// single-resolution registration (ImageRegistrationMethodv4, one level) with the same metric,
+// samples and start (moments), ITK's regular-step gradient descent at its defaults (learning rate
+// from the physical-shift scales, relaxation 0.5, minimum step 1e-4) and ITK's central-difference
+// image gradient; opt.levels and opt.min_step are not used.
+RegistrationResult register_intensity_itk_plain(const VolumeF& moving, const VolumeF& fixed,
+                                                const RegistrationOptions& opt);
+
 nlohmann::ordered_json to_json(const SimilarityTransform& T);
 nlohmann::ordered_json to_json(const RegistrationResult& r);
 

@@ -21,6 +21,7 @@
 #include <itkMattesMutualInformationImageToImageMetricv4.h>
 #include <itkMultiThreaderBase.h>
 #include <itkRegistrationParameterScalesFromPhysicalShift.h>
+#include <itkRegularStepGradientDescentOptimizerv4.h>
 #include <itkSimilarity3DTransform.h>
 #include <itkVersorRigid3DTransform.h>
 
@@ -143,17 +144,13 @@ std::vector<const VolumeF*> pyramid(const VolumeF& full, int halvings, std::vect
   return out;
 }
 
+// The starting transform: from `init` (markers, fixed -> moving) about the fixed scan's centre, or
+// by image moments of the two given scans (ITK's CenteredTransformInitializer).
 template <class Transform>
-RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const RegistrationOptions& opt,
-                       const SimilarityTransform* init) {
-  itk::MultiThreaderBase::SetGlobalDefaultNumberOfThreads(unsigned(std::max(1, thread_count())));
-  const int levels = std::clamp(opt.levels, 1, 6);
-  const int top = level_halvings(fixed.geometry(), moving.geometry(), levels, 0);
-  std::vector<VolumeF> fkeep, mkeep;
-  const std::vector<const VolumeF*> fpyr = pyramid(fixed, top, fkeep), mpyr = pyramid(moving, top, mkeep);
-
+typename Transform::Pointer start_transform(const VolumeF& fixed, const VolumeF& fixed_moments,
+                                            const VolumeF& moving_moments, const SimilarityTransform* init,
+                                            RegistrationResult& res) {
   auto transform = Transform::New();
-  RegistrationResult res;
   if (init) {
     // ITK: T(x) = M (x - c) + c + translation with M = scale * R; ours: scale * R x + t.
     const Geometry& g = fixed.geometry();
@@ -177,28 +174,100 @@ RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const Regist
     using Init = itk::CenteredTransformInitializer<Transform, ImageF, ImageF>;
     auto ini = Init::New();
     ini->SetTransform(transform);
-    // Image moments of the coarsest level: the same centroid and axes, 1/8^top of the reads.
-    ini->SetFixedImage(itk_view(*fpyr.back()));
-    ini->SetMovingImage(itk_view(*mpyr.back()));
+    ini->SetFixedImage(itk_view(fixed_moments));
+    ini->SetMovingImage(itk_view(moving_moments));
     ini->MomentsOn();
     ini->InitializeTransform();
     res.initialisation = "moments";
   }
+  res.method = "intensity";
+  res.metric_name = "Mattes mutual information (negated; lower is better)";
+  return transform;
+}
+
+// Mattes MI with `bins` histogram bins.
+Metric::Pointer mattes(int bins) {
+  auto metric = Metric::New();
+  metric->SetNumberOfHistogramBins(unsigned(bins));
+  metric->SetUseMovingImageGradientFilter(false);
+  metric->SetUseFixedImageGradientFilter(false);
+  return metric;
+}
+
+// One ITK registration at the scans' own resolution, refining `transform` in place; metric samples
+// on a regular grid with a deterministic jitter. False (and the reason in res) when ITK throws.
+template <class Transform>
+bool register_level(const ImageF* F, const ImageF* M, Metric* metric, itk::ObjectToObjectOptimizerBaseTemplate<double>* opt,
+                    Transform* transform, int64_t samples, int seed, RegistrationResult& res) {
+  using Registration = itk::ImageRegistrationMethodv4<ImageF, ImageF, Transform>;
+  auto reg = Registration::New();
+  reg->SetFixedImage(F);
+  reg->SetMovingImage(M);
+  reg->SetMetric(metric);
+  reg->SetOptimizer(opt);
+  reg->SetInitialTransform(transform);
+  reg->InPlaceOn();
+  reg->SetNumberOfLevels(1);
+  typename Registration::ShrinkFactorsArrayType one(1);
+  one[0] = 1;
+  typename Registration::SmoothingSigmasArrayType none(1);
+  none[0] = 0.0;
+  reg->SetShrinkFactorsPerLevel(one);
+  reg->SetSmoothingSigmasPerLevel(none);
+  typename Registration::MetricSamplingPercentageArrayType pct(1);
+  pct[0] = std::min(1.0, double(samples) / double(F->GetLargestPossibleRegion().GetNumberOfPixels()));
+  reg->SetMetricSamplingStrategy(Registration::MetricSamplingStrategyEnum::REGULAR);
+  reg->SetMetricSamplingPercentagePerLevel(pct);
+  reg->MetricSamplingReinitializeSeed(seed);
+  try {
+    reg->Update();
+  } catch (const itk::ExceptionObject& e) {
+    res.converged = false;
+    res.stop_reason = std::string("ITK stopped: ") + e.GetDescription();
+    return false;
+  }
+  return true;
+}
+
+// The registered transform into ours, with the optimiser's last value and stop condition.
+template <class Transform>
+void finish(const Transform* t, const itk::GradientDescentOptimizerBasev4Template<double>* opt, RegistrationResult& res) {
+  const auto M = t->GetMatrix();
+  const auto off = t->GetOffset();
+  double scale = 1.0;
+  if constexpr (std::is_same_v<Transform, itk::Similarity3DTransform<double>>) scale = t->GetScale();
+  for (int r = 0; r < 3; ++r) {
+    for (int k = 0; k < 3; ++k) res.T.R(r, k) = M(unsigned(r), unsigned(k)) / scale;
+    res.T.t[r] = off[unsigned(r)];
+  }
+  res.T.scale = scale;
+  res.metric = opt->GetValue();
+  // The last (full-resolution) level decides: its steps fell below their minimum.
+  res.converged = opt->GetStopCondition() == itk::StopConditionObjectToObjectOptimizerEnum::STEP_TOO_SMALL;
+  res.stop_reason = opt->GetStopConditionDescription();
+}
+
+template <class Transform>
+RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const RegistrationOptions& opt,
+                       const SimilarityTransform* init) {
+  itk::MultiThreaderBase::SetGlobalDefaultNumberOfThreads(unsigned(std::max(1, thread_count())));
+  const int levels = std::clamp(opt.levels, 1, 6);
+  const int top = level_halvings(fixed.geometry(), moving.geometry(), levels, 0);
+  std::vector<VolumeF> fkeep, mkeep;
+  const std::vector<const VolumeF*> fpyr = pyramid(fixed, top, fkeep), mpyr = pyramid(moving, top, mkeep);
+  RegistrationResult res;
+  // Image moments of the coarsest level: the same centroid and axes, 1/8^top of the reads.
+  const auto transform = start_transform<Transform>(fixed, *fpyr.back(), *mpyr.back(), init, res);
 
   const auto& sp = fixed.geometry().spacing_mm;
   const double voxel_mm = std::min({sp[0], sp[1], sp[2]});
-  res.method = "intensity";
-  res.metric_name = "Mattes mutual information (negated; lower is better)";
   RpropOptimizer::Pointer optimizer;
   for (int l = 0; l < levels; ++l) {
     const int k = level_halvings(fixed.geometry(), moving.geometry(), levels, l);
     const double level_voxel_mm = double(1 << k) * voxel_mm;
     const ImageF::ConstPointer F = itk_view(*fpyr[size_t(k)]), M = itk_view(*mpyr[size_t(k)]);
 
-    auto metric = Metric::New();
-    metric->SetNumberOfHistogramBins(unsigned(opt.histogram_bins));
-    metric->SetUseMovingImageGradientFilter(false);
-    metric->SetUseFixedImageGradientFilter(false);
+    const auto metric = mattes(opt.histogram_bins);
     metric->SetMovingImageGradientCalculator(LinearGradientImageFunction<ImageF>::New());
 
     optimizer = RpropOptimizer::New();
@@ -214,54 +283,39 @@ RegistrationResult run(const VolumeF& moving, const VolumeF& fixed, const Regist
     scales->SetMetric(metric);
     optimizer->SetScalesEstimator(scales);
 
-    using Registration = itk::ImageRegistrationMethodv4<ImageF, ImageF, Transform>;
-    auto reg = Registration::New();
-    reg->SetFixedImage(F);
-    reg->SetMovingImage(M);
-    reg->SetMetric(metric);
-    reg->SetOptimizer(optimizer);
-    reg->SetInitialTransform(transform);
-    reg->InPlaceOn();  // each level refines `transform` itself
-    reg->SetNumberOfLevels(1);
-    typename Registration::ShrinkFactorsArrayType one(1);
-    one[0] = 1;
-    typename Registration::SmoothingSigmasArrayType none(1);
-    none[0] = 0.0;
-    reg->SetShrinkFactorsPerLevel(one);
-    reg->SetSmoothingSigmasPerLevel(none);
-    typename Registration::MetricSamplingPercentageArrayType pct(1);
-    pct[0] = std::min(1.0, double(opt.samples_per_level) / double(F->GetLargestPossibleRegion().GetNumberOfPixels()));
-    reg->SetMetricSamplingStrategy(Registration::MetricSamplingStrategyEnum::REGULAR);
-    reg->SetMetricSamplingPercentagePerLevel(pct);
-    reg->MetricSamplingReinitializeSeed(20260 + l);  // deterministic jitter of the regular samples
-    try {
-      reg->Update();
-    } catch (const itk::ExceptionObject& e) {
-      res.converged = false;
-      res.stop_reason = std::string("ITK stopped: ") + e.GetDescription();
-      res.iterations += int(optimizer->GetCurrentIteration());
-      return res;
-    }
+    const bool ok = register_level<Transform>(F, M, metric, optimizer, transform, opt.samples_per_level, 20260 + l, res);
     res.iterations += int(optimizer->GetCurrentIteration());
+    if (!ok) return res;
   }
-  const auto* final_t = transform.GetPointer();
-  const auto M = final_t->GetMatrix();
-  const auto off = final_t->GetOffset();
-  double scale = 1.0;
-  if constexpr (std::is_same_v<Transform, itk::Similarity3DTransform<double>>) scale = final_t->GetScale();
-  for (int r = 0; r < 3; ++r) {
-    for (int k = 0; k < 3; ++k) res.T.R(r, k) = M(unsigned(r), unsigned(k)) / scale;
-    res.T.t[r] = off[unsigned(r)];
-  }
-  res.T.scale = scale;
-  res.metric = optimizer->GetValue();
-  // The last (full-resolution) level decides: its steps all fell below min_step.
-  res.converged = optimizer->GetStopCondition() == itk::StopConditionObjectToObjectOptimizerEnum::STEP_TOO_SMALL;
-  res.stop_reason = optimizer->GetStopConditionDescription();
+  finish<Transform>(transform, optimizer, res);
+  return res;
+}
+
+template <class Transform>
+RegistrationResult run_plain(const VolumeF& moving, const VolumeF& fixed, const RegistrationOptions& opt) {
+  itk::MultiThreaderBase::SetGlobalDefaultNumberOfThreads(unsigned(std::max(1, thread_count())));
+  RegistrationResult res;
+  const auto transform = start_transform<Transform>(fixed, fixed, moving, nullptr, res);
+  const auto metric = mattes(opt.histogram_bins);  // ITK's central-difference gradient
+  auto optimizer = itk::RegularStepGradientDescentOptimizerv4<double>::New();
+  optimizer->SetNumberOfIterations(itk::SizeValueType(opt.max_iterations));
+  auto scales = itk::RegistrationParameterScalesFromPhysicalShift<Metric>::New();
+  scales->SetMetric(metric);
+  optimizer->SetScalesEstimator(scales);  // learning rate: a first step of at most one voxel
+  const bool ok = register_level<Transform>(itk_view(fixed), itk_view(moving), metric, optimizer, transform,
+                                            opt.samples_per_level, 20260, res);
+  res.iterations = int(optimizer->GetCurrentIteration());
+  if (ok) finish<Transform>(transform.GetPointer(), optimizer.GetPointer(), res);
   return res;
 }
 
 }  // namespace
+
+RegistrationResult register_intensity_itk_plain(const VolumeF& moving, const VolumeF& fixed,
+                                                const RegistrationOptions& opt) {
+  if (opt.dof == RegDof::rigid) return run_plain<itk::VersorRigid3DTransform<double>>(moving, fixed, opt);
+  return run_plain<itk::Similarity3DTransform<double>>(moving, fixed, opt);
+}
 
 RegistrationResult register_intensity_itk(const VolumeF& moving, const VolumeF& fixed, const RegistrationOptions& opt,
                                           const SimilarityTransform* init) {

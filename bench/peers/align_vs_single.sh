@@ -1,6 +1,7 @@
 #!/bin/sh
 # Issue 12: intensity registration of an N^3 pair (rigid, 3 levels) in at most 60 s on 2 cores;
-# side by side: the same metric and optimiser at one full resolution (ratio), our FFTW phase
+# side by side: plain ITK at one full resolution with the same metric, samples and start and ITK's
+# regular-step gradient descent (ratio; core/registration.hpp register_intensity_itk_plain), our FFTW phase
 # correlation, and scipy's (scipy.fft on the same pair, same 128^3 block averaging, and at full
 # size). Usage: bench/peers/align_vs_single.sh [path/to/porebench_bench] [N]   (exit 1 above 60 s)
 set -eu
@@ -24,7 +25,7 @@ def show(name, label):
     return r["real_time"]
 print(f"{n}^3 pair, 2 threads")
 multi = show("BM_AlignIntensity3Levels", "porebench intensity, 3 levels")
-single = show("BM_AlignIntensity1Level", "same metric+optimiser, 1 level (plain ITK)")
+single = show("BM_AlignIntensity1Level", "plain ITK, 1 level, same metric (RSGD)")
 show("BM_AlignPhaseCorrelation", "porebench phase correlation (FFTW, 128^3)")
 
 def phase_corr(a, b):
