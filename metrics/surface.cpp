@@ -189,18 +189,29 @@ void distances(const Surface& from, const Surface& G, const std::array<double, 3
     }
   std::sort(near.begin(), near.end());
   const int64_t rmax = std::max({G.n[0], G.n[1], G.n[2]});
-  auto nearest = [&](const Point& p) -> double {
+  // hint: a target point (the previous query's nearest, close by: queries go cell by cell); its
+  // distance starts the search as a bound, so cells no closer are skipped from the first ring on.
+  // Any target point is a valid bound: the minimum, and so the result, does not depend on it.
+  auto nearest = [&](const Point& p, Point& hint, bool& have_hint) -> double {
     double best = INFINITY;
-    if (bits.three(p[0], p[1], p[2]) & 2) return 0;
+    if (bits.three(p[0], p[1], p[2]) & 2) {
+      hint = p, have_hint = true;
+      return 0;
+    }
     uint32_t look = 0;
     for (int dz = -1; dz <= 1; ++dz)
       for (int dy = -1; dy <= 1; ++dy) look |= uint32_t(bits.three(p[0], p[1] + dy, p[2] + dz)) << ((dz + 1) * 9 + (dy + 1) * 3);
     for (const auto& [len2, o] : near)
       if (look >> o & 1) {
         best = len2;
+        hint = {p[0] + o % 3 - 1, p[1] + o / 3 % 3 - 1, p[2] + o / 9 - 1}, have_hint = true;
         break;
       }
     if (best <= 4 * min_sp * min_sp) return std::sqrt(best);
+    if (have_hint) {
+      const double ex = (hint[0] - p[0]) * sp[0], ey = (hint[1] - p[1]) * sp[1], ez = (hint[2] - p[2]) * sp[2];
+      best = std::min(best, ex * ex + ey * ey + ez * ez);
+    }
     const int64_t c[3] = {p[0] / kCell, p[1] / kCell, p[2] / kCell};
     // A cell none of whose points can be closer than the best so far is skipped: the per-axis gaps
     // to the box of its points give, in the same arithmetic (and order of additions) as a point's
@@ -218,7 +229,8 @@ void distances(const Surface& from, const Surface& G, const std::array<double, 3
       for (int64_t k = G.begin[size_t(cell)]; k < G.begin[size_t(cell) + 1]; ++k) {
         const Point t = Surface::at(x, y, z, G.off[size_t(k)]);
         const double ex = (t[0] - p[0]) * sp[0], ey = (t[1] - p[1]) * sp[1], ez = (t[2] - p[2]) * sp[2];
-        best = std::min(best, ex * ex + ey * ey + ez * ez);
+        const double e = ex * ex + ey * ey + ez * ez;
+        if (e < best) best = e, hint = t, have_hint = true;
       }
     };
     for (int64_t r = 0; r <= rmax; ++r) {
@@ -260,11 +272,16 @@ void distances(const Surface& from, const Surface& G, const std::array<double, 3
     return std::sqrt(best);
   };
   const int64_t ncells = from.n[0] * from.n[1] * from.n[2];
-#pragma omp parallel for schedule(dynamic, 64)
-  for (int64_t cell = 0; cell < ncells; ++cell) {
-    const int64_t cx = cell % from.n[0], cy = cell / from.n[0] % from.n[1], cz = cell / (from.n[0] * from.n[1]);
-    for (int64_t k = from.begin[size_t(cell)]; k < from.begin[size_t(cell) + 1]; ++k)
-      d[size_t(k)] = nearest(Surface::at(cx, cy, cz, from.off[size_t(k)]));
+#pragma omp parallel
+  {
+    Point hint{0, 0, 0};
+    bool have_hint = false;
+#pragma omp for schedule(dynamic, 64)
+    for (int64_t cell = 0; cell < ncells; ++cell) {
+      const int64_t cx = cell % from.n[0], cy = cell / from.n[0] % from.n[1], cz = cell / (from.n[0] * from.n[1]);
+      for (int64_t k = from.begin[size_t(cell)]; k < from.begin[size_t(cell) + 1]; ++k)
+        d[size_t(k)] = nearest(Surface::at(cx, cy, cz, from.off[size_t(k)]), hint, have_hint);
+    }
   }
 }
 
