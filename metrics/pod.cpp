@@ -31,14 +31,19 @@ struct Terms {
   double ll, d1, d2;
 };
 
+// Logit: ll = y eta - log(1 + e^eta), computed stably (e^-eta computed once where both use it);
+// p = 1 / (1 + e^-eta). The same for both outcomes at one eta.
+struct LogitParts {
+  double log1pexp, p;
+  Terms terms(int y, double eta) const { return {y * eta - log1pexp, y - p, -p * (1 - p)}; }
+};
+inline LogitParts logit_parts(double eta) {
+  const double em = eta > 0 ? std::exp(-eta) : 0;
+  return {eta > 0 ? eta + std::log1p(em) : std::log1p(std::exp(eta)), 1 / (1 + (eta > 0 ? em : std::exp(-eta)))};
+}
+
 inline Terms obs_terms(PodLink link, int y, double eta) {
-  if (link == PodLink::logit) {
-    // ll = y eta - log(1 + e^eta), computed stably (e^-eta computed once where both use it).
-    const double em = eta > 0 ? std::exp(-eta) : 0;
-    const double log1pexp = eta > 0 ? eta + std::log1p(em) : std::log1p(std::exp(eta));
-    const double p = 1 / (1 + (eta > 0 ? em : std::exp(-eta)));
-    return {y * eta - log1pexp, y - p, -p * (1 - p)};
-  }
+  if (link == PodLink::logit) return logit_parts(eta).terms(y, eta);
   // probit: ll = log Phi(q eta), q = 2y - 1; lambda = q phi(q eta) / Phi(q eta).
   const double q = y ? 1.0 : -1.0, u = q * eta;
   double logPhi, g;  // g = phi(u) / Phi(u)
@@ -72,9 +77,17 @@ Groups group_targets(const std::vector<double>& x, const std::vector<int>& y) {
   return g;
 }
 
-// Sum of obs_terms over group i at eta.
+// Sum of obs_terms over group i at eta. Logit hits and misses share log(1 + e^eta) and p: computed
+// once, in the operations of obs_terms.
 inline Terms group_terms(PodLink link, const Groups& g, size_t i, double eta) {
   Terms t{0, 0, 0};
+  if (link == PodLink::logit && g.hits[i] > 0 && g.misses[i] > 0) {
+    const LogitParts lp = logit_parts(eta);
+    const Terms h = lp.terms(1, eta), m = lp.terms(0, eta);
+    t.ll += g.hits[i] * h.ll, t.d1 += g.hits[i] * h.d1, t.d2 += g.hits[i] * h.d2;
+    t.ll += g.misses[i] * m.ll, t.d1 += g.misses[i] * m.d1, t.d2 += g.misses[i] * m.d2;
+    return t;
+  }
   if (g.hits[i] > 0) {
     const Terms h = obs_terms(link, 1, eta);
     t.ll += g.hits[i] * h.ll, t.d1 += g.hits[i] * h.d1, t.d2 += g.hits[i] * h.d2;
