@@ -566,9 +566,15 @@ ScoreResult score_labelled(const LabelRuns& cp, const LabelRuns& cr, const uint8
   r.options = opt;
   r.geometry = cr.geometry;
   overlap_pass(cp, cr, roi, r);
-  slice_jaccards(opt, r);
   porosity(r);
-  pooled_cis(opt, r);
+  // The two bootstraps draw from their own seeds and write their own fields: side by side.
+#pragma omp parallel sections
+  {
+#pragma omp section
+    slice_jaccards(opt, r);
+#pragma omp section
+    pooled_cis(opt, r);
+  }
   const Directions D = lattice_directions(r.geometry.spacing_mm);
   r.pores_ref = pore_geometry(cr, roi, D, z0);
   r.pores_pred = pore_geometry(cp, roi, D, z0);
