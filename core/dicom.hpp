@@ -6,7 +6,8 @@
 // in-plane by Pixel Spacing (0028,0030), Imager Pixel Spacing (0018,1164) or Nominal Scanned Pixel
 // Spacing (0018,2010); between the slices of a series folder by each file's Image Position
 // (Patient) (0020,0032); in a multi-frame file by Spacing Between Slices (0018,0088) or the
-// per-frame functional groups (5200,9230). Where they are missing GDCM reads 1 mm without a word;
+// per-frame functional groups (5200,9230); in a single slice by Spacing Between Slices alone. Where
+// they are missing GDCM reads 1 mm without a word;
 // porebench refuses the input (DicomGeometryMissing, exit 2, naming the file and the tag) unless
 // the voxel size is given (spacing_mm in a suite file, --spacing on the command line).
 // GDCM's and ITK's own warnings (written to std::cerr by those libraries) are captured while a

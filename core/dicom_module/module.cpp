@@ -88,11 +88,11 @@ std::string tag_text(const itk::MetaDataDictionary& d, const char* key) {
 
 // Refuses a DICOM input whose tags do not state its voxel size (see core/dicom.hpp): per file the
 // in-plane spacing, between the files of a series each file's position, in a multi-frame file the
-// frame spacing. `dicts[i]` is the header of `files[i]`; `x_mm`, `y_mm` the in-plane spacing GDCM
-// read. An in-plane tag counts only when GDCM took it: it picks the tag by the object's class
+// frame spacing, in a single slice (one file of one frame) its z spacing. `dicts[i]` is the header
+// of `files[i]`; `x_mm`, `y_mm`, `z_mm` the spacing GDCM read. An in-plane tag counts only when GDCM took it: it picks the tag by the object's class
 // (e.g. Nominal Scanned Pixel Spacing for a Secondary Capture) and reads 1 mm when that one is missing.
 void check_geometry_tags(const std::vector<std::string>& files, const std::vector<const itk::MetaDataDictionary*>& dicts,
-                         double x_mm, double y_mm, const std::string& path, const std::string& notes) {
+                         double x_mm, double y_mm, double z_mm, const std::string& path, const std::string& notes) {
   auto refuse = [&](const std::string& file, const std::string& tag, const std::string& what) {
     fail(PB_DICOM_NO_GEOMETRY, (file == path ? "DICOM file " + path : "DICOM input " + path + ": " + file) + " has no " + tag + ", so its " + what +
                                " is unknown (GDCM would read 1 mm); give the voxel size (spacing_mm in the suite file, "
@@ -127,6 +127,23 @@ void check_geometry_tags(const std::vector<std::string>& files, const std::vecto
     if (files.size() == 1 && !frames.empty() && std::atoi(frames.c_str()) > 1 && !frame_groups &&
         tag_text(d, "0018|0088").empty())
       refuse(files[i], "Spacing Between Slices (0018,0088)", "frame spacing");
+    // A single slice: no second position, no frames. Its z spacing counts only where Spacing
+    // Between Slices (0018,0088) states it and GDCM took that value; Slice Thickness (0018,0050)
+    // is the width of the slice, not the distance to a next one (PS3.3 C.7.6.2, from memory).
+    if (files.size() == 1 && (frames.empty() || std::atoi(frames.c_str()) <= 1) && !frame_groups) {
+      const std::string t = tag_text(d, "0018|0088");
+      const double stated = t.empty() ? 0.0 : std::atof(t.c_str());
+      // GDCM 3 reads 1 mm for a single-frame CT Image Storage object even with (0018,0088).
+      if (!(stated > 0 && std::abs(stated - z_mm) <= 1e-6 * stated)) {
+        std::ostringstream read;
+        read << z_mm;
+        refuse(files[i],
+               t.empty() ? "Spacing Between Slices (0018,0088)"
+                         : "z spacing GDCM takes (it has Spacing Between Slices (0018,0088) = " + t +
+                               ", which GDCM does not read for it: it reads " + read.str() + " mm)",
+               "z spacing (a single slice)");
+      }
+    }
   }
 }
 
@@ -151,7 +168,7 @@ void read_dicom_as(const std::vector<std::string>& files, const std::string& pat
     if (const auto* a = reader->GetMetaDataDictionaryArray())
       for (const auto* d : *a) dicts.push_back(d);
     const auto sp = reader->GetOutput()->GetSpacing();
-    check_geometry_tags(files, dicts, sp[0], sp[1], path, gdcm.notes());
+    check_geometry_tags(files, dicts, sp[0], sp[1], sp[2], path, gdcm.notes());
   }
   typename Img::Pointer img = reader->GetOutput();
   // Orientation from the headers: our volumes are axis-aligned with x fastest. Axis flips and
