@@ -33,8 +33,13 @@ SimilarityTransform SimilarityTransform::compose(const SimilarityTransform& in) 
 }
 
 double rotation_difference_deg(const Eigen::Matrix3d& a, const Eigen::Matrix3d& b) {
-  const double c = std::clamp(((b * a.transpose()).trace() - 1.0) / 2.0, -1.0, 1.0);
-  return std::acos(c) * 180.0 / kPi;
+  // The angle of R = b a^T from its cosine (trace - 1) / 2 and its sine (half the length of the
+  // skew part's axis vector) with atan2: acos of the cosine alone loses half the digits near 0
+  // (a 1e-16 rounding in the trace is a 1e-6 degree angle).
+  const Eigen::Matrix3d r = b * a.transpose();
+  const double c = (r.trace() - 1.0) / 2.0;
+  const double s = Eigen::Vector3d(r(2, 1) - r(1, 2), r(0, 2) - r(2, 0), r(1, 0) - r(0, 1)).norm() / 2.0;
+  return std::atan2(s, c) * 180.0 / kPi;
 }
 
 double SimilarityTransform::rotation_deg() const { return rotation_difference_deg(Eigen::Matrix3d::Identity(), R); }

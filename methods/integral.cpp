@@ -73,12 +73,12 @@ void plane_sums(const float* sl, int64_t nx, int64_t ny, int64_t h, double c, do
     const double* l1 = x1 + reflect(y - 1 - h, ny) * nx;
     const double* l2 = x2 + reflect(y - 1 - h, ny) * nx;
     double* o1 = s1 + y * nx;
-    double* o2 = s2 + y * nx;
     const double* q1 = o1 - nx;
-    const double* q2 = o2 - nx;
-    for (int64_t x = 0; x < nx; ++x) {
-      o1[x] = q1[x] + e1[x] - l1[x];
-      if constexpr (Std) o2[x] = q2[x] + e2[x] - l2[x];
+    for (int64_t x = 0; x < nx; ++x) o1[x] = q1[x] + e1[x] - l1[x];
+    if constexpr (Std) {  // s2 is null without Std: no offset from it (undefined behaviour)
+      double* o2 = s2 + y * nx;
+      const double* q2 = o2 - nx;
+      for (int64_t x = 0; x < nx; ++x) o2[x] = q2[x] + e2[x] - l2[x];
     }
   }
 }

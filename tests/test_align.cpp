@@ -4,6 +4,7 @@
 // scipy.ndimage.affine_transform (resampling), skimage.registration.phase_cross_correlation (shift).
 #include <catch2/catch.hpp>
 
+#include <cmath>
 #include <cstring>
 #include <fstream>
 #include <random>
@@ -79,6 +80,18 @@ TEST_CASE("absolute orientation matches scipy align_vectors on noisy random poin
     CHECK(fit.T.scale == 1.0);
     CHECK(fit.residual_mm.size() == src.size());
     CHECK(fit.rms_mm > 0.1);  // noise 0.3 per axis: the residuals are real, not zero
+  }
+}
+
+TEST_CASE("rotation_difference_deg is the angle of the relative rotation, tiny angles included", "[align]") {
+  // Analytic case: a rotation by theta about any axis, composed with any base rotation, differs from
+  // it by theta (Rodrigues). acos of the trace alone would give ~1e-6 degrees for the tiny ones.
+  const Eigen::Matrix3d base = SimilarityTransform::from_euler_deg(Eigen::Vector3d(10, 20, -30), Eigen::Vector3d::Zero(), 1).R;
+  for (double deg : {0.0, 1e-7, 1e-3, 0.5, 30.0, 120.0, 179.9}) {
+    const Eigen::Matrix3d turn = Eigen::AngleAxisd(deg * M_PI / 180.0, Eigen::Vector3d(1, -2, 0.5).normalized()).toRotationMatrix();
+    INFO(deg << " degrees");
+    CHECK_THAT(rotation_difference_deg(base, turn * base), Catch::WithinAbs(deg, 1e-10));
+    CHECK_THAT(rotation_difference_deg(turn * base, base), Catch::WithinAbs(deg, 1e-10));
   }
 }
 
