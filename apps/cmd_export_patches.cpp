@@ -15,6 +15,7 @@
 #include "core/error.hpp"
 #include "core/io.hpp"
 #include "core/sha256.hpp"
+#include "core/npy.hpp"
 #include "methods/neural.hpp"
 #include "suites/datasets.hpp"
 #include "suites/layout.hpp"
@@ -122,8 +123,8 @@ Action setup_export_patches(CLI::App& app) {
             for (int64_t i = 0; i < t; ++i) ms[k * size_t(t * t) + size_t(j * t + i)] = ref(p.x + i, p.y + j, p.z) ? 1 : 0;
         }
         const std::string stem = suite::file_token(d.name) + "-" + suite::file_token(v.scan);
-        write_npy((fs::path(a->out) / (stem + "-scans.npy")).string(), {int64_t(pos.size()), ns, t, t}, xs.data());
-        write_npy((fs::path(a->out) / (stem + "-masks.npy")).string(), {int64_t(pos.size()), t, t}, ms.data());
+        write_npy_array(xs.data(), VoxelType::f32, {int64_t(pos.size()), ns, t, t}, (fs::path(a->out) / (stem + "-scans.npy")).string());
+        write_npy_array(ms.data(), VoxelType::u8, {int64_t(pos.size()), t, t}, (fs::path(a->out) / (stem + "-masks.npy")).string());
         for (size_t k = 0; k < pos.size(); ++k) {
           int64_t pores = 0;
           for (int64_t i = 0; i < t * t; ++i) pores += ms[k * size_t(t * t) + size_t(i)];

@@ -143,7 +143,10 @@ void set_type(NpyHeader& h, const std::string& path) {
 
 bool is_npy_path(const std::string& path) { return lower_extension(path) == ".npy"; }
 
-NpyHeader parse_npy_header(std::string_view head, const std::string& path) {
+namespace {
+
+// Magic, version, header length and the dict ('descr', 'fortran_order', 'shape' up to 8 axes).
+NpyHeader parse_header_dict(std::string_view head, const std::string& path) {
   NpyHeader h;
   if (head.size() < 10)
     throw InputError("npy file " + path + " is truncated: " + std::to_string(head.size()) +
@@ -214,16 +217,68 @@ NpyHeader parse_npy_header(std::string_view head, const std::string& path) {
   if (!have_order) throw InputError("npy file " + path + ": header dict has no 'fortran_order'");
   if (!have_shape) throw InputError("npy file " + path + ": header dict has no 'shape'");
   set_type(h, path);
+  return h;
+}
 
-  std::string shape_text = "(";
-  for (size_t k = 0; k < h.shape.size(); ++k) shape_text += (k ? ", " : "") + std::to_string(h.shape[k]);
-  shape_text += ")";
+std::string shape_text(const std::vector<int64_t>& shape) {
+  std::string t = "(";
+  for (size_t k = 0; k < shape.size(); ++k) t += (k ? ", " : "") + std::to_string(shape[k]);
+  return t + ")";
+}
+
+// The header of a file, read from its first bytes, and its size (checked against the header in both
+// directions by `expected`).
+struct OpenedNpy {
+  NpyHeader h;
+  uint64_t size = 0;
+  std::ifstream in;
+};
+
+OpenedNpy open_npy(const std::string& path, NpyHeader (*parse)(std::string_view, const std::string&)) {
+  OpenedNpy o;
+  std::error_code ec;
+  o.size = fs::file_size(path, ec);
+  if (ec) throw InputError("cannot read " + path + ": " + ec.message());
+  o.in.open(path, std::ios::binary);
+  if (!o.in) throw InputError("cannot read " + path + ": " + std::strerror(errno));
+  // the whole header, whatever its stated length, is within the first 12 + kMaxHeaderBytes bytes
+  std::string head(size_t(std::min<uint64_t>(o.size, 12 + kMaxHeaderBytes)), '\0');
+  o.in.read(head.data(), std::streamsize(head.size()));
+  if (!o.in) throw InputError("cannot read " + path + ": short read");
+  o.h = parse(head, path);
+  const uint64_t expected = o.h.expected_bytes > UINT64_MAX - o.h.data_offset ? UINT64_MAX : o.h.data_offset + o.h.expected_bytes;
+  if (o.size != expected) {
+    std::ostringstream t;
+    t << "npy file " << path << (o.size < expected ? " is truncated" : " is larger than its header says") << ": expected "
+      << expected << " bytes (header " << o.h.data_offset << " + shape " << shape_text(o.h.shape) << " x " << o.h.item_bytes
+      << " bytes '" << o.h.descr << "'), found " << o.size;
+    throw InputError(t.str());
+  }
+  o.in.seekg(std::streamoff(o.h.data_offset));
+  return o;
+}
+
+// The array header: any number of axes from 1 to 8 (0 allowed: an empty array), its byte count.
+NpyHeader parse_array_header(std::string_view head, const std::string& path) {
+  NpyHeader h = parse_header_dict(head, path);
+  if (h.shape.empty()) throw InputError("npy file " + path + ": shape () is a scalar, not an array");
+  uint64_t bytes = uint64_t(h.item_bytes);
+  for (auto n : h.shape) bytes = saturating_product({bytes, uint64_t(n)});
+  h.expected_bytes = bytes;
+  return h;
+}
+
+}  // namespace
+
+NpyHeader parse_npy_header(std::string_view head, const std::string& path) {
+  NpyHeader h = parse_header_dict(head, path);
+  const std::string text = shape_text(h.shape);
   if (h.shape.size() != 2 && h.shape.size() != 3)
-    throw InputError("npy file " + path + ": shape " + shape_text +
+    throw InputError("npy file " + path + ": shape " + text +
                      " has " + std::to_string(h.shape.size()) + " axes; a volume is (z, y, x) and a slice (y, x)");
   for (int64_t s : h.shape)
     if (s < 1 || s > (int64_t(1) << 31) - 1)
-      throw InputError("npy file " + path + ": shape " + shape_text + " holds " + std::to_string(s) +
+      throw InputError("npy file " + path + ": shape " + text + " holds " + std::to_string(s) +
                        "; every axis needs 1 to 2^31-1 voxels");
   const size_t n = h.shape.size();
   h.dims = {h.shape[n - 1], h.shape[n - 2], n == 3 ? h.shape[0] : 1};
@@ -233,24 +288,9 @@ NpyHeader parse_npy_header(std::string_view head, const std::string& path) {
 }
 
 AnyVolume read_npy(const std::string& path) {
-  std::error_code ec;
-  const uint64_t size = fs::file_size(path, ec);
-  if (ec) throw InputError("cannot read " + path + ": " + ec.message());
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw InputError("cannot read " + path + ": " + std::strerror(errno));
-  // the whole header, whatever its stated length, is within the first 12 + kMaxHeaderBytes bytes
-  std::string head(size_t(std::min<uint64_t>(size, 12 + kMaxHeaderBytes)), '\0');
-  in.read(head.data(), std::streamsize(head.size()));
-  if (!in) throw InputError("cannot read " + path + ": short read");
-  const NpyHeader h = parse_npy_header(head, path);
-  const uint64_t expected = h.expected_bytes > UINT64_MAX - h.data_offset ? UINT64_MAX : h.data_offset + h.expected_bytes;
-  if (size != expected) {
-    std::ostringstream s;
-    s << "npy file " << path << (size < expected ? " is truncated" : " is larger than its header says") << ": expected "
-      << expected << " bytes (header " << h.data_offset << " + " << h.dims[0] << " x " << h.dims[1] << " x "
-      << h.dims[2] << " voxels x " << h.item_bytes << " bytes '" << h.descr << "'), found " << size;
-    throw InputError(s.str());
-  }
+  OpenedNpy o = open_npy(path, parse_npy_header);
+  const NpyHeader& h = o.h;
+  std::ifstream& in = o.in;
   check_memory(h.float64 ? h.expected_bytes / 2 + (size_t(8) << 20) : h.expected_bytes, "npy file " + path);
   Geometry g;
   g.dims = h.dims;
@@ -261,7 +301,6 @@ AnyVolume read_npy(const std::string& path) {
     case VoxelType::i16: v = AnyVolume(Image<int16_t>(g, Uninitialized{})); break;
     case VoxelType::f32: v = AnyVolume(Image<float>(g, Uninitialized{})); break;
   }
-  in.seekg(std::streamoff(h.data_offset));
   const bool swap = h.big_endian == host_is_little_endian();
   const int w = h.item_bytes;        // as stored
   const int wv = h.float64 ? 4 : w;  // as held
@@ -295,6 +334,45 @@ AnyVolume read_npy(const std::string& path) {
   const std::string note = narrowing.note("npy file " + path + " ('" + h.descr + "', read as float32)");
   if (!note.empty() && read_note()) read_note()(note);
   return v;
+}
+
+NpyArray read_npy_array(const std::string& path) {
+  OpenedNpy o = open_npy(path, parse_array_header);
+  const NpyHeader& h = o.h;
+  if (h.fortran_order)
+    throw InputError("npy file " + path + ": fortran_order True; arrays other than volumes are read in C order (np.ascontiguousarray before np.save)");
+  uint64_t n = 1;
+  for (int64_t a : h.shape) n *= uint64_t(a);  // bounded: expected_bytes equals the file's size
+  check_memory(n * (sizeof(float) + uint64_t(h.item_bytes)), "npy file " + path);
+  NpyArray r;
+  r.shape = h.shape;
+  r.data.resize(size_t(n));
+  std::vector<char> raw(size_t(n) * size_t(h.item_bytes));
+  o.in.read(raw.data(), std::streamsize(raw.size()));
+  if (!o.in) throw InputError("cannot read " + path + ": short read");
+  if (h.big_endian == host_is_little_endian()) swap_bytes(raw.data(), size_t(n), h.item_bytes);
+  auto convert = [&](auto zero) {
+    using T = decltype(zero);
+    for (size_t i = 0; i < size_t(n); ++i) {
+      T v;
+      std::memcpy(&v, raw.data() + i * sizeof(T), sizeof(T));
+      r.data[i] = float(v);
+    }
+  };
+  if (h.float64) {
+    const std::string note = narrow_float64(reinterpret_cast<const double*>(raw.data()), int64_t(n), r.data.data(), "npy file " + path)
+                                 .note("npy file " + path + " ('" + h.descr + "', read as float32)");
+    if (!note.empty() && read_note()) read_note()(note);
+  } else if (h.type == VoxelType::u8) {
+    convert(uint8_t{});
+  } else if (h.type == VoxelType::u16) {
+    convert(uint16_t{});
+  } else if (h.type == VoxelType::i16) {
+    convert(int16_t{});
+  } else {
+    convert(float{});
+  }
+  return r;
 }
 
 void set_read_note(std::function<void(const std::string&)> sink) { read_note() = std::move(sink); }
@@ -341,10 +419,15 @@ Float64Narrowing narrow_float64(const double* src, int64_t n, float* dst, const 
 }
 
 void write_npy(const void* data, VoxelType type, const Geometry& g, const std::string& path) {
+  write_npy_array(data, type, {g.dims[2], g.dims[1], g.dims[0]}, path);
+}
+
+void write_npy_array(const void* data, VoxelType type, const std::vector<int64_t>& shape, const std::string& path) {
   const char* descr = type == VoxelType::u8 ? "|u1" : type == VoxelType::u16 ? "<u2" : type == VoxelType::i16 ? "<i2" : "<f4";
-  std::string dict = std::string("{'descr': '") + descr + "', 'fortran_order': False, 'shape': (" +
-                     std::to_string(g.dims[2]) + ", " + std::to_string(g.dims[1]) + ", " + std::to_string(g.dims[0]) +
-                     "), }";
+  // Python's tuple literal: (n,) for one axis, (a, b) for more
+  const std::string text = shape_text(shape);
+  std::string dict = std::string("{'descr': '") + descr + "', 'fortran_order': False, 'shape': " +
+                     (shape.size() == 1 ? text.substr(0, text.size() - 1) + ",)" : text) + ", }";
   // numpy pads with spaces so that the voxels start on a multiple of 64 bytes, ending with '\n'
   const size_t total = (10 + dict.size() + 1 + 63) / 64 * 64;
   dict.append(total - 10 - dict.size() - 1, ' ');
@@ -356,7 +439,8 @@ void write_npy(const void* data, VoxelType type, const Geometry& g, const std::s
   head += char(dict.size() >> 8);
   head += dict;
   const int w = voxel_type_bytes(type);
-  const uint64_t bytes = uint64_t(g.voxels()) * uint64_t(w);
+  uint64_t bytes = uint64_t(w);
+  for (int64_t a : shape) bytes *= uint64_t(a);
   AtomicOutput out(path);
   const uint64_t free_b = free_bytes_at(out.tmp_path());
   if (free_b < bytes + head.size())

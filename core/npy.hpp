@@ -65,6 +65,17 @@ Float64Narrowing narrow_float64(const double* src, int64_t n, float* dst, const 
 // Writes a .npy file atomically (AtomicOutput, size checked): C order, shape (nz, ny, nx).
 void write_npy(const void* data, VoxelType type, const Geometry& g, const std::string& path);
 
+// Arrays of any shape (1 to 8 axes, C order; numpy order of axes): the training patches of
+// export-patches, a model's test input and expected output. Read: every type read_npy reads,
+// converted to float32 (same header, size and memory checks; Fortran order refused). Write: like
+// write_npy, shape as given.
+struct NpyArray {
+  std::vector<int64_t> shape;
+  std::vector<float> data;
+};
+NpyArray read_npy_array(const std::string& path);
+void write_npy_array(const void* data, VoxelType type, const std::vector<int64_t>& shape, const std::string& path);
+
 // A volume read from a file that stores no geometry (.npy) takes the spacing and origin of the
 // volume it is paired with (a reference, a scan), when the dims agree; returns whether it did.
 bool adopt_geometry(AnyVolume& v, const Geometry& from);

@@ -13,14 +13,11 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
-#include <cstring>
 #include <filesystem>
-#include <fstream>
 #include <numeric>
 #include <sstream>
 
 #include "core/error.hpp"
-#include "core/io.hpp"
 #include "core/parallel.hpp"
 #include "core/text_file.hpp"
 #include "methods/pores.hpp"
@@ -383,79 +380,6 @@ VolumeF predict_volume(Model& m, const VolumeF& v, const Mask* roi, const Neural
       for (int64_t x = 0; x < nx; ++x) a[x] = float(double(a[x]) / (szy * sx[size_t(x)]));
     }
   return acc;
-}
-
-// ---- .npy --------------------------------------------------------------------------------------
-
-namespace {
-
-void write_npy_raw(const std::string& path, const std::vector<int64_t>& shape, const char* descr, const void* data,
-                   size_t bytes) {
-  std::string dims;
-  for (size_t i = 0; i < shape.size(); ++i) dims += std::to_string(shape[i]) + (shape.size() == 1 || i + 1 < shape.size() ? "," : "");
-  std::string header = std::string("{'descr': '") + descr + "', 'fortran_order': False, 'shape': (" + dims + "), }";
-  const size_t total = 10 + header.size() + 1;
-  header.append((64 - total % 64) % 64, ' ');
-  header += '\n';
-  std::string out = "\x93NUMPY";
-  out += char(1);
-  out += char(0);
-  out += char(header.size() & 0xff);
-  out += char((header.size() >> 8) & 0xff);
-  out += header;
-  out.append(static_cast<const char*>(data), bytes);
-  AtomicOutput a(path);
-  {
-    std::ofstream f(a.tmp_path(), std::ios::binary);
-    f.write(out.data(), std::streamsize(out.size()));
-    if (!f) throw InputError("cannot write " + path);
-  }
-  a.commit();
-}
-
-}  // namespace
-
-void write_npy(const std::string& path, const std::vector<int64_t>& shape, const float* data) {
-  int64_t n = 1;
-  for (auto s : shape) n *= s;
-  write_npy_raw(path, shape, "<f4", data, size_t(n) * sizeof(float));
-}
-
-void write_npy(const std::string& path, const std::vector<int64_t>& shape, const uint8_t* data) {
-  int64_t n = 1;
-  for (auto s : shape) n *= s;
-  write_npy_raw(path, shape, "|u1", data, size_t(n));
-}
-
-NpyArray read_npy_f32(const std::string& path) {
-  std::ifstream f(path, std::ios::binary);
-  if (!f) throw InputError(path + ": cannot be opened");
-  char magic[10];
-  f.read(magic, 10);
-  if (!f || std::memcmp(magic, "\x93NUMPY", 6) != 0 || magic[6] != 1) throw InputError(path + ": not a version-1 .npy file");
-  const size_t hlen = size_t(uint8_t(magic[8])) | (size_t(uint8_t(magic[9])) << 8);
-  std::string h(hlen, '\0');
-  f.read(h.data(), std::streamsize(hlen));
-  if (!f) throw InputError(path + ": truncated header");
-  if (h.find("'descr': '<f4'") == std::string::npos) throw InputError(path + ": field 'descr' is not '<f4'");
-  if (h.find("'fortran_order': False") == std::string::npos) throw InputError(path + ": field 'fortran_order' is not False");
-  const size_t a = h.find("'shape': ("), b = h.find(')', a);
-  if (a == std::string::npos || b == std::string::npos) throw InputError(path + ": field 'shape' missing");
-  NpyArray r;
-  std::stringstream s(h.substr(a + 10, b - a - 10));
-  std::string tok;
-  int64_t n = 1;
-  while (std::getline(s, tok, ','))
-    if (tok.find_first_not_of(' ') != std::string::npos) {
-      r.shape.push_back(std::stoll(tok));
-      if (r.shape.back() < 0 || r.shape.back() > (int64_t(1) << 32)) throw InputError(path + ": field 'shape' out of range");
-      n *= r.shape.back();
-    }
-  if (n > (int64_t(1) << 32)) throw InputError(path + ": field 'shape' too large");
-  r.data.resize(size_t(n));
-  f.read(reinterpret_cast<char*>(r.data.data()), std::streamsize(n * 4));
-  if (!f) throw InputError(path + ": truncated data (" + std::to_string(n) + " float32 expected)");
-  return r;
 }
 
 // ---- the family in the registry ----------------------------------------------------------------

@@ -107,15 +107,6 @@ Normaliser make_normaliser(const ModelCard& c, const VolumeF& v, const Mask* roi
 // accumulation order, so the map does not depend on the number of threads.
 VolumeF predict_volume(Model& m, const VolumeF& v, const Mask* roi, const NeuralOptions& o);
 
-// Minimal NumPy .npy I/O (little-endian float32 / uint8, C order), for tests and export-patches.
-struct NpyArray {
-  std::vector<int64_t> shape;
-  std::vector<float> data;
-};
-NpyArray read_npy_f32(const std::string& path);
-void write_npy(const std::string& path, const std::vector<int64_t>& shape, const float* data);
-void write_npy(const std::string& path, const std::vector<int64_t>& shape, const uint8_t* data);
-
 // Folder searched for shipped model cards (models/*/card.json): $POREBENCH_MODELS, else the
 // source tree's models/ folder.
 std::string models_folder();

@@ -13,6 +13,7 @@
 #include "core/error.hpp"
 #include "core/parallel.hpp"
 #include "helpers.hpp"
+#include "core/npy.hpp"
 #include "methods/neural.hpp"
 #include "methods/registry.hpp"
 
@@ -55,8 +56,8 @@ double max_abs_diff(const std::vector<float>& a, const std::vector<float>& b) {
 // Runs the engine behind a card on the fixed input and compares with PyTorch's output.
 double engine_vs_pytorch(const std::string& name, int threads) {
   Model m(read_model_card(card_of(name)), threads);
-  const NpyArray x = read_npy_f32(models() / (name + "/input.npy"));
-  const NpyArray y = read_npy_f32(models() / (name + "/expected.npy"));
+  const NpyArray x = read_npy_array(models() / (name + "/input.npy"));
+  const NpyArray y = read_npy_array(models() / (name + "/expected.npy"));
   std::vector<float> prob(size_t(x.shape[0] * m.tile_voxels()));
   m.predict(x.data.data(), x.shape[0], prob.data());
   std::vector<float> want = y.data;
@@ -299,7 +300,7 @@ TEST_CASE("export-patches writes calibration slices only; train.py trains one ep
     ++rows;
   }
   CHECK(rows > 0);
-  const NpyArray x = read_npy_f32(d / "patches/blank-scan-50p-scans.npy");
+  const NpyArray x = read_npy_array(d / "patches/blank-scan-50p-scans.npy");
   CHECK(x.shape == std::vector<int64_t>{rows, 3, 32, 32});
   // The stack's context must not reach the test slices: 3 slices need a gap of at least 1.
   r = pbtest::run_cli("export-patches " + d / "tiny.toml" + " -o " + d / "p2 --slices 7");

@@ -6,6 +6,9 @@
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <functional>
+#include <numeric>
+#include <tuple>
 
 #include "core/error.hpp"
 #include "core/json.hpp"
@@ -96,6 +99,65 @@ TEST_CASE("npy: numpy's files in every dtype, order, endianness and version read
   }
   // numpy.lib.format: 5 dtypes; u2/i2/f4 in 2 byte orders; 2 shapes; 2 orders; 3 versions; + np.save
   CHECK(files == (2 * 1 + 3 * 2) * 2 * 2 * 3 + 1);
+}
+
+namespace {
+
+// The formula of tests/ref/npy_numpy.py value_flat(): element i in C order.
+float expected_flat(const std::string& dtype, int64_t i) {
+  if (dtype == "u1") return float((i * 7 + 3) % 256);
+  if (dtype == "u2") return float(i * 61 + 300);
+  if (dtype == "i2") return float(-(i * 37) + 5);
+  if (dtype == "f8") return float(double(i) * 0.1 + 1.0 / 3.0);  // numpy's float64, rounded to float32
+  return float(double(i) * 0.5 - 3.25);
+}
+
+}  // namespace
+
+TEST_CASE("npy arrays of any shape: numpy's files read as float32, ours np.load to the same values", "[npy]") {
+  // Source: numpy.save / numpy.load (tests/ref/npy_numpy.py arrays, check_array), Debian python3-numpy.
+  pbtest::TempDir d;
+  const auto w = pbtest::run_ref_script("npy_numpy.py", "arrays " + d / "np");
+  REQUIRE(w.exit_code == 0);
+  const std::vector<std::pair<std::string, std::vector<int64_t>>> shapes = {
+      {"2x3x4x5", {2, 3, 4, 5}}, {"7", {7}}, {"3x1x2", {3, 1, 2}}};
+  for (const auto& [dtype, endian] : std::vector<std::pair<std::string, std::string>>{
+           {"u1", "na"}, {"u2", "be"}, {"i2", "le"}, {"f4", "le"}, {"f4", "be"}, {"f8", "le"}})
+    for (const auto& [text, shape] : shapes) {
+      const std::string name = "arr_" + dtype + "_" + endian + "_" + text + ".npy";
+      INFO(name);
+      const NpyArray a = read_npy_array(d / ("np/" + name));
+      CHECK(a.shape == shape);
+      bool same = a.data.size() == size_t(std::accumulate(shape.begin(), shape.end(), int64_t(1), std::multiplies<>()));
+      for (size_t i = 0; same && i < a.data.size(); ++i) same = a.data[i] == expected_flat(dtype, int64_t(i));
+      CHECK(same);
+    }
+  const NpyArray empty = read_npy_array(d / "np/arr_empty.npy");
+  CHECK(empty.shape == std::vector<int64_t>{0, 3, 4});
+  CHECK(empty.data.empty());
+  CHECK_THROWS_WITH(read_npy_array(d / "np/arr_fortran.npy"), Catch::Contains("arr_fortran.npy") && Catch::Contains("fortran_order"));
+  // A truncated array is refused naming the file and the sizes.
+  const std::string good = read_text(d / "np/arr_f4_le_2x3x4x5.npy");
+  write_file(d / "short.npy", good.substr(0, good.size() - 4));
+  CHECK_THROWS_WITH(read_npy_array(d / "short.npy"), Catch::Contains("short.npy") && Catch::Contains("is truncated"));
+  // Ours: float32 and uint8 of several shapes, loaded by numpy.
+  for (const auto& [text, shape] : shapes) {
+    const int64_t n = std::accumulate(shape.begin(), shape.end(), int64_t(1), std::multiplies<>());
+    std::vector<float> f(static_cast<size_t>(n));
+    std::vector<uint8_t> u(static_cast<size_t>(n));
+    for (int64_t i = 0; i < n; ++i) f[size_t(i)] = expected_flat("f4", i), u[size_t(i)] = uint8_t(expected_flat("u1", i));
+    std::string dims;
+    for (int64_t s : shape) dims += " " + std::to_string(s);
+    for (const auto& [dtype, data, type] : {std::tuple<std::string, const void*, VoxelType>{"f4", f.data(), VoxelType::f32},
+                                           {"u1", u.data(), VoxelType::u8}}) {
+      const std::string path = d / ("ours_" + dtype + "_" + text + ".npy");
+      write_npy_array(data, type, shape, path);
+      const auto r = pbtest::run_ref_script("npy_numpy.py", "check_array " + path + " " + dtype + dims);
+      INFO(path << ": " << r.out << r.err);
+      CHECK(r.out == "ok\n");
+      CHECK(read_npy_array(path).shape == shape);
+    }
+  }
 }
 
 TEST_CASE("npy: porebench's files np.load to the same values (C order, z y x)", "[npy]") {

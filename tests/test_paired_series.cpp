@@ -8,6 +8,7 @@
 
 #include "core/io.hpp"
 #include "core/json.hpp"
+#include "core/npy.hpp"
 #include "methods/neural.hpp"
 #include "suites/layout.hpp"
 #include "suites/results.hpp"
@@ -115,8 +116,8 @@ TEST_CASE("export-patches takes every scan of a paired series with its own geome
   CHECK(rows["a"] > 0);
   CHECK(rows["b"] == rows["a"]);
   // Same data in both files: the raw scan's patches equal the MetaImage scan's (read with its geometry).
-  const NpyArray a = read_npy_f32((d.path / "p" / "blank-a-scans.npy").string());
-  const NpyArray b = read_npy_f32((d.path / "p" / "blank-b-scans.npy").string());
+  const NpyArray a = read_npy_array((d.path / "p" / "blank-a-scans.npy").string());
+  const NpyArray b = read_npy_array((d.path / "p" / "blank-b-scans.npy").string());
   CHECK(a.shape == b.shape);
   CHECK(a.data == b.data);
 }

@@ -9,6 +9,11 @@ python3-numpy), the format's own implementation.
                            Fortran order (f8_*.npy), values float32 cannot hold exactly, and beside
                            each numpy's own float32 rounding of it (astype(np.float32), round to
                            nearest even) as as32_*.npy: porebench must read the first as the second.
+  npy_numpy.py arrays DIR  arrays of other shapes (4-D, 1-D, with a 1 axis, an empty one) as np.save
+                           writes them: u1, u2 big endian, i2, f4 both byte orders, f8; values from
+                           value_flat(); one Fortran-order 4-D array.
+  npy_numpy.py check_array FILE DTYPE SHAPE...
+                           np.load(FILE) must equal value_flat() exactly, with that dtype and shape.
   npy_numpy.py check FILE DTYPE [NZ NY NX]
                            np.load(FILE) must equal value() exactly, with that dtype and shape;
                            prints "ok" or exits 1 with the difference."""
@@ -32,6 +37,46 @@ def value(dtype, shape):
         "f4": k * 0.5 - 3.25,
     }[dtype]
     return out.astype(np.dtype(dtype))
+
+
+def value_flat(dtype, shape):
+    """Element i (in C order) of the test arrays of any shape (the same formula is in tests/test_npy.cpp)."""
+    i = np.arange(int(np.prod(shape))).reshape(shape)
+    out = {"u1": (i * 7 + 3) % 256, "u2": i * 61 + 300, "i2": -(i * 37) + 5, "f4": i * 0.5 - 3.25,
+           "f8": i * 0.1 + 1.0 / 3.0}[dtype]
+    return out.astype(np.dtype(dtype))
+
+
+def write_arrays(folder):
+    os.makedirs(folder, exist_ok=True)
+    n = 0
+    for dtype, endian in [("u1", "|"), ("u2", ">"), ("i2", "<"), ("f4", "<"), ("f4", ">"), ("f8", "<")]:
+        for shape in [(2, 3, 4, 5), (7,), (3, 1, 2)]:
+            a = value_flat(dtype, shape)
+            if endian != "|":
+                a = a.astype(np.dtype(endian + dtype))
+            name = "arr_%s_%s_%s.npy" % (dtype, {"<": "le", ">": "be", "|": "na"}[endian], "x".join(map(str, shape)))
+            np.save(os.path.join(folder, name), a)
+            n += 1
+    np.save(os.path.join(folder, "arr_fortran.npy"), np.asfortranarray(value_flat("f4", (2, 3, 4, 5))))
+    np.save(os.path.join(folder, "arr_empty.npy"), np.zeros((0, 3, 4), np.float32))
+    print("wrote", n + 2)
+
+
+def compare(path, dtype, shape, want):
+    """Exit non-zero unless the file at path holds exactly `want` as dtype with this shape."""
+    a = np.load(path)
+    if a.dtype != np.dtype(dtype).newbyteorder("<") and a.dtype != np.dtype(dtype):
+        sys.exit("dtype %s, expected %s" % (a.dtype, dtype))
+    if a.shape != tuple(shape):
+        sys.exit("shape %s, expected %s" % (a.shape, shape))
+    if not np.array_equal(a, want):
+        sys.exit("values differ at %s" % (np.argwhere(a != want)[:3].tolist(),))
+    print("ok")
+
+
+def check_array(path, dtype, shape):
+    compare(path, dtype, shape, value_flat(dtype, shape))
 
 
 def write(folder):
@@ -75,17 +120,8 @@ def write_f8(folder):
 
 
 def check(path, dtype, shape):
-    a = np.load(path)
     want = value(dtype, shape)
-    if len(shape) == 2:
-        want = want[0]
-    if a.dtype != np.dtype(dtype).newbyteorder("<") and a.dtype != np.dtype(dtype):
-        sys.exit("dtype %s, expected %s" % (a.dtype, dtype))
-    if a.shape != tuple(shape):
-        sys.exit("shape %s, expected %s" % (a.shape, shape))
-    if not np.array_equal(a, want):
-        sys.exit("values differ at %s" % (np.argwhere(a != want)[:3].tolist(),))
-    print("ok")
+    compare(path, dtype, shape, want[0] if len(shape) == 2 else want)
 
 
 if __name__ == "__main__":
@@ -93,5 +129,9 @@ if __name__ == "__main__":
         write(sys.argv[2])
     elif sys.argv[1] == "f8":
         write_f8(sys.argv[2])
+    elif sys.argv[1] == "arrays":
+        write_arrays(sys.argv[2])
+    elif sys.argv[1] == "check_array":
+        check_array(sys.argv[2], sys.argv[3], tuple(int(s) for s in sys.argv[4:]))
     else:
         check(sys.argv[2], sys.argv[3], tuple(int(s) for s in sys.argv[4:]))
