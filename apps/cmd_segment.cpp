@@ -79,13 +79,24 @@ Action setup_segment(CLI::App& app) {
       check_slab_output(a->output, "-o");
       const SlabFile in(a->input, ro);
       const std::string sha = a->json.empty() ? std::string() : in.sha256();
-      const SlabSegmentResult r = segment_by_slabs(a->method, params, in, a->output, {a->slab_slices});
       MethodOutput out;
-      out.chosen = r.chosen, out.warnings = r.warnings, out.part_voxels = r.part_voxels, out.runtime_s = r.runtime_s;
+      // Both or neither, as in memory: the JSON goes to its temporary once the mask is written and
+      // before it is renamed; the JSON is renamed after it.
+      std::optional<AtomicOutput> json_out;
+      std::string json_text;
+      SlabSegmentOptions so;
+      so.slab_slices = a->slab_slices;
+      so.before_commit = [&](const SlabSegmentResult& r) {
+        out.chosen = r.chosen, out.warnings = r.warnings, out.part_voxels = r.part_voxels, out.runtime_s = r.runtime_s;
+        if (a->json.empty()) return;
+        json_text = segment_record(m, params, out, in.geometry().voxels(), {a->input, sha, std::nullopt, a->output},
+                                   r.pore_voxels).dump(2) + "\n";
+        json_out.emplace(a->json);
+        write_text_to(*json_out, json_text);
+      };
+      const SlabSegmentResult r = segment_by_slabs(a->method, params, in, a->output, so);
+      if (json_out) json_out->commit(json_text.size());
       log("porebench: " + a->input + " segmented by slabs of " + std::to_string(r.slab_slices) + " slices (above --memory-limit)");
-      if (!a->json.empty())
-        write_text_atomic(a->json, segment_record(m, params, out, in.geometry().voxels(),
-                                                  {a->input, sha, std::nullopt, a->output}, r.pore_voxels).dump(2) + "\n");
       print_summary(m, out, r.pore_voxels, a->output, a->json);
       return 0;
     }

@@ -124,46 +124,38 @@ struct Binner {
 
 // Counting: the bins of 64 voxels are computed together (a loop that vectorises), then counted
 // into four interleaved tables of 32-bit counters, so that runs of one bin do not wait on each
-// other's increments. NaN and masked-out voxels go to a spare bin past the last. With `codes`,
-// every voxel's bin is also written there (NaN: 255); the mask only decides what is counted.
+// other's increments. NaN and masked-out voxels go to a spare bin past the last.
 constexpr int kTables = 4;
 constexpr int kChunk = 64;
 constexpr int64_t kFlush = int64_t(1) << 30;  // voxels counted before the 32-bit tables are emptied
 
-template <bool kMask, bool kCodes>
+template <bool kMask>
 void count_range(const float* d, const uint8_t* mask, int64_t b, int64_t e, const Binner& bin, int spare,
-                 uint32_t* tables, size_t stride, uint8_t* codes) {
+                 uint32_t* tables, size_t stride) {
   alignas(64) int32_t idx[kChunk];
-  alignas(64) uint8_t code[kChunk];
   int64_t i = b;
   for (; i + kChunk <= e; i += kChunk) {
-    // Local arrays only (a store through `codes`, a byte pointer, could alias anything and keeps
-    // the loop from vectorising): the codes are copied out after.
-    for (int j = 0; j < kChunk; ++j) {
+    for (int j = 0; j < kChunk; ++j) {  // vectorises
       const float v = d[i + j];
       const int k = bin(v);
-      const bool nan = v != v;
       int in = 1;
       if constexpr (kMask) in = mask[i + j];
-      idx[j] = nan | (in == 0) ? spare : k;
-      if constexpr (kCodes) code[j] = uint8_t(nan ? 255 : k);
+      idx[j] = (v != v) | (in == 0) ? spare : k;
     }
-    if constexpr (kCodes) std::memcpy(codes + i, code, kChunk);
     for (int j = 0; j < kChunk; j += kTables)
       for (int t = 0; t < kTables; ++t) ++tables[size_t(t) * stride + size_t(idx[j + t])];
   }
   for (; i < e; ++i) {
     const float v = d[i];
-    const int k = bin(v);
-    if constexpr (kCodes) codes[i] = uint8_t(v != v ? 255 : k);
     bool skip = v != v;
     if constexpr (kMask) skip = skip || !mask[i];
-    ++tables[skip ? size_t(spare) : size_t(k)];
+    ++tables[skip ? size_t(spare) : size_t(bin(v))];
   }
 }
 
-Histogram histogram_impl(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask,
-                         uint8_t* codes) {
+}  // namespace
+
+Histogram compute_histogram(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask) {
   if (!std::isfinite(lo) || !std::isfinite(hi) || bins < 1)
     throw std::invalid_argument("compute_histogram: the range must be finite and bins >= 1");
   Histogram h;
@@ -183,10 +175,8 @@ Histogram histogram_impl(const float* d, int64_t n, double lo, double hi, int bi
     const int64_t b = n * t / used, e = n * (t + 1) / used;
     for (int64_t c = b; c < e; c += kFlush) {
       const int64_t ce = std::min(e, c + kFlush);
-      if (mask && codes) count_range<true, true>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
-      else if (mask) count_range<true, false>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
-      else if (codes) count_range<false, true>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
-      else count_range<false, false>(d, mask, c, ce, bin, bins, tables.data(), stride, codes);
+      if (mask) count_range<true>(d, mask, c, ce, bin, bins, tables.data(), stride);
+      else count_range<false>(d, mask, c, ce, bin, bins, tables.data(), stride);
       for (int k = 0; k < kTables; ++k)
         for (int b2 = 0; b2 < bins; ++b2) out[size_t(b2)] += tables[size_t(k) * stride + size_t(b2)];
       std::fill(tables.begin(), tables.end(), 0u);
@@ -197,41 +187,74 @@ Histogram histogram_impl(const float* d, int64_t n, double lo, double hi, int bi
   return h;
 }
 
-}  // namespace
-
-Histogram compute_histogram(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask) {
-  return histogram_impl(d, n, lo, hi, bins, mask, nullptr);
+LevelCounts::LevelCounts(VoxelType t)
+    : offset_(t == VoxelType::i16 ? -32768 : 0), levels_(t == VoxelType::u8 ? 256 : 65536), counts_(size_t(levels_), 0) {
+  if (t == VoxelType::f32) throw std::invalid_argument("LevelCounts: float32 has no grey levels to count");
 }
 
-Histogram compute_histogram_codes(const float* d, int64_t n, double lo, double hi, int bins, const uint8_t* mask,
-                                  uint8_t* codes) {
-  if (bins > 256) throw std::invalid_argument("compute_histogram_codes: at most 256 bins fit a byte");
-  return histogram_impl(d, n, lo, hi, bins, mask, codes);
-}
-
-int histogram_bin(const Histogram& h, float v) { return Binner(h)(v); }
-
-void below_from_codes(uint8_t* codes, const float* d, int64_t n, const Histogram& h, float t, const uint8_t* mask) {
-  const int k = histogram_bin(h, t);  // NaN threshold: bin 0, and v < NaN is false
-  const int64_t chunks = (n + kChunk - 1) / kChunk;
-#pragma omp parallel for schedule(static)
-  for (int64_t q = 0; q < chunks; ++q) {
-    const int64_t b = q * kChunk, m = std::min<int64_t>(kChunk, n - b);
-    uint8_t* c = codes + b;
-    // Bins are monotone in v: a lower bin is below t, a higher one is not; only the voxels of t's
-    // own bin are decided by their value (NaN voxels carry 255 and compare false).
-    uint8_t below[kChunk], own = 0;
-    for (int64_t j = 0; j < m; ++j) {
-      below[j] = c[j] < k;
-      own |= c[j] == k;
+bool LevelCounts::add(const float* d, int64_t n, const uint8_t* mask) {
+  const float lo = float(offset_), hi = float(offset_ + levels_ - 1);
+  const int32_t off = int32_t(offset_);
+  const int nt = omp_get_max_threads();
+  std::vector<std::vector<uint64_t>> local(static_cast<size_t>(nt));
+  int bad = 0;
+#pragma omp parallel num_threads(nt) reduction(| : bad)
+  {
+    const int t = omp_get_thread_num(), used = omp_get_num_threads();
+    std::vector<uint64_t>& out = local[size_t(t)];
+    out.assign(size_t(levels_), 0);
+    std::vector<uint32_t> c(size_t(levels_), 0);  // 32-bit: a 256 KiB table stays in L2
+    const int64_t b = n * t / used, e = n * (t + 1) / used;
+    for (int64_t q = b; q < e && !bad; q += kFlush) {
+      const int64_t qe = std::min(e, q + kFlush);
+      for (int64_t i = q; i < qe; ++i) {
+        if (mask && !mask[i]) continue;
+        const float v = d[i];
+        // a range test before the conversion (NaN fails it), then a whole number
+        const int32_t k = v >= lo && v <= hi ? int32_t(v) : off - 1;
+        bad |= k < off || float(k) != v;
+        ++c[size_t(std::min(std::max(k - off, 0), int32_t(levels_ - 1)))];
+      }
+      for (size_t k = 0; k < c.size(); ++k) out[k] += c[k];
+      std::fill(c.begin(), c.end(), 0u);
     }
-    if (own)  // branch-free, so that it vectorises: the chunk's values are read once
-      for (int64_t j = 0; j < m; ++j) below[j] = uint8_t(below[j] | ((c[j] == k) & (d[b + j] < t)));
-    if (mask)
-      for (int64_t j = 0; j < m; ++j) c[j] = below[j] & (mask[b + j] != 0);
-    else
-      for (int64_t j = 0; j < m; ++j) c[j] = below[j];
   }
+  if (bad) return false;
+  for (const auto& l : local)
+    for (size_t k = 0; k < l.size(); ++k) counts_[k] += l[k];
+  return true;
+}
+
+Stats LevelCounts::stats() const {
+  Stats s;
+  int64_t sum = 0;
+  bool first = true;
+  for (int64_t k = 0; k < levels_; ++k) {
+    const uint64_t c = counts_[size_t(k)];
+    if (!c) continue;
+    if (first) s.min = double(k + offset_), first = false;
+    s.max = double(k + offset_);
+    sum += int64_t(c) * (k + offset_);
+    s.count += int64_t(c);
+  }
+  if (s.count > 0) s.mean = double(sum) / double(s.count);
+  return s;
+}
+
+Histogram LevelCounts::histogram(double lo, double hi, int bins) const {
+  std::vector<float> levels;
+  for (int64_t k = 0; k < levels_; ++k)
+    if (counts_[size_t(k)]) levels.push_back(float(k + offset_));
+  Histogram per_level = compute_histogram(levels.data(), int64_t(levels.size()), lo, hi, bins);
+  Histogram h = per_level;
+  size_t next = 0;
+  for (int b = 0; b < bins; ++b) {
+    uint64_t total = 0;
+    for (uint64_t j = 0; j < per_level.counts[size_t(b)]; ++j, ++next)
+      total += counts_[size_t(int64_t(levels[next]) - offset_)];
+    h.counts[size_t(b)] = total;
+  }
+  return h;
 }
 
 double histogram_quantile(const Histogram& h, double fraction) {

@@ -32,18 +32,29 @@ struct Stats {
 Stats compute_stats(const float* data, int64_t n, const uint8_t* mask = nullptr);
 Histogram compute_histogram(const float* data, int64_t n, double lo, double hi, int bins,
                             const uint8_t* mask = nullptr);
-// compute_histogram (bins <= 256) that also writes each voxel's bin to codes[i] (NaN voxels: 255;
-// every voxel, the mask only selects what is counted): with below_from_codes, a threshold method
-// reads the volume twice (stats, histogram) instead of three times (issue 16).
-Histogram compute_histogram_codes(const float* data, int64_t n, double lo, double hi, int bins, const uint8_t* mask,
-                                  uint8_t* codes);
-// The bin compute_histogram counts v in (float arithmetic; monotone in v; NaN -> 0).
-int histogram_bin(const Histogram& h, float v);
-// codes[i] := data[i] < t (and mask[i], when given), from the codes of compute_histogram_codes on
-// the same data and histogram: only voxels in t's own bin read their value. Equals the plain
-// comparison bit for bit (bins are monotone in the value).
-void below_from_codes(uint8_t* codes, const float* data, int64_t n, const Histogram& h, float t,
-                      const uint8_t* mask = nullptr);
+// Counts of every grey level of an integer voxel type (uint8, uint16, int16: 256 or 65,536 levels)
+// in one read of the voxels; the statistics and any histogram follow from them exactly, without
+// another read. A threshold method on integer data thus reads its volume twice (these counts, then
+// the comparison) instead of three times (stats, histogram, comparison) (issue 16). The statistics
+// equal compute_stats's (the mean is the exact sum of whole numbers over the count, as compute_stats's
+// double sums are exact for whole numbers below 2^53) and every histogram equals compute_histogram's.
+class LevelCounts {
+ public:
+  explicit LevelCounts(VoxelType t);  // t: uint8, uint16 or int16 (std::invalid_argument otherwise)
+  // Adds the voxels of data[0, n) (where mask is non-zero, when given). False, and nothing added,
+  // when a voxel is not a whole grey level of the type (say a filtered volume): use the float path.
+  bool add(const float* data, int64_t n, const uint8_t* mask = nullptr);
+  Stats stats() const;
+  // compute_histogram over the voxels added: compute_histogram over the occupied levels, once each,
+  // gives the number of levels in each bin; taken in ascending order (binning is monotone in the
+  // value) they say which bin every level falls in.
+  Histogram histogram(double lo, double hi, int bins) const;
+
+ private:
+  int64_t offset_, levels_;        // level k is the grey value k + offset_
+  std::vector<uint64_t> counts_;
+};
+
 // Value below which `fraction` of the counted voxels lie, interpolated within a bin.
 double histogram_quantile(const Histogram& h, double fraction);
 

@@ -199,65 +199,13 @@ struct VolumeSummary {
 };
 
 // Integer grey values (integer volumes, and their medians): one pass counts every grey level; the
-// statistics and any histogram follow exactly. A histogram over [lo, hi] with `bins` bins is
-// compute_histogram over the occupied levels, once each: the count of levels it puts in each bin,
-// taken in ascending order (binning is monotone in the value), says which bin every level falls in.
-// The mean is the exact sum over the count, as compute_stats's double sums are exact for whole
-// numbers below 2^53.
+// statistics and any histogram follow exactly (core/histogram.hpp LevelCounts), as in memory.
 VolumeSummary level_summary(const Slabs& s, VoxelType stored, int64_t slab) {
-  const int64_t offset = stored == VoxelType::i16 ? -32768 : 0, nlev = stored == VoxelType::u8 ? 256 : 65536;
-  auto counts = std::make_shared<std::vector<uint64_t>>(size_t(nlev), 0);
-  const int nt = omp_get_max_threads();
-  std::vector<std::vector<uint64_t>> local(size_t(nt), std::vector<uint64_t>(size_t(nlev), 0));
+  auto levels = std::make_shared<LevelCounts>(stored);
   for_each_slab(s, slab, [&](int64_t, int64_t, const VolumeF& v) {
-    const float* d = v.data();
-    const int64_t n = v.size();
-    int64_t bad = 0;
-#pragma omp parallel num_threads(nt) reduction(+ : bad)
-    {
-      uint64_t* c = local[size_t(omp_get_thread_num())].data();
-#pragma omp for schedule(static)
-      for (int64_t i = 0; i < n; ++i) {
-        const int64_t k = int64_t(d[i]) - offset;
-        if (k < 0 || k >= nlev || float(k + offset) != d[i]) {
-          ++bad;
-          continue;
-        }
-        ++c[k];
-      }
-    }
-    if (bad) throw std::logic_error("level_summary: a voxel is not a grey level of its type");
+    if (!levels->add(v.data(), v.size())) throw std::logic_error("level_summary: a voxel is not a grey level of its type");
   });
-  for (const auto& l : local)
-    for (int64_t k = 0; k < nlev; ++k) (*counts)[size_t(k)] += l[size_t(k)];
-  auto levels = std::make_shared<std::vector<float>>();
-  int64_t sum = 0;
-  VolumeSummary out;
-  for (int64_t k = 0; k < nlev; ++k) {
-    const uint64_t c = (*counts)[size_t(k)];
-    if (!c) continue;
-    levels->push_back(float(k + offset));
-    sum += int64_t(c) * (k + offset);
-    out.all.count += int64_t(c);
-  }
-  if (out.all.count > 0) {
-    out.all.min = levels->front();
-    out.all.max = levels->back();
-    out.all.mean = double(sum) / double(out.all.count);
-  }
-  out.hist = [counts, levels, offset](double lo, double hi, int bins) {
-    Histogram per_level = compute_histogram(levels->data(), int64_t(levels->size()), lo, hi, bins);
-    Histogram h = per_level;
-    size_t next = 0;
-    for (int b = 0; b < bins; ++b) {
-      uint64_t total = 0;
-      for (uint64_t j = 0; j < per_level.counts[size_t(b)]; ++j, ++next)
-        total += (*counts)[size_t(int64_t((*levels)[next]) - offset)];
-      h.counts[size_t(b)] = total;
-    }
-    return h;
-  };
-  return out;
+  return {levels->stats(), [levels](double lo, double hi, int bins) { return levels->histogram(lo, hi, bins); }};
 }
 
 // Float grey values: a statistics pass now, and a pass over the slabs for each histogram asked for
@@ -329,9 +277,9 @@ class SliceRing {
 };
 
 // Pores from the runs of the air mask (as air_to_pores, no ROI), small pores removed (as
-// run_method), the mask written by slabs.
-void finish_pores(RunCollector& air, const ParamValues& base, const std::string& output, int64_t slab,
-                  const std::string& no_part_setting, const std::string& method, SlabSegmentResult& r) {
+// run_method), the mask written by slabs to its temporary (the caller commits it).
+std::unique_ptr<SlabMaskWriter> finish_pores(RunCollector& air, const ParamValues& base, const std::string& output, int64_t slab,
+                                             const std::string& no_part_setting, const std::string& method, SlabSegmentResult& r) {
   LabelRuns c = air.finish(6);
   const Geometry g = c.geometry;
   const std::vector<uint8_t> outside = outside_components(c, nullptr);
@@ -367,7 +315,7 @@ void finish_pores(RunCollector& air, const ParamValues& base, const std::string&
     r.chosen.emplace_back("small_pores_removed", double(removed));
   }
   for (uint32_t k = 1; k <= p.count; ++k) r.pore_voxels += keep[k] ? p.sizes[k] : 0;
-  SlabMaskWriter w(output, g);
+  auto w = std::make_unique<SlabMaskWriter>(output, g);
   const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   std::vector<uint8_t> buf;
   for (int64_t z0 = 0; z0 < nz; z0 += slab) {
@@ -379,9 +327,9 @@ void finish_pores(RunCollector& air, const ParamValues& base, const std::string&
           const Run& u = p.runs[size_t(i)];
           std::fill(buf.begin() + (row - z0 * ny) * nx + u.x0, buf.begin() + (row - z0 * ny) * nx + u.x1, uint8_t(1));
         }
-    w.write(buf.data(), z1 - z0);
+    w->write(buf.data(), z1 - z0);
   }
-  w.commit();
+  return w;  // committed by the caller, after opt.before_commit
 }
 
 int64_t default_slab(const Geometry& g) {
@@ -464,6 +412,7 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
   const VoxelType hist_type = parts.size() > 1 ? VoxelType::f32 : in.type();
   const VolumeSummary sum = summary(*src, in.type(), slab);
   RunCollector air(g);
+  std::unique_ptr<SlabMaskWriter> mask;
 
   if (const HistogramDecider* decide = histogram_decider(parts.back())) {
     const Histogram h = method_histogram(sum.all, false, hist_type, base, sum.hist);
@@ -477,7 +426,7 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
     });
     r.chosen.emplace_back("threshold", c.threshold);
     r.warnings = c.warnings;
-    finish_pores(air, base, output, slab, "threshold " + format_number(c.threshold, 6), method, r);
+    mask = finish_pores(air, base, output, slab, "threshold " + format_number(c.threshold, 6), method, r);
     r.chosen.insert(r.chosen.begin() + 1, d.chosen.begin(), d.chosen.end());
   } else {
     // sauvola: the window asks slices in z order, at most window + 2 batches behind the furthest.
@@ -487,9 +436,11 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
                                      [&air](int64_t, int64_t n, const uint8_t* slices) { air.add(slices, n); });
     r.chosen = std::move(a.chosen);
     r.warnings = std::move(a.warnings);
-    finish_pores(air, base, output, slab, "", method, r);
+    mask = finish_pores(air, base, output, slab, "", method, r);
   }
   r.runtime_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  if (opt.before_commit) opt.before_commit(r);
+  mask->commit();
   return r;
 }
 

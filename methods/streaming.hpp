@@ -16,6 +16,7 @@
 // Bit identity holds for integer volumes (uint8, uint16, int16); for float32 volumes sauvola's
 // centring mean is summed in another order and may differ in its last bits.
 #include <cstdint>
+#include <functional>
 #include <string>
 #include <utility>
 #include <vector>
@@ -43,16 +44,20 @@ struct SegmentPlan {
 SegmentPlan plan_segment(const std::string& input, const ReadOptions& ro, const std::string& method, bool roi,
                          uint64_t limit);
 
-struct SlabSegmentOptions {
-  int64_t slab_slices = 0;  // slices per slab; 0: about 256 MiB of float voxels per slab
-};
-
 struct SlabSegmentResult {
   std::vector<std::pair<std::string, double>> chosen;
   std::vector<std::string> warnings;
   int64_t pore_voxels = 0, part_voxels = 0;
   double runtime_s = 0;
   int64_t slab_slices = 0;  // as used
+};
+
+struct SlabSegmentOptions {
+  int64_t slab_slices = 0;  // slices per slab; 0: about 256 MiB of float voxels per slab
+  // Called with the result when the mask is fully written but not yet renamed to its final name:
+  // a caller writes its companion files' temporaries here and renames them after the call, so that
+  // a failure leaves neither the mask nor its companions (segment --json).
+  std::function<void(const SlabSegmentResult&)> before_commit;
 };
 
 // Runs `method` with `params` (parsed against Registry::get(method)) on `in` by slabs and writes the

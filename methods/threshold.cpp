@@ -6,6 +6,7 @@
 
 #include <cmath>
 #include <map>
+#include <memory>
 
 #include "core/error.hpp"
 #include "core/format.hpp"
@@ -64,25 +65,31 @@ Histogram method_histogram(const Stats& s, bool roi, VoxelType stored_type, cons
 
 namespace {
 
-// method_histogram; with `codes` and at most 256 bins, each voxel's bin is written there too, so
-// that the air mask comes from the codes (below_from_codes) instead of a third read of the volume.
-Histogram method_histogram_codes(const MethodInput& in, const ParamValues& p, Mask* codes) {
-  const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
-  const Stats s = compute_stats(in.volume.data(), in.volume.size(), roi);
-  const HistogramOf plain = histogram_of(in.volume, roi);
-  return method_histogram(s, roi != nullptr, in.stored_type, p, [&](double lo, double hi, int bins) {
-    // grey_range's fine histogram has 65,536 bins: only the method's own can take the codes
-    if (codes && bins <= 256) {
-      *codes = Mask(in.volume.geometry(), Uninitialized{});  // every voxel written
-      return compute_histogram_codes(in.volume.data(), in.volume.size(), lo, hi, bins, roi, codes->data());
-    }
-    return plain(lo, hi, bins);
-  });
+// What a histogram method reads of its volume: the statistics of the voxels that form its histogram
+// and a source of histograms of them. Integer data: one read counting every grey level (LevelCounts),
+// from which both follow exactly; float data (or integer-typed data that are not whole levels): the
+// statistics now, and a read per histogram asked for.
+struct VoxelSummary {
+  Stats stats;
+  HistogramOf hist;
+};
+
+VoxelSummary summarise(const MethodInput& in, const uint8_t* roi) {
+  if (integer_type(in.stored_type)) {
+    auto levels = std::make_shared<LevelCounts>(in.stored_type);
+    if (levels->add(in.volume.data(), in.volume.size(), roi))
+      return {levels->stats(), [levels](double lo, double hi, int bins) { return levels->histogram(lo, hi, bins); }};
+  }
+  return {compute_stats(in.volume.data(), in.volume.size(), roi), histogram_of(in.volume, roi)};
 }
 
 }  // namespace
 
-Histogram method_histogram(const MethodInput& in, const ParamValues& p) { return method_histogram_codes(in, p, nullptr); }
+Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
+  const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
+  const VoxelSummary s = summarise(in, roi);
+  return method_histogram(s.stats, roi != nullptr, in.stored_type, p, s.hist);
+}
 
 bool single_occupied_bin(const Histogram& h) {
   int occupied = 0;
@@ -119,16 +126,9 @@ MethodOutput apply_threshold(const MethodInput& in, const ThresholdChoice& c, co
 
 ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const ThresholdCalculator& calc) {
   ThresholdAir a;
-  Mask codes;
-  a.histogram = method_histogram_codes(in, p, &codes);
+  a.histogram = method_histogram(in, p);
   a.choice = choose_threshold(a.histogram, calc, p);
-  if (codes.empty()) {  // more than 256 bins: the codes do not fit a byte
-    a.air = air_below(in.volume, a.choice.threshold, in.roi);
-  } else {  // the same voxels as air_below: v < float(threshold), inside the ROI, NaN never air
-    below_from_codes(codes.data(), in.volume.data(), in.volume.size(), a.histogram, float(a.choice.threshold),
-                     in.roi ? in.roi->data() : nullptr);
-    a.air = std::move(codes);
-  }
+  a.air = air_below(in.volume, a.choice.threshold, in.roi);
   return a;
 }
 

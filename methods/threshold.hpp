@@ -36,7 +36,8 @@ GreyRange grey_range(const Stats& s, double clip_pct, const HistogramOf& hist);
 // Histogram of the voxels of the volume (histogram=volume, the default) or of the ROI
 // (histogram=roi) over [min, max] or, with clip_pct > 0, over the [clip_pct, 100 - clip_pct]
 // percentile range (values outside go to the end bins; with bins=auto on integer data the range
-// is widened to whole grey levels). Its bins() is the resolved bin count.
+// is widened to whole grey levels). Its bins() is the resolved bin count. Integer data (stored_type
+// uint8/uint16/int16, whole levels) are read once: grey-level counts give statistics and histograms.
 Histogram method_histogram(const MethodInput& in, const ParamValues& p);
 // The same from the statistics of the voxels that form the histogram and a source of histograms of them.
 Histogram method_histogram(const Stats& s, bool roi, VoxelType stored_type, const ParamValues& p, const HistogramOf& hist);
@@ -66,8 +67,8 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
 
 // The air mask of a histogram method, before pore extraction: its histogram, the calculator's
 // choice (a constant volume: the lowest grey, no air, with a warning) and air = v < threshold inside
-// the ROI. Reads the volume twice (stats; histogram writing each voxel's bin, from which the air
-// mask is made: core/histogram.hpp below_from_codes), three times above 256 bins.
+// the ROI. Reads integer data twice (grey-level counts, core/histogram.hpp LevelCounts; the
+// comparison), float data three times (stats, histogram, comparison).
 struct ThresholdAir {
   Histogram histogram;
   ThresholdChoice choice;

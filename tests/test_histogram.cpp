@@ -1,12 +1,15 @@
-// The histogram kernels (issue 16): the four-table counter, the per-voxel bin codes and the air
-// mask made from them (two reads of the volume instead of three) agree bit for bit with the plain
-// definitions, for 1 and 2 threads, with NaN, +-inf, a region of interest and thresholds on bin
-// edges. The thresholds themselves keep their external checks (test_global.cpp: scikit-image 0.19;
+// The histogram kernels (issue 16): the four-table counter and the grey-level counts of integer
+// data (one read for statistics and histograms, so that a threshold method reads integer data twice
+// instead of three times) agree bit for bit with the plain definitions and with compute_stats /
+// compute_histogram, for 1, 2 and 3 threads, with NaN, +-inf, a region of interest and the
+// histogram options. The thresholds themselves keep their external checks (test_global.cpp: scikit-image 0.19;
 // test_global_levels_itk.cpp: ITK).
 #include <catch2/catch.hpp>
 
 #include <cmath>
+#include <algorithm>
 #include <random>
+#include <tuple>
 
 #include "core/histogram.hpp"
 #include "core/parallel.hpp"
@@ -93,53 +96,123 @@ TEST_CASE("statistics do not depend on the number of threads", "[histogram]") {
   CHECK(a.mean == Approx(double(sum / (long double)a.count)).epsilon(1e-12));
 }
 
-TEST_CASE("the air mask from bin codes is the comparison v < t, bit for bit", "[histogram]") {
-  Mask roi;
-  const VolumeF v = odd_volume(roi);
-  for (int bins : {2, 100, 256}) {
-    Mask codes(v.geometry(), Uninitialized{});
-    const Histogram h = compute_histogram_codes(v.data(), v.size(), -0.2, 1.3, bins, nullptr, codes.data());
-    CHECK(h.counts == plain_counts(v, -0.2, 1.3, bins, nullptr));
-    for (int64_t i = 0; i < v.size(); ++i)
-      if (!std::isnan(v[i])) REQUIRE(int(codes[i]) == histogram_bin(h, v[i]));
-      else REQUIRE(int(codes[i]) == 255);
-    // Thresholds on bin edges, inside bins, on a voxel's own value, outside the range, +-inf, NaN.
-    std::vector<float> ts = {float(h.edge(1)), float(h.edge(bins / 2)), float(h.centre(bins / 3)), v[1], v[2],
-                             -5.f, 5.f, INFINITY, -INFINITY, NAN, std::nextafter(float(h.edge(1)), 0.f)};
-    for (float t : ts)
-      for (const Mask* r : {static_cast<const Mask*>(nullptr), static_cast<const Mask*>(&roi)}) {
-        INFO("bins " << bins << ", t " << t << ", roi " << (r != nullptr));
-        Mask air = codes;
-        below_from_codes(air.data(), v.data(), v.size(), h, t, r ? r->data() : nullptr);
-        const Mask want = air_below(v, t, r);
-        CHECK(std::equal(air.data(), air.data() + air.size(), want.data()));
-      }
+namespace {
+
+// Whole grey levels of `t` (all of its range used: both ends, and a noisy bulk) in float voxels, as
+// the readers store integer volumes.
+VolumeF level_volume(VoxelType t, Mask& roi) {
+  Geometry g;
+  g.dims = {67, 45, 29};
+  VolumeF v(g);
+  roi = Mask(g, 0);
+  const double lo = t == VoxelType::u8 ? 0 : t == VoxelType::u16 ? 0 : -32768, hi = t == VoxelType::u8 ? 255 : lo + 65535;
+  std::mt19937 rng(18);
+  std::normal_distribution<double> n(lo + 0.4 * (hi - lo), 0.05 * (hi - lo));
+  for (int64_t i = 0; i < v.size(); ++i) {
+    v[i] = float(std::clamp(std::round(n(rng)), lo, hi));
+    roi[i] = (i * 2654435761u >> 7) % 5 != 0;
   }
-  CHECK_THROWS(compute_histogram_codes(v.data(), v.size(), 0, 1, 257, nullptr, nullptr));
+  v[3] = float(lo), v[v.size() - 2] = float(hi);
+  return v;
 }
 
-TEST_CASE("threshold_air equals the three-read composition for 1 and 2 threads", "[histogram][global]") {
+}  // namespace
+
+TEST_CASE("grey-level counts give compute_stats and compute_histogram exactly", "[histogram]") {
+  for (VoxelType t : {VoxelType::u8, VoxelType::u16, VoxelType::i16}) {
+    Mask roi;
+    const VolumeF v = level_volume(t, roi);
+    for (const uint8_t* mask : {static_cast<const uint8_t*>(nullptr), static_cast<const uint8_t*>(roi.data())})
+      for (int threads : {1, 2, 3}) {
+        INFO(voxel_type_name(t) << ", mask " << (mask != nullptr) << ", threads " << threads);
+        set_threads(threads);
+        LevelCounts c(t);
+        REQUIRE(c.add(v.data(), v.size(), mask));
+        const Stats s = c.stats(), want = compute_stats(v.data(), v.size(), mask);
+        CHECK(s.min == want.min);
+        CHECK(s.max == want.max);
+        CHECK(s.mean == want.mean);
+        CHECK(s.count == want.count);
+        CHECK(s.nan_count == 0);
+        // The full range, a range cutting levels inside bins, a narrow one (values outside go to
+        // the end bins), one bin per level.
+        for (auto [lo, hi, bins] : {std::tuple<double, double, int>{s.min, s.max, 256}, {s.min + 0.3, s.max - 17.7, 100},
+                                    {s.mean - 3.5, s.mean + 2.25, 7}, {s.min, s.max, 65536}, {s.min, s.max, 2}}) {
+          INFO("lo " << lo << ", hi " << hi << ", bins " << bins);
+          CHECK(c.histogram(lo, hi, bins).counts == plain_counts(v, lo, hi, bins, mask));
+        }
+      }
+    // Counts add up over parts of a volume (slabs), and a second add changes the statistics.
+    LevelCounts whole(t), halves(t);
+    REQUIRE(whole.add(v.data(), v.size()));
+    REQUIRE(halves.add(v.data(), v.size() / 2));
+    REQUIRE(halves.add(v.data() + v.size() / 2, v.size() - v.size() / 2));
+    CHECK(halves.histogram(-40000, 70000, 999).counts == whole.histogram(-40000, 70000, 999).counts);
+    CHECK(halves.stats().mean == whole.stats().mean);
+  }
+  set_threads(0);
+}
+
+TEST_CASE("grey-level counts refuse voxels that are not whole levels of the type, adding nothing", "[histogram]") {
   Mask roi;
-  const VolumeF v = odd_volume(roi);
-  for (const std::vector<std::string>& params :
-       {std::vector<std::string>{}, {"histogram=roi"}, {"bins=100"}, {"bins=1000"}, {"clip_pct=1"}}) {
+  const VolumeF good = level_volume(VoxelType::u8, roi);
+  for (float odd : {0.5f, -1.f, 256.f, NAN, INFINITY, -INFINITY, 1e30f}) {
+    INFO("odd voxel " << odd);
+    VolumeF v = good;
+    v[v.size() / 3] = odd;
+    for (int threads : {1, 2}) {
+      set_threads(threads);
+      LevelCounts c(VoxelType::u8);
+      CHECK_FALSE(c.add(v.data(), v.size()));
+      CHECK(c.stats().count == 0);
+      // a masked-out odd voxel is not looked at
+      Mask m(v.geometry(), 1);
+      m[v.size() / 3] = 0;
+      CHECK(c.add(v.data(), v.size(), m.data()));
+      CHECK(c.stats().count == v.size() - 1);
+    }
+  }
+  CHECK_THROWS_AS(LevelCounts(VoxelType::f32), std::invalid_argument);
+  set_threads(0);
+}
+
+TEST_CASE("a histogram method on integer data: one read of grey levels = stats + histogram, for 1 and 2 threads",
+          "[histogram][global]") {
+  for (VoxelType t : {VoxelType::u8, VoxelType::u16, VoxelType::i16}) {
+    Mask roi;
+    const VolumeF v = level_volume(t, roi);
+    for (const std::vector<std::string>& params :
+         {std::vector<std::string>{}, {"histogram=roi"}, {"bins=100"}, {"bins=1000"}, {"clip_pct=1"}, {"clip_pct=2", "bins=64"}}) {
       const MethodInfo& m = Registry::instance().get("otsu");
       const ParamValues p = parse_params(m, params);
-      const MethodInput in{v, &roi};
-      std::vector<Mask> airs;
+      const MethodInput in{v, &roi, t};
+      // The float path: statistics and histograms read from the volume.
+      const uint8_t* r = p.choice("histogram") == "roi" ? roi.data() : nullptr;
+      const Histogram want = method_histogram(compute_stats(v.data(), v.size(), r), r != nullptr, t, p,
+                                              [&](double lo, double hi, int bins) { return compute_histogram(v.data(), v.size(), lo, hi, bins, r); });
       for (int threads : {1, 2}) {
         set_threads(threads);
+        INFO(voxel_type_name(t) << " " << (params.empty() ? "" : params[0]) << ", threads " << threads);
         const Histogram h = method_histogram(in, p);
+        CHECK(h.lo == want.lo);
+        CHECK(h.hi == want.hi);
+        CHECK(h.counts == want.counts);
         ThresholdAir a = threshold_air(in, p, [&](const Histogram& hh, const ParamValues&) {
           return ThresholdChoice{hh.edge(otsu_split(hh) + 1), {}};
         });
-        INFO((params.empty() ? "" : params[0]) << ", threads " << threads);
-        CHECK(a.histogram.counts == h.counts);
-        const Mask want = air_below(v, a.choice.threshold, &roi);
-        CHECK(std::equal(a.air.data(), a.air.data() + a.air.size(), want.data()));
-        airs.push_back(std::move(a.air));
+        CHECK(a.histogram.counts == want.counts);
+        const Mask air = air_below(v, a.choice.threshold, &roi);
+        CHECK(std::equal(a.air.data(), a.air.data() + a.air.size(), air.data()));
       }
-      CHECK(std::equal(airs[0].data(), airs[0].data() + airs[0].size(), airs[1].data()));
     }
+  }
+  // Integer-typed data that are not whole levels (a filtered volume) take the float path.
+  Mask roi;
+  VolumeF v = level_volume(VoxelType::u16, roi);
+  v[11] += 0.25f;
+  const ParamValues p = parse_params(Registry::instance().get("otsu"), {});
+  const Histogram h = method_histogram(MethodInput{v, nullptr, VoxelType::u16}, p);
+  const Stats s = compute_stats(v);
+  CHECK(h.counts == compute_histogram(v.data(), v.size(), s.min, s.max, 256).counts);
   set_threads(0);
 }
