@@ -94,7 +94,8 @@ ScoreRecord score_record(const ScoreSetup& s, const ScoreInput& pred, const Scor
     rec.pred_how = pr.how;
     rec.ref_how = rr.how;
     s.options.validate();
-    const auto [z0, z1] = scored_slices(ref.volume.geometry.dims[2], s.options);
+    const auto slices = scored_slices(ref.volume.geometry.dims[2], s.options);
+    const int64_t z0 = slices[0], z1 = slices[1];  // plain names: lambdas below capture them (C++17)
     Mask roi_mask;  // a part mask stored wider than uint8, as 0/1
     const uint8_t* R = nullptr;
     if (roi && roi->volume.type == VoxelType::u8) R = static_cast<const uint8_t*>(roi->volume.data);
