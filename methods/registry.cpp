@@ -14,6 +14,7 @@
 #include "core/error.hpp"
 #include "core/format.hpp"
 #include "core/names.hpp"
+#include "methods/composition.hpp"
 #include "methods/pores.hpp"
 
 namespace pb {
@@ -177,9 +178,7 @@ std::vector<const FilterInfo*> Registry::filters() const {
   return out;
 }
 
-const MethodInfo& Registry::compose(const std::string& name) const {
-  std::lock_guard<std::mutex> lock(composed_mutex_);
-  if (auto it = composed_.find(name); it != composed_.end()) return *it->second;
+std::vector<std::string> composition_stages(const std::string& name) {
   std::vector<std::string> parts;
   for (size_t b = 0;;) {
     const size_t e = name.find('+', b);
@@ -187,6 +186,19 @@ const MethodInfo& Registry::compose(const std::string& name) const {
     if (e == std::string::npos) break;
     b = e + 1;
   }
+  return parts;
+}
+
+ParamValues stage_params(const std::vector<ParamSpec>& specs, const std::string& prefix, const ParamValues& all) {
+  ParamValues p;
+  for (const auto& s : specs) p.set(s, all.text().at(prefix + s.name));
+  return p;
+}
+
+const MethodInfo& Registry::compose(const std::string& name) const {
+  std::lock_guard<std::mutex> lock(composed_mutex_);
+  if (auto it = composed_.find(name); it != composed_.end()) return *it->second;
+  const std::vector<std::string> parts = composition_stages(name);
   std::vector<std::string> filter_names, method_names;
   for (const auto& [n, _] : filters_) filter_names.push_back(n);
   for (const auto& [n, _] : methods_) method_names.push_back(n);
@@ -224,20 +236,14 @@ const MethodInfo& Registry::compose(const std::string& name) const {
   }
   m->params.insert(m->params.end(), base->params.begin(), base->params.end());
   m->run = [chain, base](const MethodInput& in, const ParamValues& all) {
-    // Split the composed parameter values back into each stage's own.
-    auto stage_params = [&](const std::vector<ParamSpec>& specs, const std::string& prefix) {
-      ParamValues p;
-      for (const auto& s : specs) p.set(s, all.text().at(prefix + s.name));
-      return p;
-    };
     VolumeF filtered;
     const VolumeF* cur = &in.volume;
     for (const auto* f : chain) {
-      filtered = f->apply(*cur, stage_params(f->params, f->name + "."));
+      filtered = f->apply(*cur, stage_params(f->params, f->name + ".", all));
       cur = &filtered;
     }
     MethodInput next{*cur, in.roi, VoxelType::f32};
-    return base->run(next, stage_params(base->params, ""));
+    return base->run(next, stage_params(base->params, "", all));
   };
   return *composed_.emplace(name, std::move(m)).first->second;
 }

@@ -17,7 +17,6 @@
 #include <filesystem>
 #include <map>
 #include <memory>
-#include <sstream>
 #include <stdexcept>
 
 #include "core/components.hpp"
@@ -25,6 +24,7 @@
 #include "core/format.hpp"
 #include "core/histogram.hpp"
 #include "core/memory.hpp"
+#include "methods/composition.hpp"
 #include "methods/integral.hpp"
 #include "methods/pores.hpp"
 #include "methods/prefilter.hpp"
@@ -33,21 +33,6 @@
 namespace pb {
 
 namespace {
-
-// "median+otsu" -> {"median", "otsu"} (FILTER+...+METHOD, as Registry::compose reads it).
-std::vector<std::string> split_plus(const std::string& name) {
-  std::vector<std::string> parts;
-  std::istringstream in(name + "+");
-  for (std::string part; std::getline(in, part, '+');) parts.push_back(part);
-  return parts;
-}
-
-// A stage's own parameters out of the composed method's values (as Registry::compose splits them).
-ParamValues stage_params(const std::vector<ParamSpec>& specs, const std::string& prefix, const ParamValues& all) {
-  ParamValues p;
-  for (const auto& s : specs) p.set(s, all.text().at(prefix + s.name));
-  return p;
-}
 
 // Float slabs of the volume, in z order: from the file, or through the median pre-filter.
 class Slabs {
@@ -340,13 +325,13 @@ int64_t default_slab(const Geometry& g) {
 }  // namespace
 
 uint64_t segment_memory_bytes(const Geometry& g, VoxelType stored, const std::string& method) {
-  const uint64_t filters = uint64_t(split_plus(method).size() - 1);
+  const uint64_t filters = uint64_t(composition_stages(method).size() - 1);
   const uint64_t per_voxel = uint64_t(voxel_type_bytes(stored)) + 4 + 4 * filters + 3;
   return saturating_product({uint64_t(std::max<int64_t>(0, g.voxels())), per_voxel});
 }
 
 std::string slab_refusal_of_method(const std::string& method, bool roi) {
-  const std::vector<std::string> parts = split_plus(method);
+  const std::vector<std::string> parts = composition_stages(method);
   for (size_t i = 0; i + 1 < parts.size(); ++i)
     if (parts[i] != "median") return "pre-filter " + parts[i] + " is not applied by slabs (median is)";
   const std::string& base = parts.back();
@@ -383,7 +368,7 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
   if (!why.empty()) throw InputError("segment " + method + " of " + in.path() + " by slabs: " + why);
   const auto t0 = std::chrono::steady_clock::now();
   const Registry& reg = Registry::instance();
-  const std::vector<std::string> parts = split_plus(method);
+  const std::vector<std::string> parts = composition_stages(method);
   const MethodInfo& base_info = *reg.find(parts.back());
   const ParamValues base = stage_params(base_info.params, "", params);
   const Geometry& g = in.geometry();
