@@ -166,126 +166,131 @@ struct Acc {
   bool touch = false;
 };
 
-// Geometry of every component from its runs: sums for centroids, bounding boxes, boundary
-// crossings along the 13 directions (a voxel and its neighbour along +-d differ in label, or the
-// neighbour is outside the volume), and whether a voxel is 6-adjacent to the outside of the ROI
-// (R: non-zero = inside, nullptr = no ROI) or of the volume. Crossings along d_k for a pore of N
-// voxels are 2 (N - P_k), P_k the voxels v of the pore with v + d_k in the pore too (as many as
-// those with v - d_k in it): so only the forward neighbour rows (y-1..y+1, z+1) and (y+1, z) are
-// visited, and the run's own row gives len - 1 pairs along +x. P_k counts, per run and forward
-// offset, the run's voxels whose neighbour lies in a run of the same label: interval overlaps,
-// no voxel visits; the pass sums P_k in Pore::crossings, turned into crossings at the end.
-// Memory: one accumulator per pore, not per pore and thread. Thread t takes the slices
-// [nz t / T, nz (t + 1) / T) and owns the labels that start there (labels are in raster order of
-// first voxels, so these are the labels above every label of the slices before): it adds into
-// their Pore directly. Labels that started in an earlier chunk (few: they cross the chunk's first
-// slice) go to a small per-thread map, added in afterwards. Every sum is an integer sum, a min or
-// a max: the result does not depend on the thread count.
-Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Directions& D, int64_t z_offset) {
-  const Geometry& g = c.geometry;
-  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
-  // The forward neighbour rows (dy, dz) and the direction index of each (row, dx + 1); the +x
-  // direction within the row itself.
-  const int fwd_dy[4] = {-1, 0, 1, 1}, fwd_dz[4] = {1, 1, 1, 0};
-  int fwd_dir[4][3], plus_x = 0;
+// Where the sums of one run go: its pore (and the pore's coordinate sums), or a carried Acc.
+struct RunSink {
+  std::array<int64_t, 3>* sum;
+  std::array<int64_t, 6>* bbox;
+  std::array<int64_t, 13>* cross;
+  bool* touch;
+};
+
+// The forward neighbour rows (dy, dz) of a row and the direction index of each (row, dx + 1); the
+// +x direction within the row itself.
+struct ForwardRows {
+  static constexpr int dy[4] = {-1, 0, 1, 1}, dz[4] = {1, 1, 1, 0};
+  int dir[4][3];
+  int plus_x = 0;
+};
+
+ForwardRows forward_rows(const Directions& D) {
+  ForwardRows F;
   for (int k = 0; k < 13; ++k) {
     const auto& d = D.d[size_t(k)];
     for (int n = 0; n < 4; ++n)
-      if (d[1] == fwd_dy[n] && d[2] == fwd_dz[n]) fwd_dir[n][d[0] + 1] = k;
-    if (d[0] == 1 && d[1] == 0 && d[2] == 0) plus_x = k;
+      if (d[1] == F.dy[n] && d[2] == F.dz[n]) F.dir[n][d[0] + 1] = k;
+    if (d[0] == 1 && d[1] == 0 && d[2] == 0) F.plus_x = k;
   }
-  Buffer<Pore> pores(c.count);
-  Buffer<std::array<int64_t, 3>> sums(c.count);
-  const int nt = int(std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads())));
-  std::vector<uint32_t> chunk_max(size_t(nt) + 1, 0);
-  std::vector<std::unordered_map<uint32_t, Acc>> carried(static_cast<size_t>(nt));
-#pragma omp parallel num_threads(nt)
-  {
-    const int T = omp_get_num_threads(), t = omp_get_thread_num();
-    const int64_t z0 = nz * t / T, z1 = nz * (t + 1) / T;
-    const int64_t r0 = c.row_begin[size_t(c.row_of(0, z0))], r1 = c.row_begin[size_t(c.row_of(0, z1))];
-    uint32_t m = 0;
-    for (int64_t i = r0; i < r1; ++i) m = std::max(m, c.label[size_t(i)]);
-    chunk_max[size_t(t) + 1] = m;
-#pragma omp barrier
-    uint32_t own_from = 1;  // labels >= own_from start in this chunk
-    for (int k = 0; k <= t; ++k) own_from = std::max(own_from, chunk_max[size_t(k)] + 1);
-    for (uint32_t l = own_from; l <= m; ++l) {
-      pores[l - 1].bbox = Acc{}.bbox;
-      sums[l - 1] = {0, 0, 0};
+  return F;
+}
+
+// The runs [cur[n], end[n]) of the four forward neighbour rows of row (y, z); absent rows hold none.
+inline void open_forward_rows(const LabelRuns& c, int64_t y, int64_t z, int64_t (&cur)[4], int64_t (&end)[4]) {
+  const int64_t ny = c.geometry.dims[1], nz = c.geometry.dims[2];
+  for (int n = 0; n < 4; ++n) {
+    const int64_t yy = y + ForwardRows::dy[n], zz = z + ForwardRows::dz[n];
+    if (yy < 0 || yy >= ny || zz >= nz) {
+      cur[n] = end[n] = 0;
+    } else {
+      cur[n] = c.row_begin[size_t(c.row_of(yy, zz))];
+      end[n] = c.row_begin[size_t(c.row_of(yy, zz)) + 1];
     }
-    auto& carry = carried[size_t(t)];
-    uint32_t carry_label = 0;
-    Acc* carry_acc = nullptr;
-    for (int64_t z = z0; z < z1; ++z)
-      for (int64_t y = 0; y < ny; ++y) {
-        const int64_t row = c.row_of(y, z), i0 = c.row_begin[size_t(row)], i1 = c.row_begin[size_t(row) + 1];
-        if (i0 == i1) continue;
-        // The four forward neighbour rows with a cursor each; absent rows hold no runs.
-        int64_t cur[4], end[4];
-        for (int n = 0; n < 4; ++n) {
-          const int64_t yy = y + fwd_dy[n], zz = z + fwd_dz[n];
-          if (yy < 0 || yy >= ny || zz >= nz) {
-            cur[n] = end[n] = 0;
-          } else {
-            cur[n] = c.row_begin[size_t(c.row_of(yy, zz))];
-            end[n] = c.row_begin[size_t(c.row_of(yy, zz)) + 1];
-          }
-        }
-        const bool edge_row = y == 0 || z == 0 || y + 1 == ny || z + 1 == nz;
-        for (int64_t i = i0; i < i1; ++i) {
-          const int32_t a = c.runs[size_t(i)].x0, b = c.runs[size_t(i)].x1;
-          const uint32_t l = c.label[size_t(i)];
-          const int64_t len = b - a;
-          std::array<int64_t, 3>* sum;
-          std::array<int64_t, 6>* bbox;
-          std::array<int64_t, 13>* cross;
-          bool* touch;
-          if (l >= own_from) {
-            Pore& p = pores[l - 1];
-            sum = &sums[l - 1], bbox = &p.bbox, cross = &p.crossings, touch = &p.touches_border;
-          } else {
-            if (l != carry_label) carry_acc = &carry[l], carry_label = l;
-            sum = &carry_acc->sum, bbox = &carry_acc->bbox, cross = &carry_acc->cross, touch = &carry_acc->touch;
-          }
-          (*sum)[0] += (int64_t(a) + b - 1) * len / 2, (*sum)[1] += y * len, (*sum)[2] += z * len;
-          auto& bb = *bbox;
-          bb[0] = std::min<int64_t>(bb[0], a), bb[3] = std::max<int64_t>(bb[3], b - 1);
-          bb[1] = std::min(bb[1], y), bb[4] = std::max(bb[4], y);
-          bb[2] = std::min(bb[2], z), bb[5] = std::max(bb[5], z);
-          auto& P = *cross;
-          P[size_t(plus_x)] += len - 1;  // the next run of the row is at least one voxel away
-          for (int n = 0; n < 4; ++n) {
-            int64_t& j = cur[n];
-            while (j < end[n] && c.runs[size_t(j)].x1 <= a - 1) ++j;  // runs before [a-1, b+1)
-            for (int64_t k = j; k < end[n] && c.runs[size_t(k)].x0 < b + 1; ++k) {
-              if (c.label[size_t(k)] != l) continue;
-              const int32_t e0 = c.runs[size_t(k)].x0, e1 = c.runs[size_t(k)].x1;
-              for (int dx = -1; dx <= 1; ++dx) {  // voxels x in [a, b) with x + dx in [e0, e1)
-                const int64_t o = std::min<int64_t>(b, e1 - dx) - std::max<int64_t>(a, e0 - dx);
-                if (o > 0) P[size_t(fwd_dir[n][dx + 1])] += o;
-              }
-            }
-          }
-          bool& tt = *touch;
-          if (edge_row || a == 0 || b == nx) tt = true;
-          if (R && !tt) {  // a 6-neighbour outside the ROI (x-neighbours: only the ends)
-            const int64_t base = (z * ny + y) * nx;
-            if ((a > 0 && !R[base + a - 1]) || (b < nx && !R[base + b])) tt = true;
-            const int64_t offs[4] = {-nx, nx, -nx * ny, nx * ny};
-            for (int q = 0; q < 4 && !tt; ++q)
-              for (int64_t x = a; x < b; ++x)
-                if (!R[base + offs[q] + x]) {
-                  tt = true;
-                  break;
-                }
-          }
-        }
-      }
   }
-  // Labels carried into later chunks: integer sums, mins and maxes, in any order.
-  for (auto& carry : carried)
-    for (auto& [l, a] : carry) {
+}
+
+// Coordinate sums and bounding box of the voxels [a, b) of row (y, z).
+inline void add_extent(const RunSink& s, int32_t a, int32_t b, int64_t y, int64_t z) {
+  const int64_t len = b - a;
+  (*s.sum)[0] += (int64_t(a) + b - 1) * len / 2, (*s.sum)[1] += y * len, (*s.sum)[2] += z * len;
+  auto& bb = *s.bbox;
+  bb[0] = std::min<int64_t>(bb[0], a), bb[3] = std::max<int64_t>(bb[3], b - 1);
+  bb[1] = std::min(bb[1], y), bb[4] = std::max(bb[4], y);
+  bb[2] = std::min(bb[2], z), bb[5] = std::max(bb[5], z);
+}
+
+// Voxel pairs P_k of the run [a, b) of label l: len - 1 along +x within the run, and per forward
+// row the run's voxels whose neighbour lies in a run of the same label (interval overlaps). The
+// cursors cur advance along the forward rows as the runs of the row go left to right.
+inline void add_pairs(const LabelRuns& c, const ForwardRows& F, int64_t (&cur)[4], const int64_t (&end)[4], int32_t a,
+                      int32_t b, uint32_t l, std::array<int64_t, 13>& P) {
+  P[size_t(F.plus_x)] += b - a - 1;  // the next run of the row is at least one voxel away
+  for (int n = 0; n < 4; ++n) {
+    int64_t& j = cur[n];
+    while (j < end[n] && c.runs[size_t(j)].x1 <= a - 1) ++j;  // runs before [a-1, b+1)
+    for (int64_t k = j; k < end[n] && c.runs[size_t(k)].x0 < b + 1; ++k) {
+      if (c.label[size_t(k)] != l) continue;
+      const int32_t e0 = c.runs[size_t(k)].x0, e1 = c.runs[size_t(k)].x1;
+      for (int dx = -1; dx <= 1; ++dx) {  // voxels x in [a, b) with x + dx in [e0, e1)
+        const int64_t o = std::min<int64_t>(b, e1 - dx) - std::max<int64_t>(a, e0 - dx);
+        if (o > 0) P[size_t(F.dir[n][dx + 1])] += o;
+      }
+    }
+  }
+}
+
+// Whether the voxels [a, b) of row (y, z) have a 6-neighbour outside the volume (edge_row: the row
+// lies on a y or z face) or outside the ROI R (x-neighbours: only the run's ends).
+inline bool run_touches_outside(const uint8_t* R, const Geometry& g, bool edge_row, int32_t a, int32_t b, int64_t y,
+                                int64_t z) {
+  const int64_t nx = g.dims[0], ny = g.dims[1];
+  if (edge_row || a == 0 || b == nx) return true;
+  if (!R) return false;
+  const int64_t base = (z * ny + y) * nx;
+  if ((a > 0 && !R[base + a - 1]) || (b < nx && !R[base + b])) return true;
+  const int64_t offs[4] = {-nx, nx, -nx * ny, nx * ny};
+  for (int q = 0; q < 4; ++q)
+    for (int64_t x = a; x < b; ++x)
+      if (!R[base + offs[q] + x]) return true;
+  return false;
+}
+
+// One thread's pass over the rows of slices [z0, z1): labels >= own_from add into their Pore (and
+// sums), the others into the thread's carried map.
+void scan_chunk(const LabelRuns& c, const uint8_t* R, const ForwardRows& F, int64_t z0, int64_t z1, uint32_t own_from,
+                Buffer<Pore>& pores, Buffer<std::array<int64_t, 3>>& sums, std::unordered_map<uint32_t, Acc>& carry) {
+  const Geometry& g = c.geometry;
+  const int64_t ny = g.dims[1], nz = g.dims[2];
+  uint32_t carry_label = 0;
+  Acc* carry_acc = nullptr;
+  for (int64_t z = z0; z < z1; ++z)
+    for (int64_t y = 0; y < ny; ++y) {
+      const int64_t row = c.row_of(y, z), i0 = c.row_begin[size_t(row)], i1 = c.row_begin[size_t(row) + 1];
+      if (i0 == i1) continue;
+      int64_t cur[4], end[4];
+      open_forward_rows(c, y, z, cur, end);
+      const bool edge_row = y == 0 || z == 0 || y + 1 == ny || z + 1 == nz;
+      for (int64_t i = i0; i < i1; ++i) {
+        const int32_t a = c.runs[size_t(i)].x0, b = c.runs[size_t(i)].x1;
+        const uint32_t l = c.label[size_t(i)];
+        RunSink s;
+        if (l >= own_from) {
+          Pore& p = pores[l - 1];
+          s = {&sums[l - 1], &p.bbox, &p.crossings, &p.touches_border};
+        } else {
+          if (l != carry_label) carry_acc = &carry[l], carry_label = l;
+          s = {&carry_acc->sum, &carry_acc->bbox, &carry_acc->cross, &carry_acc->touch};
+        }
+        add_extent(s, a, b, y, z);
+        add_pairs(c, F, cur, end, a, b, l, *s.cross);
+        if (!*s.touch) *s.touch = run_touches_outside(R, g, edge_row, a, b, y, z);
+      }
+    }
+}
+
+// Labels carried into later chunks: integer sums, mins and maxes, in any order.
+void merge_carried(const std::vector<std::unordered_map<uint32_t, Acc>>& carried, Buffer<Pore>& pores,
+                   Buffer<std::array<int64_t, 3>>& sums) {
+  for (const auto& carry : carried)
+    for (const auto& [l, a] : carry) {
       Pore& p = pores[l - 1];
       for (int i = 0; i < 3; ++i) sums[l - 1][size_t(i)] += a.sum[size_t(i)];
       for (int i = 0; i < 3; ++i)
@@ -294,6 +299,13 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
       for (int k = 0; k < 13; ++k) p.crossings[size_t(k)] += a.cross[size_t(k)];
       p.touches_border = p.touches_border || a.touch;
     }
+}
+
+// From the sums to the figures of every pore: size, volume, ESD, centroid, bounding box in input
+// slices, crossings (from the pairs P_k), surface and sphericity.
+void finish_pores(const LabelRuns& c, const Buffer<std::array<int64_t, 3>>& sums, const Directions& D, int64_t z_offset,
+                  Buffer<Pore>& pores) {
+  const Geometry& g = c.geometry;
   const auto& sp = g.spacing_mm;
   const double vv = g.voxel_volume_mm3();
   const int64_t np = int64_t(c.count);
@@ -315,6 +327,50 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
     p.surface_mm2 = 2 * s;
     p.sphericity = std::cbrt(M_PI) * std::pow(6 * p.volume_mm3, 2.0 / 3.0) / p.surface_mm2;
   }
+}
+
+// Geometry of every component from its runs: sums for centroids, bounding boxes, boundary
+// crossings along the 13 directions (a voxel and its neighbour along +-d differ in label, or the
+// neighbour is outside the volume), and whether a voxel is 6-adjacent to the outside of the ROI
+// (R: non-zero = inside, nullptr = no ROI) or of the volume. Crossings along d_k for a pore of N
+// voxels are 2 (N - P_k), P_k the voxels v of the pore with v + d_k in the pore too (as many as
+// those with v - d_k in it): so only the forward neighbour rows (y-1..y+1, z+1) and (y+1, z) are
+// visited, and the run's own row gives len - 1 pairs along +x. P_k counts, per run and forward
+// offset, the run's voxels whose neighbour lies in a run of the same label: interval overlaps,
+// no voxel visits; the pass sums P_k in Pore::crossings, turned into crossings at the end.
+// Memory: one accumulator per pore, not per pore and thread. Thread t takes the slices
+// [nz t / T, nz (t + 1) / T) and owns the labels that start there (labels are in raster order of
+// first voxels, so these are the labels above every label of the slices before): it adds into
+// their Pore directly. Labels that started in an earlier chunk (few: they cross the chunk's first
+// slice) go to a small per-thread map, added in afterwards. Every sum is an integer sum, a min or
+// a max: the result does not depend on the thread count.
+Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Directions& D, int64_t z_offset) {
+  const int64_t nz = c.geometry.dims[2];
+  const ForwardRows F = forward_rows(D);
+  Buffer<Pore> pores(c.count);
+  Buffer<std::array<int64_t, 3>> sums(c.count);
+  const int nt = int(std::max<int64_t>(1, std::min<int64_t>(nz, omp_get_max_threads())));
+  std::vector<uint32_t> chunk_max(size_t(nt) + 1, 0);
+  std::vector<std::unordered_map<uint32_t, Acc>> carried(static_cast<size_t>(nt));
+#pragma omp parallel num_threads(nt)
+  {
+    const int T = omp_get_num_threads(), t = omp_get_thread_num();
+    const int64_t z0 = nz * t / T, z1 = nz * (t + 1) / T;
+    const int64_t r0 = c.row_begin[size_t(c.row_of(0, z0))], r1 = c.row_begin[size_t(c.row_of(0, z1))];
+    uint32_t m = 0;
+    for (int64_t i = r0; i < r1; ++i) m = std::max(m, c.label[size_t(i)]);
+    chunk_max[size_t(t) + 1] = m;
+#pragma omp barrier
+    uint32_t own_from = 1;  // labels >= own_from start in this chunk
+    for (int k = 0; k <= t; ++k) own_from = std::max(own_from, chunk_max[size_t(k)] + 1);
+    for (uint32_t l = own_from; l <= m; ++l) {
+      pores[l - 1].bbox = Acc{}.bbox;
+      sums[l - 1] = {0, 0, 0};
+    }
+    scan_chunk(c, R, F, z0, z1, own_from, pores, sums, carried[size_t(t)]);
+  }
+  merge_carried(carried, pores, sums);
+  finish_pores(c, sums, D, z_offset, pores);
   return pores;
 }
 
