@@ -115,22 +115,37 @@ Registry& Registry::instance() {
   return r;
 }
 
+namespace {
+
+// Methods and pre-filters share one name space ("FILTER+METHOD"): a name taken by either is a
+// programming error, whichever registers first.
+void check_unregistered(const std::map<std::string, MethodInfo>& methods, const std::map<std::string, FilterInfo>& filters,
+                        const std::string& name, const char* kind) {
+  if (methods.count(name) || filters.count(name)) {
+    std::fprintf(stderr, "porebench: %s '%s' registered twice (methods and pre-filters share one name space)\n", kind,
+                 name.c_str());
+    std::abort();
+  }
+}
+
+template <class Info>
+const Info* entry(const std::map<std::string, Info>& m, const std::string& name) {
+  auto it = m.find(name);
+  return it == m.end() ? nullptr : &it->second;
+}
+
+}  // namespace
+
 bool Registry::add(MethodInfo m) {
   // Shared pore-extraction parameters, applied by run_method after the method itself.
   m.params.push_back({"min_pore_voxels", ParamType::Int, "1", 1, 1e9, {}, "voxels",
                       "pores (26-connected) smaller than this are dropped as noise specks"});
-  if (methods_.count(m.name)) {
-    std::fprintf(stderr, "porebench: method '%s' registered twice\n", m.name.c_str());
-    std::abort();
-  }
+  check_unregistered(methods_, filters_, m.name, "method");
   methods_.emplace(m.name, std::move(m));
   return true;
 }
 
-const MethodInfo* Registry::find(const std::string& name) const {
-  auto it = methods_.find(name);
-  return it == methods_.end() ? nullptr : &it->second;
-}
+const MethodInfo* Registry::find(const std::string& name) const { return entry(methods_, name); }
 
 namespace {
 std::string join_names(const std::vector<std::string>& names) {
@@ -159,18 +174,12 @@ const MethodInfo& Registry::get(const std::string& name) const {
 }
 
 bool Registry::add_filter(FilterInfo f) {
-  if (filters_.count(f.name) || methods_.count(f.name)) {
-    std::fprintf(stderr, "porebench: filter '%s' registered twice\n", f.name.c_str());
-    std::abort();
-  }
+  check_unregistered(methods_, filters_, f.name, "filter");
   filters_.emplace(f.name, std::move(f));
   return true;
 }
 
-const FilterInfo* Registry::find_filter(const std::string& name) const {
-  auto it = filters_.find(name);
-  return it == filters_.end() ? nullptr : &it->second;
-}
+const FilterInfo* Registry::find_filter(const std::string& name) const { return entry(filters_, name); }
 
 std::vector<const FilterInfo*> Registry::filters() const {
   std::vector<const FilterInfo*> out;
