@@ -65,16 +65,27 @@ std::vector<ParamSpec> seed_params() {
            "air may grow up to otsu + grow_margin*(material mean - otsu)"}};
 }
 
+MethodInfo seeded_method(std::string name, std::string doc, std::string citation, bool with_grow,
+                         std::vector<ParamSpec> extra, SeededRun run) {
+  MethodInfo m{std::move(name), "region", std::move(doc), std::move(citation), histogram_params(), {}};
+  const std::vector<ParamSpec> seeds = seed_params();
+  m.params.insert(m.params.end(), seeds.begin(), seeds.begin() + (with_grow ? 2 : 1));
+  m.params.insert(m.params.end(), extra.begin(), extra.end());
+  m.run = [with_grow, run](const MethodInput& in, const ParamValues& p) {
+    const Histogram h = method_histogram(in, p);
+    if (single_occupied_bin(h)) return constant_volume_output(in);
+    return run(in, p, h, auto_seeds(h, p.num("seed_margin"), with_grow ? p.num("grow_margin") : 0));
+  };
+  return m;
+}
+
 namespace {
 
 int connectivity_of(const ParamValues& p) { return std::stoi(p.choice("connectivity")); }
 
 MethodInfo hysteresis_info() {
-  MethodInfo m;
-  m.name = "hysteresis";
-  m.family = "region";
-  m.doc = "hysteresis thresholding in 3D: air below `high` connected to air below `low`";
-  m.citation = "Canny J. (1986) A computational approach to edge detection. IEEE Trans. PAMI 8(6):679-698";
+  MethodInfo m{"hysteresis", "region", "hysteresis thresholding in 3D: air below `high` connected to air below `low`",
+               "Canny J. (1986) A computational approach to edge detection. IEEE Trans. PAMI 8(6):679-698", {}, {}};
   m.params = {{"low", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "strong threshold: voxels below are surely air"},
               {"high", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "weak threshold: voxels below are air if connected to strong air"},
               {"connectivity", ParamType::Enum, "26", -1e300, 1e300, {"6", "18", "26"}, "", "neighbourhood for growing"}};
@@ -92,23 +103,16 @@ MethodInfo hysteresis_info() {
 }
 
 MethodInfo region_grow_info() {
-  MethodInfo m;
-  m.name = "region-grow";
-  m.family = "region";
-  m.doc = "connected threshold from automatic seeds: confident air below the Otsu split grows 6-connected up to a limit";
-  m.citation = "Adams R., Bischof L. (1994) Seeded region growing. IEEE Trans. PAMI 16(6):641-647";
-  m.params = histogram_params();
-  for (auto& s : seed_params()) m.params.push_back(s);
-  m.run = [](const MethodInput& in, const ParamValues& p) {
-    const Histogram h = method_histogram(in, p);
-    if (single_occupied_bin(h)) return constant_volume_output(in);
-    const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
-    MethodOutput out = pores_from_air(grow_air(in.volume, a.seed, a.limit, in.roi, 6), in, "region-grow",
-                                      "seed threshold " + std::to_string(a.seed) + ", grow limit " + std::to_string(a.limit));
-    out.chosen = {{"seed_threshold", a.seed}, {"grow_limit", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
-    return out;
-  };
-  return m;
+  return seeded_method(
+      "region-grow",
+      "connected threshold from automatic seeds: confident air below the Otsu split grows 6-connected up to a limit",
+      "Adams R., Bischof L. (1994) Seeded region growing. IEEE Trans. PAMI 16(6):641-647", true, {},
+      [](const MethodInput& in, const ParamValues&, const Histogram& h, const AutoSeeds& a) {
+        MethodOutput out = pores_from_air(grow_air(in.volume, a.seed, a.limit, in.roi, 6), in, "region-grow",
+                                          "seed threshold " + std::to_string(a.seed) + ", grow limit " + std::to_string(a.limit));
+        out.chosen = {{"seed_threshold", a.seed}, {"grow_limit", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
+        return out;
+      });
 }
 
 }  // namespace

@@ -1,5 +1,9 @@
 #pragma once
 // Region-growing building blocks shared by methods/region.cpp and methods/region_itk.cpp.
+#include <functional>
+#include <string>
+#include <vector>
+
 #include "core/histogram.hpp"
 #include "methods/registry.hpp"
 
@@ -23,5 +27,13 @@ MethodOutput constant_volume_output(const MethodInput& in);
 
 // Schema entries for automatic seeding (seed_margin, grow_margin).
 std::vector<ParamSpec> seed_params();
+
+// A region method seeded from the Otsu split: family "region", parameters histogram_params(),
+// seed_margin, grow_margin (with_grow) and `extra`; its run reads the method histogram, answers a
+// constant volume with constant_volume_output, and otherwise calls run with the histogram and the
+// automatic seeds (auto_seeds with grow_margin, or 0 without it).
+using SeededRun = std::function<MethodOutput(const MethodInput&, const ParamValues&, const Histogram&, const AutoSeeds&)>;
+MethodInfo seeded_method(std::string name, std::string doc, std::string citation, bool with_grow,
+                         std::vector<ParamSpec> extra, SeededRun run);
 
 }  // namespace pb

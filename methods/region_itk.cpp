@@ -77,88 +77,78 @@ namespace {
 
 
 MethodInfo confidence_info() {
-  MethodInfo m;
-  m.name = "confidence-connected";
-  m.family = "region";
-  m.doc = "confidence-connected region growing from confident air (ITK): mean +- multiplier*sigma of the region";
-  m.citation = "Ibanez L., Schroeder W., Ng L., Cates J. (2005) The ITK Software Guide, 2nd ed., Kitware, sec. 9.1.3";
-  m.params = histogram_params();
-  m.params.push_back(seed_params().front());
-  m.params.push_back({"multiplier", ParamType::Float, "2.5", 0.1, 10, {}, "sigma", "width of the accepted interval"});
-  m.params.push_back({"iterations", ParamType::Int, "3", 0, 20, {}, "", "re-estimations of mean and sigma"});
-  m.params.push_back({"max_seeds", ParamType::Int, "20000", 1, 1e7, {}, "voxels", "seeds are subsampled evenly to at most this many"});
-  m.run = [](const MethodInput& in, const ParamValues& p) {
-    const Histogram h = method_histogram(in, p);
-    if (single_occupied_bin(h)) return constant_volume_output(in);
-    const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), 0);
-    auto f = itk::ConfidenceConnectedImageFilter<ItkF, ItkL>::New();
-    f->SetInput(itk_view(in.volume));
-    f->SetMultiplier(p.num("multiplier"));
-    f->SetNumberOfIterations(unsigned(p.integer("iterations")));
-    f->SetInitialNeighborhoodRadius(0);  // statistics of the seeds themselves: neighbourhoods of
-                                         // seeds near pore walls would pull in material
-    f->SetReplaceValue(1);
-    std::vector<int64_t> seeds;
-    const float s = float(a.seed);
-    for (int64_t i = 0; i < in.volume.size(); ++i)
-      if (in.volume[i] < s && (!in.roi || (*in.roi)[i])) seeds.push_back(i);
-    const size_t step = std::max<size_t>(1, seeds.size() / size_t(p.integer("max_seeds")) + 1);
-    const int64_t nx = in.volume.nx(), ny = in.volume.ny();
-    for (size_t j = 0; j < seeds.size(); j += step) {
-      ItkF::IndexType idx;
-      idx[0] = seeds[j] % nx;
-      idx[1] = (seeds[j] / nx) % ny;
-      idx[2] = seeds[j] / (nx * ny);
-      f->AddSeed(idx);
-    }
-    MethodOutput out;
-    if (seeds.empty()) {
-      out = constant_volume_output(in);
-      out.warnings = {"no voxel lies below the seed threshold: no seeds, no pores"};
-    } else {
-      f->Update();
-      Mask air = from_itk<uint8_t>(f->GetOutput(), in.volume.geometry());
-      if (in.roi)
-        for (int64_t i = 0; i < air.size(); ++i) air[i] &= (*in.roi)[i] != 0;
-      out = pores_from_air(std::move(air), in, "confidence-connected", "seed threshold " + std::to_string(a.seed));
-    }
-    out.chosen = {{"seed_threshold", a.seed}, {"otsu", a.otsu}, {"seeds", double((seeds.size() + step - 1) / step)}, {"bins", h.bins()}};
-    return out;
-  };
-  return m;
+  return seeded_method(
+      "confidence-connected",
+      "confidence-connected region growing from confident air (ITK): mean +- multiplier*sigma of the region",
+      "Ibanez L., Schroeder W., Ng L., Cates J. (2005) The ITK Software Guide, 2nd ed., Kitware, sec. 9.1.3", false,
+      {{"multiplier", ParamType::Float, "2.5", 0.1, 10, {}, "sigma", "width of the accepted interval"},
+       {"iterations", ParamType::Int, "3", 0, 20, {}, "", "re-estimations of mean and sigma"},
+       {"max_seeds", ParamType::Int, "20000", 1, 1e7, {}, "voxels", "seeds are subsampled evenly to at most this many"}},
+      [](const MethodInput& in, const ParamValues& p, const Histogram& h, const AutoSeeds& a) {
+        auto f = itk::ConfidenceConnectedImageFilter<ItkF, ItkL>::New();
+        f->SetInput(itk_view(in.volume));
+        f->SetMultiplier(p.num("multiplier"));
+        f->SetNumberOfIterations(unsigned(p.integer("iterations")));
+        f->SetInitialNeighborhoodRadius(0);  // statistics of the seeds themselves: neighbourhoods of
+                                             // seeds near pore walls would pull in material
+        f->SetReplaceValue(1);
+        std::vector<int64_t> seeds;
+        const float s = float(a.seed);
+        for (int64_t i = 0; i < in.volume.size(); ++i)
+          if (in.volume[i] < s && (!in.roi || (*in.roi)[i])) seeds.push_back(i);
+        const size_t step = std::max<size_t>(1, seeds.size() / size_t(p.integer("max_seeds")) + 1);
+        const int64_t nx = in.volume.nx(), ny = in.volume.ny();
+        for (size_t j = 0; j < seeds.size(); j += step) {
+          ItkF::IndexType idx;
+          idx[0] = seeds[j] % nx;
+          idx[1] = (seeds[j] / nx) % ny;
+          idx[2] = seeds[j] / (nx * ny);
+          f->AddSeed(idx);
+        }
+        MethodOutput out;
+        if (seeds.empty()) {
+          out = constant_volume_output(in);
+          out.warnings = {"no voxel lies below the seed threshold: no seeds, no pores"};
+        } else {
+          f->Update();
+          Mask air = from_itk<uint8_t>(f->GetOutput(), in.volume.geometry());
+          if (in.roi)
+            for (int64_t i = 0; i < air.size(); ++i) air[i] &= (*in.roi)[i] != 0;
+          out = pores_from_air(std::move(air), in, "confidence-connected", "seed threshold " + std::to_string(a.seed));
+        }
+        out.chosen = {{"seed_threshold", a.seed},
+                      {"otsu", a.otsu},
+                      {"seeds", double((seeds.size() + step - 1) / step)},
+                      {"bins", h.bins()}};
+        return out;
+      });
 }
 
 MethodInfo watershed_info() {
-  MethodInfo m;
-  m.name = "watershed";
-  m.family = "region";
-  m.doc = "marker-based watershed on the gradient magnitude: air and material markers from the Otsu split";
-  m.citation = "Beucher S., Meyer F. (1993) The morphological approach to segmentation: the watershed transformation. "
-               "In: Mathematical Morphology in Image Processing, Dekker, 433-481";
-  m.params = histogram_params();
-  for (auto& s : seed_params()) m.params.push_back(s);
-  m.params.back().doc = "material markers are above otsu + grow_margin*(material mean - otsu)";
-  m.params.push_back({"sigma_vox", ParamType::Float, "1", 0.1, 10, {}, "voxels", "Gaussian scale of the gradient"});
-  m.run = [](const MethodInput& in, const ParamValues& p) {
-    const Histogram h = method_histogram(in, p);
-    if (single_occupied_bin(h)) return constant_volume_output(in);
-    const AutoSeeds a = auto_seeds(h, p.num("seed_margin"), p.num("grow_margin"));
-    const VolumeF grad = gradient_magnitude(in.volume, p.num("sigma_vox") * in.volume.geometry().spacing_mm[0]);
-    Mask markers(in.volume.geometry(), Uninitialized{});
-    const float s = float(a.seed), mat = float(a.limit);
-    for (int64_t i = 0; i < markers.size(); ++i) {
-      const float v = in.volume[i];
-      markers[i] = (in.roi && !(*in.roi)[i]) ? 2 : v < s ? 1 : v > mat ? 2 : 0;
-    }
-    Mask labels = watershed_from_markers(grad, markers);
-    Mask air(in.volume.geometry(), Uninitialized{});
-    for (int64_t i = 0; i < labels.size(); ++i) air[i] = labels[i] == 1 && (!in.roi || (*in.roi)[i]);
-    MethodOutput out = pores_from_air(std::move(air), in, "watershed",
-                                      "air markers below " + std::to_string(a.seed) + ", material markers above " +
-                                          std::to_string(a.limit));
-    out.chosen = {{"air_marker_below", a.seed}, {"material_marker_above", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
-    return out;
-  };
+  MethodInfo m = seeded_method(
+      "watershed", "marker-based watershed on the gradient magnitude: air and material markers from the Otsu split",
+      "Beucher S., Meyer F. (1993) The morphological approach to segmentation: the watershed transformation. "
+      "In: Mathematical Morphology in Image Processing, Dekker, 433-481",
+      true, {{"sigma_vox", ParamType::Float, "1", 0.1, 10, {}, "voxels", "Gaussian scale of the gradient"}},
+      [](const MethodInput& in, const ParamValues& p, const Histogram& h, const AutoSeeds& a) {
+        const VolumeF grad = gradient_magnitude(in.volume, p.num("sigma_vox") * in.volume.geometry().spacing_mm[0]);
+        Mask markers(in.volume.geometry(), Uninitialized{});
+        const float s = float(a.seed), mat = float(a.limit);
+        for (int64_t i = 0; i < markers.size(); ++i) {
+          const float v = in.volume[i];
+          markers[i] = (in.roi && !(*in.roi)[i]) ? 2 : v < s ? 1 : v > mat ? 2 : 0;
+        }
+        Mask labels = watershed_from_markers(grad, markers);
+        Mask air(in.volume.geometry(), Uninitialized{});
+        for (int64_t i = 0; i < labels.size(); ++i) air[i] = labels[i] == 1 && (!in.roi || (*in.roi)[i]);
+        MethodOutput out = pores_from_air(std::move(air), in, "watershed",
+                                          "air markers below " + std::to_string(a.seed) + ", material markers above " +
+                                              std::to_string(a.limit));
+        out.chosen = {{"air_marker_below", a.seed}, {"material_marker_above", a.limit}, {"otsu", a.otsu}, {"bins", h.bins()}};
+        return out;
+      });
+  for (auto& s : m.params)
+    if (s.name == "grow_margin") s.doc = "material markers are above otsu + grow_margin*(material mean - otsu)";
   return m;
 }
 
