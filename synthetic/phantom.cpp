@@ -22,27 +22,38 @@ double Rng::normal() {
   return std::sqrt(-2.0 * std::log(u1)) * std::cos(2 * M_PI * u2);
 }
 
-int64_t Rng::poisson(double lam) {
+Rng::PoissonMean::PoissonMean(double mean) : lam(mean) {
+  if (lam <= 0) return;
+  if (lam < 10) {
+    limit = std::exp(-lam);
+    return;
+  }
+  slam = std::sqrt(lam);
+  b = 0.931 + 2.53 * slam, a = -0.059 + 0.02483 * b;
+  invalpha = 1.1239 + 1.1328 / (b - 3.4), vr = 0.9277 - 3.6224 / (b - 2);
+}
+
+int64_t Rng::poisson(double lam) { return poisson(PoissonMean(lam)); }
+
+int64_t Rng::poisson(const PoissonMean& m) {
+  const double lam = m.lam;
   if (lam <= 0) return 0;
   if (lam < 10) {
-    const double limit = std::exp(-lam);
     double prod = uniform();
     int64_t k = 0;
-    while (prod > limit) {
+    while (prod > m.limit) {
       prod *= uniform();
       ++k;
     }
     return k;
   }
-  const double slam = std::sqrt(lam), loglam = std::log(lam);
-  const double b = 0.931 + 2.53 * slam, a = -0.059 + 0.02483 * b;
-  const double invalpha = 1.1239 + 1.1328 / (b - 3.4), vr = 0.9277 - 3.6224 / (b - 2);
+  const double b = m.b, a = m.a;
   for (;;) {
     const double U = uniform() - 0.5, V = uniform(), us = 0.5 - std::abs(U);
     const double k = std::floor((2 * a / us + b) * U + lam + 0.43);
-    if (us >= 0.07 && V <= vr) return int64_t(k);
+    if (us >= 0.07 && V <= m.vr) return int64_t(k);
     if (k < 0 || (us < 0.013 && V > us)) continue;
-    if (std::log(V) + std::log(invalpha) - std::log(a / (us * us) + b) <= -lam + k * loglam - std::lgamma(k + 1))
+    if (std::log(V) + std::log(m.invalpha) - std::log(a / (us * us) + b) <= -lam + k * std::log(lam) - std::lgamma(k + 1))
       return int64_t(k);
   }
 }

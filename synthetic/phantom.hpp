@@ -104,7 +104,18 @@ struct Rng {
   // Poisson count: product of uniforms below mean 10 (Knuth, TAOCP vol. 2, 3.4.1), transformed
   // rejection PTRS above (Hoermann 1993, Insurance: Math. Econ. 12:39; as in numpy).
   int64_t poisson(double mean);
+  // The same draws with the per-mean constants taken once (PoissonMean): a caller drawing many
+  // counts of one mean (the air around a part) reuses them.
+  struct PoissonMean;
+  int64_t poisson(const PoissonMean& m);
   std::mt19937_64 g;
+};
+
+// The constants Rng::poisson derives from its mean: exp(-mean) below 10, PTRS's b, a, 1/alpha and
+// v_r above (the logs of the rare squeeze test are taken only when it runs).
+struct Rng::PoissonMean {
+  explicit PoissonMean(double mean);
+  double lam, limit = 0, slam = 0, b = 0, a = 0, invalpha = 0, vr = 0;
 };
 
 // A seed for stream `stream` of a run seeded with `seed` (SplitMix64 mixing).

@@ -26,6 +26,10 @@ std::string ScanSpec::file_name(bool dose_series) const {
 }
 
 double detector_counts(Rng& rng, double expected, double electronic_sigma) {
+  return detector_counts(rng, Rng::PoissonMean(expected), electronic_sigma);
+}
+
+double detector_counts(Rng& rng, const Rng::PoissonMean& expected, double electronic_sigma) {
   double counts = double(rng.poisson(expected));
   if (electronic_sigma > 0) counts += electronic_sigma * rng.normal();
   return counts;
@@ -194,7 +198,11 @@ struct EllipseAtAngle {
   }
 };
 
-void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, int n, double* out) {
+// With `touched` (one flag per ray), only the flagged rays are computed (the others of `out` are
+// left as they are); every pore and marker range must be flagged (mark_shadows), so that each
+// flagged ray gets exactly the value of the full computation.
+void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, int n, double* out,
+                          const uint8_t* touched = nullptr) {
   const double ct = std::cos(theta), st = std::sin(theta);
   // The part's intervals along every ray, kept (flat, from first[k]) when open pores need them
   // again: computed once per ray.
@@ -207,6 +215,10 @@ void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, i
   }
   Interval iv[32];
   for (int k = 0; k < n; ++k) {
+    if (touched && !touched[k]) {
+      if (keep) first[size_t(k)] = kept.size();
+      continue;
+    }
     const int m = part_intervals(sc, ct, st, t0 + k * dt, iv, 32);
     double len = 0;
     for (int i = 0; i < m; ++i) len += iv[i].b - iv[i].a;
@@ -274,14 +286,121 @@ void scene_line_integrals(const Scene& sc, double theta, double t0, double dt, i
   };
   if (!sc.closed_unions.empty()) unions(sc.closed_unions, false);
   if (!sc.open_unions.empty()) unions(sc.open_unions, true);
-  for (int k = 0; k < n; ++k) out[k] = std::max(0.0, out[k]) * sc.mu;
+  for (int k = 0; k < n; ++k)
+    if (!touched || touched[k]) out[k] = std::max(0.0, out[k]) * sc.mu;
   for (const Ellipse2D& e : sc.markers) {
     const EllipseAtAngle ea(e, ct, st, t0, dt, n);
     for (int k = ea.k0; k <= ea.k1; ++k) out[k] += e.value * ea.chord(t0 + k * dt);
   }
 }
 
+// Flags the rays that a pore, a lobe or a marker of the scene reaches at angle theta (the ranges
+// scene_line_integrals walks): the other rays see the part alone.
+void mark_shadows(const Scene& sc, double theta, double t0, double dt, int n, uint8_t* touched) {
+  const double ct = std::cos(theta), st = std::sin(theta);
+  const auto mark = [&](int k0, int k1) {
+    if (k0 <= k1) std::fill(touched + k0, touched + k1 + 1, uint8_t(1));
+  };
+  const auto one = [&](const Ellipse2D& e) {
+    const EllipseAtAngle ea(e, ct, st, t0, dt, n);
+    mark(ea.k0, ea.k1);
+  };
+  const auto unions = [&](const std::vector<std::vector<Ellipse2D>>& list) {
+    for (const auto& u : list) {  // the range the union walks: from its lowest to its highest lobe
+      int k0 = n, k1 = -1;
+      for (const Ellipse2D& e : u) {
+        const EllipseAtAngle ea(e, ct, st, t0, dt, n);
+        k0 = std::min(k0, ea.k0);
+        k1 = std::max(k1, ea.k1);
+      }
+      mark(k0, k1);
+    }
+  };
+  for (const Ellipse2D& e : sc.closed) one(e);
+  for (const Ellipse2D& e : sc.open) one(e);
+  unions(sc.closed_unions);
+  unions(sc.open_unions);
+  for (const Ellipse2D& e : sc.markers) one(e);
+}
+
+// Which part shapes cut the plane of a scene, per sub-plane of a slice: scenes with the same key
+// have the same part cross-section.
+std::string part_key(const Phantom& ph, const std::vector<double>& planes) {
+  std::string key;
+  for (double z : planes)
+    for (const Shape& s : ph.shapes) {
+      const double h = s.kind == "box" ? s.size_mm[2] / 2 : s.height_mm / 2;
+      key += std::abs(z - s.centre_mm[2]) >= h ? '0' : '1';
+    }
+  return key;
+}
+
 }  // namespace
+
+// What slice_transmission derives from the recipe and the geometry, shared by it and
+// SliceTransmissions so that both compute every value by the same expressions.
+struct SliceTransmissions::Setup {
+  const Phantom& ph;
+  const Recipe& r;
+  ParallelGeometry g;
+  int md, ma, nf;
+  double s, dt, t0, step, norm;
+  std::vector<double> ker;  // detector PSF: normalised Gaussian, sigma in bins, cut at 3 sigma
+  Setup(const Phantom& ph_, const Recipe& r_, const ParallelGeometry& g_)
+      : ph(ph_), r(r_), g(g_), md(r_.detector_subsamples), ma(r_.angular_blur > 0 ? 4 : 1) {
+    s = r.voxel_mm();
+    nf = g.bins * md;
+    dt = g.bin_mm / md, t0 = g.bin_t_mm(0) + (0.5 / md - 0.5) * g.bin_mm;
+    step = g.arc_deg * M_PI / 180 / g.angles;
+    norm = 1.0 / (md * md * ma);
+    const double sig = r.detector_blur_um * 1e-3 / g.bin_mm;
+    if (sig > 0) {
+      const int rad = std::max(1, int(std::ceil(3 * sig)));
+      double sum = 0;
+      for (int k = -rad; k <= rad; ++k) ker.push_back(std::exp(-0.5 * k * k / (sig * sig))), sum += ker.back();
+      for (double& v : ker) v /= sum;
+    }
+  }
+  std::vector<double> planes(int64_t z) const {
+    const double zc = ph.grid.origin_mm[2] + double(z) * s;
+    std::vector<double> out;
+    for (int j = 0; j < md; ++j) out.push_back(zc + ((j + 0.5) / md - 0.5) * s);
+    return out;
+  }
+  std::vector<Scene> scenes(const std::vector<double>& planes) const {
+    std::vector<Scene> out;
+    for (double z : planes) out.push_back(scene_at(ph, z));
+    return out;
+  }
+  double theta(int i, int a) const { return g.angle_rad(i) + ((a + 0.5) / ma - 0.5) * r.angular_blur * step; }
+  // acc[k] += exp(-p) over the sub-angles, scenes and sub-rays of bin k, in that order; only the
+  // flagged bins (every sub-ray of a flagged bin is flagged in `touched`) when touched is given.
+  void accumulate(const std::vector<Scene>& scenes, int i, double* acc, std::vector<double>& p,
+                  const uint8_t* touched, const uint8_t* bin_touched) const {
+    for (int a = 0; a < ma; ++a) {
+      const double th = theta(i, a);
+      for (const Scene& sc : scenes) {
+        scene_line_integrals(sc, th, t0, dt, nf, p.data(), touched);
+        for (int k = 0; k < g.bins; ++k) {
+          if (bin_touched && !bin_touched[k]) continue;
+          for (int j = 0; j < md; ++j) acc[size_t(k)] += std::exp(-p[size_t(k * md + j)]);
+        }
+      }
+    }
+  }
+  void finish_row(const double* acc, float* row) const {
+    if (ker.empty()) {
+      for (int k = 0; k < g.bins; ++k) row[k] = float(acc[size_t(k)] * norm);
+    } else {
+      const int rad = int(ker.size() / 2);
+      for (int k = 0; k < g.bins; ++k) {
+        double v = 0;
+        for (int j = -rad; j <= rad; ++j) v += ker[size_t(j + rad)] * acc[size_t(std::clamp(k + j, 0, g.bins - 1))];
+        row[k] = float(v * norm);
+      }
+    }
+  }
+};
 
 void phantom_line_integrals(const Phantom& ph, double z, double theta, double t0, double dt, int n, double* out) {
   scene_line_integrals(scene_at(ph, z), theta, t0, dt, n, out);
@@ -299,49 +418,112 @@ Sinogram phantom_sinogram(const Phantom& ph, double z, const ParallelGeometry& g
 }
 
 Sinogram slice_transmission(const Phantom& ph, const Recipe& r, const ParallelGeometry& g, int64_t z) {
-  const int md = r.detector_subsamples, ma = r.angular_blur > 0 ? 4 : 1;
-  const double s = r.voxel_mm(), zc = ph.grid.origin_mm[2] + double(z) * s;
-  std::vector<Scene> scenes;
-  for (int j = 0; j < md; ++j) scenes.push_back(scene_at(ph, zc + ((j + 0.5) / md - 0.5) * s));
-  const int nf = g.bins * md;
-  const double dt = g.bin_mm / md, t0 = g.bin_t_mm(0) + (0.5 / md - 0.5) * g.bin_mm;
-  const double step = g.arc_deg * M_PI / 180 / g.angles;
-  std::vector<double> p(static_cast<size_t>(nf)), acc(static_cast<size_t>(g.bins));
+  const SliceTransmissions::Setup st(ph, r, g);
+  const std::vector<Scene> scenes = st.scenes(st.planes(z));
+  std::vector<double> p(size_t(st.nf)), acc(size_t(g.bins));
   Sinogram out(g);
-  const double norm = 1.0 / (md * md * ma);
-  // Detector PSF: normalised Gaussian, sigma in bins, cut at 3 sigma, edges clamped.
-  const double sig = r.detector_blur_um * 1e-3 / g.bin_mm;
-  std::vector<double> ker;
-  if (sig > 0) {
-    const int rad = std::max(1, int(std::ceil(3 * sig)));
-    double sum = 0;
-    for (int k = -rad; k <= rad; ++k) ker.push_back(std::exp(-0.5 * k * k / (sig * sig))), sum += ker.back();
-    for (double& v : ker) v /= sum;
-  }
   for (int i = 0; i < g.angles; ++i) {
     std::fill(acc.begin(), acc.end(), 0.0);
-    for (int a = 0; a < ma; ++a) {
-      const double th = g.angle_rad(i) + ((a + 0.5) / ma - 0.5) * r.angular_blur * step;
-      for (const Scene& sc : scenes) {
-        scene_line_integrals(sc, th, t0, dt, nf, p.data());
-        for (int k = 0; k < g.bins; ++k)
-          for (int j = 0; j < md; ++j) acc[size_t(k)] += std::exp(-p[size_t(k * md + j)]);
-      }
+    st.accumulate(scenes, i, acc.data(), p, nullptr, nullptr);
+    st.finish_row(acc.data(), out.row(i));
+  }
+  return out;
+}
+
+SliceTransmissions::SliceTransmissions(const Phantom& ph, const Recipe& r, const ParallelGeometry& g, int64_t z0,
+                                       int64_t z1, bool parallel)
+    : st_(std::make_unique<Setup>(ph, r, g)) {
+  // One table per part cross-section met in [z0, z1): the part alone, every angle, before the
+  // normalisation and the PSF. Too many (a part of many shapes): none, every slice computed whole.
+  std::vector<std::string> keys;
+  for (int64_t z = z0; z < z1; ++z) {
+    const std::string k = part_key(ph, st_->planes(z));
+    if (std::find(keys.begin(), keys.end(), k) == keys.end()) keys.push_back(k);
+  }
+  const double bytes = double(keys.size()) * g.angles * g.bins * sizeof(double);
+  if (bytes > 256.0 * (1 << 20)) return;
+  for (const std::string& k : keys) {
+    // The scenes of the first slice with this key, pores and markers left out.
+    int64_t z = z0;
+    while (part_key(ph, st_->planes(z)) != k) ++z;
+    std::vector<Scene> scenes = st_->scenes(st_->planes(z));
+    for (Scene& sc : scenes) {
+      sc.closed.clear(), sc.open.clear(), sc.markers.clear();
+      sc.closed_unions.clear(), sc.open_unions.clear();
     }
-    float* row = out.row(i);
-    if (ker.empty()) {
-      for (int k = 0; k < g.bins; ++k) row[k] = float(acc[size_t(k)] * norm);
-    } else {
-      const int rad = int(ker.size() / 2);
-      for (int k = 0; k < g.bins; ++k) {
-        double v = 0;
-        for (int j = -rad; j <= rad; ++j) v += ker[size_t(j + rad)] * acc[size_t(std::clamp(k + j, 0, g.bins - 1))];
-        row[k] = float(v * norm);
+    std::vector<double>& t = tables_[k];
+    t.assign(size_t(g.angles) * size_t(g.bins), 0.0);
+#pragma omp parallel if (parallel)
+    {
+      std::vector<double> p(size_t(st_->nf));
+#pragma omp for schedule(static)
+      for (int i = 0; i < g.angles; ++i) st_->accumulate(scenes, i, t.data() + size_t(i) * size_t(g.bins), p, nullptr, nullptr);
+    }
+  }
+}
+
+SliceTransmissions::~SliceTransmissions() = default;
+
+Sinogram SliceTransmissions::operator()(int64_t z) const {
+  const Setup& st = *st_;
+  const std::vector<double> planes = st.planes(z);
+  const auto table = tables_.find(part_key(st.ph, planes));
+  if (table == tables_.end()) return slice_transmission(st.ph, st.r, st.g, z);
+  const std::vector<Scene> scenes = st.scenes(planes);
+  const int bins = st.g.bins, md = st.md;
+  std::vector<double> p(static_cast<size_t>(st.nf)), acc(static_cast<size_t>(bins));
+  std::vector<uint8_t> rays(static_cast<size_t>(st.nf)), hit(static_cast<size_t>(bins));
+  Sinogram out(st.g);
+  for (int i = 0; i < st.g.angles; ++i) {
+    // The bins a pore or a marker reaches at any sub-angle and in any sub-plane: computed whole
+    // (every term of their sums, in the same order); the others are the part's own, from the table.
+    std::fill(rays.begin(), rays.end(), uint8_t(0));
+    for (int a = 0; a < st.ma; ++a)
+      for (const Scene& sc : scenes) mark_shadows(sc, st.theta(i, a), st.t0, st.dt, st.nf, rays.data());
+    bool any = false;
+    for (int k = 0; k < bins; ++k) {
+      uint8_t h = 0;
+      for (int j = 0; j < md; ++j) h |= rays[size_t(k * md + j)];
+      hit[size_t(k)] = h;
+      any |= h != 0;
+    }
+    const double* part = table->second.data() + size_t(i) * size_t(bins);
+    if (any) {
+      for (int k = 0; k < bins; ++k) {
+        acc[size_t(k)] = hit[size_t(k)] ? 0.0 : part[k];
+        for (int j = 0; j < md; ++j) rays[size_t(k * md + j)] = hit[size_t(k)];
       }
+      st.accumulate(scenes, i, acc.data(), p, rays.data(), hit.data());
+      st.finish_row(acc.data(), out.row(i));
+    } else {
+      st.finish_row(part, out.row(i));
     }
   }
   return out;
 }
+
+namespace {
+
+// float(log_transmission(c, i0)) for the whole counts c a Poisson draw gives (no electronic
+// noise), looked up: the same expression, evaluated once per count up to i0 + 12 sqrt(i0) (counts
+// above, and fractional ones, are computed as they come).
+struct LogTable {
+  double i0;
+  std::vector<float> v;
+  LogTable(double i0_, bool whole_counts) : i0(i0_) {
+    if (!whole_counts) return;
+    const double n = i0 + 12 * std::sqrt(i0) + 64;
+    if (n > 8e6) return;  // larger doses: not worth 32 MB
+    v.resize(size_t(n));
+    for (size_t c = 0; c < v.size(); ++c) v[c] = float(log_transmission(double(c), i0));
+  }
+  float at(double counts) const {
+    if (counts >= 0 && counts < double(v.size()) && counts == std::floor(counts)) return v[size_t(counts)];
+    return float(log_transmission(counts, i0));
+  }
+};
+
+}  // namespace
 
 VolumeF simulate_scan(const Phantom& ph, const Recipe& r, const ScanSpec& spec) {
   return std::move(simulate_scans(ph, r, {spec})[0]);
@@ -361,16 +543,19 @@ std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, const st
   const Geometry& vg = ph.grid;
   std::vector<VolumeF> out;
   for (size_t d = 0; d < i0s.size(); ++d) out.emplace_back(vg, Uninitialized{});  // every slice set below
+  std::vector<LogTable> logs;
+  for (double i0 : i0s) logs.emplace_back(i0, r.noise && !(r.electronic_noise > 0));
   const RampWindow win = parse_window(r.filter);
   const int64_t nz = vg.dims[2];
   const int nx = int(vg.dims[0]), ny = int(vg.dims[1]);
+  const SliceTransmissions transmission(ph, r, g, 0, nz);
 #pragma omp parallel
   {
     Fbp fbp(g, win);
     Sinogram sino(g);
 #pragma omp for schedule(static)
     for (int64_t z = 0; z < nz; ++z) {
-      const Sinogram T = slice_transmission(ph, r, g, z);
+      const Sinogram T = transmission(z);
       for (size_t d = 0; d < i0s.size(); ++d) {
         const double i0 = i0s[d];
         uint64_t bits;
@@ -378,13 +563,16 @@ std::vector<VolumeF> simulate_scans(const Phantom& ph, const Recipe& r, const st
         // One noise stream per (seed, projections, dose, slice).
         const uint64_t scan_key = mix_seed(mix_seed(r.seed ^ 0x5ca11ab1eULL, uint64_t(projections)), bits);
         Rng rng(mix_seed(specs[d].reference ? mix_seed(scan_key, 1) : scan_key, uint64_t(z)));
+        Rng::PoissonMean mean(0);
         for (size_t k = 0; k < T.data.size(); ++k) {
           const double t = T.data[k];
           if (!r.noise) {
             sino.data[k] = float(-std::log(std::max(t, 1e-30)));
             continue;
           }
-          sino.data[k] = float(log_transmission(detector_counts(rng, i0 * t, r.electronic_noise), i0));
+          if (i0 * t != mean.lam) mean = Rng::PoissonMean(i0 * t);  // rays through air repeat i0
+          const double counts = detector_counts(rng, mean, r.electronic_noise);
+          sino.data[k] = logs[d].at(counts);
         }
         fbp.filter(sino);
         float* dst = out[d].slice(z);

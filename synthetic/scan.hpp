@@ -6,6 +6,8 @@
 // a noise-free flat field, -log, then FBP. Units: mu in 1/mm, lengths in mm, so mu x path is the
 // dimensionless line integral.
 #include <cstdint>
+#include <map>
+#include <memory>
 #include <string>
 #include <vector>
 
@@ -26,6 +28,8 @@ struct ScanSpec {
 // when electronic_sigma > 0, independent Gaussian read noise of that sigma (in photons). Draws
 // from `rng` in this order; the scan simulation uses exactly this function.
 double detector_counts(Rng& rng, double expected, double electronic_sigma);
+// The same with the mean's constants taken once (Rng::PoissonMean of `expected`).
+double detector_counts(Rng& rng, const Rng::PoissonMean& expected, double electronic_sigma);
 // The measured line integral -log(counts / i0), counts clamped at half a photon first.
 double log_transmission(double counts, double i0);
 
@@ -45,6 +49,25 @@ Sinogram phantom_sinogram(const Phantom& ph, double z_mm, const ParallelGeometry
 // Expected transmission I/I0 of slice z (integrated over bin width, voxel height and the
 // angular blur, then blurred by the detector PSF).
 Sinogram slice_transmission(const Phantom& ph, const Recipe& r, const ParallelGeometry& g, int64_t z);
+
+// slice_transmission of many slices of one geometry, bit for bit, faster: the part's own shadow
+// (no pores, no markers) is computed once per part cross-section met in [z0, z1) (the part is
+// extruded along z, so most slices share one) and kept per angle and bin, before the
+// normalisation and the PSF; a slice then computes only the bins a pore or a marker reaches, every
+// term of their sums in the original order, and takes the others from the table. Parallel over
+// angles while the tables are built when asked; operator() is const and thread-safe.
+class SliceTransmissions {
+ public:
+  SliceTransmissions(const Phantom& ph, const Recipe& r, const ParallelGeometry& g, int64_t z0, int64_t z1,
+                     bool parallel = true);
+  ~SliceTransmissions();
+  Sinogram operator()(int64_t z) const;
+  struct Setup;
+
+ private:
+  std::unique_ptr<Setup> st_;
+  std::map<std::string, std::vector<double>> tables_;  // part key -> angles x bins
+};
 
 // Scans that share one projection count (at several doses, and the reference), reconstructed
 // (mu in 1/mm). Parallel over slices, each slice with its own noise stream keyed by (seed,
