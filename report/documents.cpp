@@ -83,9 +83,9 @@ static std::string consensus_md(const Json& ref) {
   return md.str();
 }
 
-std::string validation_record_md(const Json& r) {
+// Title, caution, decision and intended use.
+static std::string record_head_md(const Json& r) {
   std::ostringstream md;
-  const Json& ctx = r["context"];
   md << "# Validation record — " << r["suite"]["name"].get<std::string>() << "\n\n";
   md << "> **Caution.** " << kCaution << "\n\n";
   md << decision_md(r);
@@ -96,6 +96,13 @@ std::string validation_record_md(const Json& r) {
   if (!r["suite"]["description"].get<std::string>().empty()) md << " for: " << r["suite"]["description"].get<std::string>();
   md << ". It is evidence for a qualification by qualified personnel; it is not itself a qualification of an inspection, "
         "a part or a machine.\n\n";
+  return md.str();
+}
+
+// Section 1: the tool, the run and the suite that made the record.
+static std::string identification_md(const Json& r) {
+  std::ostringstream md;
+  const Json& ctx = r["context"];
   md << "## 1. Identification\n\n";
   md << "| field | value |\n|---|---|\n";
   md << "| tool | porebench " << ctx["version"].get<std::string>() << " |\n";
@@ -106,38 +113,56 @@ std::string validation_record_md(const Json& r) {
     md << "| dependency " << it.key() << " | " << md_cell(it.value().get<std::string>()) << " |\n";
   md << "| suite file | " << md_cell(r["suite"]["path"].get<std::string>()) << " |\n";
   md << "| suite sha256 | " << r["suite_sha256"].get<std::string>() << " |\n\n";
-  md << "## 2. Inputs\n\n";
-  for (const auto& d : r["datasets"]) {
-    md << "### " << d["name"].get<std::string>() << " (" << d["kind"].get<std::string>() << ")\n\n";
-    if (d["kind"] == "synthetic") {
-      md << "Reference: " << d["reference"].get<std::string>() << ". Recipe sha256 " << d["recipe_sha256"].get<std::string>() << ".\n\n";
-      md << "| file | sha256 |\n|---|---|\n";
-      const Json& files = d["manifest"].contains("files") ? d["manifest"]["files"] : Json::object();
-      for (auto it = files.begin(); it != files.end(); ++it) {
-        const Json& f = it.value();
-        md << "| " << md_cell(f.is_object() && f.contains("file") ? f["file"].get<std::string>() : it.key()) << " | "
-           << (f.is_object() && f.contains("sha256") ? f["sha256"].get<std::string>() : f.is_string() ? f.get<std::string>() : "") << " |\n";
-      }
-    } else {
-      md << "| file | sha256 |\n|---|---|\n";
-      const Json& ref = d["reference"];
-      if (ref.contains("mask")) md << "| " << md_cell(ref["mask"].get<std::string>()) << " (reference mask) | " << ref["sha256"].get<std::string>() << " |\n";
-      else if (ref.contains("consensus"))
-        md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, STAPLE consensus of "
-           << ref["consensus"]["raters"].size() << " raters) | " << ref["sha256"].get<std::string>() << " |\n";
-      else md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, segmented by " << md_cell(ref["method"].get<std::string>())
-              << ") | " << ref["sha256"].get<std::string>() << " |\n";
-      if (!d.contains("variants")) md << "| " << md_cell(d["scan"].get<std::string>()) << " | " << d["scan_sha256"].get<std::string>() << " |\n";
-      else for (const auto& v : d["variants"])
-        md << "| " << md_cell(v["path"].get<std::string>()) << " (" << md_cell(v["scan"].get<std::string>()) << ") | "
-           << v.value("sha256", std::string()) << " |\n";
-      md << consensus_md(ref);
-      md << paired_alignment_md(d);
+  return md.str();
+}
+
+// Section 2, one dataset: its files with their hashes (and a paired reference's consensus and
+// alignment), and its slice split.
+static std::string dataset_inputs_md(const Json& d) {
+  std::ostringstream md;
+  md << "### " << d["name"].get<std::string>() << " (" << d["kind"].get<std::string>() << ")\n\n";
+  if (d["kind"] == "synthetic") {
+    md << "Reference: " << d["reference"].get<std::string>() << ". Recipe sha256 " << d["recipe_sha256"].get<std::string>() << ".\n\n";
+    md << "| file | sha256 |\n|---|---|\n";
+    const Json& files = d["manifest"].contains("files") ? d["manifest"]["files"] : Json::object();
+    for (auto it = files.begin(); it != files.end(); ++it) {
+      const Json& f = it.value();
+      md << "| " << md_cell(f.is_object() && f.contains("file") ? f["file"].get<std::string>() : it.key()) << " | "
+         << (f.is_object() && f.contains("sha256") ? f["sha256"].get<std::string>() : f.is_string() ? f.get<std::string>() : "") << " |\n";
     }
-    md << "\nSlices: calibration " << d["slices"]["calibration"][0] << "–" << d["slices"]["calibration"][1].get<int>() - 1
-       << ", gap " << d["slices"]["gap"] << ", test " << d["slices"]["test"][0] << "–" << d["slices"]["test"][1].get<int>() - 1
-       << " (z, voxel indices).\n\n";
+  } else {
+    md << "| file | sha256 |\n|---|---|\n";
+    const Json& ref = d["reference"];
+    if (ref.contains("mask")) md << "| " << md_cell(ref["mask"].get<std::string>()) << " (reference mask) | " << ref["sha256"].get<std::string>() << " |\n";
+    else if (ref.contains("consensus"))
+      md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, STAPLE consensus of "
+         << ref["consensus"]["raters"].size() << " raters) | " << ref["sha256"].get<std::string>() << " |\n";
+    else md << "| " << md_cell(ref["scan"].get<std::string>()) << " (reference scan, segmented by " << md_cell(ref["method"].get<std::string>())
+            << ") | " << ref["sha256"].get<std::string>() << " |\n";
+    if (!d.contains("variants")) md << "| " << md_cell(d["scan"].get<std::string>()) << " | " << d["scan_sha256"].get<std::string>() << " |\n";
+    else for (const auto& v : d["variants"])
+      md << "| " << md_cell(v["path"].get<std::string>()) << " (" << md_cell(v["scan"].get<std::string>()) << ") | "
+         << v.value("sha256", std::string()) << " |\n";
+    md << consensus_md(ref);
+    md << paired_alignment_md(d);
   }
+  md << "\nSlices: calibration " << d["slices"]["calibration"][0] << "–" << d["slices"]["calibration"][1].get<int>() - 1
+     << ", gap " << d["slices"]["gap"] << ", test " << d["slices"]["test"][0] << "–" << d["slices"]["test"][1].get<int>() - 1
+     << " (z, voxel indices).\n\n";
+  return md.str();
+}
+
+// Section 2: every dataset.
+static std::string inputs_md(const Json& r) {
+  std::ostringstream md;
+  md << "## 2. Inputs\n\n";
+  for (const auto& d : r["datasets"]) md << dataset_inputs_md(d);
+  return md.str();
+}
+
+// Section 3: the methods and their parameter grids.
+static std::string methods_md(const Json& r) {
+  std::ostringstream md;
   md << "## 3. Methods\n\n| label | method | family | citation | parameter grid |\n|---|---|---|---|---|\n";
   for (const auto& m : r["methods"]) {
     std::string grid;
@@ -149,6 +174,12 @@ std::string validation_record_md(const Json& r) {
     md << md_row({m["label"].get<std::string>(), m["name"].get<std::string>(), m["family"].get<std::string>(),
                   m["citation"].get<std::string>(), grid.empty() ? "defaults" : grid});
   }
+  return md.str();
+}
+
+// Section 4: what each figure means, with its source.
+static std::string definitions_md(const Json& r) {
+  std::ostringstream md;
   md << "\n## 4. Metric definitions\n\n"
         "- Jaccard = TP/(TP+FP+FN) (Jaccard 1901); Dice = 2TP/(2TP+FP+FN) (Dice 1945); computed over voxels inside "
         "the part mask and the test slices. Slice Jaccard: mean over test slices with a percentile bootstrap 95 % CI "
@@ -162,6 +193,19 @@ std::string validation_record_md(const Json& r) {
         "HD95 and ASSD in mm.\n"
         "- Tuned methods: parameters chosen by " << r["calibration"]["objective"].get<std::string>()
      << " on the calibration slices; every figure in section 5 is on the held-out test slices.\n\n";
+  return md.str();
+}
+
+// A table row of a failed cell: its leading cells, `first` and three empty cells, then why.
+static std::string failed_cell_row(std::vector<std::string> row, const char* first, const std::string& why) {
+  for (const char* v : {first, "", "", ""}) row.push_back(v);
+  row.push_back(why);
+  return md_row(row);
+}
+
+// Section 5: the chosen cell of every selection with its criteria verdicts.
+static std::string results_md(const Json& r) {
+  std::ostringstream md;
   md << "## 5. Results and criteria\n\n";
   const auto cells = cells_by_id(r);
   md << "| dataset | scan | method | chosen parameters | Jaccard | slice Jaccard 95 % CI | porosity bias (pp) | a90/95 (µm) | verdict |\n";
@@ -171,9 +215,7 @@ std::string validation_record_md(const Json& r) {
     const std::string p = params_text(c["params"]);
     std::vector<std::string> row = {s["dataset"].get<std::string>(), s["scan"].get<std::string>(), s["method"].get<std::string>(), p};
     if (c["status"] != "ok") {
-      for (const char* v : {"failed", "", "", ""}) row.push_back(v);
-      row.push_back("FAIL: " + c["error"].get<std::string>());
-      md << md_row(row);
+      md << failed_cell_row(row, "failed", "FAIL: " + c["error"].get<std::string>());
       continue;
     }
     const Json& t = c["test"];
@@ -186,6 +228,13 @@ std::string validation_record_md(const Json& r) {
     md << md_row(row);
   }
   md << "\nOverall: " << verdict_headline(r) << "\n\n";
+  return md.str();
+}
+
+// Section 5, POD and false calls per method, and the warnings of the selected cells.
+static std::string pod_and_warnings_md(const Json& r) {
+  std::ostringstream md;
+  const auto cells = cells_by_id(r);
   // POD with a90/95 and the false-call rate per method: read together (a detection bought with
   // false calls is not a detection).
   md << "### POD and false calls per method (test slices)\n\n";
@@ -196,9 +245,7 @@ std::string validation_record_md(const Json& r) {
     const Json& c = *cells.at(s["chosen_cell"]);
     std::vector<std::string> row = {s["dataset"].get<std::string>(), s["scan"].get<std::string>(), s["method"].get<std::string>()};
     if (c["status"] != "ok") {
-      for (const char* v : {"", "", "", ""}) row.push_back(v);
-      row.push_back("cell failed: " + c["error"].get<std::string>());
-      md << md_row(row);
+      md << failed_cell_row(row, "", "cell failed: " + c["error"].get<std::string>());
       continue;
     }
     const Json& t = c["test"];
@@ -219,6 +266,12 @@ std::string validation_record_md(const Json& r) {
   if (warnings.empty()) md << "None of the selected cells reported a warning.\n\n";
   for (const auto& w : warnings) md << "- " << w << "\n";
   if (!warnings.empty()) md << "\n";
+  return md.str();
+}
+
+// Section 5, where the criteria come from.
+static std::string criteria_source_md(const Json& r) {
+  std::ostringstream md;
   md << "### Where the criteria come from\n\n";
   if (r["criteria"].empty()) md << "The suite declares no acceptance criteria.\n\n";
   else {
@@ -231,11 +284,22 @@ std::string validation_record_md(const Json& r) {
           "The limits of porebench's built-in demo suites are invented for the demo scenario; for a real qualification "
           "they come from the part specification, the applicable standards and local codes, set by qualified personnel.\n\n";
   }
+  return md.str();
+}
+
+// Section 6: the sign-off table.
+static std::string sign_off_md() {
+  std::ostringstream md;
   md << "## 6. Review and sign-off\n\n"
         "| role | name | signature | date |\n|---|---|---|---|\n"
         "| prepared by | | | |\n| reviewed by (qualified person) | | | |\n| approved by | | | |\n\n"
         "Remarks of the reviewer:\n\n\n";
   return md.str();
+}
+
+std::string validation_record_md(const Json& r) {
+  return record_head_md(r) + identification_md(r) + inputs_md(r) + methods_md(r) + definitions_md(r) + results_md(r) +
+         pod_and_warnings_md(r) + criteria_source_md(r) + sign_off_md();
 }
 
 }  // namespace pb::report
