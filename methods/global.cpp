@@ -610,16 +610,12 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
 }
 
 MethodInfo manual_info() {
-  MethodInfo m;
-  m.name = "manual";
-  m.family = "global";
-  m.doc = "A fixed threshold in grey units given by the user: air is below it";
-  m.citation = "none (user-chosen threshold)";
-  m.params = {{"threshold", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "the threshold in grey-value units"}};
-  m.run = [](const MethodInput& in, const ParamValues& p) {
-    return apply_threshold(in, ThresholdChoice{p.num("threshold"), {}}, "manual");
-  };
-  return m;
+  return {"manual", "global", "A fixed threshold in grey units given by the user: air is below it",
+          "none (user-chosen threshold)",
+          {{"threshold", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "the threshold in grey-value units"}},
+          [](const MethodInput& in, const ParamValues& p) {
+            return apply_threshold(in, ThresholdChoice{p.num("threshold"), {}}, "manual");
+          }};
 }
 
 const char* kOtsu = "Otsu N. (1979) A threshold selection method from gray-level histograms. IEEE Trans. Syst. Man Cybern. 9(1):62-66";
