@@ -1,3 +1,5 @@
+// The run context block (core/context.hpp): tool version and git hash (generated build_info.hpp),
+// each dependency's version as its library reports it, host, threads, time.
 #include "core/context.hpp"
 
 #include <fftw3.h>

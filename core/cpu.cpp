@@ -1,3 +1,5 @@
+// Instruction-set detection (core/cpu.hpp): the CPU's AVX2/AVX-512 support, read once, capped by
+// set_simd_cap or --simd.
 #include "core/cpu.hpp"
 
 #include <atomic>

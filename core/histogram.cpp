@@ -1,3 +1,5 @@
+// Histograms and statistics over float volumes (core/histogram.hpp): per-thread partials merged in
+// thread order; grey-level counts (LevelCounts) for integer volumes, from which both are exact.
 #include "core/histogram.hpp"
 
 #include <omp.h>

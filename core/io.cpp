@@ -1,3 +1,6 @@
+// Volume input and output (core/io.hpp) outside ITK: format dispatch, raw and .npy files, the
+// non-finite check, atomic writes (AtomicOutput), folder locks (FolderLock, WaitLock) and the
+// clean-up of killed writers' temporaries. ITK formats are read and written in core/io_itk.cpp.
 #include "core/io.hpp"
 
 #include "core/io_atomic.hpp"

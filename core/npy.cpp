@@ -1,3 +1,5 @@
+// NumPy .npy reading and writing (core/npy.hpp): header dict parsing, dtype and byte order, arrays
+// of 1-8 axes as float32, volumes as AnyVolume.
 #include "core/npy.hpp"
 
 #include <fcntl.h>

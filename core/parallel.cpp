@@ -1,3 +1,5 @@
+// Thread count (core/parallel.hpp): the CPUs this process may use (affinity mask, cgroup v1/v2 CPU
+// quota), and set_threads for OpenMP.
 #include "core/parallel.hpp"
 
 #include <omp.h>

@@ -1,3 +1,5 @@
+// The one reader of small text files (core/text_file.hpp): size checked before reading, errors
+// naming the file and what it is.
 #include "core/text_file.hpp"
 
 #include <fcntl.h>

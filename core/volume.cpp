@@ -1,3 +1,5 @@
+// The volume types (core/volume.hpp): checked allocation sizes, geometry text, voxel type names,
+// AnyVolume's accessors and conversions to float and mask.
 #include "core/volume.hpp"
 #include "core/volume_view.hpp"
 

@@ -1,3 +1,5 @@
+// Window statistics for local thresholds (methods/integral.hpp): running sums for box mean and
+// standard deviation, slice by slice (SliceMoments), box min/max, Gaussian mean.
 #include "methods/integral.hpp"
 
 #include <omp.h>

@@ -1,3 +1,5 @@
+// Shared pore extraction (methods/pores.hpp): air below a threshold, air connected to the border or
+// to the outside of the ROI removed, small pores dropped.
 #include "methods/pores.hpp"
 
 #include <vector>
