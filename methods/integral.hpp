@@ -73,7 +73,11 @@ LocalAir local_air(const std::string& method, const MethodInput& in, const std::
 // ROI: what the method takes from the whole volume comes from `all` (statistics of every voxel) and
 // `hist` (their histograms, for the grey range); the air slices go to `out` in z order, a batch at
 // a time (z0, n slices, n * nx * ny bytes), the same voxels as local_air on the volume in memory.
-// Returns what it chose and its warnings (air empty). Methods: sauvola; InputError for the others.
+// Returns what it chose and its warnings (air empty). Methods: those of the window mean and std
+// that need nothing else of the whole volume (local_method_by_slices); InputError for the others
+// (wolf needs a first pass for its largest std, bernsen and local-gaussian other window filters).
+constexpr const char* kLocalMethodsBySlices = "niblack, sauvola, phansalkar and local-mean";
+bool local_method_by_slices(const std::string& method);
 using AirOut = std::function<void(int64_t z0, int64_t n, const uint8_t* air)>;
 LocalAir local_air_by_slices(const std::string& method, const ParamValues& p, const Geometry& g, const Stats& all,
                              const HistogramOf& hist, const SliceOf& slice, const AirOut& out);

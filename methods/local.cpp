@@ -184,27 +184,21 @@ MethodInfo local_info(std::string name, std::string doc, std::string citation, s
   return m;
 }
 
-// ---- niblack ------------------------------------------------------------------------------------
-MethodInfo niblack_info() {
-  return local_info(
-      "niblack", "Niblack: T = m - k*s from the window mean m and standard deviation s (scikit-image's sign)",
-      "Niblack W. (1986) An Introduction to Digital Image Processing. Prentice-Hall, pp. 115-116",
-      {{"k", ParamType::Float, "0.2", -1, 1, {}, "",
-        "weight of the window std; Niblack's T = m + k's with k' = -0.2 is k = 0.2 here"}},
-      [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("niblack", in.volume.geometry(), p);
-        const double k = p.num("k");
-        Context c = context(in, 0, false);
-        LocalAir out;
-        if (!constant_volume(in, c, out))
-          out = finish(air_from_moments(in, w, c.all.mean, [k](double m, double s) { return m - k * s; }), c);
-        out.chosen = {{"window", double(w)}, {"k", k}};
-        return out;
-      });
+// ---- the moments rules ---------------------------------------------------------------------------
+// Each method of the window mean (and std) derives its threshold rule from its parameters and the
+// context, hands it to use(rule) unless the volume is constant (no rule is derived then), and
+// returns its chosen values. The in-memory path (air_from_moments) and the slab path
+// (local_air_by_slices) share them, so both answer the same.
+using Chosen = std::vector<std::pair<std::string, double>>;
+
+template <class Use>
+Chosen niblack_rule(int64_t w, const ParamValues& p, Context&, bool constant, Use&& use) {
+  const double k = p.num("k");
+  if (!constant) use([k](double m, double s) { return m - k * s; });
+  return {{"window", double(w)}, {"k", k}};
 }
 
-// ---- sauvola ------------------------------------------------------------------------------------
-// T = m (1 + k (s/R - 1)).
+// Sauvola: T = m (1 + k (s/R - 1)).
 struct SauvolaRule {
   double k, r;
   double operator()(double m, double s) const { return m * (1 + k * (s / r - 1)); }
@@ -212,16 +206,85 @@ struct SauvolaRule {
 
 // R = r, or (r = 0) half the grey range (hi - lo)/2, or half the whole volume's range when that is 0;
 // a warning for grey values below 0.
-SauvolaRule sauvola_rule(const ParamValues& p, Context& c) {
-  double r = p.num("r");
-  if (r == 0) r = 0.5 * (c.hi - c.lo);
-  if (!(r > 0)) r = 0.5 * (c.all.max - c.all.min);  // ROI constant: fall back to the whole volume
-  if (c.lo < 0)
-    c.warnings.push_back("grey values below 0 (low " + format_number(c.lo, 8) +
-                         "): Sauvola's T = m(1 + k(s/R - 1)) assumes non-negative grey values");
-  return {p.num("k"), r};
+template <class Use>
+Chosen sauvola_rule(int64_t w, const ParamValues& p, Context& c, bool constant, Use&& use) {
+  SauvolaRule rule{p.num("k"), p.num("r")};
+  if (!constant) {
+    if (rule.r == 0) rule.r = 0.5 * (c.hi - c.lo);
+    if (!(rule.r > 0)) rule.r = 0.5 * (c.all.max - c.all.min);  // ROI constant: fall back to the whole volume
+    if (c.lo < 0)
+      c.warnings.push_back("grey values below 0 (low " + format_number(c.lo, 8) +
+                           "): Sauvola's T = m(1 + k(s/R - 1)) assumes non-negative grey values");
+    use(rule);
+  }
+  return {{"window", double(w)}, {"k", rule.k}, {"r", rule.r}};
 }
 
+// Phansalkar on grey values normalised by the ROI grey range (the whole range when that is 0).
+template <class Use>
+Chosen phansalkar_rule(int64_t w, const ParamValues& p, Context& c, bool constant, Use&& use) {
+  const double k = p.num("k"), pp = p.num("p"), q = p.num("q"), r = p.num("r");
+  if (!constant) {
+    if (!(c.hi > c.lo)) {
+      c.lo = c.all.min;
+      c.hi = c.all.max;
+    }
+    const double lo = c.lo, span = c.hi - c.lo;
+    use([=](double m, double s) {
+      const double mn = (m - lo) / span, sn = s / span;
+      return lo + span * mn * (1 + pp * std::exp(-q * mn) + k * (sn / r - 1));
+    });
+  }
+  return {{"window", double(w)}, {"k", k}, {"p", pp}, {"q", q}, {"r", r}, {"grey_lo", c.lo}, {"grey_hi", c.hi}};
+}
+
+template <class Use>
+Chosen local_mean_rule(int64_t w, const ParamValues& p, Context&, bool constant, Use&& use) {
+  const double off = p.num("offset");
+  if (!constant) use([off](double m) { return m - off; });
+  return {{"window", double(w)}, {"offset", off}};
+}
+
+// The rules by method name (the methods of local_method_by_slices); false for any other.
+template <class Use>
+bool moments_rule(const std::string& method, int64_t w, const ParamValues& p, Context& c, bool constant, Use&& use,
+                  Chosen& chosen) {
+  if (method == "niblack") chosen = niblack_rule(w, p, c, constant, use);
+  else if (method == "sauvola") chosen = sauvola_rule(w, p, c, constant, use);
+  else if (method == "phansalkar") chosen = phansalkar_rule(w, p, c, constant, use);
+  else if (method == "local-mean") chosen = local_mean_rule(w, p, c, constant, use);
+  else return false;
+  return true;
+}
+
+// Whether a moments method takes the grey range of the ROI (with its clip_pct).
+bool moments_rule_needs_range(const std::string& method) { return method == "sauvola" || method == "phansalkar"; }
+
+// A moments method on a volume in memory.
+LocalAir moments_local_air(const std::string& method, const MethodInput& in, const ParamValues& p) {
+  const int64_t w = checked_window(method, in.volume.geometry(), p);
+  const bool range = moments_rule_needs_range(method);
+  Context c = context(in, range ? p.num("clip_pct") : 0, range);
+  LocalAir out;
+  const bool constant = constant_volume(in, c, out);
+  Chosen chosen;
+  moments_rule(method, w, p, c, constant, [&](auto rule) { out = finish(air_from_moments(in, w, c.all.mean, rule), c); },
+               chosen);
+  out.chosen = std::move(chosen);
+  return out;
+}
+
+// ---- niblack ------------------------------------------------------------------------------------
+MethodInfo niblack_info() {
+  return local_info(
+      "niblack", "Niblack: T = m - k*s from the window mean m and standard deviation s (scikit-image's sign)",
+      "Niblack W. (1986) An Introduction to Digital Image Processing. Prentice-Hall, pp. 115-116",
+      {{"k", ParamType::Float, "0.2", -1, 1, {}, "",
+        "weight of the window std; Niblack's T = m + k's with k' = -0.2 is k = 0.2 here"}},
+      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("niblack", in, p); });
+}
+
+// ---- sauvola ------------------------------------------------------------------------------------
 MethodInfo sauvola_info() {
   return local_info(
       "sauvola",
@@ -233,18 +296,7 @@ MethodInfo sauvola_info() {
         "R in grey units; 0 = half the grey range (hi - lo)/2 of the ROI voxels. Note: scikit-image's default "
         "for float images is 1 (half the float dtype range -1..1), not data-derived"},
        clip_param()},
-      [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("sauvola", in.volume.geometry(), p);
-        Context c = context(in, p.num("clip_pct"), true);
-        LocalAir out;
-        SauvolaRule rule{p.num("k"), p.num("r")};
-        if (!constant_volume(in, c, out)) {
-          rule = sauvola_rule(p, c);
-          out = finish(air_from_moments(in, w, c.all.mean, rule), c);
-        }
-        out.chosen = {{"window", double(w)}, {"k", rule.k}, {"r", rule.r}};
-        return out;
-      });
+      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("sauvola", in, p); });
 }
 
 // ---- phansalkar ---------------------------------------------------------------------------------
@@ -259,26 +311,7 @@ MethodInfo phansalkar_info() {
        {"q", ParamType::Float, "10", 0, 100, {}, "", "decay of the exponential term (paper 10)"},
        {"r", ParamType::Float, "0.5", 1e-6, 1, {}, "normalised grey", "R on the normalised scale (paper 0.5)"},
        clip_param()},
-      [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("phansalkar", in.volume.geometry(), p);
-        const double k = p.num("k"), pp = p.num("p"), q = p.num("q"), r = p.num("r");
-        Context c = context(in, p.num("clip_pct"), true);
-        LocalAir out;
-        if (!constant_volume(in, c, out)) {
-          if (!(c.hi > c.lo)) {
-            c.lo = c.all.min;
-            c.hi = c.all.max;
-          }
-          const double lo = c.lo, span = c.hi - c.lo;
-          out = finish(air_from_moments(in, w, c.all.mean, [=](double m, double s) {
-                         const double mn = (m - lo) / span, sn = s / span;
-                         return lo + span * mn * (1 + pp * std::exp(-q * mn) + k * (sn / r - 1));
-                       }), c);
-        }
-        out.chosen = {{"window", double(w)}, {"k", k}, {"p", pp}, {"q", q}, {"r", r},
-                      {"grey_lo", c.lo}, {"grey_hi", c.hi}};
-        return out;
-      });
+      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("phansalkar", in, p); });
 }
 
 // ---- wolf ---------------------------------------------------------------------------------------
@@ -368,16 +401,7 @@ MethodInfo local_mean_info() {
       {{"offset", ParamType::Float, "0", -3.4e38, 3.4e38, {}, "grey",
         "a voxel is air when darker than its window mean by more than offset (at 0 about half of a noisy "
         "uniform material is below its mean: take a few noise sigmas)"}},
-      [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("local-mean", in.volume.geometry(), p);
-        const double off = p.num("offset");
-        Context c = context(in, 0, false);
-        LocalAir out;
-        if (!constant_volume(in, c, out))
-          out = finish(air_from_moments(in, w, c.all.mean, [off](double m) { return m - off; }), c);
-        out.chosen = {{"window", double(w)}, {"offset", off}};
-        return out;
-      });
+      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("local-mean", in, p); });
 }
 
 MethodInfo local_gaussian_info() {
@@ -424,31 +448,36 @@ LocalAir local_air(const std::string& method, const MethodInput& in, const std::
   return it->second(in, parse_params(m, key_values));
 }
 
+bool local_method_by_slices(const std::string& method) {
+  return method == "niblack" || method == "sauvola" || method == "phansalkar" || method == "local-mean";
+}
+
 LocalAir local_air_by_slices(const std::string& method, const ParamValues& p, const Geometry& g, const Stats& all,
                              const HistogramOf& hist, const SliceOf& slice, const AirOut& out) {
-  if (method != "sauvola")
-    throw InputError("method " + method + " is not read by slabs (of the local methods, sauvola is)");
+  if (!local_method_by_slices(method))
+    throw InputError("method " + method + " is not read by slabs (of the local methods, " + kLocalMethodsBySlices +
+                     " are)");
   const int64_t w = checked_window(method, g, p);
   Context c = context_start(all);
-  const GreyRange range = grey_range(all, p.num("clip_pct"), hist);
-  c.lo = range.lo;
-  c.hi = range.hi;
-  SauvolaRule rule{p.num("k"), p.num("r")};
+  if (moments_rule_needs_range(method)) {
+    const GreyRange range = grey_range(all, p.num("clip_pct"), hist);
+    c.lo = range.lo;
+    c.hi = range.hi;
+  }
   std::vector<uint8_t> buf;
   auto dest = [&](int64_t, int64_t n) {
     buf.assign(size_t(n * g.slice_voxels()), 0);
     return buf.data();
   };
+  const bool constant = !(c.all.max > c.all.min);
   LocalAir res;
-  if (c.all.max > c.all.min) {
-    rule = sauvola_rule(p, c);
-    moments_air(g, slice, nullptr, w, c.all.mean, rule, dest, out);
-  } else {  // constant volume (as constant_volume): no air
+  moments_rule(method, w, p, c, constant,
+               [&](auto rule) { moments_air(g, slice, nullptr, w, c.all.mean, rule, dest, out); }, res.chosen);
+  if (constant) {  // as constant_volume: no air
     c.warnings.push_back("constant volume (every voxel " + format_number(c.all.min, 8) + "): no local contrast, no pores");
     for (int64_t z = 0; z < g.dims[2]; ++z) out(z, 1, dest(z, 1));
   }
   res.warnings = std::move(c.warnings);
-  res.chosen = {{"window", double(w)}, {"k", rule.k}, {"r", rule.r}};
   return res;
 }
 

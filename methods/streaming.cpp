@@ -335,8 +335,9 @@ std::string slab_refusal_of_method(const std::string& method, bool roi) {
   for (size_t i = 0; i + 1 < parts.size(); ++i)
     if (parts[i] != "median") return "pre-filter " + parts[i] + " is not applied by slabs (median is)";
   const std::string& base = parts.back();
-  if (!histogram_decider(base) && base != "sauvola")
-    return "method " + base + " does not run by slabs (the histogram methods and sauvola do)";
+  if (!histogram_decider(base) && !local_method_by_slices(base))
+    return "method " + base + " does not run by slabs (the histogram methods and, of the local methods, " +
+           kLocalMethodsBySlices + " do)";
   if (roi) return "an ROI (--roi) is not read by slabs";
   return "";
 }
@@ -414,7 +415,7 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
     mask = finish_pores(air, base, output, slab, "threshold " + format_number(c.threshold, 6), method, r);
     r.chosen.insert(r.chosen.begin() + 1, d.chosen.begin(), d.chosen.end());
   } else {
-    // sauvola: the window asks slices in z order, at most window + 2 batches behind the furthest.
+    // a local method: the window asks slices in z order, at most window + 2 batches behind the furthest.
     const int64_t w = base.integer("window");
     SliceRing ring(*src, std::min<int64_t>(slab, 8), w + 2 * 8 + 2);
     LocalAir a = local_air_by_slices(parts.back(), base, g, sum.all, sum.hist, std::ref(ring),

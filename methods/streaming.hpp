@@ -6,15 +6,16 @@
 //     histogram the method asks for is exact; float volumes: a statistics pass and a histogram
 //     pass), then air below the threshold by slabs;
 //   - pre-filter median (FILTER+METHOD): each slab is filtered with a halo of the window radius;
-//   - sauvola: the window sums run through the slices in z order over a ring of window + batch
-//     slices (methods/integral.hpp);
+//   - the local methods of the window mean and std (niblack, sauvola, phansalkar, local-mean): the
+//     window sums run through the slices in z order over a ring of window + batch slices
+//     (methods/integral.hpp);
 //   - pore extraction: the runs of the air mask of every slab, united across the slab faces
 //     (core/components.hpp RunCollector), so a pore that crosses a face is one pore;
 //   - the mask written by slabs (temporary name, renamed when complete).
-// What does not stream: an ROI (part mask), the other local methods (niblack ... local-gaussian),
+// What does not stream: an ROI (part mask), the other local methods (wolf, bernsen, local-gaussian),
 // the other pre-filters, neural methods and predictions; above the memory limit they are refused.
-// Bit identity holds for integer volumes (uint8, uint16, int16); for float32 volumes sauvola's
-// centring mean is summed in another order and may differ in its last bits.
+// Bit identity holds for integer volumes (uint8, uint16, int16); for float32 volumes the local
+// methods' centring mean is summed in another order and may differ in its last bits.
 #include <cstdint>
 #include <functional>
 #include <string>

@@ -108,6 +108,10 @@ TEST_CASE("slab segmentation equals the in-memory path, every streaming method f
       {"median+otsu", {"median.radius=2"}},
       {"sauvola", {"window=7"}},
       {"sauvola", {"window=9", "k=0.3", "clip_pct=2", "min_pore_voxels=3"}},
+      {"niblack", {"window=7", "k=0.5"}},
+      {"phansalkar", {"window=9"}},
+      {"phansalkar", {"window=7", "clip_pct=1", "k=0.4"}},
+      {"local-mean", {"window=7", "offset=30"}},
   };
   for (const Case& c : cases)
     for (int64_t slab : {1, 3, 7, 29}) {
@@ -202,10 +206,10 @@ TEST_CASE("segment refuses what cannot stream above --memory-limit, naming file,
   const Geometry g = geometry(24, 20, 18);
   write_volume(part_volume<uint16_t>(g, 3), d / "scan.mha");
   SECTION("a method that does not stream") {
-    const auto r = pbtest::run_cli("segment niblack " + d / "scan.mha" + " -o " + d / "p.mha" + " --memory-limit 4K");
+    const auto r = pbtest::run_cli("segment wolf " + d / "scan.mha" + " -o " + d / "p.mha" + " --memory-limit 4K");
     CHECK(r.exit_code == 2);
     CHECK_THAT(r.err, Catch::Contains(d / "scan.mha") && Catch::Contains("24 x 20 x 18 voxels of uint16, 17280 bytes") &&
-                          Catch::Contains("--memory-limit 4096 bytes") && Catch::Contains("method niblack"));
+                          Catch::Contains("--memory-limit 4096 bytes") && Catch::Contains("method wolf"));
     CHECK_FALSE(pbtest::fs::exists(d / "p.mha"));
   }
   SECTION("a compressed input") {
