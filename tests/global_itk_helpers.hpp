@@ -4,11 +4,17 @@
 // spanning [i - 1/2, i + 1/2), so that ITK's GetMeasurement(i) (a bin centre) is the index i; its
 // calculators return the centre of the last bin of the dark class, i.e. that bin index.
 #include <itkHistogram.h>
+#include <itkHuangThresholdCalculator.h>
 #include <itkIntermodesThresholdCalculator.h>
+#include <itkKittlerIllingworthThresholdCalculator.h>
+#include <itkMaximumEntropyThresholdCalculator.h>
+#include <itkMomentsThresholdCalculator.h>
 
 #include <algorithm>
 #include <cmath>
+#include <tuple>
 #include <type_traits>
+#include <vector>
 
 #include "core/histogram.hpp"
 
@@ -39,6 +45,21 @@ int itk_split(const pb::Histogram& h, bool intermode = true) {
   c->SetInput(ih);
   c->Update();
   return int(std::lround(c->GetThreshold()));
+}
+
+// For each global method with an ITK 5.2 calculator (source: ITK 5.2 itk::*ThresholdCalculator,
+// ports of ImageJ's auto-threshold methods): (method, our split bin, ITK's split bin). ours(name)
+// gives our split bin for the method `name`.
+template <class Ours>
+std::vector<std::tuple<const char*, int, int>> itk_split_cases(const pb::Histogram& h, Ours ours) {
+  return {
+      {"huang", ours("huang"), itk_split<itk::HuangThresholdCalculator<ItkHistogram, double>>(h)},
+      {"kittler-illingworth", ours("kittler-illingworth"),
+       itk_split<itk::KittlerIllingworthThresholdCalculator<ItkHistogram, double>>(h)},
+      {"kapur", ours("kapur"), itk_split<itk::MaximumEntropyThresholdCalculator<ItkHistogram, double>>(h)},
+      {"moments", ours("moments"), itk_split<itk::MomentsThresholdCalculator<ItkHistogram, double>>(h)},
+      {"intermodes", ours("intermodes"), itk_split<itk::IntermodesThresholdCalculator<ItkHistogram, double>>(h)},
+  };
 }
 
 // Occupied bins in (min(a, b), max(a, b)]: the voxels' bins on which two splits disagree.

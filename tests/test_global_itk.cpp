@@ -28,14 +28,7 @@ TEST_CASE("global thresholds agree with ITK's histogram threshold calculators wi
     const Histogram h = full_histogram(v);
     auto ours = [&](const char* m) { return split_index(h, chosen(run_named(m, v), "threshold")); };
     // Source: ITK 5.2 itk::*ThresholdCalculator (ports of ImageJ's auto-threshold methods).
-    const std::vector<std::tuple<const char*, int, int>> cases = {
-        {"huang", ours("huang"), itk_split<itk::HuangThresholdCalculator<ItkHistogram, double>>(h)},
-        {"kittler-illingworth", ours("kittler-illingworth"),
-         itk_split<itk::KittlerIllingworthThresholdCalculator<ItkHistogram, double>>(h)},
-        {"kapur", ours("kapur"), itk_split<itk::MaximumEntropyThresholdCalculator<ItkHistogram, double>>(h)},
-        {"moments", ours("moments"), itk_split<itk::MomentsThresholdCalculator<ItkHistogram, double>>(h)},
-        {"intermodes", ours("intermodes"), itk_split<itk::IntermodesThresholdCalculator<ItkHistogram, double>>(h, true)},
-    };
+    const auto cases = itk_split_cases(h, ours);
     for (const auto& [m, k_ours, k_itk] : cases) {
       INFO(m << ": our split bin " << k_ours << ", ITK's " << k_itk);
       if (std::string(m) == "kittler-illingworth" && name == "low-porosity") {

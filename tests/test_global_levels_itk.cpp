@@ -142,14 +142,7 @@ TEST_CASE("histogram methods agree with scikit-image and ITK at bins = levels - 
       // Source: ITK 5.2 itk::*ThresholdCalculator (ports of ImageJ's auto-threshold methods) on
       // our histogram; within one occupied bin, as in test_global_itk.cpp.
       auto split = [&](const char* m) { return split_index(h, ours(m)); };
-      const std::vector<std::tuple<const char*, int, int>> cases = {
-          {"huang", split("huang"), itk_split<itk::HuangThresholdCalculator<ItkHistogram, double>>(h)},
-          {"kittler-illingworth", split("kittler-illingworth"),
-           itk_split<itk::KittlerIllingworthThresholdCalculator<ItkHistogram, double>>(h)},
-          {"kapur", split("kapur"), itk_split<itk::MaximumEntropyThresholdCalculator<ItkHistogram, double>>(h)},
-          {"moments", split("moments"), itk_split<itk::MomentsThresholdCalculator<ItkHistogram, double>>(h)},
-          {"intermodes", split("intermodes"), itk_split<itk::IntermodesThresholdCalculator<ItkHistogram, double>>(h)},
-      };
+      const auto cases = itk_split_cases(h, split);
       for (const auto& [m, k_ours, k_itk] : cases) {
         INFO(m << ": our split bin " << k_ours << ", ITK's " << k_itk);
         if (std::string(m) == "kittler-illingworth" && occupied_between(h, k_ours, k_itk) > 1) {
