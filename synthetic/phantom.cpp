@@ -11,10 +11,51 @@
 #include <iomanip>
 #include <sstream>
 
+#include "core/cpu.hpp"
 #include "core/error.hpp"
 #include "core/format.hpp"
 
 namespace pb::synth {
+
+Mt19937_64::Mt19937_64(uint64_t seed) {
+  x_[0] = seed;  // [rand.eng.mers]: x_i = f (x_{i-1} xor (x_{i-1} >> (w - 2))) + i, f = 6364136223846793005
+  for (size_t i = 1; i < kWords; ++i) x_[i] = 6364136223846793005ULL * (x_[i - 1] ^ (x_[i - 1] >> 62)) + i;
+}
+
+namespace {
+// The generation step of [rand.eng.mers] for w = 64, n = 312, m = 156, r = 31,
+// a = 0xb5026f5aa96619e9: word k takes the upper bit of x_k and the lower 31 of x_{k+1}, shifted,
+// xor a when odd, xor x_{k+m}. The first n - m words read only old words, the rest new ones at
+// distance n - m: both loops vectorise.
+inline __attribute__((always_inline)) void mt_refill(uint64_t* x) {
+  constexpr size_t n = Mt19937_64::kWords, m = 156;
+  constexpr uint64_t upper = ~uint64_t(0) << 31, lower = ~upper, a = 0xb5026f5aa96619e9ULL;
+  for (size_t k = 0; k < n - m; ++k) {
+    const uint64_t y = (x[k] & upper) | (x[k + 1] & lower);
+    x[k] = x[k + m] ^ (y >> 1) ^ ((0 - (y & 1)) & a);
+  }
+  for (size_t k = n - m; k < n - 1; ++k) {
+    const uint64_t y = (x[k] & upper) | (x[k + 1] & lower);
+    x[k] = x[k + m - n] ^ (y >> 1) ^ ((0 - (y & 1)) & a);
+  }
+  const uint64_t y = (x[n - 1] & upper) | (x[0] & lower);
+  x[n - 1] = x[m - 1] ^ (y >> 1) ^ ((0 - (y & 1)) & a);
+}
+#if defined(__x86_64__) && defined(__GNUC__)
+__attribute__((target("avx2"))) void mt_refill_avx2(uint64_t* x) { mt_refill(x); }
+#endif
+void mt_refill_generic(uint64_t* x) { mt_refill(x); }
+}  // namespace
+
+void Mt19937_64::refill() {
+#if defined(__x86_64__) && defined(__GNUC__)
+  static const bool avx2 = simd_level() != Simd::generic;
+  if (avx2) mt_refill_avx2(x_);
+  else
+#endif
+    mt_refill_generic(x_);
+  i_ = 0;
+}
 
 double Rng::normal() {
   // Box-Muller (Box & Muller 1958, Ann. Math. Statist. 29:610); one value per call.

@@ -171,7 +171,10 @@ nlohmann::ordered_json write_synth(const Recipe& r, const std::string& dir, cons
     for (size_t j = 0; j < it->second.size(); ++j) {
       const ScanSpec& sp = specs[it->second[j]];
       const std::string name = sp.file_name(dose_series);
-      write_volume(stored_scan(vols[j], r), path(name), wo);
+      // float32: the scan itself (no copy); uint16: converted; either way released once written.
+      if (r.output_type == "float32") write_volume(vols[j], path(name), wo);
+      else write_volume(stored_scan(vols[j], r), path(name), wo);
+      vols[j] = VolumeF();
       nlohmann::ordered_json extra{{"projections", sp.projections}, {"i0", sp.i0}, {"arc_deg", r.arc_deg},
                                    {"voxel_type", r.output_type}};
       if (r.output_type == "uint16") {
