@@ -306,31 +306,53 @@ Mask consensus_reference(const DatasetSpec& d, const VolumeF& ref_scan, const Ma
 
 }  // namespace
 
-void parse_paired_dataset(const toml::table& t, const std::string& base, const std::string& where, const FailAt& fail,
-                          DatasetSpec& d) {
-  static const std::vector<std::string> keys = {"name", "kind", "scan", "scans", "reference_mask", "reference_label",
-                                                "reference_scan", "reference_method", "reference_params", "part_mask",
-                                                "projections", "reference_projections", "raw", "spacing_mm", "align",
-                                                "reference_consensus", "reference_resample"};
-  if (const auto u = first_unknown_key(t, keys))
-    fail(u->where, "unknown key '" + u->key + "' in " + where + (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
-  d.kind = DatasetSpec::paired;
-  // The older form's geometry for the scan and the reference scan (both files).
+namespace {
+
+// The older form's geometry (spacing_mm, raw) given once for the scan and the reference scan:
+// into d.read. Returns the node that gave it (its source for later messages), nullptr if none.
+const toml::node* parse_shared_geometry(const toml::table& t, const std::string& base, const std::string& where,
+                                        const FailAt& fail, DatasetSpec& d) {
   const toml::node* dsp = t.get("spacing_mm");
   const toml::node* draw = t.get("raw");
-  if (dsp || draw) {
-    toml::table g;
-    g.insert("path", "dataset-level");
-    if (dsp) dsp->is_array() ? g.insert("spacing_mm", *dsp->as_array()) : g.insert("spacing_mm", "not a list");
-    if (draw) draw->is_table() ? g.insert("raw", *draw->as_table()) : g.insert("raw", "not a table");
-    try {
-      d.read = parse_file_entry(g, base, where, false).read;
-    } catch (const InputError& e) {
-      fail((dsp ? dsp : draw)->source(), e.what());
+  if (!dsp && !draw) return nullptr;
+  toml::table g;
+  g.insert("path", "dataset-level");
+  if (dsp) dsp->is_array() ? g.insert("spacing_mm", *dsp->as_array()) : g.insert("spacing_mm", "not a list");
+  if (draw) draw->is_table() ? g.insert("raw", *draw->as_table()) : g.insert("raw", "not a table");
+  try {
+    d.read = parse_file_entry(g, base, where, false).read;
+  } catch (const InputError& e) {
+    fail((dsp ? dsp : draw)->source(), e.what());
+  }
+  return dsp ? dsp : draw;
+}
+
+// reference_params: one "key=value" string or a list of them, checked against reference_method.
+void parse_reference_params(const toml::table& t, const std::string& where, const FailAt& fail, DatasetSpec& d) {
+  if (const toml::node* n = t.get("reference_params")) {
+    if (n->is_string()) d.reference_params.push_back(std::string(*n->value<std::string_view>()));
+    else if (const toml::array* a = n->as_array()) {
+      for (const auto& e : *a) {
+        if (!e.is_string()) fail(e.source(), where + ": 'reference_params' entries are strings \"key=value\"");
+        d.reference_params.push_back(std::string(*e.value<std::string_view>()));
+      }
+    } else {
+      fail(n->source(), where + ": 'reference_params' must be a list of \"key=value\" strings");
     }
   }
-  const bool shared_geometry = dsp || draw;
-  // The reference.
+  if (!d.reference_method.empty()) {
+    try {
+      parse_params(Registry::instance().get(d.reference_method), d.reference_params);
+    } catch (const InputError& e) {
+      fail(t.get("reference_method")->source(), where + ": reference_method '" + d.reference_method + "': " + e.what());
+    }
+  }
+}
+
+// The reference: a mask, or a scan with the method (or the consensus of raters) that segments it;
+// its resampling, label and projections, and the part mask. Returns whether it is a scan.
+bool parse_reference(const toml::table& t, const std::string& base, const std::string& where, const FailAt& fail,
+                     bool shared_geometry, DatasetSpec& d) {
   const bool has_mask = t.get("reference_mask"), has_scan = t.get("reference_scan");
   if (has_mask == has_scan) fail(t.source(), where + ": give exactly one of 'reference_mask' and 'reference_scan'");
   const std::string rkey = has_scan ? "reference_scan" : "reference_mask";
@@ -356,24 +378,7 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
                              "'reference_consensus' (several methods, combined by STAPLE)");
   if (!has_scan && !d.reference_method.empty())
     fail(t.get("reference_method")->source(), where + ": 'reference_method' is for a 'reference_scan'; a reference_mask is used as it is");
-  if (const toml::node* n = t.get("reference_params")) {
-    if (n->is_string()) d.reference_params.push_back(std::string(*n->value<std::string_view>()));
-    else if (const toml::array* a = n->as_array()) {
-      for (const auto& e : *a) {
-        if (!e.is_string()) fail(e.source(), where + ": 'reference_params' entries are strings \"key=value\"");
-        d.reference_params.push_back(std::string(*e.value<std::string_view>()));
-      }
-    } else {
-      fail(n->source(), where + ": 'reference_params' must be a list of \"key=value\" strings");
-    }
-  }
-  if (!d.reference_method.empty()) {
-    try {
-      parse_params(Registry::instance().get(d.reference_method), d.reference_params);
-    } catch (const InputError& e) {
-      fail(t.get("reference_method")->source(), where + ": reference_method '" + d.reference_method + "': " + e.what());
-    }
-  }
+  parse_reference_params(t, where, fail, d);
   if (const toml::node* n = t.get("reference_resample")) {
     d.reference_resample = str_at(t, "reference_resample", where, fail);
     if (d.reference_resample != "grey" && d.reference_resample != "mask")
@@ -387,20 +392,86 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
   d.reference_projections = int_at(t, "reference_projections", where, fail, 0, 1000000, 0);
   d.part_file = file_at(t, "part_mask", base, where, fail);
   d.part_mask = d.part_file.path;
-  // align: the dataset's default, each scan may set its own.
-  std::string align = has_scan ? "auto" : "none";
-  if (t.get("align")) align = str_at(t, "align", where, fail);
-  auto check_align = [&](const std::string& a, const toml::node& at, const std::string& w) {
-    try {
-      const AlignMode m = parse_align_mode(a, w);
-      if (m != AlignMode::none && !has_scan)
-        fail(at.source(), w + ": align = \"" + a + "\" needs a 'reference_scan': a reference mask alone cannot be registered (align = \"none\")");
-    } catch (const InputError& e) {
-      fail(at.source(), e.what());
+  return has_scan;
+}
+
+// An align value `a` given at `at` (in `w`): a known mode, and none without a reference scan.
+void check_align(const std::string& a, const toml::node& at, const std::string& w, bool has_scan, const FailAt& fail) {
+  try {
+    const AlignMode m = parse_align_mode(a, w);
+    if (m != AlignMode::none && !has_scan)
+      fail(at.source(), w + ": align = \"" + a + "\" needs a 'reference_scan': a reference mask alone cannot be registered (align = \"none\")");
+  } catch (const InputError& e) {
+    fail(at.source(), e.what());
+  }
+}
+
+// A scan entry's i0 (exposure or dose, > 0) and i0_unit (a short unit name, only with i0).
+void parse_i0(const toml::table& st, const std::string& w, const FailAt& fail, PairedScanSpec& s) {
+  if (const toml::node* n = st.get("i0")) {
+    const auto v = n->value<double>();
+    if (!v || !(*v > 0) || !std::isfinite(*v)) fail(n->source(), w + ": 'i0' (exposure or dose) must be a positive number");
+    s.i0 = *v;
+  }
+  if (const toml::node* n = st.get("i0_unit")) {
+    const std::string u = str_at(st, "i0_unit", w, fail);
+    const auto b = u.find_first_not_of(" \t"), e2 = u.find_last_not_of(" \t");
+    s.i0_unit = b == std::string::npos ? "" : u.substr(b, e2 - b + 1);
+    if (s.i0_unit.empty())
+      fail(n->source(), w + ": 'i0_unit' = '" + u + "' is empty: name the unit of 'i0' (e.g. \"mAs\") or leave the key out");
+    if (s.i0_unit.size() > 32 || std::any_of(s.i0_unit.begin(), s.i0_unit.end(), [](unsigned char c) { return c < 0x20 || c == 0x7f; }))
+      fail(n->source(), w + ": 'i0_unit' = '" + s.i0_unit + "' must be a short unit name (at most 32 characters, no control characters)");
+    if (!st.get("i0")) fail(n->source(), w + ": 'i0_unit' = '" + s.i0_unit + "' without 'i0' (the exposure or dose it is the unit of)");
+  }
+}
+
+// Entry i (0-based) of 'scans', after the entries already in d.scans: its file, projections,
+// label (unique in the dataset, a file token), i0 (one unit across the dataset), align or transform.
+PairedScanSpec parse_scan_entry(const toml::node& e, size_t i, const std::string& base, const std::string& where,
+                                const FailAt& fail, const std::string& align, bool has_scan, const DatasetSpec& d,
+                                std::set<std::string>& labels) {
+  const std::string w = where + " scans[" + std::to_string(i + 1) + "]";
+  PairedScanSpec s;
+  try {
+    s.file = parse_file_entry(e, base, w, false, {"label", "projections", "i0", "i0_unit", "align", "transform"});
+  } catch (const InputError& err) {
+    fail(e.source(), err.what());
+  }
+  s.file.where = w;
+  s.align = align;
+  if (const toml::table* st = e.as_table()) {
+    s.projections = int_at(*st, "projections", w, fail, 0, 1000000, 0);
+    s.label = str_at(*st, "label", w, fail);
+    parse_i0(*st, w, fail, s);
+    if (const toml::node* n = st->get("align")) {
+      s.align = str_at(*st, "align", w, fail);
+      check_align(s.align, *n, w, has_scan, fail);
     }
-  };
-  if (const toml::node* n = t.get("align")) check_align(align, *n, where);
-  // The series.
+    if (const toml::node* n = st->get("transform")) {
+      if (st->get("align")) fail(n->source(), w + ": give 'align' or a known 'transform', not both");
+      s.transform = resolve(base, str_at(*st, "transform", w, fail));
+      s.align = "none";
+    }
+  }
+  if (s.label.empty()) s.label = s.projections > 0 ? "scan-" + std::to_string(s.projections) + "p" : "scan-" + std::to_string(i + 1);
+  if (file_token(s.label) != s.label)
+    fail(e.source(), w + ": label '" + s.label + "' must be letters, digits, '-', '_' or '.' (it names files)");
+  if (!labels.insert(s.label).second)
+    fail(e.source(), w + ": label '" + s.label + "' is used twice in the dataset (give each scan a 'label')");
+  s.file.where = "scans[" + std::to_string(i + 1) + "] (" + s.label + ", line " + std::to_string(e.source().begin.line) + ")";
+  // The dose axis has one unit: every scan that gives 'i0' gives the same 'i0_unit' (or none does).
+  if (s.i0 > 0)
+    for (const PairedScanSpec& o : d.scans)
+      if (o.i0 > 0 && o.i0_unit != s.i0_unit)
+        fail(e.source(), w + ": i0_unit = '" + s.i0_unit + "' but " + o.file.where + " has i0_unit = '" + o.i0_unit +
+                             "': the scans of a dataset share one unit of 'i0'");
+  return s;
+}
+
+// The series: one 'scan' (the older form, which may share the dataset-level geometry) or a list
+// 'scans' of file entries.
+void parse_series(const toml::table& t, const std::string& base, const std::string& where, const FailAt& fail,
+                  const toml::node* shared_at, const std::string& align, bool has_scan, DatasetSpec& d) {
   const toml::node* one = t.get("scan");
   const toml::node* many = t.get("scans");
   if (bool(one) == bool(many)) fail(t.source(), where + ": give exactly one of 'scans' (the fast scans, a list) and 'scan'");
@@ -408,7 +479,7 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
     PairedScanSpec s;
     s.label = "scan";
     s.file = file_at(t, "scan", base, where, fail);
-    if (shared_geometry) {
+    if (shared_at) {
       if (one->is_table())
         fail(one->source(), where + ": conflicting geometry: 'spacing_mm'/'raw' are given for the dataset and 'scan' is "
                                     "a table; give the geometry in each file entry");
@@ -420,69 +491,38 @@ void parse_paired_dataset(const toml::table& t, const std::string& base, const s
     d.scan = s.file.path;
     d.projections = s.projections;
     d.scans.push_back(s);
-  } else {
-    if (t.get("projections"))
-      fail(t.get("projections")->source(), where + ": 'projections' belongs to each entry of 'scans'");
-    if (shared_geometry)
-      fail((dsp ? dsp : draw)->source(), where + ": dataset-level 'spacing_mm'/'raw' go with 'scan'; with 'scans' give them in each entry");
-    const toml::array* a = many->as_array();
-    if (!a || a->empty()) fail(many->source(), where + ": 'scans' must be a non-empty list of file entries");
-    std::set<std::string> labels;
-    for (size_t i = 0; i < a->size(); ++i) {
-      const toml::node& e = *a->get(i);
-      const std::string w = where + " scans[" + std::to_string(i + 1) + "]";
-      PairedScanSpec s;
-      try {
-        s.file = parse_file_entry(e, base, w, false, {"label", "projections", "i0", "i0_unit", "align", "transform"});
-      } catch (const InputError& err) {
-        fail(e.source(), err.what());
-      }
-      s.file.where = w;
-      s.align = align;
-      if (const toml::table* st = e.as_table()) {
-        s.projections = int_at(*st, "projections", w, fail, 0, 1000000, 0);
-        s.label = str_at(*st, "label", w, fail);
-        if (const toml::node* n = st->get("i0")) {
-          const auto v = n->value<double>();
-          if (!v || !(*v > 0) || !std::isfinite(*v)) fail(n->source(), w + ": 'i0' (exposure or dose) must be a positive number");
-          s.i0 = *v;
-        }
-        if (const toml::node* n = st->get("i0_unit")) {
-          const std::string u = str_at(*st, "i0_unit", w, fail);
-          const auto b = u.find_first_not_of(" \t"), e2 = u.find_last_not_of(" \t");
-          s.i0_unit = b == std::string::npos ? "" : u.substr(b, e2 - b + 1);
-          if (s.i0_unit.empty())
-            fail(n->source(), w + ": 'i0_unit' = '" + u + "' is empty: name the unit of 'i0' (e.g. \"mAs\") or leave the key out");
-          if (s.i0_unit.size() > 32 || std::any_of(s.i0_unit.begin(), s.i0_unit.end(), [](unsigned char c) { return c < 0x20 || c == 0x7f; }))
-            fail(n->source(), w + ": 'i0_unit' = '" + s.i0_unit + "' must be a short unit name (at most 32 characters, no control characters)");
-          if (!st->get("i0")) fail(n->source(), w + ": 'i0_unit' = '" + s.i0_unit + "' without 'i0' (the exposure or dose it is the unit of)");
-        }
-        if (const toml::node* n = st->get("align")) {
-          s.align = str_at(*st, "align", w, fail);
-          check_align(s.align, *n, w);
-        }
-        if (const toml::node* n = st->get("transform")) {
-          if (st->get("align")) fail(n->source(), w + ": give 'align' or a known 'transform', not both");
-          s.transform = resolve(base, str_at(*st, "transform", w, fail));
-          s.align = "none";
-        }
-      }
-      if (s.label.empty()) s.label = s.projections > 0 ? "scan-" + std::to_string(s.projections) + "p" : "scan-" + std::to_string(i + 1);
-      if (file_token(s.label) != s.label)
-        fail(e.source(), w + ": label '" + s.label + "' must be letters, digits, '-', '_' or '.' (it names files)");
-      if (!labels.insert(s.label).second)
-        fail(e.source(), w + ": label '" + s.label + "' is used twice in the dataset (give each scan a 'label')");
-      s.file.where = "scans[" + std::to_string(i + 1) + "] (" + s.label + ", line " + std::to_string(e.source().begin.line) + ")";
-      // The dose axis has one unit: every scan that gives 'i0' gives the same 'i0_unit' (or none does).
-      if (s.i0 > 0)
-        for (const PairedScanSpec& o : d.scans)
-          if (o.i0 > 0 && o.i0_unit != s.i0_unit)
-            fail(e.source(), w + ": i0_unit = '" + s.i0_unit + "' but " + o.file.where + " has i0_unit = '" + o.i0_unit +
-                                 "': the scans of a dataset share one unit of 'i0'");
-      d.scans.push_back(s);
-    }
-    d.scan = d.scans.front().file.path;
+    return;
   }
+  if (t.get("projections"))
+    fail(t.get("projections")->source(), where + ": 'projections' belongs to each entry of 'scans'");
+  if (shared_at)
+    fail(shared_at->source(), where + ": dataset-level 'spacing_mm'/'raw' go with 'scan'; with 'scans' give them in each entry");
+  const toml::array* a = many->as_array();
+  if (!a || a->empty()) fail(many->source(), where + ": 'scans' must be a non-empty list of file entries");
+  std::set<std::string> labels;
+  for (size_t i = 0; i < a->size(); ++i)
+    d.scans.push_back(parse_scan_entry(*a->get(i), i, base, where, fail, align, has_scan, d, labels));
+  d.scan = d.scans.front().file.path;
+}
+
+}  // namespace
+
+void parse_paired_dataset(const toml::table& t, const std::string& base, const std::string& where, const FailAt& fail,
+                          DatasetSpec& d) {
+  static const std::vector<std::string> keys = {"name", "kind", "scan", "scans", "reference_mask", "reference_label",
+                                                "reference_scan", "reference_method", "reference_params", "part_mask",
+                                                "projections", "reference_projections", "raw", "spacing_mm", "align",
+                                                "reference_consensus", "reference_resample"};
+  if (const auto u = first_unknown_key(t, keys))
+    fail(u->where, "unknown key '" + u->key + "' in " + where + (u->near.empty() ? "" : " (did you mean '" + u->near + "'?)"));
+  d.kind = DatasetSpec::paired;
+  const toml::node* shared_at = parse_shared_geometry(t, base, where, fail, d);
+  const bool has_scan = parse_reference(t, base, where, fail, shared_at != nullptr, d);
+  // align: the dataset's default, each scan may set its own.
+  std::string align = has_scan ? "auto" : "none";
+  if (t.get("align")) align = str_at(t, "align", where, fail);
+  if (const toml::node* n = t.get("align")) check_align(align, *n, where, has_scan, fail);
+  parse_series(t, base, where, fail, shared_at, align, has_scan, d);
 }
 
 void preflight_paired(const DatasetSpec& d) {
