@@ -561,146 +561,186 @@ void describe_paired(const DatasetSpec& d, Dataset& p) {
   }
 }
 
+namespace {
+
+// A paired dataset's reference on its own grid, and what it takes to make it again elsewhere.
+struct PairedReference {
+  Mask part, pores;
+  VolumeF scan;  // the grey reference scan (empty for a reference mask)
+  VoxelType type = VoxelType::u8;
+  Json record;
+  Reapply reapply;     // the reference method made again on a fast grid (grey resampling)
+  ConsensusRule rule;  // or the consensus: its raters and STAPLE's fitted rule
+};
+
+// The reference, once: a mask as it is, or the high-quality scan segmented by the named method (or
+// by the consensus of raters); the part mask beside it.
+PairedReference make_reference(const DatasetSpec& d, const LogFn& log) {
+  PairedReference r;
+  AnyVolume ref_any = read_volume(d.reference_file.path, d.reference_file.read);
+  if (!d.part_file.path.empty()) {
+    const AnyVolume pm = read_volume(d.part_file.path, d.part_file.read);
+    check_same_geometry(ref_any.geometry(), d.reference_file.path, pm.geometry(), d.part_file.path);
+    r.part = pm.to_mask();
+  }
+  if (!d.reference_mask.empty()) {
+    r.pores = d.reference_label >= 0 ? ref_any.to_mask(d.reference_label) : ref_any.to_mask();
+    r.record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", file_sha256(d.reference_mask)},
+                {"grid", describe(ref_any.geometry())}};
+  } else if (!d.reference_consensus.empty()) {
+    r.scan = ref_any.to_float();
+    r.pores = consensus_reference(d, r.scan, r.part.empty() ? nullptr : &r.part, ref_any.type(), r.record, r.rule, log);
+    r.record["grid"] = describe(ref_any.geometry());
+  } else {
+    const MethodInfo& m = Registry::instance().get(d.reference_method);
+    const ParamValues pv = parse_params(m, d.reference_params);
+    r.scan = ref_any.to_float();
+    if (log) log("dataset '" + d.name + "': segmenting the reference scan " + d.reference_scan + " once (" + m.name + ")");
+    const MethodOutput out = run_method(m, pv, MethodInput{r.scan, r.part.empty() ? nullptr : &r.part, ref_any.type()});
+    r.pores = out.pores;
+    Json chosen = Json::object();
+    for (const auto& [k, v] : out.chosen) chosen[k] = v;
+    r.reapply = reapply_for(m, pv, out);
+    r.record = {{"scan", d.reference_scan}, {"sha256", file_sha256(d.reference_scan)}, {"method", m.name},
+                {"params", pv.text()}, {"chosen", chosen}, {"projections", d.reference_projections},
+                {"grid", describe(ref_any.geometry())}};
+  }
+  r.type = ref_any.type();
+  return r;
+}
+
+// What a fast scan on another grid or pose gets: the grey reference resampled and segmented there
+// as on the reference grid, or (reference_resample = "mask", a reference mask, a predictions
+// method) the reference pores by nearest neighbour. Sets the record's "resample"; returns whether
+// grey, with `grey_text` saying how the pores are made from the resampled grey scan.
+bool resample_rule(const DatasetSpec& d, PairedReference& r, std::string& grey_text) {
+  const bool grey = d.reference_resample == "grey" && (r.reapply.info || r.rule.possible());
+  std::string how;  // how the pores are made on a fast grid from the resampled grey scan
+  if (grey && r.reapply.info) {
+    how = r.reapply.text;
+  } else if (grey) {
+    how = "each rater made again there (";
+    for (size_t i = 0; i < r.rule.raters.size(); ++i) how += (i ? "; " : "") + r.rule.raters[i].text;
+    how += "), fused by STAPLE's rule (W >= 0.5) with the sensitivities, specificities and prior estimated on the "
+           "reference grid";
+  }
+  grey_text = "grey resampled (linear), " + how;
+  if (grey)
+    r.record["resample"] = "grey: the reference scan resampled linearly onto each fast scan's grid where it differs, " + how;
+  else if (d.reference_resample == "grey")
+    r.record["resample"] = std::string("mask: nearest neighbour (the reference method reads files made elsewhere: it "
+                                       "cannot be made again on a resampled scan)");
+  else
+    r.record["resample"] = "mask: nearest neighbour (reference_resample = \"mask\")";
+  return grey;
+}
+
+// The reference pores made again from the grey reference resampled onto `in`'s grid: the
+// reference method, or each rater fused by STAPLE's rule.
+Mask reference_pores_again(const PairedReference& r, const MethodInput& in) {
+  if (r.reapply.info) return run_method(*r.reapply.info, r.reapply.params, in).pores;
+  std::vector<Mask> masks;
+  std::vector<const Mask*> ptrs;
+  for (const Reapply& x : r.rule.raters) masks.push_back(run_method(*x.info, x.params, in).pores);
+  for (const Mask& m : masks) ptrs.push_back(&m);
+  return staple_fuse(ptrs, r.rule.sensitivity, r.rule.specificity, r.rule.prior, r.rule.threshold);
+}
+
+// What prepare_variant shares across the fast scans of one dataset.
+struct VariantContext {
+  const DatasetSpec& d;
+  const PairedReference& ref;
+  bool grey;
+  const std::string& grey_text;
+  const Calibration& c;
+  const fs::path& dir;
+  const std::string& token;
+  const LogFn& log;
+};
+
+// One fast scan: the reference brought onto its grid (files, split, montage slices) and its record;
+// a registration that fails (does not converge, too few markers) fails this scan's cells with the
+// reason, the other scans go on. The first scan that aligns gives the dataset its split.
+Json prepare_variant(Dataset& p, Variant& v, const PairedScanSpec& s, const VariantContext& x, bool& first) {
+  const DatasetSpec& d = x.d;
+  const PairedReference& r = x.ref;
+  const AnyVolume fa = read_volume(v.path, v.read);
+  const VolumeF fast = fa.to_float();
+  const Geometry& fg = fast.geometry();
+  const AlignMode mode = parse_align_mode(s.align, s.file.where);
+  Json rec = {{"scan", v.scan}, {"path", v.path}, {"sha256", file_sha256(v.path)}, {"grid", describe(fg)},
+              {"projections", v.projections}, {"i0", v.i0}, {"i0_unit", s.i0_unit}, {"reference", false},
+              {"reference_projections", v.reference_projections}, {"reference_i0", v.reference_i0}};
+  const std::string png = "data/" + x.token + "/montage-" + file_token(v.scan) + ".png";
+  const std::string ref_png = "data/" + x.token + "/montage-reference-" + file_token(v.scan) + ".png";
+  const Stats st = compute_stats(fast);
+  try {
+    AlignedReference a =
+        s.transform.empty() ? align_reference(mode, fast, v.path, r.scan.empty() ? nullptr : &r.scan,
+                                              d.reference_file.path, r.pores)
+                            : apply_known_transform(fast, r.pores, read_transform_json(s.transform), s.transform);
+    const bool moved = !(same_grid(r.pores.geometry(), fg) && mode == AlignMode::none && s.transform.empty());
+    Mask part_here;
+    if (!r.part.empty()) {
+      part_here = moved ? resample_nearest(r.part, fg, a.T) : r.part;
+      write_volume(part_here, v.part_mask_path, {true});
+    }
+    if (moved && x.grey) {  // grey resampling: thin voids survive a sub-voxel re-mount
+      const VolumeF grey_here = resample_linear(r.scan, fg, a.T);
+      a.pores = reference_pores_again(r, MethodInput{grey_here, part_here.empty() ? nullptr : &part_here, r.type});
+      if (!a.record.contains("resampled") || !a.record["resampled"].is_object())
+        a.record["resampled"] = {{"grid", "the fast scan's"}};
+      a.record["resampled"]["mask"] = x.grey_text;
+    }
+    write_volume(a.pores, v.ref_mask_path, {true});
+    v.split = split_slices(p.name + "' scan '" + v.scan, r.part.empty() ? nullptr : &part_here, a.pores, x.c);
+    rec["alignment"] = a.record;
+    rec["warnings"] = a.warnings;
+    for (const auto& w : a.warnings)
+      if (x.log) x.log("warning: dataset '" + d.name + "', scan '" + v.scan + "': " + w);
+    rec["slices"] = {{"calibration", {v.split.cal_begin, v.split.cal_end}}, {"gap", x.c.gap_slices},
+                     {"test", {v.split.test_begin, v.split.test_end}}, {"montage_z", v.split.montage_z}};
+    write_mask_png(a.pores, v.split.montage_z, (x.dir / ref_png).string());
+    if (first) {  // the dataset's split and montage slice, as for synthetic data: the first scan's
+      p.cal_begin = v.split.cal_begin, p.cal_end = v.split.cal_end, p.test_begin = v.split.test_begin;
+      p.test_end = v.split.test_end, p.montage_z = v.split.montage_z;
+      p.record["slices"] = rec["slices"];
+      p.record["montage_reference_png"] = ref_png;
+      first = false;
+    }
+  } catch (const InputError& e) {
+    v.error = std::string("registration failed (align = \"") + align_mode_name(mode) + "\"): " + e.what();
+    v.split.montage_z = fg.dims[2] / 2;
+    rec["alignment"] = {{"align", align_mode_name(mode)}, {"error", v.error}};
+    rec["error"] = v.error;
+    if (x.log) x.log("error: dataset '" + d.name + "', scan '" + v.scan + "': " + v.error);
+    write_mask_png(Mask(fg), v.split.montage_z, (x.dir / ref_png).string());
+  }
+  write_slice_png(fast, v.split.montage_z, st.min, st.max, (x.dir / png).string());
+  rec["montage_png"] = png;
+  rec["montage_reference_png"] = ref_png;
+  return rec;
+}
+
+}  // namespace
+
 void prepare_paired(Dataset& p, const Calibration& c, const std::string& out_dir, const LogFn& log) {
   const DatasetSpec& d = *p.spec;
   fs::create_directories(p.data_dir);
   const fs::path dir(out_dir);
   const std::string token = file_token(p.name);
-  // The reference, once: a mask as it is, or the high-quality scan segmented by the named method.
-  AnyVolume ref_any = read_volume(d.reference_file.path, d.reference_file.read);
-  Mask part;
-  if (!d.part_file.path.empty()) {
-    const AnyVolume pm = read_volume(d.part_file.path, d.part_file.read);
-    check_same_geometry(ref_any.geometry(), d.reference_file.path, pm.geometry(), d.part_file.path);
-    part = pm.to_mask();
-  }
-  Mask ref_pores;
-  VolumeF ref_scan;
-  Json ref_record;
-  Reapply reapply;     // the reference method made again on a fast grid (grey resampling)
-  ConsensusRule rule;  // or the consensus: its raters and STAPLE's fitted rule
-  if (!d.reference_mask.empty()) {
-    ref_pores = d.reference_label >= 0 ? ref_any.to_mask(d.reference_label) : ref_any.to_mask();
-    ref_record = {{"mask", d.reference_mask}, {"label", d.reference_label}, {"sha256", file_sha256(d.reference_mask)},
-                  {"grid", describe(ref_any.geometry())}};
-  } else if (!d.reference_consensus.empty()) {
-    ref_scan = ref_any.to_float();
-    ref_pores = consensus_reference(d, ref_scan, part.empty() ? nullptr : &part, ref_any.type(), ref_record, rule, log);
-    ref_record["grid"] = describe(ref_any.geometry());
-  } else {
-    const MethodInfo& m = Registry::instance().get(d.reference_method);
-    const ParamValues pv = parse_params(m, d.reference_params);
-    ref_scan = ref_any.to_float();
-    if (log) log("dataset '" + d.name + "': segmenting the reference scan " + d.reference_scan + " once (" + m.name + ")");
-    const MethodOutput out = run_method(m, pv, MethodInput{ref_scan, part.empty() ? nullptr : &part, ref_any.type()});
-    ref_pores = out.pores;
-    Json chosen = Json::object();
-    for (const auto& [k, v] : out.chosen) chosen[k] = v;
-    reapply = reapply_for(m, pv, out);
-    ref_record = {{"scan", d.reference_scan}, {"sha256", file_sha256(d.reference_scan)}, {"method", m.name},
-                  {"params", pv.text()}, {"chosen", chosen}, {"projections", d.reference_projections},
-                  {"grid", describe(ref_any.geometry())}};
-  }
-  const VoxelType ref_type = ref_any.type();
-  ref_any = AnyVolume();
-  write_volume(ref_pores, p.ref_mask_path, {true});
-  // What a fast scan on another grid or pose gets: the grey reference resampled and segmented there
-  // as on the reference grid, or (reference_resample = "mask", a reference mask, a predictions
-  // method) the reference pores by nearest neighbour.
-  const bool grey = d.reference_resample == "grey" && (reapply.info || rule.possible());
-  std::string how;  // how the pores are made on a fast grid from the resampled grey scan
-  if (grey && reapply.info) {
-    how = reapply.text;
-  } else if (grey) {
-    how = "each rater made again there (";
-    for (size_t i = 0; i < rule.raters.size(); ++i) how += (i ? "; " : "") + rule.raters[i].text;
-    how += "), fused by STAPLE's rule (W >= 0.5) with the sensitivities, specificities and prior estimated on the "
-           "reference grid";
-  }
-  const std::string grey_text = "grey resampled (linear), " + how;
-  if (grey)
-    ref_record["resample"] = "grey: the reference scan resampled linearly onto each fast scan's grid where it differs, " + how;
-  else if (d.reference_resample == "grey")
-    ref_record["resample"] = std::string("mask: nearest neighbour (the reference method reads files made elsewhere: it "
-                                         "cannot be made again on a resampled scan)");
-  else
-    ref_record["resample"] = "mask: nearest neighbour (reference_resample = \"mask\")";
+  PairedReference ref = make_reference(d, log);
+  write_volume(ref.pores, p.ref_mask_path, {true});
+  std::string grey_text;
+  const bool grey = resample_rule(d, ref, grey_text);
   // Each fast scan: the reference brought onto its grid, its own split and montage slice.
+  const VariantContext x{d, ref, grey, grey_text, c, dir, token, log};
   Json variants = Json::array();
   bool first = true;
-  for (auto& v : p.variants) {
-    const PairedScanSpec& s = d.scans[size_t(&v - p.variants.data())];
-    const AnyVolume fa = read_volume(v.path, v.read);
-    const VolumeF fast = fa.to_float();
-    const Geometry& fg = fast.geometry();
-    const AlignMode mode = parse_align_mode(s.align, s.file.where);
-    Json rec = {{"scan", v.scan}, {"path", v.path}, {"sha256", file_sha256(v.path)}, {"grid", describe(fg)},
-                {"projections", v.projections}, {"i0", v.i0}, {"i0_unit", s.i0_unit}, {"reference", false},
-                {"reference_projections", v.reference_projections}, {"reference_i0", v.reference_i0}};
-    const std::string png = "data/" + token + "/montage-" + file_token(v.scan) + ".png";
-    const std::string ref_png = "data/" + token + "/montage-reference-" + file_token(v.scan) + ".png";
-    const Stats st = compute_stats(fast);
-    try {
-      AlignedReference a =
-          s.transform.empty() ? align_reference(mode, fast, v.path, ref_scan.empty() ? nullptr : &ref_scan,
-                                                d.reference_file.path, ref_pores)
-                              : apply_known_transform(fast, ref_pores, read_transform_json(s.transform), s.transform);
-      const bool moved = !(same_grid(ref_pores.geometry(), fg) && mode == AlignMode::none && s.transform.empty());
-      Mask part_here;
-      if (!part.empty()) {
-        part_here = moved ? resample_nearest(part, fg, a.T) : part;
-        write_volume(part_here, v.part_mask_path, {true});
-      }
-      if (moved && grey) {  // grey resampling: thin voids survive a sub-voxel re-mount
-        const VolumeF grey_here = resample_linear(ref_scan, fg, a.T);
-        const MethodInput in{grey_here, part_here.empty() ? nullptr : &part_here, ref_type};
-        if (reapply.info) {
-          a.pores = run_method(*reapply.info, reapply.params, in).pores;
-        } else {
-          std::vector<Mask> masks;
-          std::vector<const Mask*> ptrs;
-          for (const Reapply& r : rule.raters) masks.push_back(run_method(*r.info, r.params, in).pores);
-          for (const Mask& m : masks) ptrs.push_back(&m);
-          a.pores = staple_fuse(ptrs, rule.sensitivity, rule.specificity, rule.prior, rule.threshold);
-        }
-        if (!a.record.contains("resampled") || !a.record["resampled"].is_object())
-          a.record["resampled"] = {{"grid", "the fast scan's"}};
-        a.record["resampled"]["mask"] = grey_text;
-      }
-      write_volume(a.pores, v.ref_mask_path, {true});
-      v.split = split_slices(p.name + "' scan '" + v.scan, part.empty() ? nullptr : &part_here, a.pores, c);
-      rec["alignment"] = a.record;
-      rec["warnings"] = a.warnings;
-      for (const auto& w : a.warnings)
-        if (log) log("warning: dataset '" + d.name + "', scan '" + v.scan + "': " + w);
-      rec["slices"] = {{"calibration", {v.split.cal_begin, v.split.cal_end}}, {"gap", c.gap_slices},
-                       {"test", {v.split.test_begin, v.split.test_end}}, {"montage_z", v.split.montage_z}};
-      write_mask_png(a.pores, v.split.montage_z, (dir / ref_png).string());
-      if (first) {  // the dataset's split and montage slice, as for synthetic data: the first scan's
-        p.cal_begin = v.split.cal_begin, p.cal_end = v.split.cal_end, p.test_begin = v.split.test_begin;
-        p.test_end = v.split.test_end, p.montage_z = v.split.montage_z;
-        p.record["slices"] = rec["slices"];
-        p.record["montage_reference_png"] = ref_png;
-        first = false;
-      }
-    } catch (const InputError& e) {
-      // A registration that fails (does not converge, too few markers): this scan's cells fail
-      // with the reason; the other scans go on.
-      v.error = std::string("registration failed (align = \"") + align_mode_name(mode) + "\"): " + e.what();
-      v.split.montage_z = fg.dims[2] / 2;
-      rec["alignment"] = {{"align", align_mode_name(mode)}, {"error", v.error}};
-      rec["error"] = v.error;
-      if (log) log("error: dataset '" + d.name + "', scan '" + v.scan + "': " + v.error);
-      write_mask_png(Mask(fg), v.split.montage_z, (dir / ref_png).string());
-    }
-    write_slice_png(fast, v.split.montage_z, st.min, st.max, (dir / png).string());
-    rec["montage_png"] = png;
-    rec["montage_reference_png"] = ref_png;
-    variants.push_back(rec);
-  }
+  for (auto& v : p.variants) variants.push_back(prepare_variant(p, v, d.scans[size_t(&v - p.variants.data())], x, first));
   std::string i0_unit;  // one per dataset (parse_paired_dataset): the series axis unit
   for (const auto& s : d.scans) if (!s.i0_unit.empty()) i0_unit = s.i0_unit;
-  Json rec = {{"name", d.name}, {"kind", "paired"}, {"i0_unit", i0_unit}, {"reference", ref_record}, {"part_mask", d.part_mask},
+  Json rec = {{"name", d.name}, {"kind", "paired"}, {"i0_unit", i0_unit}, {"reference", ref.record}, {"part_mask", d.part_mask},
               {"scan", d.scan}, {"scan_sha256", file_sha256(d.scan)}, {"grid", "each scan's own (the reference resampled onto it)"}};
   for (auto it = p.record.begin(); it != p.record.end(); ++it) rec[it.key()] = it.value();
   if (!rec.contains("slices")) {  // every registration failed
