@@ -39,6 +39,9 @@
 #include "core/pyramid.hpp"
 #include "core/registration.hpp"
 
+static_assert(EIGEN_VERSION_AT_LEAST(3, 4, 0),
+              "ITK's headers must take the system's Eigen, as the rest of porebench (ITK_USE_SYSTEM_EIGEN, CMakeLists.txt)");
+
 namespace pb {
 
 namespace {
