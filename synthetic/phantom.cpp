@@ -69,34 +69,26 @@ Rng::PoissonMean::PoissonMean(double mean) : lam(mean) {
     limit = std::exp(-lam);
     return;
   }
-  slam = std::sqrt(lam);
-  b = 0.931 + 2.53 * slam, a = -0.059 + 0.02483 * b;
-  invalpha = 1.1239 + 1.1328 / (b - 3.4), vr = 0.9277 - 3.6224 / (b - 2);
+  b = 0.931 + 2.53 * std::sqrt(lam), a = -0.059 + 0.02483 * b;
+  vr = 0.9277 - 3.6224 / (b - 2);
 }
 
 int64_t Rng::poisson(double lam) { return poisson(PoissonMean(lam)); }
 
-int64_t Rng::poisson(const PoissonMean& m) {
-  const double lam = m.lam;
-  if (lam <= 0) return 0;
-  if (lam < 10) {
-    double prod = uniform();
-    int64_t k = 0;
-    while (prod > m.limit) {
-      prod *= uniform();
-      ++k;
-    }
-    return k;
+int64_t Rng::poisson_below_10(const PoissonMean& m) {
+  if (m.lam <= 0) return 0;
+  double prod = uniform();
+  int64_t k = 0;
+  while (prod > m.limit) {
+    prod *= uniform();
+    ++k;
   }
-  const double b = m.b, a = m.a;
-  for (;;) {
-    const double U = uniform() - 0.5, V = uniform(), us = 0.5 - std::abs(U);
-    const double k = std::floor((2 * a / us + b) * U + lam + 0.43);
-    if (us >= 0.07 && V <= m.vr) return int64_t(k);
-    if (k < 0 || (us < 0.013 && V > us)) continue;
-    if (std::log(V) + std::log(m.invalpha) - std::log(a / (us * us) + b) <= -lam + k * std::log(lam) - std::lgamma(k + 1))
-      return int64_t(k);
-  }
+  return k;
+}
+
+bool Rng::ptrs_accept(const PoissonMean& m, double V, double us, double k) {
+  const double lam = m.lam, a = m.a, b = m.b, invalpha = 1.1239 + 1.1328 / (b - 3.4);
+  return std::log(V) + std::log(invalpha) - std::log(a / (us * us) + b) <= -lam + k * std::log(lam) - std::lgamma(k + 1);
 }
 
 uint64_t mix_seed(uint64_t seed, uint64_t stream) {

@@ -6,6 +6,7 @@
 // mm, origin at the volume centre, z = part axis = rotation axis = build direction.
 // Truth labels: 0 background (air, open pores, markers), 1 material, 2 closed pore.
 #include <array>
+#include <cmath>
 #include <random>
 #include <string>
 #include <vector>
@@ -131,16 +132,33 @@ struct Rng {
   // The same draws with the per-mean constants taken once (PoissonMean): a caller drawing many
   // counts of one mean (the air around a part) reuses them.
   struct PoissonMean;
-  int64_t poisson(const PoissonMean& m);
+  inline int64_t poisson(const PoissonMean& m);
   Mt19937_64 g;
+
+ private:
+  int64_t poisson_below_10(const PoissonMean& m);
+  static bool ptrs_accept(const PoissonMean& m, double V, double us, double k);
 };
 
-// The constants Rng::poisson derives from its mean: exp(-mean) below 10, PTRS's b, a, 1/alpha and
-// v_r above (the logs of the rare squeeze test are taken only when it runs).
+// The constants Rng::poisson derives from its mean: exp(-mean) below 10, PTRS's b, a and v_r above
+// (1/alpha and the logs of the rare squeeze test are taken only when it runs).
 struct Rng::PoissonMean {
   explicit PoissonMean(double mean);
-  double lam, limit = 0, slam = 0, b = 0, a = 0, invalpha = 0, vr = 0;
+  double lam, limit = 0, b = 0, a = 0, vr = 0;
 };
+
+// PTRS's fast acceptance inline (the scan simulation draws hundreds of millions of counts); the
+// rest out of line.
+int64_t Rng::poisson(const PoissonMean& m) {
+  if (m.lam < 10) return poisson_below_10(m);
+  for (;;) {
+    const double U = uniform() - 0.5, V = uniform(), us = 0.5 - std::abs(U);
+    const double k = std::floor((2 * m.a / us + m.b) * U + m.lam + 0.43);
+    if (us >= 0.07 && V <= m.vr) return int64_t(k);
+    if (k < 0 || (us < 0.013 && V > us)) continue;
+    if (ptrs_accept(m, V, us, k)) return int64_t(k);
+  }
+}
 
 // A seed for stream `stream` of a run seeded with `seed` (SplitMix64 mixing).
 uint64_t mix_seed(uint64_t seed, uint64_t stream);
