@@ -177,7 +177,8 @@ int kill_after_cells(const std::string& args, const fs::path& dir, int cells) {
     int n = 0;
     std::error_code ec;
     if (fs::exists(dir / "cells"))
-      for (auto& e : fs::directory_iterator(dir / "cells", ec)) n += e.path().extension() == ".json";
+      for (auto& e : fs::directory_iterator(dir / "cells", ec))  // committed cells only: a cell being
+        n += e.path().extension() == ".json" && e.path().filename().string()[0] != '.';  // written is .NAME.partial-*.json
     return n;
   };
   while (count_cells() < cells && std::chrono::steady_clock::now() - t0 < std::chrono::seconds(120))
