@@ -36,7 +36,7 @@ logs=$PWD/build-asan/sanitizer-logs
 rm -rf "$logs" && mkdir -p "$logs"
 export ASAN_OPTIONS=detect_leaks=1:abort_on_error=1:strict_string_checks=1:log_path=$logs/asan
 export UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1:suppressions=$PWD/fuzz/ubsan.supp:log_path=$logs/ubsan
-export LSAN_OPTIONS=suppressions=$PWD/fuzz/lsan.supp
+export LSAN_OPTIONS=suppressions=$PWD/fuzz/lsan.supp:print_suppressions=0
 PB_ASAN_EXCLUDE=${PB_ASAN_EXCLUDE:-'committed reference|reference run|install_consumer'}
 status=0
 (cd build-asan && ctest -j"$jobs" --output-on-failure -E "$PB_ASAN_EXCLUDE") || status=1
