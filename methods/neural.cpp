@@ -101,7 +101,7 @@ ModelCard parse_model_card(const std::string& text, const std::string& path) {
   Json j;
   try {
     j = Json::parse(text);
-  } catch (const Json::parse_error& e) {
+  } catch (const Json::exception& e) {  // parse_error, and out_of_range for a number past double (1E400)
     throw InputError("model card " + path + ": not valid JSON: " + e.what());
   }
   const CardReader r{path};
