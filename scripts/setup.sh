@@ -9,7 +9,7 @@ build=(cmake g++ make pkg-config zlib1g-dev
        libssl-dev libtorch-dev
        pybind11-dev python3-dev python3-numpy)  # the Python module (python/), built for /usr/bin/python3
 tests=(python3-skimage python3-scipy python3-sklearn python3-statsmodels python3-pandas python3-numpy python3-markdown chromium
-       python3-torch clang libfuzzer-14-dev libomp-dev  # clang, libFuzzer, OpenMP for clang: fuzz/ci.sh
+       python3-torch clang libfuzzer-14-dev libclang-rt-14-dev libomp-dev  # clang, libFuzzer, sanitizer runtimes, OpenMP for clang: fuzz/ci.sh
        slurm-wlm munge)  # a single-node Slurm for tests/slurm (shards as a job array)
 want=("${build[@]}")
 if [ "${1:-}" = "--list" ]; then echo "${build[*]} ${tests[*]}"; exit 0; fi
