@@ -15,7 +15,6 @@ predicted pore count and the load average before and after. Exit 0 when every ra
 import argparse
 import json
 import os
-import re
 import subprocess
 import sys
 import tempfile
@@ -23,6 +22,7 @@ import tempfile
 import numpy as np
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "peers"))
+import peerlib  # noqa: E402
 from score_pair import make_pair  # noqa: E402
 
 
@@ -36,24 +36,13 @@ def write_mha(path, a):
         f.write(np.ascontiguousarray(a, dtype=np.uint8).tobytes())
 
 
-def load():
-    return os.getloadavg()[0]
-
-
 def run(cli, threads, d, tag):
     out = os.path.join(d, f"{tag}.json")
-    cmd = ["/usr/bin/time", "-v", cli, "--quiet", "--threads", str(threads), "score", "--pred", f"{d}/{tag}_pred.mha",
-           "--ref", f"{d}/ref.mha", "--roi", f"{d}/part.mha", "--json", out]
-    p = subprocess.run(cmd, capture_output=True, text=True)
-    if p.returncode != 0:
-        sys.exit(f"{' '.join(cmd)} failed ({p.returncode}):\n{p.stderr}")
-    field = lambda name: re.search(re.escape(name) + r": (.*)", p.stderr).group(1)
-    rss_kb = int(field("Maximum resident set size (kbytes)"))
-    wall = field("Elapsed (wall clock) time (h:mm:ss or m:ss)")
-    cpu = float(field("User time (seconds)")) + float(field("System time (seconds)"))
+    t = peerlib.time_v([cli, "--quiet", "--threads", str(threads), "score", "--pred", f"{d}/{tag}_pred.mha",
+                        "--ref", f"{d}/ref.mha", "--roi", f"{d}/part.mha", "--json", out])
     with open(out) as f:
         rec = json.load(f)
-    return rss_kb, wall, cpu, rec["pores"]["pores_pred"]
+    return t["rss"] // 1024, t["wall"], t["cpu"], rec["pores"]["pores_pred"]
 
 
 def main():
@@ -76,13 +65,13 @@ def main():
     inputs = 3 * a.n ** 3
     ok = True
     for tag in ("clean", "noisy"):
-        l0 = load()
+        l0 = peerlib.load()
         rss_kb, wall, cpu, pores = run(a.cli, a.threads, d, tag)
         ratio = rss_kb * 1024 / inputs
         ok = ok and ratio <= 2
         print(f"{tag} {a.n}^3, {a.threads} threads: peak RSS {rss_kb / 1024:.0f} MiB, inputs {inputs / 2**20:.0f} MiB, "
-              f"ratio {ratio:.2f} (goal <= 2); wall {wall}, CPU {cpu:.2f} s; predicted pores {pores}; "
-              f"load {l0:.2f} -> {load():.2f}")
+              f"ratio {ratio:.2f} (goal <= 2); wall {wall:.2f} s, CPU {cpu:.2f} s; predicted pores {pores}; "
+              f"load {l0:.2f} -> {peerlib.load():.2f}")
     if not a.keep:
         subprocess.run(["rm", "-rf", d])
     return 0 if ok else 1

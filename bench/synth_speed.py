@@ -18,10 +18,8 @@ the wall ratio is >= 3; 1 otherwise; 3 when a ratio was refused.
 import argparse
 import json
 import os
-import re
 import shutil
 import statistics
-import subprocess
 import sys
 import tempfile
 
@@ -31,18 +29,11 @@ import peerlib  # noqa: E402
 
 def run(cli, args, out):
     shutil.rmtree(out, ignore_errors=True)
-    cmd = ["/usr/bin/time", "-v", cli, "--quiet", "--threads", str(args.threads), "synth", "--preset", "gear-blank",
+    cmd = [cli, "--quiet", "--threads", str(args.threads), "synth", "--preset", "gear-blank",
            "--set", f"phantom.dims={args.n},{args.n},{args.n}", "--projections", str(args.projections), "-o", out]
     load_before = peerlib.load()
-    p = subprocess.run(cmd, capture_output=True, text=True)
-    if p.returncode != 0:
-        sys.exit(f"{' '.join(cmd)} failed ({p.returncode}):\n{p.stderr}")
-    field = lambda name: re.search(re.escape(name) + r": (.*)", p.stderr).group(1)
-    wall_text = field("Elapsed (wall clock) time (h:mm:ss or m:ss)")
-    parts = [float(x) for x in wall_text.split(":")]
-    wall = sum(v * 60 ** i for i, v in enumerate(reversed(parts)))
-    cpu = float(field("User time (seconds)")) + float(field("System time (seconds)"))
-    rss = int(field("Maximum resident set size (kbytes)")) * 1024
+    t = peerlib.time_v(cmd)
+    wall, cpu, rss = t["wall"], t["cpu"], t["rss"]
     with open(os.path.join(out, "manifest.json")) as f:
         files = {e["file"]: e["sha256"] for e in json.load(f)["files"]}
     volumes = [os.path.getsize(os.path.join(out, n)) for n in files if n.endswith(".mha")]

@@ -9,10 +9,12 @@ is refused (printed as such, exit status 3) rather than printed as if it were a 
 Every report line carries the load average (1 min) before and after.
 
 Used by: bench_ratio.py, ccl_vs_scipy.py, sauvola_vs_skimage.py, otsu_vs_itk.sh, score_python_vs_cli.sh
-(which also calls settle_memory before every timed run).
+(which also calls settle_memory before every timed run); bench/score_rss.py and bench/synth_speed.py
+(time_v: one command under /usr/bin/time -v).
 """
 import json
 import os
+import re
 import statistics
 import subprocess
 import time
@@ -26,6 +28,22 @@ _SCALE = {"ns": 1e-9, "us": 1e-6, "ms": 1e-3, "s": 1.0}
 def load():
     """The 1-minute load average."""
     return os.getloadavg()[0]
+
+
+def time_v(cmd):
+    """Runs cmd (a list) under GNU time's verbose mode; exits naming the command if it fails.
+    Returns {"wall": s, "cpu": user + system s, "rss": peak resident bytes} (fields as GNU time
+    prints them: "Elapsed (wall clock) time (h:mm:ss or m:ss)", "Maximum resident set size (kbytes)")."""
+    p = subprocess.run(["/usr/bin/time", "-v"] + list(cmd), capture_output=True, text=True)
+    if p.returncode != 0:
+        raise SystemExit(f"{' '.join(cmd)} failed ({p.returncode}):\n{p.stderr}")
+
+    def field(name):
+        return re.search(re.escape(name) + r": (.*)", p.stderr).group(1)
+    parts = [float(x) for x in field("Elapsed (wall clock) time (h:mm:ss or m:ss)").split(":")]
+    return {"wall": sum(v * 60 ** i for i, v in enumerate(reversed(parts))),
+            "cpu": float(field("User time (seconds)")) + float(field("System time (seconds)")),
+            "rss": int(field("Maximum resident set size (kbytes)")) * 1024}
 
 
 def wall(f):
