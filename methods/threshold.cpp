@@ -6,7 +6,6 @@
 
 #include <cmath>
 #include <map>
-#include <memory>
 
 #include "core/error.hpp"
 #include "core/format.hpp"
@@ -63,29 +62,16 @@ Histogram method_histogram(const Stats& s, bool roi, VoxelType stored_type, cons
   return hist(lo, hi, bins);
 }
 
-namespace {
-
-// What a histogram method reads of its volume in memory: the statistics of the voxels that form its
-// histogram now, and a read per histogram asked for (so Otsu reads the volume three times: stats,
-// histogram, comparison). One read counting every grey level (LevelCounts) gives both exactly for
-// integer data, but on this machine it is the slower of the two in memory (Otsu on 512^3 uint16:
-// 126 vs 97 ms, BM_OtsuBinariseLevelCounts vs BM_OtsuBinarise, bench/README); the slab path uses
-// it, where each read is a pass over the file (methods/streaming.cpp).
-struct VoxelSummary {
-  Stats stats;
-  HistogramOf hist;
-};
-
-VoxelSummary summarise(const MethodInput& in, const uint8_t* roi) {
-  return {compute_stats(in.volume.data(), in.volume.size(), roi), histogram_of(in.volume, roi)};
-}
-
-}  // namespace
-
+// In memory a histogram method reads its volume for the statistics, then once per histogram asked
+// for (so Otsu reads it three times: stats, histogram, comparison). One read counting every grey
+// level (LevelCounts) gives both exactly for integer data, but on this machine it is the slower of
+// the two in memory (Otsu on 512^3 uint16: 128 vs 102 ms, BM_OtsuBinariseLevelCounts vs
+// BM_OtsuBinarise, bench/README); the slab path uses it, where each read is a pass over the file
+// (methods/streaming.cpp).
 Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
   const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
-  const VoxelSummary s = summarise(in, roi);
-  return method_histogram(s.stats, roi != nullptr, in.stored_type, p, s.hist);
+  return method_histogram(compute_stats(in.volume.data(), in.volume.size(), roi), roi != nullptr, in.stored_type, p,
+                          histogram_of(in.volume, roi));
 }
 
 bool single_occupied_bin(const Histogram& h) {

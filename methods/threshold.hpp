@@ -67,8 +67,8 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
 
 // The air mask of a histogram method, before pore extraction: its histogram, the calculator's
 // choice (a constant volume: the lowest grey, no air, with a warning) and air = v < threshold inside
-// the ROI. Reads integer data twice (grey-level counts, core/histogram.hpp LevelCounts; the
-// comparison), float data three times (stats, histogram, comparison).
+// the ROI. Reads the volume three times (stats, histogram, comparison; why not two: threshold.cpp's
+// method_histogram).
 struct ThresholdAir {
   Histogram histogram;
   ThresholdChoice choice;
