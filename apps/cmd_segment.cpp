@@ -53,7 +53,8 @@ void add_segment_options(CLI::App& app, Args& a) {
   app.add_option("--memory-limit", a.memory_limit,
                  "memory for the volume (bytes, or e.g. 12G): above it the volume is read and segmented by slabs, or "
                  "refused when the input or method cannot be (default: half the machine's memory)");
-  app.add_option("--slab-slices", a.slab_slices, "slices per slab when segmenting by slabs (default: about 256 MiB of voxels)")
+  app.add_option("--slab-slices", a.slab_slices, "slices per slab when segmenting by slabs (default: about 16 MiB of float voxels, at least 2 slices; "
+                 "raised to twice the halo a window filter reads, bernsen and local-gaussian: window/2)")
       ->check(CLI::Range(int64_t(1), int64_t(1) << 40));
   a.read.add_to(&app);
 }
@@ -78,24 +79,29 @@ void segment_file_by_slabs(const Args& a, const MethodInfo& m, const ParamValues
   if (a.compress) throw InputError("--compress: a mask written by slabs is uncompressed (" + a.output + ")");
   check_slab_output(a.output, "-o");
   const SlabFile in(a.input, ro);
-  const std::string sha = a.json.empty() ? std::string() : in.sha256();
+  std::optional<SlabFile> roi;  // checked by segment_by_slabs before any work (dims, not empty)
+  if (!a.roi.empty()) roi.emplace(a.roi, ReadOptions{});
   MethodOutput out;
-  // Both or neither, as in memory: the JSON goes to its temporary once the mask is written and
-  // before it is renamed; the JSON is renamed after it.
+  // Both or neither, as in memory: the JSON (with the input's SHA-256, one more pass over the file)
+  // goes to its temporary once the mask is written and before it is renamed; the JSON is renamed
+  // after it.
   std::optional<AtomicOutput> json_out;
   std::string json_text;
   SlabSegmentOptions so;
   so.slab_slices = a.slab_slices;
+  if (roi) so.roi = &*roi;
   so.before_commit = [&](const SlabSegmentResult& r) {
     out.chosen = r.chosen, out.warnings = r.warnings, out.part_voxels = r.part_voxels, out.runtime_s = r.runtime_s;
     if (a.json.empty()) return;
-    json_text = segment_record(m, params, out, in.geometry().voxels(), {a.input, sha, std::nullopt, a.output},
-                               r.pore_voxels).dump(2) + "\n";
+    SegmentRecordInputs io{a.input, in.sha256(), std::nullopt, a.output};
+    if (!a.roi.empty()) io.roi = a.roi;
+    json_text = segment_record(m, params, out, in.geometry().voxels(), io, r.pore_voxels).dump(2) + "\n";
     json_out.emplace(a.json);
     write_text_to(*json_out, json_text);
   };
   const SlabSegmentResult r = segment_by_slabs(a.method, params, in, a.output, so);
   if (json_out) json_out->commit(json_text.size());
+  if (!r.slab_note.empty()) log("porebench: " + r.slab_note);
   log("porebench: " + a.input + " segmented by slabs of " + std::to_string(r.slab_slices) + " slices (above --memory-limit)");
   print_summary(m, out, r.pore_voxels, a.output, a.json);
 }
@@ -157,7 +163,7 @@ Action setup_segment(CLI::App& app) {
     ReadOptions ro = a->read.options(a->input);
     ro.allow_nonfinite = ro.allow_nonfinite || a->allow_nan;
     const uint64_t limit = a->memory_limit.empty() ? default_memory_limit() : parse_memory_limit(a->memory_limit, "--memory-limit");
-    if (plan_segment(a->input, ro, a->method, !a->roi.empty(), limit).by_slabs)
+    if (plan_segment(a->input, ro, a->method, a->roi, limit).by_slabs)
       segment_file_by_slabs(*a, m, params, ro);
     else
       segment_in_memory(*a, m, params, ro);

@@ -6,7 +6,9 @@
 # usage: bench/stream_large.sh POREBENCH WORKDIR [NX NY NZ] [SMALL]
 #   defaults 2048 2048 1024 (8 GiB per uint16 scan; ~35 GB of disk with the masks) and SMALL = 512.
 # The files are deleted at the end (KEEP=1 keeps them). Goals (issue 17): peak RSS <= 3 GiB on the large pair;
-# throughput by slabs (large) >= 80 % of the in-memory path on SMALL^3.
+# throughput by slabs (large) >= 80 % of the in-memory path on SMALL^3. The runs here are single; the
+# throughput ratio in alternating rounds is bench/peers/stream_vs_memory.py (run with KEEP=1, then
+# `bench/peers/stream_vs_memory.py POREBENCH WORKDIR/small WORKDIR/large`).
 set -euo pipefail
 PB=$(readlink -f "$1")
 DIR=$2

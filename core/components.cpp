@@ -121,7 +121,7 @@ std::vector<int64_t> thread_slabs(int64_t nz) {
 void link_and_label(LabelRuns& c, int connectivity, const std::vector<int64_t>& slab_z) {
   const int64_t ny = c.geometry.dims[1];
   const int64_t nslabs = int64_t(slab_z.size()) - 1;
-  const std::vector<int64_t>& row_begin = c.row_begin;
+  const Buffer<int64_t>& row_begin = c.row_begin;
   const int64_t nruns = int64_t(c.runs.size());
   auto slab_base = [&](int64_t s) { return row_begin[size_t(slab_z[size_t(s)] * ny)]; };  // first run of slab s
   const Run* R = c.runs.data();
@@ -197,7 +197,7 @@ LabelRuns label_runs(const Mask& m, const Mask* roi, int connectivity) {
   // (a slab touches only its own runs); the slab boundaries are united afterwards, in order.
   const std::vector<int64_t> slab_z = thread_slabs(nz);
   const int64_t nslabs = int64_t(slab_z.size()) - 1;
-  std::vector<int64_t>& row_begin = c.row_begin;
+  Buffer<int64_t>& row_begin = c.row_begin;
   using RunBuffer = std::vector<Run, DefaultInitAllocator<Run>>;
   std::vector<RunBuffer> slab_runs(static_cast<size_t>(nslabs));
 
@@ -250,7 +250,7 @@ void RunCollector::add(const uint8_t* slices, int64_t nslices) {
   using RunBuffer = std::vector<Run, DefaultInitAllocator<Run>>;
   std::vector<RunBuffer> per(static_cast<size_t>(nslices));
   const bool use_avx2 = simd_level() >= Simd::avx2;
-  std::vector<int64_t>& row_begin = runs_.row_begin;
+  Buffer<int64_t>& row_begin = runs_.row_begin;
 #pragma omp parallel for schedule(dynamic, 1)
   for (int64_t k = 0; k < nslices; ++k) {
     RunBuffer& v = per[size_t(k)];

@@ -19,7 +19,7 @@ struct Run {
 };
 struct LabelRuns {
   Geometry geometry;
-  std::vector<int64_t> row_begin;  // runs of row r: [row_begin[r], row_begin[r + 1])
+  Buffer<int64_t> row_begin;       // runs of row r: [row_begin[r], row_begin[r + 1])
   std::vector<Run, DefaultInitAllocator<Run>> runs;
   std::vector<uint32_t, DefaultInitAllocator<uint32_t>> label;  // label of each run, 1..count
   uint32_t count = 0;

@@ -34,8 +34,8 @@ Histogram compute_histogram(const float* data, int64_t n, double lo, double hi, 
                             const uint8_t* mask = nullptr);
 // Counts of every grey level of an integer voxel type (uint8, uint16, int16: 256 or 65,536 levels)
 // in one read of the voxels; the statistics and any histogram follow from them exactly, without
-// another read. The slab path uses them, so that a threshold method reads the file twice (these
-// counts, then the comparison); in memory stats + histogram are faster (methods/threshold.cpp). The statistics
+// another read. Threshold methods use them for integer data, in memory and by slabs, so that they
+// read the voxels twice (these counts, then the comparison; methods/threshold.cpp). The statistics
 // equal compute_stats's (the mean is the exact sum of whole numbers over the count, as compute_stats's
 // double sums are exact for whole numbers below 2^53) and every histogram equals compute_histogram's.
 class LevelCounts {

@@ -1,15 +1,18 @@
-// Large buffers come straight from mmap (fresh anonymous pages read as zero, see
-// large_buffers_are_zeroed), aligned to 2 MiB and advised for transparent huge pages.
+// Large buffers come from mmap (fresh anonymous pages read as zero), aligned to 2 MiB and advised
+// for transparent huge pages, and are recycled when freed (see memory.hpp).
 #include "core/memory.hpp"
 
 #include <sys/mman.h>
 
+#include <algorithm>
 #include <atomic>
 #include <cstdint>
 #include <cstdlib>
 #include <fstream>
+#include <mutex>
 #include <new>
 #include <sstream>
+#include <vector>
 
 namespace pb {
 
@@ -19,6 +22,19 @@ size_t rounded(size_t bytes) { return (bytes + kHugePage - 1) / kHugePage * kHug
 
 std::atomic<uint64_t> g_live{0};
 std::atomic<uint64_t> g_budget_override{0};
+thread_local bool t_last_fresh = false;
+
+// The recycled blocks (mapped length, address) and the mapped lengths: in use (live_len) and at
+// most in use at once so far (peak_len). Kept blocks stay within peak_len - live_len.
+struct Pool {
+  std::mutex m;
+  std::vector<std::pair<size_t, void*>> kept;
+  uint64_t kept_len = 0, live_len = 0, peak_len = 0;
+};
+Pool& pool() {
+  static Pool* p = new Pool;  // never destroyed: buffers may be freed during static destruction
+  return *p;
+}
 
 uint64_t machine_memory_bytes() {
   uint64_t total = 0;
@@ -92,13 +108,45 @@ void check_memory(uint64_t bytes, const std::string& what, bool with_live) {
   throw MemoryBudgetError(s.str());
 }
 
-void* allocate_buffer(size_t bytes) {
+bool last_buffer_was_fresh() { return t_last_fresh; }
+
+void* allocate_buffer(size_t bytes, bool* fresh) {
+  t_last_fresh = false;
+  if (fresh) *fresh = false;
   if (bytes < kLargeBufferBytes) return ::operator new(bytes);
   check_memory(bytes, "a buffer", true);
   const size_t len = rounded(bytes);
+  Pool& P = pool();
+  std::vector<std::pair<size_t, void*>> drop;  // unmapped outside the lock
+  {
+    std::lock_guard<std::mutex> lock(P.m);
+    for (size_t i = P.kept.size(); i-- > 0;)
+      if (P.kept[i].first == len) {  // the most recently kept block of this length
+        void* p = P.kept[i].second;
+        P.kept.erase(P.kept.begin() + std::ptrdiff_t(i));
+        P.kept_len -= len, P.live_len += len;
+        g_live += bytes;
+        return p;
+      }
+    // A new block: kept ones go (oldest first) until the mapped total stays within the high-water
+    // mark (or this request alone) and the budget.
+    const uint64_t cap = std::min<uint64_t>(std::max<uint64_t>(P.peak_len, P.live_len + len), memory_budget_bytes());
+    while (!P.kept.empty() && P.live_len + P.kept_len + len > cap) {
+      drop.push_back(P.kept.front());
+      P.kept_len -= P.kept.front().first;
+      P.kept.erase(P.kept.begin());
+    }
+    P.live_len += len;  // counted now, so that other threads' requests meanwhile see it
+    P.peak_len = std::max(P.peak_len, P.live_len + P.kept_len);
+  }
+  for (const auto& [l, p] : drop) munmap(p, l);
   // Map one huge page more than needed, then unmap the misaligned head and the tail.
   void* raw = mmap(nullptr, len + kHugePage, PROT_READ | PROT_WRITE, MAP_PRIVATE | MAP_ANONYMOUS, -1, 0);
-  if (raw == MAP_FAILED) throw std::bad_alloc();
+  if (raw == MAP_FAILED) {
+    std::lock_guard<std::mutex> lock(P.m);
+    P.live_len -= len;
+    throw std::bad_alloc();
+  }
   const uintptr_t base = reinterpret_cast<uintptr_t>(raw);
   const uintptr_t aligned = (base + kHugePage - 1) / kHugePage * kHugePage;
   if (aligned > base) munmap(raw, aligned - base);
@@ -109,6 +157,8 @@ void* allocate_buffer(size_t bytes) {
   madvise(p, len, MADV_HUGEPAGE);  // advice only: where refused, normal pages are used
 #endif
   g_live += bytes;
+  t_last_fresh = true;
+  if (fresh) *fresh = true;
   return p;
 }
 
@@ -116,10 +166,37 @@ void free_buffer(void* p, size_t bytes) noexcept {
   if (!p) return;
   if (bytes < kLargeBufferBytes) {
     ::operator delete(p);
-  } else {
-    munmap(p, rounded(bytes));
-    g_live -= bytes;
+    return;
   }
+  const size_t len = rounded(bytes);
+  g_live -= bytes;
+  Pool& P = pool();
+  std::lock_guard<std::mutex> lock(P.m);
+  P.live_len -= len;
+  try {
+    P.kept.emplace_back(len, p);  // live + kept is unchanged: within the high-water mark
+    P.kept_len += len;
+  } catch (...) {  // no memory for the list entry: unmap instead
+    munmap(p, len);
+  }
+}
+
+uint64_t recycled_buffer_bytes() {
+  Pool& P = pool();
+  std::lock_guard<std::mutex> lock(P.m);
+  return P.kept_len;
+}
+
+void release_recycled_buffers() {
+  Pool& P = pool();
+  std::vector<std::pair<size_t, void*>> drop;
+  {
+    std::lock_guard<std::mutex> lock(P.m);
+    drop.swap(P.kept);
+    P.kept_len = 0;
+    P.peak_len = P.live_len;
+  }
+  for (const auto& [l, p] : drop) munmap(p, l);
 }
 
 }  // namespace pb

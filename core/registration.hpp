@@ -70,6 +70,7 @@ struct RegistrationOptions {
   int max_iterations = 300;         // per level
   int histogram_bins = 50;          // Mattes MI (common practice, no source)
   int64_t samples_per_level = 400000;  // metric samples (regular grid with jitter) per level
+  unsigned sample_seed = 20260;     // jitter of the metric samples (level l: sample_seed + l)
   double min_step = 1e-4;           // optimiser stop: step length below this (scaled units)
   MarkerOptions markers;
 };

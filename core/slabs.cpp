@@ -169,13 +169,6 @@ void convert_any(VoxelType t, const uint8_t* src, int64_t n, bool swap, Out* out
   }
 }
 
-Geometry slab_geometry(const Geometry& g, int64_t z0, int64_t z1) {
-  Geometry s = g;
-  s.dims[2] = z1 - z0;
-  s.origin_mm[2] += double(z0) * g.spacing_mm[2];
-  return s;
-}
-
 }  // namespace
 
 VolumeF SlabFile::read_float(int64_t z0, int64_t z1) const {
@@ -185,11 +178,7 @@ VolumeF SlabFile::read_float(int64_t z0, int64_t z1) const {
 }
 
 void SlabFile::read_float(int64_t z0, int64_t z1, VolumeF& out) const {
-  const Geometry g = slab_geometry(geo_, z0, z1);
-  if (out.geometry().dims == g.dims)
-    out.set_geometry_keep_dims(g);
-  else
-    out = VolumeF(g, Uninitialized{});
+  shape_slab(out, geo_, z0, z1);
   const bool nan_inf = allow_nonfinite_;
   with_slab(z0, z1, [&](const uint8_t* src, int64_t n) {
     convert_any(type_, src, n, swap_, out.data(), [nan_inf](auto v) {
@@ -200,11 +189,16 @@ void SlabFile::read_float(int64_t z0, int64_t z1, VolumeF& out) const {
 }
 
 Mask SlabFile::read_mask(int64_t z0, int64_t z1) const {
-  Mask out(slab_geometry(geo_, z0, z1), Uninitialized{});
+  Mask out;
+  read_mask(z0, z1, out);
+  return out;
+}
+
+void SlabFile::read_mask(int64_t z0, int64_t z1, Mask& out) const {
+  shape_slab(out, geo_, z0, z1);
   with_slab(z0, z1, [&](const uint8_t* src, int64_t n) {
     convert_any(type_, src, n, swap_, out.data(), [](auto v) { return uint8_t(v != 0); });
   });
-  return out;
 }
 
 void SlabFile::check_finite() const {

@@ -36,6 +36,7 @@ class SlabFile {
   // The same into `out`, whose buffer is reused when it holds as many voxels (no fresh pages per slab).
   void read_float(int64_t z0, int64_t z1, VolumeF& out) const;
   Mask read_mask(int64_t z0, int64_t z1) const;
+  void read_mask(int64_t z0, int64_t z1, Mask& out) const;  // into out, its buffer reused as read_float's
   // Float volumes: counts the non-finite voxels in one pass over the file and refuses them unless
   // allow_nonfinite (the message of read_volume). Integer volumes: nothing to do.
   void check_finite() const;
@@ -93,5 +94,23 @@ std::string bytes_text(uint64_t bytes);  // "8589934592 bytes (8192 MiB)"
 // Throws InputError unless `path` is a mask output SlabMaskWriter can write (.mha or .nrrd, in a
 // writable folder); `option` names it in the message.
 void check_slab_output(const std::string& path, const std::string& option);
+
+// Geometry of slices [z0, z1) of g.
+inline Geometry slab_geometry(const Geometry& g, int64_t z0, int64_t z1) {
+  Geometry s = g;
+  s.dims[2] = z1 - z0;
+  s.origin_mm[2] += double(z0) * g.spacing_mm[2];
+  return s;
+}
+
+// out shaped as slices [z0, z1) of g; its buffer is reused when it holds as many voxels.
+template <class T>
+void shape_slab(Image<T>& out, const Geometry& g, int64_t z0, int64_t z1) {
+  const Geometry s = slab_geometry(g, z0, z1);
+  if (out.geometry().dims == s.dims)
+    out.set_geometry_keep_dims(s);
+  else
+    out = Image<T>(s, Uninitialized{});
+}
 
 }  // namespace pb

@@ -72,15 +72,20 @@ struct DefaultInitAllocator : std::allocator<T> {
   }
 };
 
-// A buffer whose trivial elements are left uninitialised, and one that reads as zero: large ones
-// come zeroed from the kernel (core/memory.hpp), so their pages are only touched where written.
+// A buffer whose trivial elements are left uninitialised, and one that reads as zero: a freshly
+// mapped large one comes zeroed from the kernel (core/memory.hpp), so its pages are only touched
+// where written; small and recycled ones are zero-filled.
 template <class T>
 using Buffer = std::vector<T, DefaultInitAllocator<T>>;
 template <class T>
 Buffer<T> zeroed_buffer(size_t n) {
   static_assert(std::is_trivial<T>::value, "zeroed_buffer needs a trivial type");
-  Buffer<T> b(n);
-  if (!buffer_starts_zeroed(n * sizeof(T))) std::fill(b.begin(), b.end(), T{});
+  Buffer<T> b;
+  if (n == 0) return b;
+  b.reserve(n);  // the one allocation, on this thread
+  const bool fresh = last_buffer_was_fresh();
+  b.resize(n);  // default-initialised: nothing written
+  if (!fresh) std::fill(b.begin(), b.end(), T{});
   return b;
 }
 

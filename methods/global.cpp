@@ -598,7 +598,7 @@ MethodInfo global_method(std::string name, std::string doc, std::string citation
     d.chosen.insert(d.chosen.end(), c.extra.begin(), c.extra.end());
     return d;
   };
-  set_histogram_decider(name, decide);
+  m.slabs = histogram_slabs(decide);
   m.run = [decide, name](const MethodInput& in, const ParamValues& p) {
     const Histogram h = method_histogram(in, p);
     HistogramDecision d = decide(h, in.stored_type, [&in] { return compute_stats(in.volume, in.roi).min; }, p);
@@ -615,7 +615,8 @@ MethodInfo manual_info() {
           {{"threshold", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "the threshold in grey-value units"}},
           [](const MethodInput& in, const ParamValues& p) {
             return apply_threshold(in, ThresholdChoice{p.num("threshold"), {}}, "manual");
-          }};
+          },
+          nullptr};  // not by slabs
 }
 
 const char* kOtsu = "Otsu N. (1979) A threshold selection method from gray-level histograms. IEEE Trans. Syst. Man Cybern. 9(1):62-66";

@@ -7,6 +7,8 @@
 #include <algorithm>
 #include <cmath>
 
+#include "core/slabs.hpp"
+
 namespace pb {
 
 namespace {
@@ -281,8 +283,7 @@ struct MaxOp {
 template <class Op>
 void box_extremum(const VolumeF& v, int64_t window, VolumeF& out) {
   const int64_t h = window / 2;
-  out = VolumeF(v.geometry());
-  out.set_geometry_keep_dims(v.geometry());
+  shape_slab(out, v.geometry(), 0, v.nz());  // shaped as v; the x pass writes every voxel
   for (int axis = 0; axis < 3; ++axis) {
     // Scratch per thread, reused across line bundles.
     for_lines(axis == 0 ? v : out, out, axis, h, [&](const float* pad, int64_t m, int64_t L, float* o) {
@@ -301,13 +302,18 @@ void box_min_max(const VolumeF& v, int64_t window, VolumeF& vmin, VolumeF& vmax)
 }
 
 VolumeF gaussian_mean(const VolumeF& v, int64_t window, double sigma_vox) {
+  VolumeF out;
+  gaussian_mean(v, window, sigma_vox, out);
+  return out;
+}
+
+void gaussian_mean(const VolumeF& v, int64_t window, double sigma_vox, VolumeF& out) {
   const int64_t h = window / 2;
   std::vector<float> kern(size_t(2 * h + 1));
   double sum = 0;
   for (int64_t k = -h; k <= h; ++k) sum += kern[size_t(k + h)] = float(std::exp(-double(k * k) / (2 * sigma_vox * sigma_vox)));
   for (auto& k : kern) k = float(k / sum);
-  VolumeF out(v.geometry());
-  out.set_geometry_keep_dims(v.geometry());
+  shape_slab(out, v.geometry(), 0, v.nz());  // shaped as v; the x pass writes every voxel
   for (int axis = 0; axis < 3; ++axis)
     for_lines(axis == 0 ? v : out, out, axis, h, [&](const float* pad, int64_t m, int64_t L, float* o) {
       const int64_t nL = (m - 2 * h) * L;
@@ -318,7 +324,6 @@ VolumeF gaussian_mean(const VolumeF& v, int64_t window, double sigma_vox) {
         for (int64_t j = 0; j < nL; ++j) o[j] += wk * p[j];
       }
     });
-  return out;
 }
 
 }  // namespace pb

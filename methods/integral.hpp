@@ -53,12 +53,14 @@ class SliceMoments {
   std::vector<double> z1_, z2_, e_, l_;
 };
 
-// Box min and max over a cubic window (odd, <= every dim) into two float volumes shaped as v.
+// Box min and max over a cubic window (odd, <= every dim) into two float volumes shaped as v (their
+// buffers reused when they hold as many voxels: a slab after slab).
 void box_min_max(const VolumeF& v, int64_t window, VolumeF& vmin, VolumeF& vmax);
 
 // Gaussian-weighted local mean: separable kernel exp(-d^2 / (2 sigma^2)) over |d| <= window/2
-// on each axis, normalised to sum 1.
+// on each axis, normalised to sum 1. The second form writes into out, reusing its buffer as box_min_max.
 VolumeF gaussian_mean(const VolumeF& v, int64_t window, double sigma_vox);
+void gaussian_mean(const VolumeF& v, int64_t window, double sigma_vox, VolumeF& out);
 
 // The air mask of a local method of methods/local.cpp (voxel below its local threshold, inside the
 // ROI) before pore extraction, with what it chose: for tests and for composing with pre-filters.
@@ -69,17 +71,7 @@ struct LocalAir {
 };
 LocalAir local_air(const std::string& method, const MethodInput& in, const std::vector<std::string>& key_values);
 
-// A local method over slices served in z order (a volume read by slabs, methods/streaming.hpp), no
-// ROI: what the method takes from the whole volume comes from `all` (statistics of every voxel) and
-// `hist` (their histograms, for the grey range); the air slices go to `out` in z order, a batch at
-// a time (z0, n slices, n * nx * ny bytes), the same voxels as local_air on the volume in memory.
-// Returns what it chose and its warnings (air empty). Methods: those of the window mean and std
-// that need nothing else of the whole volume (local_method_by_slices); InputError for the others
-// (wolf needs a first pass for its largest std, bernsen and local-gaussian other window filters).
-constexpr const char* kLocalMethodsBySlices = "niblack, sauvola, phansalkar and local-mean";
-bool local_method_by_slices(const std::string& method);
-using AirOut = std::function<void(int64_t z0, int64_t n, const uint8_t* air)>;
-LocalAir local_air_by_slices(const std::string& method, const ParamValues& p, const Geometry& g, const Stats& all,
-                             const HistogramOf& hist, const SliceOf& slice, const AirOut& out);
+// The slices z0 .. z0+n-1 of an ROI mask (valid until the next call).
+using RoiOf = std::function<const uint8_t*(int64_t z0, int64_t n)>;
 
 }  // namespace pb

@@ -9,6 +9,7 @@
 #include <cmath>
 #include <functional>
 #include <map>
+#include <stdexcept>
 #include <type_traits>
 
 #include "core/error.hpp"
@@ -16,6 +17,7 @@
 #include "core/histogram.hpp"
 #include "methods/integral.hpp"
 #include "methods/pores.hpp"
+#include "methods/slab_method.hpp"
 #include "methods/threshold.hpp"
 
 namespace pb {
@@ -137,18 +139,17 @@ Mask air_from_moments(const MethodInput& in, int64_t window, double centre, Thr 
   return air;
 }
 
-// Largest window std over voxels inside the ROI (Wolf & Jolion's R).
-double max_local_std(const MethodInput& in, int64_t window, double centre) {
-  const VolumeF& v = in.volume;
-  const int64_t nxy = v.geometry().slice_voxels();
-  SliceMoments mom(v, window, centre);
+// Largest window std over voxels inside the ROI (Wolf & Jolion's R), over the slices of g served in
+// z order (a volume in memory, or one read by slabs); roi may be empty (no ROI).
+double max_local_std(const Geometry& g, const SliceOf& slice, const RoiOf& roi, int64_t window, double centre) {
+  const int64_t nxy = g.slice_voxels();
+  SliceMoments mom(g, slice, window, centre);
   std::vector<double> mean(static_cast<size_t>(nxy * mom.batch())), sd(mean.size());
-  const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
   double best = 0;
   for (;;) {
-    const int64_t z0 = mom.next_z(), n = mom.next(mean.data(), sd.data()) * nxy;
+    const int64_t z0 = mom.next_z(), slices = mom.next(mean.data(), sd.data()), n = slices * nxy;
     if (n == 0) break;
-    const uint8_t* r = roi ? roi + z0 * nxy : nullptr;
+    const uint8_t* r = roi ? roi(z0, slices) : nullptr;
 #pragma omp parallel for schedule(static) reduction(max : best)
     for (int64_t i = 0; i < n; ++i)
       if (!r || r[i]) best = std::max(best, sd[size_t(i)]);
@@ -162,8 +163,51 @@ std::map<std::string, AirFn>& air_functions() {
   return f;
 }
 
+using Chosen = std::vector<std::pair<std::string, double>>;
+
+// A local method's own part of its run by slabs: given the window w, the context c (statistics, and
+// the ROI's grey range when the method takes one) and whether the volume is constant, it writes
+// every air slice to out in z order and returns true, or writes nothing and returns false (no air
+// anywhere); it sets what the method chose.
+using SlabBody = std::function<bool(const ParamValues& p, const SlabSource& src, int64_t w, Context& c, bool constant,
+                                    const AirOut& out, Chosen& chosen)>;
+struct LocalSlabs {
+  bool range = false;  // takes the ROI's grey range (clip_pct), as context(in, clip_pct, true)
+  bool halo = false;   // reads each slab with a halo of window/2 slices (a window filter)
+  SlabBody body;
+};
+
+// The frame of every local method by slabs, as context() and constant_volume() in memory: the
+// window checked, the statistics of every voxel and (range) the grey range of the ROI's, no air
+// anywhere when the body writes none, the constant-volume warning. The air is not cut to the ROI
+// (the pipeline's open mask takes every voxel outside it: the same pores as in memory).
+SlabAir local_by_slabs(const std::string& method, const LocalSlabs& m, const ParamValues& p, const SlabSource& src,
+                       const AirOut& out) {
+  const Geometry& g = src.geometry;
+  const int64_t w = checked_window(method, g, p);
+  Context c = context_start(src.all);
+  if (m.range) {
+    if (src.roi && src.part.count == 0) throw InputError("no finite voxels inside the region of interest");
+    const GreyRange range = grey_range(src.part, p.num("clip_pct"), src.part_hist);
+    c.lo = range.lo;
+    c.hi = range.hi;
+  }
+  const bool constant = !(c.all.max > c.all.min);
+  SlabAir res;
+  const bool air = m.body(p, src, w, c, constant, out, res.chosen);
+  if (constant)  // as constant_volume
+    c.warnings.push_back("constant volume (every voxel " + format_number(c.all.min, 8) + "): no local contrast, no pores");
+  if (!air) {  // no air anywhere
+    const std::vector<uint8_t> none(size_t(g.slice_voxels()), 0);
+    for (int64_t z = 0; z < g.dims[2]; ++z) out(z, 1, none.data());
+  }
+  res.warnings = std::move(c.warnings);
+  return res;
+}
+
+// Registers the in-memory air function and the slab run of a local method beside its run.
 MethodInfo local_info(std::string name, std::string doc, std::string citation, std::vector<ParamSpec> params,
-                      AirFn air) {
+                      AirFn air, LocalSlabs slabs) {
   air_functions()[name] = air;
   MethodInfo m;
   m.name = std::move(name);
@@ -181,6 +225,13 @@ MethodInfo local_info(std::string name, std::string doc, std::string citation, s
     out.warnings = std::move(a.warnings);
     return out;
   };
+  auto s = std::make_shared<SlabMethod>();
+  s->check = [name = m.name](const ParamValues& p, const Geometry& g) { checked_window(name, g, p); };
+  if (slabs.halo) s->halo = [](const ParamValues& p) { return p.integer("window") / 2; };
+  s->air = [name = m.name, slabs = std::move(slabs)](const ParamValues& p, const SlabSource& src, const AirOut& out) {
+    return local_by_slabs(name, slabs, p, src, out);
+  };
+  m.slabs = std::move(s);
   return m;
 }
 
@@ -188,8 +239,7 @@ MethodInfo local_info(std::string name, std::string doc, std::string citation, s
 // Each method of the window mean (and std) derives its threshold rule from its parameters and the
 // context, hands it to use(rule) unless the volume is constant (no rule is derived then), and
 // returns its chosen values. The in-memory path (air_from_moments) and the slab path
-// (local_air_by_slices) share them, so both answer the same.
-using Chosen = std::vector<std::pair<std::string, double>>;
+// (moments_info's SlabBody) share them, so both answer the same.
 
 template <class Use>
 Chosen niblack_rule(int64_t w, const ParamValues& p, Context&, bool constant, Use&& use) {
@@ -238,6 +288,23 @@ Chosen phansalkar_rule(int64_t w, const ParamValues& p, Context& c, bool constan
   return {{"window", double(w)}, {"k", k}, {"p", pp}, {"q", q}, {"r", r}, {"grey_lo", c.lo}, {"grey_hi", c.hi}};
 }
 
+// Wolf & Jolion: T = m - k (1 - s/R)(m - M), R = max_std() (the largest window std in the ROI, a
+// first pass over the volume), M the low end of the ROI grey range. No rule when R is 0.
+template <class Use>
+Chosen wolf_rule(int64_t w, const ParamValues& p, Context& c, bool constant, const std::function<double()>& max_std,
+                 Use&& use) {
+  const double k = p.num("k"), mg = c.lo;
+  double r = 0;
+  if (!constant) {
+    r = max_std();
+    if (r > 0)
+      use([=](double m, double s) { return m - k * (1 - s / r) * (m - mg); });
+    else
+      c.warnings.push_back("no window inside the ROI has any contrast (largest std 0): no pores");
+  }
+  return {{"window", double(w)}, {"k", k}, {"r", r}, {"min_grey", mg}};
+}
+
 template <class Use>
 Chosen local_mean_rule(int64_t w, const ParamValues& p, Context&, bool constant, Use&& use) {
   const double off = p.num("offset");
@@ -245,48 +312,78 @@ Chosen local_mean_rule(int64_t w, const ParamValues& p, Context&, bool constant,
   return {{"window", double(w)}, {"offset", off}};
 }
 
-// The rules by method name (the methods of local_method_by_slices); false for any other.
-template <class Use>
-bool moments_rule(const std::string& method, int64_t w, const ParamValues& p, Context& c, bool constant, Use&& use,
-                  Chosen& chosen) {
-  if (method == "niblack") chosen = niblack_rule(w, p, c, constant, use);
-  else if (method == "sauvola") chosen = sauvola_rule(w, p, c, constant, use);
-  else if (method == "phansalkar") chosen = phansalkar_rule(w, p, c, constant, use);
-  else if (method == "local-mean") chosen = local_mean_rule(w, p, c, constant, use);
-  else return false;
-  return true;
-}
+// A moments method, registered by moments_info: rule(w, p, c, constant, max_std, use) is one of the
+// rules above (max_std: wolf's first pass, the largest window std in the ROI, asked only by wolf);
+// range: whether it takes the ROI's grey range (with its clip_pct).
+using MaxStd = std::function<double()>;
 
-// Whether a moments method takes the grey range of the ROI (with its clip_pct).
-bool moments_rule_needs_range(const std::string& method) { return method == "sauvola" || method == "phansalkar"; }
-
-// A moments method on a volume in memory.
-LocalAir moments_local_air(const std::string& method, const MethodInput& in, const ParamValues& p) {
+template <class Rule>
+LocalAir moments_local_air(const std::string& method, bool range, const Rule& rule, const MethodInput& in,
+                           const ParamValues& p) {
   const int64_t w = checked_window(method, in.volume.geometry(), p);
-  const bool range = moments_rule_needs_range(method);
   Context c = context(in, range ? p.num("clip_pct") : 0, range);
   LocalAir out;
   const bool constant = constant_volume(in, c, out);
-  Chosen chosen;
-  moments_rule(method, w, p, c, constant, [&](auto rule) { out = finish(air_from_moments(in, w, c.all.mean, rule), c); },
-               chosen);
+  const VolumeF& v = in.volume;
+  RoiOf roi;
+  if (in.roi) roi = [&in](int64_t z0, int64_t) { return in.roi->slice(z0); };
+  const MaxStd max_std = [&] {
+    return max_local_std(v.geometry(), [&v](int64_t z) { return v.slice(z); }, roi, w, c.all.mean);
+  };
+  bool used = false;
+  Chosen chosen = rule(w, p, c, constant, max_std, [&](auto r) {
+    used = true;
+    out = finish(air_from_moments(in, w, c.all.mean, r), c);
+  });
+  if (!constant && !used) out = finish(Mask(v.geometry()), c);  // no rule (wolf without contrast): no air
   out.chosen = std::move(chosen);
   return out;
 }
 
+// By slabs: the window sums over passes of slices in z order (wolf: a first pass for max_std).
+template <class Rule>
+MethodInfo moments_info(std::string name, std::string doc, std::string citation, std::vector<ParamSpec> params,
+                        bool range, Rule rule) {
+  AirFn air = [name, range, rule](const MethodInput& in, const ParamValues& p) {
+    return moments_local_air(name, range, rule, in, p);
+  };
+  LocalSlabs slabs;
+  slabs.range = range;
+  slabs.body = [rule](const ParamValues& p, const SlabSource& src, int64_t w, Context& c, bool constant,
+                      const AirOut& out, Chosen& chosen) {
+    const Geometry& g = src.geometry;
+    std::vector<uint8_t> buf;
+    auto dest = [&](int64_t, int64_t n) {  // moments_air writes every voxel
+      buf.resize(size_t(n * g.slice_voxels()));
+      return buf.data();
+    };
+    bool air = false;
+    chosen = rule(w, p, c, constant, [&] { return max_local_std(g, src.slices(w), src.roi, w, c.all.mean); },
+                  [&](auto r) {
+                    air = true;
+                    moments_air(g, src.slices(w), nullptr, w, c.all.mean, r, dest, out);
+                  });
+    return air;
+  };
+  return local_info(std::move(name), std::move(doc), std::move(citation), std::move(params), std::move(air),
+                    std::move(slabs));
+}
+
 // ---- niblack ------------------------------------------------------------------------------------
 MethodInfo niblack_info() {
-  return local_info(
+  return moments_info(
       "niblack", "Niblack: T = m - k*s from the window mean m and standard deviation s (scikit-image's sign)",
       "Niblack W. (1986) An Introduction to Digital Image Processing. Prentice-Hall, pp. 115-116",
       {{"k", ParamType::Float, "0.2", -1, 1, {}, "",
         "weight of the window std; Niblack's T = m + k's with k' = -0.2 is k = 0.2 here"}},
-      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("niblack", in, p); });
+      false, [](int64_t w, const ParamValues& p, Context& c, bool constant, const MaxStd&, auto&& use) {
+        return niblack_rule(w, p, c, constant, use);
+      });
 }
 
 // ---- sauvola ------------------------------------------------------------------------------------
 MethodInfo sauvola_info() {
-  return local_info(
+  return moments_info(
       "sauvola",
       "Sauvola: T = m * (1 + k * (s/R - 1)); R, the dynamic range of the std, in grey units or (r=0) half the "
       "grey range of the ROI (robust with clip_pct). Grey values should be >= 0 with air darkest",
@@ -296,12 +393,14 @@ MethodInfo sauvola_info() {
         "R in grey units; 0 = half the grey range (hi - lo)/2 of the ROI voxels. Note: scikit-image's default "
         "for float images is 1 (half the float dtype range -1..1), not data-derived"},
        clip_param()},
-      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("sauvola", in, p); });
+      true, [](int64_t w, const ParamValues& p, Context& c, bool constant, const MaxStd&, auto&& use) {
+        return sauvola_rule(w, p, c, constant, use);
+      });
 }
 
 // ---- phansalkar ---------------------------------------------------------------------------------
 MethodInfo phansalkar_info() {
-  return local_info(
+  return moments_info(
       "phansalkar",
       "Phansalkar: on grey values normalised to [0,1] by the ROI grey range, T = m(1 + p exp(-q m) + k(s/r - 1))",
       "Phansalkar N., More S., Sabale A., Joshi M. (2011) Adaptive local thresholding for detection of nuclei in "
@@ -311,42 +410,75 @@ MethodInfo phansalkar_info() {
        {"q", ParamType::Float, "10", 0, 100, {}, "", "decay of the exponential term (paper 10)"},
        {"r", ParamType::Float, "0.5", 1e-6, 1, {}, "normalised grey", "R on the normalised scale (paper 0.5)"},
        clip_param()},
-      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("phansalkar", in, p); });
+      true, [](int64_t w, const ParamValues& p, Context& c, bool constant, const MaxStd&, auto&& use) {
+        return phansalkar_rule(w, p, c, constant, use);
+      });
 }
 
 // ---- wolf ---------------------------------------------------------------------------------------
 MethodInfo wolf_info() {
-  return local_info(
+  return moments_info(
       "wolf",
       "Wolf & Jolion: T = m - k (1 - s/R)(m - M), R the largest window std in the ROI, M the lowest ROI grey "
       "value (robust with clip_pct); two passes",
       "Wolf C., Jolion J.-M. (2004) Extraction and recognition of artificial text in multimedia documents. "
       "Pattern Analysis and Applications 6(4):309-326",
       {{"k", ParamType::Float, "0.5", 0, 1, {}, "", "weight (paper 0.5)"}, clip_param()},
-      [](const MethodInput& in, const ParamValues& p) {
-        const int64_t w = checked_window("wolf", in.volume.geometry(), p);
-        const double k = p.num("k");
-        Context c = context(in, p.num("clip_pct"), true);
-        double r = 0;
-        const double mg = c.lo;
-        LocalAir out;
-        if (!constant_volume(in, c, out)) {
-          r = max_local_std(in, w, c.all.mean);
-          if (r > 0) {
-            out = finish(air_from_moments(in, w, c.all.mean, [=](double m, double s) {
-                           return m - k * (1 - s / r) * (m - mg);
-                         }), c);
-          } else {
-            c.warnings.push_back("no window inside the ROI has any contrast (largest std 0): no pores");
-            out = finish(Mask(in.volume.geometry()), c);
-          }
-        }
-        out.chosen = {{"window", double(w)}, {"k", k}, {"r", r}, {"min_grey", mg}};
-        return out;
+      true, [](int64_t w, const ParamValues& p, Context& c, bool constant, const MaxStd& max_std, auto&& use) {
+        return wolf_rule(w, p, c, constant, max_std, use);
       });
 }
 
+// ---- the window filter methods (bernsen, local-gaussian) -----------------------------------------
+// Each takes its rule from its parameters and the context (shared by the in-memory path and the
+// slab path) and decides every voxel of a float volume from a window filter of it: a whole volume,
+// or a slab with a halo of the window radius (window_filter_by_slabs).
+
+// Reads the volume by slabs with a halo of h slices on each side (fewer at the volume's ends, where
+// the filters mirror as they do on the whole volume); air_of(buf, lead, n, air) writes the air of
+// the n slices of buf from slice lead, which go to out in z order.
+template <class AirOf>
+void window_filter_by_slabs(const SlabSource& src, int64_t h, const AirOut& out, AirOf air_of) {
+  const Geometry& g = src.geometry;
+  const int64_t nz = g.dims[2], nxy = g.slice_voxels(), slab = std::max<int64_t>(1, src.slab);
+  VolumeF buf;
+  std::vector<uint8_t> air;
+  for (int64_t z0 = 0; z0 < nz; z0 += slab) {
+    const int64_t z1 = std::min(nz, z0 + slab), a = std::max<int64_t>(0, z0 - h), b = std::min(nz, z1 + h);
+    src.read(a, b, buf);
+    air.resize(size_t((z1 - z0) * nxy));
+    air_of(static_cast<const VolumeF&>(buf), z0 - a, z1 - z0, air.data());
+    out(z0, z1 - z0, air.data());
+  }
+}
+
 // ---- bernsen ------------------------------------------------------------------------------------
+struct BernsenRule {
+  double contrast, split;
+  Chosen chosen;
+  // Voxels [first, first + n) of v from its window min vmin and max vmax: 1 where the voxel is air
+  // (and inside roi, aligned with them), else 0, into out (which may be vmin's own voxels).
+  template <class T>
+  void decide(const VolumeF& v, const VolumeF& vmin, const VolumeF& vmax, int64_t first, int64_t n,
+              const uint8_t* roi, T* out) const {
+    const float *d = v.data() + first, *vlo = vmin.data() + first, *vhi = vmax.data() + first;
+    const double cmin = contrast, sp = split;
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < n; ++i) {
+      const double lo = vlo[i], hi = vhi[i], mid = 0.5 * (lo + hi);
+      const bool dark = hi - lo >= cmin ? double(d[i]) < mid : mid < sp;
+      out[i] = dark && !std::isnan(d[i]) && (!roi || roi[i]) ? T(1) : T(0);
+    }
+  }
+};
+
+BernsenRule bernsen_rule(int64_t w, const ParamValues& p, const Context& c) {
+  BernsenRule r{p.num("contrast"), 0.5 * (c.lo + c.hi), {}};
+  if (r.contrast == 0) r.contrast = (c.hi - c.lo) * 15.0 / 255.0;
+  r.chosen = {{"window", double(w)}, {"contrast", r.contrast}, {"low_contrast_split", r.split}};
+  return r;
+}
+
 MethodInfo bernsen_info() {
   return local_info(
       "bernsen",
@@ -361,33 +493,37 @@ MethodInfo bernsen_info() {
       [](const MethodInput& in, const ParamValues& p) {
         const int64_t w = checked_window("bernsen", in.volume.geometry(), p);
         Context c = context(in, p.num("clip_pct"), true);
-        double contrast = p.num("contrast");
-        if (contrast == 0) contrast = (c.hi - c.lo) * 15.0 / 255.0;
-        const double split = 0.5 * (c.lo + c.hi);
+        const BernsenRule rule = bernsen_rule(w, p, c);
         LocalAir out;
         if (!constant_volume(in, c, out)) {
           VolumeF vmin, vmax;
           box_min_max(in.volume, w, vmin, vmax);
-          const float* v = in.volume.data();
-          const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
-          const int64_t n = in.volume.size();
           // The decision goes into vmin first and the mask is made after vmax is freed, so that
           // the peak stays at the input plus two float volumes.
-#pragma omp parallel for schedule(static)
-          for (int64_t i = 0; i < n; ++i) {
-            const double lo = vmin[i], hi = vmax[i], mid = 0.5 * (lo + hi);
-            const bool dark = hi - lo >= contrast ? double(v[i]) < mid : mid < split;
-            vmin[i] = dark && !std::isnan(v[i]) && (!roi || roi[i]) ? 1.0f : 0.0f;
-          }
+          rule.decide(in.volume, vmin, vmax, 0, vmin.size(), in.roi ? in.roi->data() : nullptr, vmin.data());
           vmax = VolumeF();
           Mask air(in.volume.geometry(), Uninitialized{});
+          const int64_t n = in.volume.size();
 #pragma omp parallel for schedule(static)
           for (int64_t i = 0; i < n; ++i) air[i] = vmin[i] != 0;
           out = finish(std::move(air), c);
         }
-        out.chosen = {{"window", double(w)}, {"contrast", contrast}, {"low_contrast_split", split}};
+        out.chosen = rule.chosen;
         return out;
-      });
+      },
+      LocalSlabs{true, true, [](const ParamValues& p, const SlabSource& src, int64_t w, Context& c, bool constant,
+                                const AirOut& out, Chosen& chosen) {
+                   const BernsenRule rule = bernsen_rule(w, p, c);
+                   chosen = rule.chosen;
+                   if (constant) return false;
+                   const int64_t nxy = src.geometry.slice_voxels();
+                   VolumeF vmin, vmax;  // one pair of buffers for every slab
+                   window_filter_by_slabs(src, w / 2, out, [&](const VolumeF& v, int64_t lead, int64_t n, uint8_t* a) {
+                     box_min_max(v, w, vmin, vmax);
+                     rule.decide(v, vmin, vmax, lead * nxy, n * nxy, nullptr, a);  // the slab's own slices
+                   });
+                   return true;
+                 }});
 }
 
 // ---- local mean / local gaussian ----------------------------------------------------------------
@@ -396,12 +532,38 @@ const char* kLocalMeanCitation =
     "Processing, 3rd ed. 2008, ch. 10; scikit-image threshold_local)";
 
 MethodInfo local_mean_info() {
-  return local_info(
+  return moments_info(
       "local-mean", "Local mean: T = m - offset, m the mean of the cubic window", kLocalMeanCitation,
       {{"offset", ParamType::Float, "0", -3.4e38, 3.4e38, {}, "grey",
         "a voxel is air when darker than its window mean by more than offset (at 0 about half of a noisy "
         "uniform material is below its mean: take a few noise sigmas)"}},
-      [](const MethodInput& in, const ParamValues& p) { return moments_local_air("local-mean", in, p); });
+      false, [](int64_t w, const ParamValues& p, Context& c, bool constant, const MaxStd&, auto&& use) {
+        return local_mean_rule(w, p, c, constant, use);
+      });
+}
+
+struct GaussianRule {
+  double sigma, offset;
+  Chosen chosen;
+  // Air of voxels [first, first + n) of v (and inside roi, aligned with them) from the Gaussian mean g of v.
+  void decide(const VolumeF& v, const VolumeF& g, int64_t first, int64_t n, const uint8_t* roi, uint8_t* air) const {
+    const float* d = v.data() + first;
+    const float* m = g.data() + first;
+    const double off = offset;
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < n; ++i) air[i] = double(d[i]) < double(m[i]) - off && (!roi || roi[i]);
+  }
+};
+
+// Refuses NaN voxels (after the constant-volume check, as the in-memory path always did).
+GaussianRule gaussian_rule(int64_t w, const ParamValues& p, const Context& c, bool constant) {
+  GaussianRule r{p.num("sigma"), p.num("offset"), {}};
+  if (r.sigma == 0) r.sigma = double(w - 1) / 6.0;
+  if (!constant && c.all.nan_count > 0)
+    throw InputError("method local-gaussian: the volume has " + std::to_string(c.all.nan_count) +
+                     " NaN voxels, which a Gaussian mean cannot skip; use local-mean or fill them");
+  r.chosen = {{"window", double(w)}, {"sigma_vox", r.sigma}, {"offset", r.offset}};
+  return r;
 }
 
 MethodInfo local_gaussian_info() {
@@ -416,27 +578,32 @@ MethodInfo local_gaussian_info() {
        {"sigma", ParamType::Float, "0", 0, 1e4, {}, "voxels", "Gaussian sigma; 0 = (window - 1)/6 as scikit-image"}},
       [](const MethodInput& in, const ParamValues& p) {
         const int64_t w = checked_window("local-gaussian", in.volume.geometry(), p);
-        const double off = p.num("offset");
-        double sigma = p.num("sigma");
-        if (sigma == 0) sigma = double(w - 1) / 6.0;
         Context c = context(in, 0, false);
         LocalAir out;
-        if (!constant_volume(in, c, out)) {
-          if (c.all.nan_count > 0)
-            throw InputError("method local-gaussian: the volume has " + std::to_string(c.all.nan_count) +
-                             " NaN voxels, which a Gaussian mean cannot skip; use local-mean or fill them");
-          const VolumeF g = gaussian_mean(in.volume, w, sigma);
+        const bool constant = constant_volume(in, c, out);
+        const GaussianRule rule = gaussian_rule(w, p, c, constant);
+        if (!constant) {
           Mask air(in.volume.geometry(), Uninitialized{});
-          const float* v = in.volume.data();
-          const uint8_t* roi = in.roi ? in.roi->data() : nullptr;
-          const int64_t n = in.volume.size();
-#pragma omp parallel for schedule(static)
-          for (int64_t i = 0; i < n; ++i) air[i] = double(v[i]) < double(g[i]) - off && (!roi || roi[i]);
+          rule.decide(in.volume, gaussian_mean(in.volume, w, rule.sigma), 0, air.size(),
+                      in.roi ? in.roi->data() : nullptr, air.data());
           out = finish(std::move(air), c);
         }
-        out.chosen = {{"window", double(w)}, {"sigma_vox", sigma}, {"offset", off}};
+        out.chosen = rule.chosen;
         return out;
-      });
+      },
+      LocalSlabs{false, true, [](const ParamValues& p, const SlabSource& src, int64_t w, Context& c, bool constant,
+                                 const AirOut& out, Chosen& chosen) {
+                   const GaussianRule rule = gaussian_rule(w, p, c, constant);
+                   chosen = rule.chosen;
+                   if (constant) return false;
+                   const int64_t nxy = src.geometry.slice_voxels();
+                   VolumeF mean;  // one buffer for every slab
+                   window_filter_by_slabs(src, w / 2, out, [&](const VolumeF& v, int64_t lead, int64_t n, uint8_t* a) {
+                     gaussian_mean(v, w, rule.sigma, mean);
+                     rule.decide(v, mean, lead * nxy, n * nxy, nullptr, a);
+                   });
+                   return true;
+                 }});
 }
 
 }  // namespace
@@ -446,39 +613,6 @@ LocalAir local_air(const std::string& method, const MethodInput& in, const std::
   auto it = air_functions().find(method);
   if (it == air_functions().end()) throw InputError("method " + method + " is not a local method");
   return it->second(in, parse_params(m, key_values));
-}
-
-bool local_method_by_slices(const std::string& method) {
-  return method == "niblack" || method == "sauvola" || method == "phansalkar" || method == "local-mean";
-}
-
-LocalAir local_air_by_slices(const std::string& method, const ParamValues& p, const Geometry& g, const Stats& all,
-                             const HistogramOf& hist, const SliceOf& slice, const AirOut& out) {
-  if (!local_method_by_slices(method))
-    throw InputError("method " + method + " is not read by slabs (of the local methods, " + kLocalMethodsBySlices +
-                     " are)");
-  const int64_t w = checked_window(method, g, p);
-  Context c = context_start(all);
-  if (moments_rule_needs_range(method)) {
-    const GreyRange range = grey_range(all, p.num("clip_pct"), hist);
-    c.lo = range.lo;
-    c.hi = range.hi;
-  }
-  std::vector<uint8_t> buf;
-  auto dest = [&](int64_t, int64_t n) {
-    buf.assign(size_t(n * g.slice_voxels()), 0);
-    return buf.data();
-  };
-  const bool constant = !(c.all.max > c.all.min);
-  LocalAir res;
-  moments_rule(method, w, p, c, constant,
-               [&](auto rule) { moments_air(g, slice, nullptr, w, c.all.mean, rule, dest, out); }, res.chosen);
-  if (constant) {  // as constant_volume: no air
-    c.warnings.push_back("constant volume (every voxel " + format_number(c.all.min, 8) + "): no local contrast, no pores");
-    for (int64_t z = 0; z < g.dims[2]; ++z) out(z, 1, dest(z, 1));
-  }
-  res.warnings = std::move(c.warnings);
-  return res;
 }
 
 PB_REGISTER_METHOD(niblack_info());

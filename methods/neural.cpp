@@ -358,16 +358,26 @@ VolumeF predict_volume(Model& m, const VolumeF& v, const Mask* roi, const Neural
       }
     }
     m.predict(in.data(), nb, prob.data());
-    // Blend: tiles in order, so each voxel sums its tiles in the same order for any thread count.
+    // Blend: one parallel pass over the volume rows the batch covers; each row adds its tiles in
+    // batch order, so each voxel sums its tiles in the same order for any thread count (and one
+    // thread owns a row: overlapping tiles never race).
+    int64_t zlo = nz_, zhi = 0;
     for (int64_t b = 0; b < nb; ++b) {
       const Tile& t = tiles[t0 + size_t(b)];
-      const int64_t kz = std::min(tz, nz_ - t.z), jy = std::min(ty, ny - t.y), ix = std::min(tx, nx - t.x);
+      zlo = std::min(zlo, t.z);
+      zhi = std::max(zhi, std::min(t.z + tz, nz_));
+    }
 #pragma omp parallel for schedule(static)
-      for (int64_t r = 0; r < kz * jy; ++r) {
-        const int64_t k = r / jy, j = r % jy;
+    for (int64_t r = 0; r < (zhi - zlo) * ny; ++r) {
+      const int64_t z = zlo + r / ny, y = r % ny;
+      for (int64_t b = 0; b < nb; ++b) {
+        const Tile& t = tiles[t0 + size_t(b)];
+        const int64_t k = z - t.z, j = y - t.y;
+        if (k < 0 || k >= tz || j < 0 || j >= ty) continue;
+        const int64_t ix = std::min(tx, nx - t.x);
         const double wkj = wz[size_t(k)] * wy[size_t(j)];
         const float* p = prob.data() + b * tv + (k * ty + j) * tx;
-        float* a = acc.data() + ((t.z + k) * ny + t.y + j) * nx + t.x;
+        float* a = acc.data() + (z * ny + y) * nx + t.x;
         for (int64_t i = 0; i < ix; ++i) a[i] += float(wkj * wx[size_t(i)]) * p[i];
       }
     }

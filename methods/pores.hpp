@@ -19,9 +19,17 @@ void air_below(const float* v, int64_t n, double threshold, const uint8_t* roi, 
 // voxels inside the ROI that are not outside air (material plus pores), the porosity denominator.
 int64_t air_to_pores(Mask& air, const Mask* roi);
 
-// Per label of c (the 6-connected components of air plus the outside of the ROI, roi nullptr: none):
-// 1 when the component reaches the volume border or holds a voxel outside the ROI (background).
+// The one rule of pore extraction, on the components c of the open mask (air, or outside the ROI;
+// 6-connected). Per label of c: 1 when the component reaches the volume border or holds a voxel
+// outside the ROI (background). The ROI as a mask (roi nullptr: none), or as the runs of the voxels
+// outside it (a volume read by slabs, methods/streaming.cpp: collected beside the open mask, so that
+// the ROI is read once).
 std::vector<uint8_t> outside_components(const LabelRuns& c, const uint8_t* roi);
+std::vector<uint8_t> outside_components(const LabelRuns& c, const LabelRuns& out_of_roi);
+// The part voxels (the porosity denominator): inside the ROI and not in a background component.
+// Every voxel outside the ROI is open, so in a background component: the part is every voxel of the
+// volume that no background component holds.
+int64_t part_voxels(const LabelRuns& c, const std::vector<uint8_t>& outside);
 
 int64_t count_nonzero(const Mask& m);
 

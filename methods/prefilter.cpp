@@ -218,6 +218,12 @@ using NetworkFn = void (*)(const MedianNetwork&, float*);
 }  // namespace
 
 VolumeF median_filter(const VolumeF& in, int radius) {
+  VolumeF out(in.geometry(), Uninitialized{});  // every voxel written below (no serial zero-fill)
+  median_filter_slices(in, radius, 0, in.nz(), out.data());
+  return out;
+}
+
+void median_filter_slices(const VolumeF& in, int radius, int64_t z0, int64_t z1, float* out) {
   const int64_t nx = in.nx(), ny = in.ny(), nz = in.nz();
   const int w = 2 * radius + 1, count = w * w * w;
   const MedianNetwork net = make_median_network<DynamicVec>(count);
@@ -231,7 +237,6 @@ VolumeF median_filter(const VolumeF& in, int radius) {
   const NetworkFn run_network = apply_network;
 #endif
   constexpr int L = kLanes;
-  VolumeF out(in.geometry(), Uninitialized{});  // every voxel written below (no serial zero-fill)
   const int64_t padded = nx + 2 * radius + L;
 #pragma omp parallel
   {
@@ -240,7 +245,7 @@ VolumeF median_filter(const VolumeF& in, int radius) {
     std::vector<Block> lanes_buf(size_t(net.wires));
     float* v = lanes_buf.data()->f;
 #pragma omp for schedule(static) collapse(2)
-    for (int64_t z = 0; z < nz; ++z)
+    for (int64_t z = z0; z < z1; ++z)
       for (int64_t y = 0; y < ny; ++y) {
         // The w*w input rows around (y, z), padded by reflection along x.
         for (int dz = 0; dz < w; ++dz)
@@ -251,7 +256,7 @@ VolumeF median_filter(const VolumeF& in, int radius) {
             for (int64_t x = 0; x < radius; ++x) dst[x] = src[reflect(x - radius, nx)];
             for (int64_t x = nx + radius; x < padded; ++x) dst[x] = src[reflect(std::min(x - radius, nx - 1 + radius), nx)];
           }
-        float* o = out.slice(z) + y * nx;
+        float* o = out + ((z - z0) * ny + y) * nx;
 #if defined(__x86_64__)
         if (fast27) {
           const float* row_ptr[9];
@@ -285,7 +290,6 @@ VolumeF median_filter(const VolumeF& in, int radius) {
         }
       }
   }
-  return out;
 }
 
 std::vector<float> gaussian_kernel(double sigma_vox) {

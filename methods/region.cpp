@@ -67,7 +67,7 @@ std::vector<ParamSpec> seed_params() {
 
 MethodInfo seeded_method(std::string name, std::string doc, std::string citation, bool with_grow,
                          std::vector<ParamSpec> extra, SeededRun run) {
-  MethodInfo m{std::move(name), "region", std::move(doc), std::move(citation), histogram_params(), {}};
+  MethodInfo m{std::move(name), "region", std::move(doc), std::move(citation), histogram_params(), {}, nullptr};  // not by slabs
   const std::vector<ParamSpec> seeds = seed_params();
   m.params.insert(m.params.end(), seeds.begin(), seeds.begin() + (with_grow ? 2 : 1));
   m.params.insert(m.params.end(), extra.begin(), extra.end());
@@ -85,7 +85,7 @@ int connectivity_of(const ParamValues& p) { return std::stoi(p.choice("connectiv
 
 MethodInfo hysteresis_info() {
   MethodInfo m{"hysteresis", "region", "hysteresis thresholding in 3D: air below `high` connected to air below `low`",
-               "Canny J. (1986) A computational approach to edge detection. IEEE Trans. PAMI 8(6):679-698", {}, {}};
+               "Canny J. (1986) A computational approach to edge detection. IEEE Trans. PAMI 8(6):679-698", {}, {}, nullptr};  // not by slabs
   m.params = {{"low", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "strong threshold: voxels below are surely air"},
               {"high", ParamType::Float, "", -3.4e38, 3.4e38, {}, "grey", "weak threshold: voxels below are air if connected to strong air"},
               {"connectivity", ParamType::Enum, "26", -1e300, 1e300, {"6", "18", "26"}, "", "neighbourhood for growing"}};

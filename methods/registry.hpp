@@ -66,10 +66,15 @@ struct MethodOutput {
   std::optional<double> external_runtime_s;
 };
 
+struct SlabMethod;  // methods/slab_method.hpp
+
 struct MethodInfo {
   std::string name, family, doc, citation;
   std::vector<ParamSpec> params;
   std::function<MethodOutput(const MethodInput&, const ParamValues&)> run;
+  // The same method on a volume read by slabs (methods/slab_method.hpp), set beside run by a family
+  // whose method can stream; null for a method that cannot (segment refuses it above --memory-limit).
+  std::shared_ptr<const SlabMethod> slabs;
 };
 
 // A pre-filter (denoising before segmentation). Composes with any method by the syntax

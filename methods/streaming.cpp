@@ -1,6 +1,6 @@
 // Segmentation by slabs (methods/streaming.hpp). Every step calls the kernel the in-memory path
-// calls (compute_histogram, method_histogram, the method's calculator, air_below, median_filter,
-// SliceMoments through local_air_by_slices, the run labelling, outside_components) on slabs, so
+// calls (compute_histogram, median_filter's median_filter_slices, the method's own air through its
+// MethodInfo::slabs (methods/slab_method.hpp), the run labelling, outside_components) on slabs, so
 // that the mask is the in-memory mask voxel for voxel.
 #include "methods/streaming.hpp"
 
@@ -28,6 +28,7 @@
 #include "methods/integral.hpp"
 #include "methods/pores.hpp"
 #include "methods/prefilter.hpp"
+#include "methods/slab_method.hpp"
 #include "methods/threshold.hpp"
 
 namespace pb {
@@ -54,7 +55,8 @@ class FileSlabs : public Slabs {
 };
 
 // The median of slices [z0, z1): the slab with a halo of `radius` slices on each side (fewer at the
-// volume's ends, where the filter mirrors as it does on the whole volume), filtered, halo dropped.
+// volume's ends, where the filter mirrors as it does on the whole volume), filtered into out at
+// those slices only (the halo is read, not filtered; out's buffer is reused).
 class MedianSlabs : public Slabs {
  public:
   MedianSlabs(const Slabs& in, int radius) : in_(in), r_(radius) {}
@@ -62,17 +64,8 @@ class MedianSlabs : public Slabs {
   void read(int64_t z0, int64_t z1, VolumeF& out) const override {
     const int64_t nz = geometry().dims[2], a = std::max<int64_t>(0, z0 - r_), b = std::min(nz, z1 + r_);
     in_.read(a, b, src_);
-    VolumeF f = median_filter(src_, r_);
-    Geometry g = f.geometry();
-    g.dims[2] = z1 - z0;
-    g.origin_mm[2] += double(z0 - a) * g.spacing_mm[2];
-    if (a == z0 && b == z1) {
-      out = std::move(f);
-      return;
-    }
-    if (out.geometry().dims != g.dims) out = VolumeF(g, Uninitialized{});
-    out.set_geometry_keep_dims(g);
-    std::memcpy(out.data(), f.slice(z0 - a), size_t(out.size()) * sizeof(float));
+    shape_slab(out, geometry(), z0, z1);
+    median_filter_slices(src_, r_, z0 - a, z1 - a, out.data());
   }
 
  private:
@@ -103,8 +96,7 @@ class KeptSlabs : public Slabs {
   void read(int64_t z0, int64_t z1, VolumeF& out) const override {
     const int64_t nxy = geometry().slice_voxels(), width = voxel_type_bytes(type_);
     if (z1 <= kept_) {  // read back
-      if (out.geometry().dims != slab_dims(z0, z1)) out = VolumeF(slab_geometry(z0, z1), Uninitialized{});
-      out.set_geometry_keep_dims(slab_geometry(z0, z1));
+      shape_slab(out, geometry(), z0, z1);
       buf_.resize(size_t((z1 - z0) * nxy * width));
       if (!transfer(buf_.data(), buf_.size(), uint64_t(z0 * nxy * width), false))
         throw InputError("cannot read back the filtered slabs: " + std::string(std::strerror(errno)));
@@ -141,13 +133,6 @@ class KeptSlabs : public Slabs {
       case VoxelType::f32: return f(float{});
     }
   }
-  std::array<int64_t, 3> slab_dims(int64_t z0, int64_t z1) const { return slab_geometry(z0, z1).dims; }
-  Geometry slab_geometry(int64_t z0, int64_t z1) const {
-    Geometry g = geometry();
-    g.dims[2] = z1 - z0;
-    g.origin_mm[2] += double(z0) * g.spacing_mm[2];
-    return g;
-  }
   // All n bytes at off, read or written; false on an error or a full disk.
   bool transfer(uint8_t* p, size_t n, uint64_t off, bool write) const {
     while (n > 0) {
@@ -166,63 +151,99 @@ class KeptSlabs : public Slabs {
   mutable std::vector<uint8_t> buf_;
 };
 
+// The ROI mask by slices (nullptr: no ROI), read from its file into one reused buffer.
+class RoiSlabs {
+ public:
+  explicit RoiSlabs(const SlabFile* f) : f_(f) {}
+  explicit operator bool() const { return f_ != nullptr; }
+  // Slices [z0, z1), valid until the next call; nullptr without an ROI.
+  const uint8_t* get(int64_t z0, int64_t z1) {
+    if (!f_) return nullptr;
+    f_->read_mask(z0, z1, buf_);
+    return buf_.data();
+  }
+
+ private:
+  const SlabFile* f_;
+  Mask buf_;
+};
+
+// f(z0, z1, slab, roi slices or nullptr) for every slab in z order.
 template <class F>
-void for_each_slab(const Slabs& s, int64_t slab, F&& f) {
+void for_each_slab(const Slabs& s, int64_t slab, RoiSlabs* roi, F&& f) {
   const int64_t nz = s.geometry().dims[2];
   VolumeF v;  // one buffer for every slab
   for (int64_t z = 0; z < nz; z += slab) {
     const int64_t z1 = std::min(nz, z + slab);
     s.read(z, z1, v);
-    f(z, z1, static_cast<const VolumeF&>(v));
+    f(z, z1, static_cast<const VolumeF&>(v), roi ? roi->get(z, z1) : nullptr);
   }
 }
 
-// What a method takes from the whole volume: the statistics of every voxel and its histograms.
+// What a method takes from the whole volume: the statistics of every voxel and its histograms, and
+// the same of the voxels inside the ROI (part, part_hist: of every voxel without an ROI).
 struct VolumeSummary {
-  Stats all;
-  HistogramOf hist;
+  Stats all, part;
+  HistogramOf hist, part_hist;
 };
 
-// Integer grey values (integer volumes, and their medians): one pass counts every grey level; the
-// statistics and any histogram follow exactly (core/histogram.hpp LevelCounts), as in memory.
-VolumeSummary level_summary(const Slabs& s, VoxelType stored, int64_t slab) {
-  auto levels = std::make_shared<LevelCounts>(stored);
-  for_each_slab(s, slab, [&](int64_t, int64_t, const VolumeF& v) {
-    if (!levels->add(v.data(), v.size())) throw std::logic_error("level_summary: a voxel is not a grey level of its type");
+// Integer grey values (integer volumes, and their medians): one pass counts every grey level (and
+// those inside the ROI); the statistics and any histogram follow exactly (core/histogram.hpp
+// LevelCounts), as in memory.
+VolumeSummary level_summary(const Slabs& s, VoxelType stored, int64_t slab, RoiSlabs& roi) {
+  auto levels = std::make_shared<LevelCounts>(stored), inside = roi ? std::make_shared<LevelCounts>(stored) : levels;
+  for_each_slab(s, slab, &roi, [&](int64_t, int64_t, const VolumeF& v, const uint8_t* r) {
+    if (!levels->add(v.data(), v.size()) || (r && !inside->add(v.data(), v.size(), r)))
+      throw std::logic_error("level_summary: a voxel is not a grey level of its type");
   });
-  return {levels->stats(), [levels](double lo, double hi, int bins) { return levels->histogram(lo, hi, bins); }};
+  auto hist_of = [](std::shared_ptr<LevelCounts> l) {
+    return HistogramOf([l](double lo, double hi, int bins) { return l->histogram(lo, hi, bins); });
+  };
+  return {levels->stats(), inside->stats(), hist_of(levels), hist_of(inside)};
 }
 
 // Float grey values: a statistics pass now, and a pass over the slabs for each histogram asked for
 // (counts are sums: exact). The mean is summed per slab (another order than in memory).
-VolumeSummary float_summary(const Slabs& s, int64_t slab) {
-  VolumeSummary out;
-  double sum = 0, lo = INFINITY, hi = -INFINITY;
-  for_each_slab(s, slab, [&](int64_t, int64_t, const VolumeF& v) {
-    const Stats t = compute_stats(v);
-    out.all.count += t.count;
-    out.all.nan_count += t.nan_count;
-    if (t.count == 0) return;
-    lo = std::min(lo, t.min), hi = std::max(hi, t.max);
-    sum += t.mean * double(t.count);
+VolumeSummary float_summary(const Slabs& s, int64_t slab, RoiSlabs& roi) {
+  struct Sum {
+    Stats s;
+    double sum = 0, lo = INFINITY, hi = -INFINITY;
+    void add(const Stats& t) {
+      s.count += t.count;
+      s.nan_count += t.nan_count;
+      if (t.count == 0) return;
+      lo = std::min(lo, t.min), hi = std::max(hi, t.max);
+      sum += t.mean * double(t.count);
+    }
+    Stats stats() const {
+      Stats o = s;
+      if (o.count > 0) o.min = lo, o.max = hi, o.mean = sum / double(o.count);
+      return o;
+    }
+  } all, inside;
+  for_each_slab(s, slab, &roi, [&](int64_t, int64_t, const VolumeF& v, const uint8_t* r) {
+    all.add(compute_stats(v));
+    if (r) inside.add(compute_stats(v.data(), v.size(), r));
   });
-  if (out.all.count > 0) out.all.min = lo, out.all.max = hi, out.all.mean = sum / double(out.all.count);
-  out.hist = [&s, slab](double a, double b, int bins) {
-    Histogram h;
-    bool first = true;
-    for_each_slab(s, slab, [&](int64_t, int64_t, const VolumeF& v) {
-      const Histogram t = compute_histogram(v.data(), v.size(), a, b, bins);
-      if (first) h = t, first = false;
-      else
-        for (int k = 0; k < bins; ++k) h.counts[size_t(k)] += t.counts[size_t(k)];
+  auto hist_of = [&s, slab, &roi](bool masked) {
+    return HistogramOf([&s, slab, &roi, masked](double a, double b, int bins) {
+      Histogram h;
+      bool first = true;
+      for_each_slab(s, slab, masked ? &roi : nullptr, [&](int64_t, int64_t, const VolumeF& v, const uint8_t* r) {
+        const Histogram t = compute_histogram(v.data(), v.size(), a, b, bins, r);
+        if (first) h = t, first = false;
+        else
+          for (int k = 0; k < bins; ++k) h.counts[size_t(k)] += t.counts[size_t(k)];
+      });
+      return h;
     });
-    return h;
   };
+  VolumeSummary out{all.stats(), roi ? inside.stats() : all.stats(), hist_of(false), hist_of(bool(roi))};
   return out;
 }
 
-VolumeSummary summary(const Slabs& s, VoxelType stored, int64_t slab) {
-  return stored == VoxelType::f32 ? float_summary(s, slab) : level_summary(s, stored, slab);
+VolumeSummary summary(const Slabs& s, VoxelType stored, int64_t slab, RoiSlabs& roi) {
+  return stored == VoxelType::f32 ? float_summary(s, slab, roi) : level_summary(s, stored, slab, roi);
 }
 
 // Slices for SliceMoments: read a slab at a time in z order and kept while the window may still
@@ -261,31 +282,67 @@ class SliceRing {
   VolumeF spare_;
 };
 
-// Pores from the runs of the air mask (as air_to_pores, no ROI), small pores removed (as
-// run_method), the mask written by slabs to its temporary (the caller commits it).
-std::unique_ptr<SlabMaskWriter> finish_pores(RunCollector& air, const ParamValues& base, const std::string& output, int64_t slab,
-                                             const std::string& no_part_setting, const std::string& method, SlabSegmentResult& r) {
-  LabelRuns c = air.finish(6);
+// The open mask of pore extraction (air, or outside the ROI: as air_to_pores) collected as runs
+// slab by slab, and beside it the runs of the voxels outside the ROI, so that the ROI is read once
+// (one slab at a time, as the air comes) for both.
+class OpenMask {
+ public:
+  OpenMask(const Geometry& g, const SlabFile* roi) : open_(g), roi_(roi), nxy_(g.slice_voxels()) {
+    if (roi) out_of_roi_ = std::make_unique<RunCollector>(g);
+  }
+  // The air of slices [z0, z0 + n), in z order (not cut to the ROI: the voxels outside it are open
+  // either way).
+  void add(int64_t z0, int64_t n, const uint8_t* air) {
+    if (!roi_) return open_.add(air, n);
+    const uint8_t* r = roi_.get(z0, z0 + n);
+    const int64_t k = n * nxy_;
+    buf_.resize(size_t(2 * k));
+    uint8_t *o = buf_.data(), *q = o + k;
+#pragma omp parallel for schedule(static)
+    for (int64_t i = 0; i < k; ++i) {
+      q[i] = !r[i];
+      o[i] = air[i] || q[i];
+    }
+    open_.add(o, n);
+    out_of_roi_->add(q, n);
+  }
+  // After the last slice: the 6-connected components of the open mask, and per label whether it is
+  // background (outside_components: the rule of air_to_pores).
+  LabelRuns finish(std::vector<uint8_t>& outside) {
+    LabelRuns c = open_.finish(6);
+    outside = out_of_roi_ ? outside_components(c, out_of_roi_->finish(6)) : outside_components(c, nullptr);
+    return c;
+  }
+
+ private:
+  RunCollector open_;
+  RoiSlabs roi_;
+  int64_t nxy_;
+  std::unique_ptr<RunCollector> out_of_roi_;
+  std::vector<uint8_t> buf_;
+};
+
+// Pores from the runs of the open mask (as air_to_pores: a component reaching the border or holding
+// a voxel outside the ROI is background; the part is what no background component holds), small
+// pores removed (as run_method), the mask written by slabs to its temporary (the caller commits it).
+std::unique_ptr<SlabMaskWriter> finish_pores(OpenMask& open, const ParamValues& base, const std::string& output,
+                                             int64_t slab, const std::string& no_part_setting, const std::string& method,
+                                             SlabSegmentResult& r) {
+  std::vector<uint8_t> outside;
+  LabelRuns c = open.finish(outside);
   const Geometry g = c.geometry;
-  const std::vector<uint8_t> outside = outside_components(c, nullptr);
+  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
+  r.part_voxels = part_voxels(c, outside);
   LabelRuns p;
   p.geometry = g;
   p.row_begin.assign(c.row_begin.size(), 0);
-  int64_t background = 0;
   const int64_t nrows = c.rows();
   for (int64_t row = 0; row < nrows; ++row) {
-    for (int64_t i = c.row_begin[size_t(row)]; i < c.row_begin[size_t(row) + 1]; ++i) {
-      const Run& u = c.runs[size_t(i)];
-      if (outside[c.label[size_t(i)]]) {
-        background += u.x1 - u.x0;
-      } else {
-        p.runs.push_back(u);
-      }
-    }
+    for (int64_t i = c.row_begin[size_t(row)]; i < c.row_begin[size_t(row) + 1]; ++i)
+      if (!outside[c.label[size_t(i)]]) p.runs.push_back(c.runs[size_t(i)]);
     p.row_begin[size_t(row) + 1] = int64_t(p.runs.size());
   }
   c = LabelRuns();
-  r.part_voxels = g.voxels() - background;
   if (r.part_voxels == 0 && !no_part_setting.empty()) r.warnings.push_back(no_part_voxels_warning(method, no_part_setting));
   std::vector<uint8_t> keep;
   const int64_t min_voxels = base.integer("min_pore_voxels");
@@ -301,7 +358,6 @@ std::unique_ptr<SlabMaskWriter> finish_pores(RunCollector& air, const ParamValue
   }
   for (uint32_t k = 1; k <= p.count; ++k) r.pore_voxels += keep[k] ? p.sizes[k] : 0;
   auto w = std::make_unique<SlabMaskWriter>(output, g);
-  const int64_t nx = g.dims[0], ny = g.dims[1], nz = g.dims[2];
   std::vector<uint8_t> buf;
   for (int64_t z0 = 0; z0 < nz; z0 += slab) {
     const int64_t z1 = std::min(nz, z0 + slab);
@@ -317,9 +373,14 @@ std::unique_ptr<SlabMaskWriter> finish_pores(RunCollector& air, const ParamValue
   return w;  // committed by the caller, after opt.before_commit
 }
 
+// About 16 MiB of float voxels per slab, at least 2 slices (segment_by_slabs takes at least twice the
+// halo of a window filter: bernsen, local-gaussian, window/2 slices each side). Small slabs stay in cache from one
+// step to the next (read, median, level counts, kept copy) and their buffers are reused: measured
+// on 512^3 and 2048 x 2048 x 64 (median+otsu), slabs of 4-32 MiB ran 1.5-2x faster than slabs of
+// 256 MiB (notes of issue 17).
 int64_t default_slab(const Geometry& g) {
   const int64_t per = std::max<int64_t>(1, g.slice_voxels() * int64_t(sizeof(float)));
-  return std::clamp<int64_t>((int64_t(256) << 20) / per, 1, std::max<int64_t>(1, g.dims[2]));
+  return std::max((int64_t(16) << 20) / per, int64_t(2));
 }
 
 }  // namespace
@@ -330,29 +391,48 @@ uint64_t segment_memory_bytes(const Geometry& g, VoxelType stored, const std::st
   return saturating_product({uint64_t(std::max<int64_t>(0, g.voxels())), per_voxel});
 }
 
-std::string slab_refusal_of_method(const std::string& method, bool roi) {
+void check_slab_roi(const SlabFile& in, const SlabFile& roi) {
+  check_same_geometry(in.geometry(), in.path(), roi.geometry(), roi.path());
+  const Geometry& g = roi.geometry();
+  const int64_t step = std::max<int64_t>(1, (int64_t(64) << 20) / std::max<int64_t>(1, g.slice_voxels()));
+  Mask m;
+  for (int64_t z = 0; z < g.dims[2]; z += step) {
+    roi.read_mask(z, std::min(g.dims[2], z + step), m);
+    if (count_nonzero(m) > 0) return;
+  }
+  throw InputError("ROI " + roi.path() + " is empty: it has no non-zero voxel, so no voxel would be classified");
+}
+
+std::string slab_refusal_of_method(const std::string& method) {
   const std::vector<std::string> parts = composition_stages(method);
   for (size_t i = 0; i + 1 < parts.size(); ++i)
     if (parts[i] != "median") return "pre-filter " + parts[i] + " is not applied by slabs (median is)";
+  const Registry& reg = Registry::instance();
   const std::string& base = parts.back();
-  if (!histogram_decider(base) && !local_method_by_slices(base))
-    return "method " + base + " does not run by slabs (the histogram methods and, of the local methods, " +
-           kLocalMethodsBySlices + " do)";
-  if (roi) return "an ROI (--roi) is not read by slabs";
-  return "";
+  const MethodInfo* m = reg.find(base);
+  if (m && m->slabs) return "";
+  std::string streams;
+  for (const MethodInfo* k : reg.all())
+    if (k->slabs) streams += (streams.empty() ? "" : ", ") + k->name;
+  return "method " + base + " does not run by slabs (these do: " + streams + ")";
 }
 
-SegmentPlan plan_segment(const std::string& input, const ReadOptions& ro, const std::string& method, bool roi,
-                         uint64_t limit) {
+SegmentPlan plan_segment(const std::string& input, const ReadOptions& ro, const std::string& method,
+                         const std::string& roi, uint64_t limit) {
   SegmentPlan plan;
   Geometry g;
   VoxelType t = VoxelType::u8;
   if (!volume_size_from_header(input, ro, g, t)) return plan;
   plan.need_bytes = segment_memory_bytes(g, t, method);
+  if (!roi.empty()) plan.need_bytes += uint64_t(std::max<int64_t>(0, g.voxels()));  // the part mask
   if (plan.need_bytes <= limit) return plan;
-  std::string why = slab_refusal_of_method(method, roi);
+  std::string why = slab_refusal_of_method(method);
   if (why.empty()) {
     why = slab_read_refusal(input, ro);
+    if (why.empty() && !roi.empty()) {
+      why = slab_read_refusal(roi, ReadOptions{});
+      if (!why.empty()) why = "the ROI " + roi + " cannot be read by slabs: " + why;
+    }
     if (!why.empty()) why += " (porebench convert writes an uncompressed .mha)";
   }
   if (!why.empty())
@@ -365,16 +445,29 @@ SegmentPlan plan_segment(const std::string& input, const ReadOptions& ro, const 
 
 SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues& params, const SlabFile& in,
                                    const std::string& output, const SlabSegmentOptions& opt) {
-  const std::string why = slab_refusal_of_method(method, false);
+  const std::string why = slab_refusal_of_method(method);
   if (!why.empty()) throw InputError("segment " + method + " of " + in.path() + " by slabs: " + why);
+  if (opt.roi) check_slab_roi(in, *opt.roi);
   const auto t0 = std::chrono::steady_clock::now();
   const Registry& reg = Registry::instance();
   const std::vector<std::string> parts = composition_stages(method);
   const MethodInfo& base_info = *reg.find(parts.back());
+  const SlabMethod& method_slabs = *base_info.slabs;
   const ParamValues base = stage_params(base_info.params, "", params);
   const Geometry& g = in.geometry();
+  if (method_slabs.check) method_slabs.check(base, g);  // before any pass over the file
   SlabSegmentResult r;
-  r.slab_slices = opt.slab_slices > 0 ? std::min<int64_t>(opt.slab_slices, std::max<int64_t>(1, g.dims[2])) : default_slab(g);
+  const int64_t halo = method_slabs.halo ? method_slabs.halo(base) : 0;
+  r.slab_slices = opt.slab_slices > 0 ? opt.slab_slices : default_slab(g);
+  if (r.slab_slices < 2 * halo) {  // a thinner slab reads and filters each slice more than twice
+    if (opt.slab_slices > 0)
+      r.slab_note = "--slab-slices " + std::to_string(opt.slab_slices) + " raised to " + std::to_string(2 * halo) +
+                  ": method " + parts.back() + " reads " + std::to_string(halo) +
+                  " slices beyond each face of a slab (its window/2), so thinner slabs would read and filter every "
+                  "slice more than twice";
+    r.slab_slices = 2 * halo;
+  }
+  r.slab_slices = std::clamp<int64_t>(r.slab_slices, 1, std::max<int64_t>(1, g.dims[2]));
   const int64_t slab = r.slab_slices;
   in.check_finite();
 
@@ -394,36 +487,34 @@ SlabSegmentResult segment_by_slabs(const std::string& method, const ParamValues&
     kept = std::make_unique<KeptSlabs>(*src, in.type(), dir.empty() ? "." : dir);
     src = kept.get();
   }
-  // Composed methods see float data (Registry::compose); the grey levels stay whole numbers.
-  const VoxelType hist_type = parts.size() > 1 ? VoxelType::f32 : in.type();
-  const VolumeSummary sum = summary(*src, in.type(), slab);
-  RunCollector air(g);
-  std::unique_ptr<SlabMaskWriter> mask;
+  RoiSlabs roi(opt.roi);  // the summary's read of the ROI; the air pass's is OpenMask's
+  const VolumeSummary sum = summary(*src, in.type(), slab, roi);
 
-  if (const HistogramDecider* decide = histogram_decider(parts.back())) {
-    const Histogram h = method_histogram(sum.all, false, hist_type, base, sum.hist);
-    const HistogramDecision d = (*decide)(h, hist_type, [&sum] { return sum.all.min; }, base);
-    const ThresholdChoice& c = d.choice;
-    std::vector<uint8_t> a;
-    for_each_slab(*src, slab, [&](int64_t, int64_t, const VolumeF& v) {
-      a.resize(size_t(v.size()));
-      air_below(v.data(), v.size(), c.threshold, nullptr, a.data());
-      air.add(a.data(), v.nz());
-    });
-    r.chosen.emplace_back("threshold", c.threshold);
-    r.warnings = c.warnings;
-    mask = finish_pores(air, base, output, slab, "threshold " + format_number(c.threshold, 6), method, r);
-    r.chosen.insert(r.chosen.begin() + 1, d.chosen.begin(), d.chosen.end());
-  } else {
-    // a local method: the window asks slices in z order, at most window + 2 batches behind the furthest.
-    const int64_t w = base.integer("window");
-    SliceRing ring(*src, std::min<int64_t>(slab, 8), w + 2 * 8 + 2);
-    LocalAir a = local_air_by_slices(parts.back(), base, g, sum.all, sum.hist, std::ref(ring),
-                                     [&air](int64_t, int64_t n, const uint8_t* slices) { air.add(slices, n); });
-    r.chosen = std::move(a.chosen);
-    r.warnings = std::move(a.warnings);
-    mask = finish_pores(air, base, output, slab, "", method, r);
-  }
+  // The method's source: slabs, or passes of slices in z order for the window sums, which ask at
+  // most window + 2 batches behind the furthest slice.
+  SlabSource slabs;
+  slabs.geometry = g;
+  slabs.read = [src](int64_t z0, int64_t z1, VolumeF& v) { src->read(z0, z1, v); };
+  slabs.slices = [src, slab](int64_t window) {
+    auto ring = std::make_shared<SliceRing>(*src, std::min<int64_t>(slab, 8), window + 2 * 8 + 2);
+    return SliceOf([ring](int64_t z) { return (*ring)(z); });
+  };
+  slabs.slab = slab;
+  // Composed methods see float data (Registry::compose); the grey levels stay whole numbers.
+  slabs.stored = parts.size() > 1 ? VoxelType::f32 : in.type();
+  slabs.all = sum.all;
+  slabs.part = sum.part;
+  slabs.hist = sum.hist;
+  slabs.part_hist = sum.part_hist;
+  // The ROI by slices for a method pass of its own (wolf's largest std in the ROI); the air is not
+  // cut to the ROI (OpenMask reads it once, beside the air).
+  RoiSlabs roi_pass(opt.roi);
+  if (opt.roi) slabs.roi = [&roi_pass](int64_t z0, int64_t n) { return roi_pass.get(z0, z0 + n); };
+  OpenMask open(g, opt.roi);
+  SlabAir a = method_slabs.air(base, slabs, [&open](int64_t z0, int64_t n, const uint8_t* air) { open.add(z0, n, air); });
+  r.chosen = std::move(a.chosen);
+  r.warnings = std::move(a.warnings);
+  std::unique_ptr<SlabMaskWriter> mask = finish_pores(open, base, output, slab, a.no_part_setting, method, r);
   r.runtime_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   if (opt.before_commit) opt.before_commit(r);
   mask->commit();

@@ -4,12 +4,13 @@
 // calculator. Global calculators and their degenerate-input policy: methods/global.cpp.
 #include "methods/threshold.hpp"
 
+#include <algorithm>
 #include <cmath>
-#include <map>
 
 #include "core/error.hpp"
 #include "core/format.hpp"
 #include "methods/pores.hpp"
+#include "methods/slab_method.hpp"
 
 namespace pb {
 
@@ -62,14 +63,20 @@ Histogram method_histogram(const Stats& s, bool roi, VoxelType stored_type, cons
   return hist(lo, hi, bins);
 }
 
-// In memory a histogram method reads its volume for the statistics, then once per histogram asked
-// for (so Otsu reads it three times: stats, histogram, comparison). One read counting every grey
-// level (LevelCounts) gives both exactly for integer data, but on this machine it is the slower of
-// the two in memory (Otsu on 512^3 uint16: 128 vs 102 ms, BM_OtsuBinariseLevelCounts vs
-// BM_OtsuBinarise, bench/README); the slab path uses it, where each read is a pass over the file
-// (methods/streaming.cpp).
+// What a histogram method reads of its volume in memory. Integer data (what CT writes): one read
+// counting every grey level (LevelCounts), from which the statistics and every histogram follow
+// exactly; with the comparison that makes Otsu two reads. Float data (or integer-typed data that
+// are not whole levels): the statistics, then a read per histogram asked for (three reads).
+// BM_OtsuBinarise / BM_OtsuBinarise3Reads compare the two on uint16 data (bench/README); the
+// slab path counts the same way (methods/streaming.cpp).
 Histogram method_histogram(const MethodInput& in, const ParamValues& p) {
   const uint8_t* roi = in.roi && p.choice("histogram") == "roi" ? in.roi->data() : nullptr;
+  if (integer_type(in.stored_type)) {
+    LevelCounts levels(in.stored_type);
+    if (levels.add(in.volume.data(), in.volume.size(), roi))
+      return method_histogram(levels.stats(), roi != nullptr, in.stored_type, p,
+                              [&](double lo, double hi, int bins) { return levels.histogram(lo, hi, bins); });
+  }
   return method_histogram(compute_stats(in.volume.data(), in.volume.size(), roi), roi != nullptr, in.stored_type, p,
                           histogram_of(in.volume, roi));
 }
@@ -115,13 +122,6 @@ ThresholdAir threshold_air(const MethodInput& in, const ParamValues& p, const Th
   return a;
 }
 
-namespace {
-std::map<std::string, HistogramDecider>& deciders() {
-  static std::map<std::string, HistogramDecider> d;
-  return d;
-}
-}  // namespace
-
 MethodInfo histogram_method(std::string name, std::string doc, std::string citation, ThresholdCalculator calc,
                             std::vector<ParamSpec> extra) {
   MethodInfo m;
@@ -131,7 +131,7 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
   m.citation = std::move(citation);
   m.params = histogram_params();
   m.params.insert(m.params.end(), extra.begin(), extra.end());
-  set_histogram_decider(m.name, [calc](const Histogram& h, VoxelType, const std::function<double()>&, const ParamValues& p) {
+  m.slabs = histogram_slabs([calc](const Histogram& h, VoxelType, const std::function<double()>&, const ParamValues& p) {
     return HistogramDecision{choose_threshold(h, calc, p), {}};
   });
   m.run = [calc = std::move(calc), name = m.name](const MethodInput& in, const ParamValues& p) {
@@ -147,11 +147,32 @@ ThresholdChoice choose_threshold(const Histogram& h, const ThresholdCalculator& 
   return calc(h, p);
 }
 
-void set_histogram_decider(const std::string& method, HistogramDecider d) { deciders()[method] = std::move(d); }
-
-const HistogramDecider* histogram_decider(const std::string& method) {
-  const auto it = deciders().find(method);
-  return it == deciders().end() ? nullptr : &it->second;
+std::shared_ptr<const SlabMethod> histogram_slabs(HistogramDecider decide) {
+  auto m = std::make_shared<SlabMethod>();
+  m->air = [decide = std::move(decide)](const ParamValues& p, const SlabSource& src, const AirOut& out) {
+    const bool roi_hist = src.roi && p.choice("histogram") == "roi";  // as method_histogram in memory
+    const Histogram h = roi_hist ? method_histogram(src.part, true, src.stored, p, src.part_hist)
+                                 : method_histogram(src.all, false, src.stored, p, src.hist);
+    const HistogramDecision d = decide(h, src.stored, [&src] { return src.part.min; }, p);
+    const double t = d.choice.threshold;
+    const int64_t nz = src.geometry.dims[2];
+    VolumeF v;  // buffers reused for every slab
+    std::vector<uint8_t> a;
+    for (int64_t z0 = 0; z0 < nz; z0 += src.slab) {
+      const int64_t z1 = std::min(nz, z0 + src.slab);
+      src.read(z0, z1, v);
+      a.resize(size_t(v.size()));
+      air_below(v.data(), v.size(), t, nullptr, a.data());
+      out(z0, z1 - z0, a.data());
+    }
+    SlabAir r;
+    r.chosen.emplace_back("threshold", t);
+    r.chosen.insert(r.chosen.end(), d.chosen.begin(), d.chosen.end());
+    r.warnings = d.choice.warnings;
+    r.no_part_setting = "threshold " + format_number(t, 6);
+    return r;
+  };
+  return m;
 }
 
 }  // namespace pb

@@ -3,6 +3,7 @@
 // parameters, with optional robust clipping), and the shared apply step (air = grey < threshold,
 // then pore extraction). A global method is a calculator: histogram -> threshold in grey units.
 #include <functional>
+#include <memory>
 #include <string>
 #include <vector>
 
@@ -67,8 +68,8 @@ MethodInfo histogram_method(std::string name, std::string doc, std::string citat
 
 // The air mask of a histogram method, before pore extraction: its histogram, the calculator's
 // choice (a constant volume: the lowest grey, no air, with a warning) and air = v < threshold inside
-// the ROI. Reads the volume three times (stats, histogram, comparison; why not two: threshold.cpp's
-// method_histogram).
+// the ROI. Reads integer data twice (grey-level counts, comparison), float data three times
+// (stats, histogram, comparison): threshold.cpp's method_histogram.
 struct ThresholdAir {
   Histogram histogram;
   ThresholdChoice choice;
@@ -90,10 +91,12 @@ struct HistogramDecision {
 };
 using HistogramDecider = std::function<HistogramDecision(const Histogram& h, VoxelType stored,
                                                          const std::function<double()>& lowest, const ParamValues& p)>;
-// histogram_method registers choose_threshold with its calculator; a method with its own policy
-// (methods/global.cpp) registers its decider after it. nullptr for other methods.
-void set_histogram_decider(const std::string& method, HistogramDecider d);
-const HistogramDecider* histogram_decider(const std::string& method);
+// The slab run of a histogram method (MethodInfo::slabs, methods/slab_method.hpp): its histogram
+// from the slab source's statistics and histograms (the ROI's with histogram=roi, as
+// method_histogram), decide's threshold, then air = v < threshold slab by slab. histogram_method
+// sets it with choose_threshold and its calculator; a method with its own policy (methods/global.cpp)
+// sets it with its decider.
+std::shared_ptr<const SlabMethod> histogram_slabs(HistogramDecider decide);
 
 // True when fewer than two bins are occupied (constant volume): no threshold can split it.
 bool single_occupied_bin(const Histogram& h);

@@ -121,27 +121,28 @@ Eval evaluate(PodLink link, const Groups& g, double b0, double b1) {
 }
 
 // Profile: for fixed theta = ln a90, eta = g90 + b1 (x - theta); maximise over b1 by 1D Newton.
+// Each evaluation gives the log-likelihood and both derivatives, so the accepted trial point's
+// evaluation serves the next step (evaluating it again gave the same bits at twice the cost).
 double profile_ll(PodLink link, const Groups& g, double g90, double theta, double& b1) {
-  auto ll_at = [&](double b, double* d1, double* d2) {
+  auto ll_at = [&](double b, double& d1, double& d2) {
     double ll = 0, a = 0, c = 0;
     for (size_t i = 0; i < g.x.size(); ++i) {
       const double z = g.x[i] - theta;
       const Terms t = group_terms(link, g, i, g90 + b * z);
       ll += t.ll, a += t.d1 * z, c += t.d2 * z * z;
     }
-    if (d1) *d1 = a;
-    if (d2) *d2 = c;
+    d1 = a, d2 = c;
     return ll;
   };
-  double d1, d2, ll = ll_at(b1, &d1, &d2);
+  double d1, d2, ll = ll_at(b1, d1, d2);
   for (int it = 0; it < 100; ++it) {
     if (!(d2 < 0)) break;
-    double step = -d1 / d2;
-    double nb = b1 + step, nll = ll_at(nb, nullptr, nullptr);
-    for (int h = 0; h < 40 && !(nll >= ll - 1e-12); ++h) step *= 0.5, nb = b1 + step, nll = ll_at(nb, nullptr, nullptr);
+    double step = -d1 / d2, nd1, nd2;
+    double nb = b1 + step, nll = ll_at(nb, nd1, nd2);
+    for (int h = 0; h < 40 && !(nll >= ll - 1e-12); ++h) step *= 0.5, nb = b1 + step, nll = ll_at(nb, nd1, nd2);
     const bool done = std::fabs(step) < 1e-10 * (1 + std::fabs(b1));
     b1 = nb;
-    ll = ll_at(b1, &d1, &d2);
+    ll = nll, d1 = nd1, d2 = nd2;
     if (done) break;
   }
   return ll;
@@ -314,26 +315,56 @@ double lower_eta_lr(PodLink link, const Groups& groups, double llmax, const PodF
   return 0.5 * (lo + hi);
 }
 
-// The band on 41 log-spaced sizes from the smaller of half the smallest target and a90/95 / 1.2 to
-// the larger of the largest target and 1.2 a90/95, and at a90/95 itself (where the lower bound is
-// 0.9 by construction).
-void lr_band(PodLink link, const Groups& groups, double llmax, PodFit& f) {
-  const bool bounded = std::isfinite(f.a90_95_um);
-  const double a0 = std::min(0.5 * f.smallest_target_um, bounded ? f.a90_95_um / 1.2 : INFINITY);
-  const double a1 = std::max(f.largest_target_um, bounded ? 1.2 * f.a90_95_um : 0.0);
+// The band's 41 log-spaced sizes from the smaller of half the smallest target and a90/95 / 1.2 to
+// the larger of the largest target and 1.2 a90/95 (a90_95 NaN: unbounded, the targets' range).
+std::vector<double> band_sizes(const PodFit& f, double a90_95) {
+  const bool bounded = std::isfinite(a90_95);
+  const double a0 = std::min(0.5 * f.smallest_target_um, bounded ? a90_95 / 1.2 : INFINITY);
+  const double a1 = std::max(f.largest_target_um, bounded ? 1.2 * a90_95 : 0.0);
   const int n = 41;
   std::vector<double> sizes;
   for (int k = 0; k < n; ++k) sizes.push_back(a0 * std::pow(a1 / a0, double(k) / (n - 1)));
-  if (bounded && std::find(sizes.begin(), sizes.end(), f.a90_95_um) == sizes.end())
-    sizes.insert(std::upper_bound(sizes.begin(), sizes.end(), f.a90_95_um), f.a90_95_um);
-  // Each size's bound is its own search (no state shared between sizes): computed in parallel,
-  // stored in order, the same for any thread count.
-  f.band.resize(sizes.size());
-  const int64_t ns = int64_t(sizes.size());
+  return sizes;
+}
+
+// One point of the band: the fit and the lower bound at size a. Each size's bound is its own
+// search (it starts from the fit, no state shared between sizes).
+PodFit::BandPoint band_point(PodLink link, const Groups& groups, double llmax, const PodFit& f, double a) {
+  const double x0 = std::log(a);
+  return {a, inverse_link(link, f.b0 + f.b1 * x0), inverse_link(link, lower_eta_lr(link, groups, llmax, f, x0))};
+}
+
+// a90/95 (phase 4) and the band on band_sizes(a90/95) plus a90/95 itself (where the lower bound is
+// 0.9 by construction). The a90/95 search is one chain of profile fits; while one thread walks it,
+// the others compute the band on the sizes a90/95 most often leaves as they are (the targets'
+// range: a90/95 within [0.6 x the smallest, the largest / 1.2]). Those points are kept when the
+// sizes turn out the same (compared exactly), otherwise computed anew; each point is its own
+// search, stored in order: the same values for any thread count.
+void a90_95_and_band(PodLink link, const Groups& groups, const std::vector<double>& x, double llmax, PodFit& f) {
+  const PodFit fit = f;  // the estimates the band reads (a90_95_bound writes f meanwhile)
+  const std::vector<double> guess = band_sizes(fit, kMetricNaN);
+  std::vector<PodFit::BandPoint> guessed(guess.size());
+  const int64_t ng = int64_t(guess.size());
 #pragma omp parallel for schedule(dynamic, 1)
-  for (int64_t k = 0; k < ns; ++k) {
-    const double a = sizes[size_t(k)], x0 = std::log(a);
-    f.band[size_t(k)] = {a, inverse_link(link, f.b0 + f.b1 * x0), inverse_link(link, lower_eta_lr(link, groups, llmax, f, x0))};
+  for (int64_t k = -1; k < ng; ++k) {
+    if (k < 0)
+      a90_95_bound(link, groups, x, llmax, f);
+    else
+      guessed[size_t(k)] = band_point(link, groups, llmax, fit, guess[size_t(k)]);
+  }
+  const double a9095 = f.a90_95_um;
+  const std::vector<double> sizes = band_sizes(fit, a9095);
+  if (sizes == guess) {
+    f.band = std::move(guessed);
+  } else {
+    f.band.resize(sizes.size());
+    const int64_t ns = int64_t(sizes.size());
+#pragma omp parallel for schedule(dynamic, 1)
+    for (int64_t k = 0; k < ns; ++k) f.band[size_t(k)] = band_point(link, groups, llmax, fit, sizes[size_t(k)]);
+  }
+  if (std::isfinite(a9095) && std::find(sizes.begin(), sizes.end(), a9095) == sizes.end()) {
+    const auto at = std::upper_bound(sizes.begin(), sizes.end(), a9095) - sizes.begin();
+    f.band.insert(f.band.begin() + at, band_point(link, groups, llmax, fit, a9095));
   }
 }
 
@@ -365,13 +396,12 @@ PodFit fit_pod(const std::vector<double>& sizes_um, const std::vector<int>& hit,
   }
   f.a50_um = pod_size_at(f, 0.5);
   f.a90_um = pod_size_at(f, 0.9);
-  a90_95_bound(link, groups, x, llmax, f);
+  a90_95_and_band(link, groups, x, llmax, f);
   f.a90_extrapolated = f.a90_um < f.smallest_target_um;
   f.a90_95_extrapolated = f.a90_95_um < f.smallest_target_um;
   if (f.a90_extrapolated)
     f.warnings.push_back("a90 lies below the smallest target (" + std::to_string(f.smallest_target_um) +
                          " um): extrapolated beyond the data");
-  lr_band(link, groups, llmax, f);
   return f;
 }
 

@@ -22,6 +22,7 @@
 #include "core/components.hpp"
 #include "core/error.hpp"
 #include "core/format.hpp"
+#include "core/slabs.hpp"
 
 namespace pb {
 
@@ -376,9 +377,7 @@ Buffer<Pore> pore_geometry(const LabelRuns& c, const uint8_t* R, const Direction
 
 // A copy of slices [z0, z1) (origin moved accordingly).
 Mask crop_z(const Mask& m, int64_t z0, int64_t z1) {
-  Geometry g = m.geometry();
-  g.dims[2] = z1 - z0;
-  g.origin_mm[2] += double(z0) * g.spacing_mm[2];
+  const Geometry g = slab_geometry(m.geometry(), z0, z1);
   Mask out(g);
   std::copy(m.slice(z0), m.slice(z0) + g.voxels(), out.data());
   return out;

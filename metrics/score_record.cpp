@@ -10,6 +10,7 @@
 #include "core/error.hpp"
 #include "core/npy.hpp"
 #include "core/sha256.hpp"
+#include "core/slabs.hpp"
 #include "metrics/pod.hpp"
 
 namespace pb {
@@ -56,9 +57,7 @@ namespace {
 // mask is made.
 LabelRuns runs_by_rule(const VolumeView& v, const IntegerMaskRule& rule, const uint8_t* roi, int64_t z0, int64_t z1,
                        int connectivity) {
-  Geometry g = v.geometry;
-  g.dims[2] = z1 - z0;
-  g.origin_mm[2] += double(z0) * g.spacing_mm[2];
+  const Geometry g = slab_geometry(v.geometry, z0, z1);
   RunCollector c(g);
   const int64_t sxy = g.slice_voxels();
   // Slabs of up to 64 slices and 4 MiB.

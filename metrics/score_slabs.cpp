@@ -29,10 +29,7 @@ std::vector<int64_t> value_counts(const SlabFile& f, int64_t slab) {
 
 // The runs of the pores of f in slices [z0, z1) (geometry of those slices), read by `rule`.
 LabelRuns runs_of(const SlabFile& f, const IntegerMaskRule& rule, int64_t z0, int64_t z1, int connectivity, int64_t slab) {
-  Geometry g = f.geometry();
-  g.dims[2] = z1 - z0;
-  g.origin_mm[2] += double(z0) * g.spacing_mm[2];
-  RunCollector c(g);
+  RunCollector c(slab_geometry(f.geometry(), z0, z1));
   VolumeF v;  // buffers reused for every slab
   std::vector<uint8_t> m;
   const float label = float(rule.label);

@@ -106,7 +106,11 @@ std::vector<Criterion> criteria_from_json(const Json& j) {
     Criterion c;
     c.key = e["key"];
     c.metric = e["metric"];
-    c.op = Criterion::Op(e["op"].get<int>());
+    const int op = e["op"].get<int>();
+    if (op < Criterion::at_least || op > Criterion::abs_at_most)
+      throw JsonPreconditionFailed("criteria[].op is " + std::to_string(op) +
+                                   ", not a comparison (0: at least, 1: at most, 2: |x| at most)");
+    c.op = Criterion::Op(op);
     c.value = e["value"];
     c.on = e.value("on", "value") == "ci" ? Criterion::on_ci : Criterion::on_value;
     c.on_note = e.value("on_note", "");

@@ -147,13 +147,23 @@ class Reader {
  private:
   template <class I>
   I to_int(const std::string& k, const toml::node& n) const {
-    double d;
-    if (auto v = n.value<int64_t>()) d = double(*v);
-    else if (auto f = n.value<double>(); f && std::floor(*f) == *f) d = *f;
-    else fail(k, "must be an integer");
-    if (d < double(std::numeric_limits<I>::lowest()) || d > double(std::numeric_limits<I>::max()))
-      fail(k, "value " + std::to_string(d) + " is out of range");
-    return I(d);
+    // The range test is exact: 2^digits is the first whole number past I's largest (a double
+    // holds it exactly), where double(max) of a 64-bit I rounds up to it and would let it through.
+    const double past_max = std::ldexp(1.0, std::numeric_limits<I>::digits);
+    const double lowest = double(std::numeric_limits<I>::lowest());  // 0 or -2^digits: exact
+    if (auto v = n.value_exact<int64_t>()) {
+      if constexpr (std::is_signed<I>::value) {
+        if (*v < int64_t(std::numeric_limits<I>::lowest()) || *v > int64_t(std::numeric_limits<I>::max()))
+          fail(k, "value " + std::to_string(*v) + " is out of range");
+      } else if (*v < 0 || uint64_t(*v) > uint64_t(std::numeric_limits<I>::max())) {
+        fail(k, "value " + std::to_string(*v) + " is out of range");
+      }
+      return I(*v);
+    }
+    const auto f = n.value<double>();
+    if (!f || std::floor(*f) != *f) fail(k, "must be an integer");
+    if (*f < lowest || *f >= past_max) fail(k, "value " + std::to_string(*f) + " is out of range");
+    return I(*f);
   }
   template <class T>
   T element(const std::string& k, const toml::node& n) const {

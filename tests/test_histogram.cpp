@@ -176,10 +176,11 @@ TEST_CASE("grey-level counts refuse voxels that are not whole levels of the type
   set_threads(0);
 }
 
-TEST_CASE("a histogram method's histogram from grey-level counts (the slab path) equals the in-memory one, 1 and 2 threads",
+TEST_CASE("a histogram method's histogram from grey-level counts equals the one from stats and histogram reads, 1 and 2 threads",
           "[histogram][global]") {
-  // Reference: the in-memory path (compute_stats + compute_histogram, each checked against the
-  // plain definition above); the counts must give the same method histogram for every setting.
+  // Reference: the three-read composition (compute_stats + compute_histogram, each checked against
+  // the plain definition above, as float data are read); the counts (what integer data take in
+  // memory and by slabs) must give the same method histogram for every setting.
   for (VoxelType t : {VoxelType::u8, VoxelType::u16, VoxelType::i16}) {
     Mask roi;
     const VolumeF v = level_volume(t, roi);
@@ -192,7 +193,9 @@ TEST_CASE("a histogram method's histogram from grey-level counts (the slab path)
       for (int threads : {1, 2}) {
         set_threads(threads);
         INFO(voxel_type_name(t) << " " << (params.empty() ? "" : params[0]) << ", threads " << threads);
-        const Histogram want = method_histogram(in, p);
+        const Histogram want = method_histogram(compute_stats(v.data(), v.size(), r), r != nullptr, t, p, [&](double lo, double hi, int bins) {
+          return compute_histogram(v.data(), v.size(), lo, hi, bins, r);
+        });
         LevelCounts levels(t);
         REQUIRE(levels.add(v.data(), v.size(), r));
         const Histogram h = method_histogram(levels.stats(), r != nullptr, t, p,

@@ -52,6 +52,12 @@ TEST_CASE("criteria on the CI bound: lower for min_, upper for max_; the record 
   CHECK(back[0].on == suite::Criterion::on_ci);
   CHECK(suite::criteria_to_json(on_ci)[0]["on"] == "ci");
   CHECK_FALSE(suite::criteria_to_json(on_value)[0].contains("on"));
+  // A record whose comparison is none of the three (a fuzzer finding: it was cast to the enum
+  // unchecked) is refused as an edited record, naming the field and value.
+  auto edited = suite::criteria_to_json(on_value);
+  edited[0]["op"] = 7;
+  CHECK_THROWS_WITH(pb::reading_records("results.json", [&] { return suite::criteria_from_json(edited); }),
+                    Catch::Contains("results.json") && Catch::Contains("criteria[].op is 7"));
 }
 
 TEST_CASE("validation suites judge on CI bounds by default", "[metrics][criteria]") {

@@ -2,10 +2,12 @@
 // against scipy.ndimage distance transforms, hand-computed cases, and the shared log bins.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 
 #include "core/components.hpp"
+#include "core/cpu.hpp"
 #include "core/json.hpp"
 #include "metrics/distribution.hpp"
 #include "metrics/surface.hpp"
@@ -73,14 +75,60 @@ TEST_CASE("surface distances by hand: two slabs one voxel apart", "[metrics][sur
   CHECK(percentile_linear({1, 2, 3, 4}, 95) == Approx(3.85));  // numpy.percentile([1,2,3,4], 95) = 3.85 by hand
 }
 
+TEST_CASE("percentile_linear by selection equals numpy and the sorted definition", "[metrics][surface]") {
+  // numpy 1.24.2: numpy.percentile(a, q) for q = 95, 50, 0, 100 (default 'linear' method).
+  const std::vector<double> a = {0.01, 0.01, 0.02, 0.0141, 0, 0.5, 0.01, 0.03, 0.01, 0.0173};
+  CHECK(percentile_linear(a, 95) == Approx(0.28849999999999953).epsilon(1e-15));
+  CHECK(percentile_linear(a, 50) == Approx(0.01205).epsilon(1e-15));
+  CHECK(percentile_linear(a, 0) == 0.0);
+  CHECK(percentile_linear(a, 100) == 0.5);
+  // The definition (numpy's 'linear'): sort, pos = q/100 (n - 1), v[lo] + (pos - lo)(v[lo+1] - v[lo]).
+  // Selection must give the same bits: many ties (distances of a few lattice lengths), one value
+  // alone, zeros, +inf, a negative value, -0.0.
+  auto by_sort = [](std::vector<double> v, double q) {
+    std::sort(v.begin(), v.end());
+    const double pos = q / 100.0 * double(v.size() - 1);
+    const size_t lo = size_t(std::floor(pos));
+    const double hi = lo + 1 < v.size() ? v[lo + 1] : v[lo];
+    return v[lo] + (pos - double(lo)) * (hi - v[lo]);
+  };
+  uint64_t state = 12345;
+  auto next = [&] {  // splitmix64
+    uint64_t z = (state += 0x9E3779B97F4A7C15ull);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
+    return z ^ (z >> 31);
+  };
+  const double lattice[5] = {0.0, 0.01, 0.01 * std::sqrt(2.0), 0.01 * std::sqrt(3.0), 0.02};
+  for (int t = 0; t < 200; ++t) {
+    const size_t n = 1 + next() % (t < 100 ? 50 : 20000);
+    std::vector<double> v(n);
+    for (auto& x : v) {
+      const uint64_t r = next();
+      x = r % 4 ? lattice[r % 5] : double(r >> 11) * 0x1.0p-53 * 0.3;  // ties, and spread values
+    }
+    if (t % 7 == 0) v[next() % n] = INFINITY;
+    if (t % 11 == 0) v[next() % n] = -0.25;
+    if (t % 13 == 0) v[next() % n] = -0.0;
+    for (double q : {0.0, 5.0, 50.0, 95.0, 99.9, 100.0}) {
+      INFO("t = " << t << ", n = " << n << ", q = " << q);
+      const double want = by_sort(v, q), got = percentile_linear(v, q);
+      CHECK((got == want || (std::isnan(got) && std::isnan(want))));
+    }
+  }
+  CHECK(std::isnan(percentile_linear({}, 95)));
+}
+
 TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metrics][surface][ref]") {
   // Reference: scipy.ndimage.binary_erosion surfaces and distance_transform_edt with sampling
   // (python3-scipy). Random balls, independently for the two sides (surfaces far apart: ring
   // searches), or the second side = the first moved one voxel along x plus a few balls (nearly
-  // coincident surfaces: the 3x3x3 first look). Rows of 40 and of 130 voxels (two 64-voxel words
-  // and a tail), and of 300 (75 grid cells a row: two words of cell occupancy bits).
+  // coincident surfaces: the 3x3x3 first look), or that plus 1 % isolated voxels (noise: many far
+  // points a cell, searched together). Rows of 40 and of 130 voxels (two 64-voxel words and a
+  // tail), and of 300 (75 grid cells a row: two words of cell occupancy bits).
   const int nx = GENERATE(40, 130, 300);
-  const bool near = GENERATE(false, true);
+  const int mode = GENERATE(0, 1, 2);  // apart, near, near + noise
+  const bool near = mode > 0;
   Geometry g;
   g.dims = {nx, 33, 27};
   g.spacing_mm = {0.02, 0.025, 0.03};
@@ -100,6 +148,9 @@ TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metric
   if (near) {
     for (int64_t i = 1; i < p.size(); ++i) r[i] = p[i - 1];
     balls(r, 3);
+    if (mode == 2)
+      for (int64_t i = 0; i < r.size(); ++i)
+        if (u(rng) < 0.01) r[i] = 1;
   } else {
     balls(r, 12 * nx / 40);
   }
@@ -111,10 +162,16 @@ TEST_CASE("hd95 and assd agree with scipy.ndimage distance transforms", "[metric
   INFO(out.err);
   REQUIRE(out.exit_code == 0);
   const auto j = nlohmann::json::parse(out.out);
-  INFO("nx " << nx << " near " << near);
+  INFO("nx " << nx << " mode " << mode);
   const SurfaceDistances s = surface_distances(label_runs(p, nullptr, 26), label_runs(r, nullptr, 26));
   CHECK(s.surface_voxels_pred == j["n_pred"].get<int64_t>());
   CHECK(s.surface_voxels_ref == j["n_ref"].get<int64_t>());
   CHECK(s.hd95_mm == Approx(j["hd95"].get<double>()).epsilon(1e-9));
   CHECK(s.assd_mm == Approx(j["assd"].get<double>()).epsilon(1e-9));
+  // The generic and the AVX2 scan of a cell's points round alike: the same bits.
+  set_simd_cap(Simd::generic);
+  const SurfaceDistances g0 = surface_distances(label_runs(p, nullptr, 26), label_runs(r, nullptr, 26));
+  set_simd_cap(Simd::avx512);
+  CHECK(g0.hd95_mm == s.hd95_mm);
+  CHECK(g0.assd_mm == s.assd_mm);
 }

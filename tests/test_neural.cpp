@@ -92,8 +92,9 @@ VolumeF smooth_volume(int64_t nx, int64_t ny, int64_t nz, unsigned seed) {
 
 TEST_CASE("OpenCV dnn and LibTorch equal PyTorch on fixed inputs (2D, 2.5D, 3D)", "[neural]") {
   // Source: PyTorch 1.13 (Debian python3-torch) run on the same weights and inputs by
-  // tests/ref/neural_models.py. Tolerance 1e-4 from issue 13.
-  for (const char* name : {"tiny2d", "tiny25d", "conv3d", "tiny3d"})
+  // tests/ref/neural_models.py. Tolerance 1e-4 from issue 13. sep2d / sep25d: depthwise-separable
+  // 3x3 convolutions, the shipped models' kind (OpenCV runs grouped convolutions on another path).
+  for (const char* name : {"tiny2d", "tiny25d", "sep2d", "sep25d", "conv3d", "tiny3d"})
     for (int threads : {1, 2}) {
       INFO(name << ", threads " << threads);
       CHECK(engine_vs_pytorch(name, threads) <= 1e-4);
@@ -149,7 +150,7 @@ TEST_CASE("model cards: every error names the card, the field and the value", "[
 
 TEST_CASE("an unsupported layer is named; a NaN output is refused", "[neural]") {
   // OpenCV 4.6 cannot run this 3D U-Net exported as ONNX (measured here: its importer stops at an
-  // Identity node; /work/shared/notes/inference-engines.md reports ConvTranspose3d refused at
+  // Identity node; models/ENGINES.md reports ConvTranspose3d refused at
   // forward): either way the error names the card, the layer and its type.
   const std::string deconv = card_of("deconv3d");
   CHECK_THROWS_WITH(Model(read_model_card(deconv), 1),
@@ -230,7 +231,7 @@ TEST_CASE("tiled and whole-slice inference agree away from seams", "[neural]") {
 }
 
 TEST_CASE("the probability map is bit-identical for 1 and 2 threads and any batch", "[neural]") {
-  for (const char* name : {"tiny2d", "tiny25d", "tiny3d"}) {
+  for (const char* name : {"tiny2d", "tiny25d", "sep2d", "tiny3d"}) {
     INFO(name);
     const VolumeF v = smooth_volume(70, 50, 37, 11);
     set_threads(1);
@@ -313,12 +314,13 @@ TEST_CASE("export-patches writes calibration slices only; train.py trains one ep
 
   // One epoch of models/train.py on these patches (the smoke run; real training is not run in CI).
   r = pbtest::run_shell(std::string(PB_PYTHON) + " " + PB_TEST_SCRIPTS + "/../../models/train.py --data " + d / "patches" +
-                        " --out " + d / "model --name smoke --epochs 1 --steps 2 --batch 2 --base 4 --levels 2 --tile 32 --slices 3");
+                        " --out " + d / "model --name smoke --epochs 1 --steps 2 --batch 2 --base 4 --levels 2 --tile 32 --slices 3 --separable");
   INFO(r.out << r.err);
   REQUIRE(r.exit_code == 0);
   Model m(read_model_card(d / "model/card.json"), 1);
   CHECK(m.card().kind == "stack");
   CHECK(m.card().slices == 3);
+  CHECK(m.card().training["unet"]["separable"] == true);  // the shipped models' architecture
   const VolumeF v = smooth_volume(40, 40, 5, 2);
   const VolumeF p = predict_volume(m, v, nullptr, {});
   CHECK(p.size() == v.size());

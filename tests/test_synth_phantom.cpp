@@ -82,6 +82,23 @@ TEST_CASE("recipe: unknown keys, bad values and unknown presets name the field",
   CHECK_THROWS_WITH(parse_recipe("[scan]\nprojections = \"many\"\n", "r.toml"),
                     Catch::Contains("r.toml") && Catch::Contains("scan.projections"));
   CHECK_THROWS_WITH(parse_recipe("seed = \n", "r.toml"), Catch::Contains("r.toml") && Catch::Contains("line 1"));
+  // Integers at the edge of their type (a fuzzer finding: 2^63 passed the range test of a 64-bit
+  // field as a double and its conversion overflowed). The largest int64 is taken as written; the
+  // first whole numbers past int64 and uint64, written as floats, are refused with the key named.
+  const auto with = [&d](const std::string& key, const std::string& value) {  // d's text, one line changed
+    std::string t = to_toml(d);
+    const size_t at = t.find("\n" + key + " = ");
+    REQUIRE(at != std::string::npos);
+    t.replace(at + 1, t.find('\n', at + 1) - at - 1, key + " = " + value);
+    return t;
+  };
+  CHECK(parse_recipe(with("placement_budget", "9223372036854775807"), "r.toml").placement_budget == INT64_MAX);
+  CHECK_THROWS_WITH(parse_recipe(with("placement_budget", "9.223372036854775808e18"), "r.toml"),
+                    Catch::Contains("phantom.placement_budget") && Catch::Contains("out of range"));
+  CHECK_THROWS_WITH(parse_recipe(with("seed", "1.8446744073709552e19"), "r.toml"),
+                    Catch::Contains("seed") && Catch::Contains("out of range"));
+  CHECK(parse_recipe(with("seed", "1.8446744073709550e19"), "r.toml").seed == uint64_t(18446744073709549568ull));
+  CHECK_THROWS_WITH(parse_recipe(with("seed", "-1"), "r.toml"), Catch::Contains("seed") && Catch::Contains("out of range"));
 }
 
 TEST_CASE("truth: a box with faces on voxel boundaries has exactly its voxel count", "[synth][phantom]") {

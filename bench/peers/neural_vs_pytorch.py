@@ -11,8 +11,10 @@ BM_NeuralForward, batch 4) vs the same weights (weights.pt) in eager PyTorch.
 3D: a random-weight 3D U-Net (2 levels, base 8, 64^3 patch, batch 1) frozen to TorchScript,
 through LibTorch (BM_Neural3DForward) vs the same file in Python (torch.jit.load +
 optimize_for_inference). PyTorch gets the allocator tunables that stop its per-call page faults
-(GLIBC_TUNABLES, /work/shared/notes/inference-engines.md); our engine sets the same with mallopt.
-Prints "PyTorch ms / ours ms" per model and thread count (> 1: ours faster).
+(GLIBC_TUNABLES, models/ENGINES.md); our engine sets the same with mallopt.
+Prints "PyTorch ms / ours ms" per model and thread count (> 1: ours faster), with the goals of
+issue 13 (OpenCV dnn >= 1x; LibTorch within 5 %: >= 0.95x), through peerlib: sides alternate, the
+ratio is of the medians, refused (exit 3) when a side's spread is wider than 25 %.
 """
 import argparse
 import json
@@ -22,6 +24,8 @@ import subprocess
 import sys
 import tempfile
 import time
+
+import peerlib
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.abspath(os.path.join(HERE, "..", ".."))
@@ -36,7 +40,8 @@ def torch_side(kind, path, threads):
         from unet import UNet
         card = json.load(open(path))
         arch = card["training"]["unet"]
-        model = UNet(dims=2, in_channels=arch["in_channels"], base=arch["base"], levels=arch["levels"], sigmoid=True)
+        model = UNet(dims=2, in_channels=arch["in_channels"], base=arch["base"], levels=arch["levels"], sigmoid=True,
+                     separable=arch.get("separable", False))
         model.load_state_dict(torch.load(os.path.join(os.path.dirname(path), "weights.pt")))
         model.eval()
         t = card["input"]["tile"]
@@ -100,22 +105,22 @@ def main():
     ap.add_argument("--threads", type=int, nargs="+", default=[1, 2])
     ap.add_argument("--card", default=os.path.join(ROOT, "models", "gear-unet-released", "card.json"))
     a = ap.parse_args()
+    verdicts = []
     with tempfile.TemporaryDirectory() as tmp:
         pt3d, card3d = make_3d(tmp)
         env = dict(os.environ, PB_BENCH_CARD=a.card, PB_BENCH_CARD_3D=card3d)
-        for label, kind, path, bench in (("2D shipped model, OpenCV dnn", "2d", a.card, "BM_NeuralForward"),
-                                         ("3D U-Net 64^3, LibTorch", "3d", pt3d, "BM_Neural3DForward")):
+        for label, kind, path, bench, goal in (("2D shipped model, OpenCV dnn", "2d", a.card, "BM_NeuralForward", 1.0),
+                                               ("3D U-Net 64^3, LibTorch", "3d", pt3d, "BM_Neural3DForward", 0.95)):
             for t in a.threads:
-                ratios, o_ms, p_ms = [], [], []
-                for _ in range(a.rounds):
-                    o = ours(a.binary, bench, t, env)
-                    p = pytorch(kind, path, t)
-                    ratios.append(p / o)
-                    o_ms.append(o)
-                    p_ms.append(p)
-                print(f"{label}, {t} thread(s): PyTorch {statistics.median(p_ms):.1f} ms, ours "
-                      f"{statistics.median(o_ms):.1f} ms, PyTorch / ours = {statistics.median(ratios):.2f} x "
-                      f"(rounds: {', '.join(f'{r:.2f}' for r in ratios)})", flush=True)
+                # Sides alternate, one process each per round; peerlib refuses the ratio when a
+                # side's spread is wider than 25 % (issue 16).
+                run = peerlib.alternate({"PyTorch": lambda: pytorch(kind, path, t) / 1e3,
+                                         "ours": lambda: ours(a.binary, bench, t, env) / 1e3}, a.rounds)
+                _, verdict = peerlib.ratio(run, "PyTorch", "ours", goal=goal,
+                                           what=f"{label}, {t} thread(s): PyTorch / ours")
+                verdicts.append(verdict)
+                sys.stdout.flush()
+    sys.exit(peerlib.exit_status(verdicts))
 
 
 if __name__ == "__main__":

@@ -3,6 +3,14 @@
 // engine_abi.h. The only file that sees opencv2/dnn; opened by methods/neural_engines.cpp when the
 // first ONNX model is loaded (OpenCV dnn and protobuf cost ~17 ms of CPU at every start while they
 // were linked into the executables, issue 16).
+// Allocator: at glibc's default (dynamic) mmap and trim thresholds, tiled inference with the shipped
+// model took 45-65 page faults per forward call of 4 x 128^2 tiles in porebench_bench (perf stat over
+// 4-20 iterations of BM_NeuralHarness[Bare]; ~15 us each on this VM, models/ENGINES.md:
+// several % of a call); none per call with these settings. So buffers up to
+// 32 MiB come from the heap and up to 64 MiB of free heap is kept for the process (volumes, larger,
+// are still mapped and given back). The LibTorch engine keeps more (engine_modules/torch.cpp).
+#include <malloc.h>
+
 #include <opencv2/core.hpp>
 #include <opencv2/core/utils/logger.hpp>
 #include <opencv2/dnn.hpp>
@@ -50,6 +58,8 @@ PB_EXPORT pb_engine_model* pb_engine_load(const char* path, int threads) {
   try {
     // Failures are reported to the caller; OpenCV's own log lines would only repeat them.
     cv::utils::logging::setLogLevel(cv::utils::logging::LOG_LEVEL_SILENT);
+    mallopt(M_MMAP_THRESHOLD, 32 << 20);
+    mallopt(M_TRIM_THRESHOLD, 64 << 20);
     auto m = std::make_unique<pb_engine_model>();
     try {
       m->net = cv::dnn::readNetFromONNX(path);

@@ -3,7 +3,7 @@
 // sees LibTorch headers (13-17 s and ~720 MB to compile); opened by methods/neural_engines.cpp when
 // the first TorchScript model is loaded.
 // Allocator: with glibc's default malloc LibTorch maps and unmaps its large tensors on every call
-// (10k-60k page faults per forward, 2-5x slower; /work/shared/notes/inference-engines.md), so the
+// (10k-60k page faults per forward, 2-5x slower; models/ENGINES.md), so the
 // engine keeps freed memory in the heap (M_MMAP_MAX 0, a high M_TRIM_THRESHOLD) for the process.
 #include <malloc.h>
 

@@ -4,6 +4,8 @@ Usage: /usr/bin/python3 neural_models.py OUTDIR
 Writes OUTDIR/NAME/{card.json, model.onnx|model.pt, input.npy, expected.npy} for
   tiny2d    2D U-Net (slice), ONNX, sigmoid in the graph          -> OpenCV dnn
   tiny25d   2.5D U-Net (stack of 3 slices as channels), ONNX      -> OpenCV dnn
+  sep2d     2D U-Net, depthwise-separable 3x3 convolutions, ONNX  -> OpenCV dnn (the shipped models' kind)
+  sep25d    the same as a 2.5D stack of 3 slices, ONNX            -> OpenCV dnn
   tiny3d    3D U-Net (patch), TorchScript, logits                  -> LibTorch
   conv3d    3D plain convolution net (patch), ONNX                 -> OpenCV dnn
   deconv3d  3D U-Net as ONNX: OpenCV 4.6 refuses ConvTranspose3d   -> the 'unsupported layer' error
@@ -59,6 +61,15 @@ def main(out):
     randomise_batchnorm(m, gen)
     emit(out, "tiny25d", m, torch.zeros(2, 3, 32, 32), "onnx",
          card("tiny25d", "onnx", "model.onnx", "stack", [32, 32], slices=3), gen)
+
+    m = UNet(dims=2, in_channels=1, base=4, levels=2, sigmoid=True, separable=True)
+    randomise_batchnorm(m, gen)
+    emit(out, "sep2d", m, torch.zeros(2, 1, 32, 32), "onnx", card("sep2d", "onnx", "model.onnx", "slice", [32, 32]), gen)
+
+    m = UNet(dims=2, in_channels=3, base=4, levels=2, sigmoid=True, separable=True)
+    randomise_batchnorm(m, gen)
+    emit(out, "sep25d", m, torch.zeros(2, 3, 32, 32), "onnx",
+         card("sep25d", "onnx", "model.onnx", "stack", [32, 32], slices=3), gen)
 
     m = UNet(dims=3, in_channels=1, base=4, levels=2, sigmoid=False)
     randomise_batchnorm(m, gen)
