@@ -2,7 +2,8 @@
 // likelihood fit of POD(a) = F(b0 + b1 ln a) by Newton's method with step halving (for the logit
 // link Newton is IRLS), covariance = inverse observed information, a90/95 from the profile
 // likelihood of ln a90 (Venzon & Moolgavkar 1988, Appl. Stat. 37:87, solved here by bracketing and
-// bisection), Wald bound by the delta method, Clopper & Pearson (1934) binned intervals.
+// Alefeld, Potra & Shi's TOMS 748 root finder, Boost.Math), Wald bound by the delta method, Clopper &
+// Pearson (1934) binned intervals.
 #include "metrics/pod.hpp"
 
 #include <Eigen/Dense>
@@ -10,6 +11,7 @@
 #include <boost/math/distributions/chi_squared.hpp>
 #include <boost/math/distributions/normal.hpp>
 #include <boost/math/special_functions/beta.hpp>
+#include <boost/math/tools/toms748_solve.hpp>
 #include <cmath>
 
 #include "core/error.hpp"
@@ -248,6 +250,25 @@ double newton_fit(PodLink link, const Groups& groups, PodFit& f) {
   return e.ll;
 }
 
+// Where the profile deviance rise crosses chi2_1(0.90) between `in` (rise_in <= the bound, the
+// side of the fit) and `out` (rise_out above it): TOMS 748 (Alefeld, Potra & Shi 1995, ACM TOMS
+// 21:327; Boost.Math's toms748_solve) to a bracket of 1e-10 (1 + |x|), at most 60 steps, the
+// midpoint of the last bracket. It takes about a tenth of the profile fits that bisection to the
+// same width took. A rise that is not a number counts as within the bound, as bisection had it.
+template <class Rise>
+double crossing(Rise& rise, double in, double rise_in, double out, double rise_out) {
+  auto f = [&](double t) {
+    const double r = rise(t);
+    return std::isnan(r) ? -kChi2_90 : r - kChi2_90;
+  };
+  const auto close = [](double a, double b) { return std::fabs(b - a) <= 1e-10 * (1 + std::max(std::fabs(a), std::fabs(b))); };
+  const double a = std::min(in, out), b = std::max(in, out);
+  const double fin = std::isnan(rise_in) ? -kChi2_90 : rise_in - kChi2_90, fout = rise_out - kChi2_90;
+  boost::uintmax_t steps = 60;
+  const auto r = boost::math::tools::toms748_solve(f, a, b, in < out ? fin : fout, in < out ? fout : fin, close, steps);
+  return 0.5 * (r.first + r.second);
+}
+
 // Phase 4: a90/95, the largest theta = ln a > ln a90 whose profile deviance rise stays within
 // chi2_1(0.90), by bracketing and bisection; the Wald bound beside it.
 void a90_95_bound(PodLink link, const Groups& groups, const std::vector<double>& x, double llmax, PodFit& f) {
@@ -262,12 +283,14 @@ void a90_95_bound(PodLink link, const Groups& groups, const std::vector<double>&
   const double xmax = *std::max_element(x.begin(), x.end()), xmin = *std::min_element(x.begin(), x.end());
   const double span = std::max(xmax - xmin, 1e-3);
   double lo = theta, hi = theta, step = 0.02 * span;
+  double rise_lo = 0, rise_hi = 0;  // at the fit (theta) the profile is the maximum: no rise
   const double limit = theta + 20 * span;  // beyond this the bound is reported as unbounded
   bool bracketed = false;
   while (hi < limit) {
-    lo = hi;
+    lo = hi, rise_lo = rise_hi;
     hi = std::min(hi + step, limit);
-    if (rise(hi) > kChi2_90) {
+    rise_hi = rise(hi);
+    if (rise_hi > kChi2_90) {
       bracketed = true;
       break;
     }
@@ -279,11 +302,7 @@ void a90_95_bound(PodLink link, const Groups& groups, const std::vector<double>&
     return;
   }
   b1 = f.b1;
-  for (int it = 0; it < 60 && hi - lo > 1e-10 * (1 + std::fabs(hi)); ++it) {
-    const double mid = 0.5 * (lo + hi);
-    (rise(mid) > kChi2_90 ? hi : lo) = mid;
-  }
-  f.a90_95_um = std::exp(0.5 * (lo + hi));
+  f.a90_95_um = std::exp(crossing(rise, lo, rise_lo, hi, rise_hi));
 }
 
 
@@ -295,12 +314,14 @@ double lower_eta_lr(PodLink link, const Groups& groups, double llmax, const PodF
   double b1 = f.b1;
   auto rise = [&](double e) { return 2 * (llmax - profile_ll(link, groups, e, x0, b1)); };
   double hi = eta_hat, lo = eta_hat, step = 0.5 * se;
+  double rise_hi = 0, rise_lo = 0;  // at the fitted eta the profile is the maximum: no rise
   const double limit = eta_hat - 100 * se - 50;
   bool bracketed = false;
   while (lo > limit) {
-    hi = lo;
+    hi = lo, rise_hi = rise_lo;
     lo = std::max(lo - step, limit);
-    if (rise(lo) > kChi2_90) {
+    rise_lo = rise(lo);
+    if (rise_lo > kChi2_90) {
       bracketed = true;
       break;
     }
@@ -308,11 +329,7 @@ double lower_eta_lr(PodLink link, const Groups& groups, double llmax, const PodF
   }
   if (!bracketed) return -INFINITY;
   b1 = f.b1;
-  for (int it = 0; it < 60 && hi - lo > 1e-10 * (1 + std::fabs(lo)); ++it) {
-    const double mid = 0.5 * (lo + hi);
-    (rise(mid) > kChi2_90 ? lo : hi) = mid;
-  }
-  return 0.5 * (lo + hi);
+  return crossing(rise, hi, rise_hi, lo, rise_lo);
 }
 
 // The band's 41 log-spaced sizes from the smaller of half the smallest target and a90/95 / 1.2 to
