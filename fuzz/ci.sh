@@ -38,11 +38,14 @@ export ASAN_OPTIONS=detect_leaks=1:abort_on_error=1:strict_string_checks=1:log_p
 export UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1:suppressions=$PWD/fuzz/ubsan.supp:log_path=$logs/ubsan
 export LSAN_OPTIONS=suppressions=$PWD/fuzz/lsan.supp:print_suppressions=0
 PB_ASAN_EXCLUDE=${PB_ASAN_EXCLUDE:-'committed reference|reference run|install_consumer'}
-# Run without leak detection (PB_ASAN_NOLEAK): the test that loads OpenCV dnn (TBB threads) and
+# Run without leak detection (PB_ASAN_NOLEAK): the tests that load OpenCV dnn (TBB threads) and
 # LibTorch (libgomp threads) into one clang-built process (LLVM libomp): LeakSanitizer's tracer,
 # which stops every thread to scan their stacks, dies there with SIGSEGV ("Tracer caught signal
-# 11") and aborts a passing test. Address and undefined-behaviour checks stay on for it.
-PB_ASAN_NOLEAK=${PB_ASAN_NOLEAK:-'OpenCV dnn and LibTorch equal PyTorch'}
+# 11") at exit and aborts a passing test. Address and undefined-behaviour checks stay on for them.
+# The card-error and thread-identity tests joined the first when they took the depthwise-separable
+# models (OpenCV's grouped-convolution path): reproduced alone, and not caused by onnx.cpp's mallopt
+# settings (removed for a try: the tracer still died).
+PB_ASAN_NOLEAK=${PB_ASAN_NOLEAK:-'OpenCV dnn and LibTorch equal PyTorch|model cards: every error names the card|probability map is bit-identical for 1 and 2 threads'}
 status=0
 (cd build-asan && ctest -j"$jobs" --output-on-failure -E "$PB_ASAN_EXCLUDE|$PB_ASAN_NOLEAK") || status=1
 (cd build-asan && ASAN_OPTIONS=${ASAN_OPTIONS/detect_leaks=1/detect_leaks=0} \
