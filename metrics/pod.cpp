@@ -252,9 +252,10 @@ double newton_fit(PodLink link, const Groups& groups, PodFit& f) {
 
 // Where the profile deviance rise crosses chi2_1(0.90) between `in` (rise_in <= the bound, the
 // side of the fit) and `out` (rise_out above it): TOMS 748 (Alefeld, Potra & Shi 1995, ACM TOMS
-// 21:327; Boost.Math's toms748_solve) to a bracket of 1e-10 (1 + |x|), at most 60 steps, the
-// midpoint of the last bracket. It takes about a tenth of the profile fits that bisection to the
-// same width took. A rise that is not a number counts as within the bound, as bisection had it.
+// 21:327, from memory; Boost.Math's toms748_solve) to a bracket of 1e-10 (1 + |x|), at most 60 steps, the
+// midpoint of the last bracket. Over the quick suite's 1,614 searches it took 14,547 profile fits,
+// brackets included, where bisection to the same width took 57,190. A rise that is not a number
+// counts as within the bound, as bisection had it.
 template <class Rise>
 double crossing(Rise& rise, double in, double rise_in, double out, double rise_out) {
   auto f = [&](double t) {
@@ -270,7 +271,7 @@ double crossing(Rise& rise, double in, double rise_in, double out, double rise_o
 }
 
 // Phase 4: a90/95, the largest theta = ln a > ln a90 whose profile deviance rise stays within
-// chi2_1(0.90), by bracketing and bisection; the Wald bound beside it.
+// chi2_1(0.90), by bracketing and crossing(); the Wald bound beside it.
 void a90_95_bound(PodLink link, const Groups& groups, const std::vector<double>& x, double llmax, PodFit& f) {
   const double g90 = link_quantile(link, 0.9);
   const double theta = (g90 - f.b0) / f.b1;
