@@ -110,9 +110,8 @@ void check_memory(uint64_t bytes, const std::string& what, bool with_live) {
 
 bool last_buffer_was_fresh() { return t_last_fresh; }
 
-void* allocate_buffer(size_t bytes, bool* fresh) {
+void* allocate_buffer(size_t bytes) {
   t_last_fresh = false;
-  if (fresh) *fresh = false;
   if (bytes < kLargeBufferBytes) return ::operator new(bytes);
   check_memory(bytes, "a buffer", true);
   const size_t len = rounded(bytes);
@@ -158,7 +157,6 @@ void* allocate_buffer(size_t bytes, bool* fresh) {
 #endif
   g_live += bytes;
   t_last_fresh = true;
-  if (fresh) *fresh = true;
   return p;
 }
 

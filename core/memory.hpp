@@ -46,12 +46,12 @@ void check_memory(uint64_t bytes, const std::string& what, bool with_live = fals
 // a * b * ... with overflow reported as UINT64_MAX (so that it fails any budget check).
 uint64_t saturating_product(std::initializer_list<uint64_t> factors);
 
-// Throws MemoryBudgetError or std::bad_alloc. *fresh (when given) tells whether the memory reads
-// as zero: true only for a newly mapped large block (small ones come from operator new).
-void* allocate_buffer(size_t bytes, bool* fresh = nullptr);
+// Throws MemoryBudgetError or std::bad_alloc.
+void* allocate_buffer(size_t bytes);
 void free_buffer(void* p, size_t bytes) noexcept;  // bytes as given to allocate_buffer
-// Whether the last allocate_buffer call of this thread returned fresh (zero) memory: for
-// allocators that cannot pass the flag through (std::vector's).
+// Whether the last allocate_buffer call of this thread returned memory that reads as zero: true
+// only for a newly mapped large block (small ones come from operator new, recycled ones hold the
+// last user's bytes). Read right after the call (core/volume.hpp's allocator does).
 bool last_buffer_was_fresh();
 // Recycled large blocks kept now (bytes mapped, not in use), and unmapping them all (the high-
 // water mark restarts from the buffers alive).

@@ -90,7 +90,7 @@ Buffer<T> zeroed_buffer(size_t n) {
 }
 
 struct Uninitialized {};  // tag: Image(g, Uninitialized{}) leaves the voxels unset
-struct Zeroed {};         // tag: Image(g, Zeroed{}) is all zero, touching memory only when small
+struct Zeroed {};         // tag: Image(g, Zeroed{}) is all zero, touching memory only when not fresh (zeroed_buffer)
 
 template <class T>
 class Image {

@@ -23,9 +23,7 @@ constexpr size_t kMiB = size_t(1) << 20;
 TEST_CASE("a freed large block serves the next request of its length, not zeroed, and says so", "[memory][pool]") {
   release_recycled_buffers();
   const uint64_t live = large_buffer_bytes_in_use();
-  bool fresh = false;
-  auto* a = static_cast<uint8_t*>(allocate_buffer(6 * kMiB, &fresh));
-  CHECK(fresh);
+  auto* a = static_cast<uint8_t*>(allocate_buffer(6 * kMiB));
   CHECK(last_buffer_was_fresh());
   CHECK(std::all_of(a, a + 6 * kMiB, [](uint8_t v) { return v == 0; }));  // fresh anonymous pages
   std::memset(a, 0xab, 6 * kMiB);
@@ -33,9 +31,8 @@ TEST_CASE("a freed large block serves the next request of its length, not zeroed
   CHECK(recycled_buffer_bytes() == 6 * kMiB);  // 6 MiB is a whole number of 2 MiB pages
   CHECK(large_buffer_bytes_in_use() == live);
   // 5.5 MiB rounds up to the same 6 MiB: the same block, holding the last user's bytes.
-  auto* b = static_cast<uint8_t*>(allocate_buffer(6 * kMiB - kMiB / 2, &fresh));
+  auto* b = static_cast<uint8_t*>(allocate_buffer(6 * kMiB - kMiB / 2));
   CHECK(b == a);
-  CHECK_FALSE(fresh);
   CHECK_FALSE(last_buffer_was_fresh());
   CHECK(b[0] == 0xab);
   CHECK(b[6 * kMiB - kMiB / 2 - 1] == 0xab);
@@ -43,8 +40,8 @@ TEST_CASE("a freed large block serves the next request of its length, not zeroed
   CHECK(large_buffer_bytes_in_use() == live + 6 * kMiB - kMiB / 2);
   free_buffer(b, 6 * kMiB - kMiB / 2);
   // Small buffers come from operator new: never reported fresh.
-  void* s = allocate_buffer(1000, &fresh);
-  CHECK_FALSE(fresh);
+  void* s = allocate_buffer(1000);
+  CHECK_FALSE(last_buffer_was_fresh());
   free_buffer(s, 1000);
   release_recycled_buffers();
   CHECK(recycled_buffer_bytes() == 0);
