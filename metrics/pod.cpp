@@ -258,13 +258,11 @@ double newton_fit(PodLink link, const Groups& groups, PodFit& f) {
 // counts as within the bound, as bisection had it.
 template <class Rise>
 double crossing(Rise& rise, double in, double rise_in, double out, double rise_out) {
-  auto f = [&](double t) {
-    const double r = rise(t);
-    return std::isnan(r) ? -kChi2_90 : r - kChi2_90;
-  };
+  auto excess = [](double r) { return std::isnan(r) ? -kChi2_90 : r - kChi2_90; };
+  auto f = [&](double t) { return excess(rise(t)); };
   const auto close = [](double a, double b) { return std::fabs(b - a) <= 1e-10 * (1 + std::max(std::fabs(a), std::fabs(b))); };
   const double a = std::min(in, out), b = std::max(in, out);
-  const double fin = std::isnan(rise_in) ? -kChi2_90 : rise_in - kChi2_90, fout = rise_out - kChi2_90;
+  const double fin = excess(rise_in), fout = excess(rise_out);
   boost::uintmax_t steps = 60;
   const auto r = boost::math::tools::toms748_solve(f, a, b, in < out ? fin : fout, in < out ? fout : fin, close, steps);
   return 0.5 * (r.first + r.second);
