@@ -367,7 +367,8 @@ VolumeF predict_volume(Model& m, const VolumeF& v, const Mask* roi, const Neural
       zlo = std::min(zlo, t.z);
       zhi = std::max(zhi, std::min(t.z + tz, nz_));
     }
-#pragma omp parallel for schedule(static)
+    // Dynamic: a batch's tiles cover its rows unevenly (a slice's first rows hold most tiles).
+#pragma omp parallel for schedule(dynamic, 8)
     for (int64_t r = 0; r < (zhi - zlo) * ny; ++r) {
       const int64_t z = zlo + r / ny, y = r % ny;
       for (int64_t b = 0; b < nb; ++b) {

@@ -320,7 +320,7 @@ TEST_CASE("export-patches writes calibration slices only; train.py trains one ep
   Model m(read_model_card(d / "model/card.json"), 1);
   CHECK(m.card().kind == "stack");
   CHECK(m.card().slices == 3);
-  CHECK(m.card().training["unet"]["separable"] == true);  // the shipped models' architecture
+  CHECK(m.card().training["unet"]["separable"] == true);  // train.py --separable reaches the card
   const VolumeF v = smooth_volume(40, 40, 5, 2);
   const VolumeF p = predict_volume(m, v, nullptr, {});
   CHECK(p.size() == v.size());

@@ -5,7 +5,7 @@
 // were linked into the executables, issue 16).
 // Allocator: at glibc's default (dynamic) mmap and trim thresholds, tiled inference with the shipped
 // model took 45-65 page faults per forward call of 4 x 128^2 tiles in porebench_bench (perf stat over
-// 4-20 iterations of BM_NeuralHarness[Bare]; ~15 us each on this VM, models/ENGINES.md:
+// 4-20 iterations of BM_NeuralHarness[Bare]; ~15 us each on this VM (models/ENGINES.md),
 // several % of a call); none per call with these settings. So buffers up to
 // 32 MiB come from the heap and up to 64 MiB of free heap is kept for the process (volumes, larger,
 // are still mapped and given back). The LibTorch engine keeps more (engine_modules/torch.cpp).
