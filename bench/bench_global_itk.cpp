@@ -176,6 +176,6 @@ void BM_OtsuBinarise3Reads(benchmark::State& state) {
   }
   state.counters["voxels_per_s"] = benchmark::Counter(double(v.size()), benchmark::Counter::kIsIterationInvariantRate);
 }
-BENCHMARK(BM_OtsuBinarise3Reads)->ArgsProduct({{256, 512}, {0, 1}})->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_OtsuBinarise3Reads)->ArgsProduct({{256, 512}, {1}})->Unit(benchmark::kMillisecond)->UseRealTime();
 
 }  // namespace

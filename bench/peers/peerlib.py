@@ -8,8 +8,9 @@ is (max - min) / median over its runs; when either side's spread is wider than M
 is refused (printed as such, exit status 3) rather than printed as if it were a measurement.
 Every report line carries the load average (1 min) before and after.
 
-Used by: bench_ratio.py, ccl_vs_scipy.py, sauvola_vs_skimage.py, otsu_vs_itk.sh, score_python_vs_cli.sh
-and stream_vs_memory.py (which also call settle_memory before every timed run); bench/score_rss.py and bench/synth_speed.py
+Used by: bench_ratio.py, ccl_vs_scipy.py, sauvola_vs_skimage.py, otsu_vs_itk.sh, neural_vs_pytorch.py,
+score_python_vs_cli.sh and stream_vs_memory.py (these two also call settle_memory before every timed
+run); bench/score_rss.py and bench/synth_speed.py
 (time_v: one command under /usr/bin/time -v).
 """
 import json
